@@ -1,0 +1,27 @@
+# The two README commands: `make demo` and `make test`. Both set up .venv first.
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test bench clean venv
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+venv: $(STAMP)
+
+demo: $(STAMP)
+	$(VENV)/bin/roomconv demo --out demo_out --force
+
+test: $(STAMP)
+	$(PY) -m pytest -q
+
+bench: $(STAMP)
+	$(PY) -m benchmarks.run
+
+clean:
+	rm -rf $(VENV) demo_out .pytest_cache

@@ -1,0 +1,94 @@
+"""Hearing and equipment safety: the caution text, level caps, ramps and an output limiter.
+
+Every code path that sends sound to a device goes through here first.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .errors import InputError
+
+HEARING_CAUTION = """\
+CAUTION - HEARING AND EQUIPMENT
+  * Sweeps and test signals are loud and rich in high frequencies. Set the amplifier and
+    monitor volume LOW before starting, and raise it gradually.
+  * Do not wear headphones or stand close to the loudspeaker during a measurement.
+    Hearing protection is advised for anyone in the room.
+  * High levels at low or high frequencies can destroy loudspeaker drivers (tweeters
+    especially). Respect the loudspeaker's rated power and band.
+  * Follow local noise regulations, site rules and your licensed practice; this program
+    does not replace them.
+roomconv starts well below full scale, ramps levels in and out, and caps its output at
+{cap:.0f} dBFS, but it cannot know the gain of your amplifier."""
+
+#: Hard cap on anything roomconv sends to a sound card, dBFS peak.
+OUTPUT_CAP_DBFS = -1.0
+#: Default level of a live sweep: well below full scale.
+START_LEVEL_DBFS = -20.0
+#: Ramp applied at the start and end of every playback, seconds.
+RAMP_S = 0.05
+
+
+def caution_text(cap_dbfs: float = OUTPUT_CAP_DBFS) -> str:
+    return HEARING_CAUTION.format(cap=cap_dbfs)
+
+
+def db_to_gain(db: float) -> float:
+    return float(10.0 ** (db / 20.0))
+
+
+def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
+    """Validate a playback level against the hard cap."""
+    if not np.isfinite(level_dbfs):
+        raise InputError(f"level {level_dbfs} dBFS is not a number")
+    if level_dbfs > cap_dbfs:
+        raise InputError(f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
+                         "(lower --level)")
+    return level_dbfs
+
+
+def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.ndarray:
+    """Raised-cosine fade-in and fade-out over ``ramp_s`` at both ends (copy)."""
+    out = np.array(signal, dtype=np.float64, copy=True)
+    n = min(int(round(ramp_s * rate)), out.shape[0] // 2)
+    if n > 0:
+        w = 0.5 - 0.5 * np.cos(np.pi * np.arange(n) / n)
+        shape = (n,) + (1,) * (out.ndim - 1)
+        out[:n] *= w.reshape(shape)
+        out[-n:] *= w[::-1].reshape(shape)
+    return out
+
+
+def hard_cap(signal: np.ndarray, cap_dbfs: float = OUTPUT_CAP_DBFS) -> np.ndarray:
+    """Clip anything above the cap (a last line of defence after the limiter)."""
+    g = db_to_gain(cap_dbfs)
+    return np.clip(signal, -g, g)
+
+
+class OutputLimiter:
+    """A look-ahead-free peak limiter for live output: instant attack, smooth release.
+
+    Gain never lets a sample exceed the ceiling; the release is exponential.
+    """
+
+    def __init__(self, rate: int, ceiling_dbfs: float = OUTPUT_CAP_DBFS, release_s: float = 0.2):
+        self.ceiling = db_to_gain(ceiling_dbfs)
+        self._release = float(np.exp(-1.0 / max(release_s * rate, 1.0)))
+        self._gain = 1.0
+        self.max_reduction_db = 0.0
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        """Limit one block (samples × channels), returning a new array."""
+        peaks = np.max(np.abs(block), axis=1) if block.ndim == 2 else np.abs(block)
+        gains = np.empty(len(peaks))
+        g = self._gain
+        for i, pk in enumerate(peaks):
+            need = self.ceiling / pk if pk > self.ceiling else 1.0
+            g = min(need, 1.0 - (1.0 - g) * self._release)
+            gains[i] = g
+        self._gain = g
+        if gains.size:
+            self.max_reduction_db = max(self.max_reduction_db, -20 * np.log10(gains.min()))
+        out = block * (gains[:, None] if block.ndim == 2 else gains)
+        return hard_cap(out, 20 * np.log10(self.ceiling))
