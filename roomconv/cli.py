@@ -1,0 +1,283 @@
+"""The ``roomconv`` command line: argparse sub-commands over the library.
+
+Each command loads, calls the numerics and saves. Errors from :mod:`roomconv.errors` become a
+one-line message and exit code 2 (bad input) or 1 (internal); ``--debug`` shows tracebacks.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+from pathlib import Path
+
+from . import __version__, safety
+from .errors import InputError, RoomconvError
+
+COMMANDS = {}
+
+
+def command(name: str, help: str):
+    """Register ``func(args)`` as a sub-command; ``func.configure(parser)`` adds its options."""
+    def deco(func):
+        COMMANDS[name] = (func, help)
+        return func
+    return deco
+
+
+def _common() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(add_help=False)
+    p.add_argument("--debug", action="store_true", help="show tracebacks on errors")
+    p.add_argument("--quiet", action="store_true", help="no progress bars or reports on stdout")
+    return p
+
+
+def _positive(kind):
+    def conv(text):
+        try:
+            v = kind(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+        if v <= 0:
+            raise argparse.ArgumentTypeError(f"{text} must be positive")
+        return v
+    return conv
+
+
+def _out(msg: str, args) -> None:
+    if not getattr(args, "quiet", False):
+        print(msg)
+
+
+def _note(msg: str) -> None:
+    print(f"roomconv: {msg}", file=sys.stderr)
+
+
+# --- sweep ---------------------------------------------------------------------------------
+def _sweep_options(p, level_default: float):
+    g = p.add_argument_group("sweep")
+    g.add_argument("--rate", type=int, default=48000, help="sample rate in Hz (default 48000)")
+    g.add_argument("--low", type=_positive(float), default=20.0, help="start frequency, Hz (20)")
+    g.add_argument("--high", type=_positive(float), default=20000.0,
+                   help="stop frequency, Hz (20000; at most half the rate)")
+    g.add_argument("--duration", type=_positive(float), default=5.0,
+                   help="sweep length in seconds, without silences (5)")
+    g.add_argument("--level", type=float, default=level_default,
+                   help=f"peak level in dBFS ({level_default:g})")
+    g.add_argument("--pre", type=float, default=0.5, help="silence before the first sweep, s (0.5)")
+    g.add_argument("--silence", type=float, default=2.0,
+                   help="silence after each sweep, s; longer than the room's decay (2)")
+    g.add_argument("--repeat", type=int, default=1, help="back-to-back sweeps to average (1)")
+    g.add_argument("--fade-in", type=float, default=0.05, help="fade-in, s (0.05)")
+    g.add_argument("--fade-out", type=float, default=0.01, help="fade-out, s (0.01)")
+
+
+def _sweep_from_args(a):
+    from .measure.sweep import Sweep
+    return Sweep(rate=a.rate, f_low=a.low, f_high=a.high, duration=a.duration,
+                 level_dbfs=a.level, fade_in=a.fade_in, fade_out=a.fade_out,
+                 silence_pre=a.pre, silence_post=a.silence, repeats=a.repeat)
+
+
+@command("sweep", "write an exponential sine sweep (WAV + .sweep.json sidecar)")
+def cmd_sweep(a):
+    from .measure.files import save_sweep
+    s = _sweep_from_args(a)
+    save_sweep(a.output, s, subtype=a.subtype, force=a.force)
+    _out(f"wrote {a.output} ({s.n_total / s.rate:.2f} s, {s.repeats} sweep(s) "
+         f"{s.f_low:g}-{s.f_high:g} Hz at {s.level_dbfs:g} dBFS) and its sidecar", a)
+    return 0
+
+
+def _cfg_sweep(p):
+    p.add_argument("output", type=Path, help="the sweep WAV to write")
+    _sweep_options(p, level_default=-6.0)
+    p.add_argument("--subtype", default="FLOAT", help="WAV sample format (FLOAT, PCM_24, ...)")
+    p.add_argument("--force", action="store_true", help="replace an existing output")
+
+
+cmd_sweep.configure = _cfg_sweep
+
+
+# --- extract -------------------------------------------------------------------------------
+@command("extract", "deconvolve a recorded sweep into an impulse response")
+def cmd_extract(a):
+    from .measure.files import extract_files, format_quality, save_extraction
+    inputs = [a.recording, a.sweep]
+    from .audio import check_output
+    check_output(a.output, force=a.force, inputs=inputs)
+    ex, notes = extract_files(a.recording, a.sweep, reference_channel=a.reference_channel,
+                              length_s=a.length, trim=a.trim, harmonics=a.harmonics is not None,
+                              allow_clipped=a.allow_clipped)
+    for n in notes:
+        _note(n)
+    save_extraction(ex, a.output, harmonics_dir=a.harmonics, json_path=a.json, force=a.force,
+                    inputs=inputs, settings=_settings(a))
+    _out(format_quality(ex.quality), a)
+    if ex.trimmed_samples:
+        _out(f"trimmed {ex.trimmed_samples} samples ({1000 * ex.trimmed_samples / ex.rate:.1f} ms)"
+             " of leading silence", a)
+    _out(f"wrote {a.output} ({ex.ir.shape[1]} channel(s), {ex.ir.shape[0] / ex.rate:.2f} s)", a)
+    return 0
+
+
+def _cfg_extract(p):
+    p.add_argument("recording", type=Path, help="the recorded sweep (one or more channels)")
+    p.add_argument("--sweep", type=Path, required=True, help="the sweep WAV that was played")
+    p.add_argument("-o", "--output", type=Path, required=True, help="IR WAV to write")
+    _extract_options(p)
+
+
+def _extract_options(p):
+    p.add_argument("--reference-channel", type=int, default=None, metavar="K",
+                   help="0-based index of a loopback channel in the recording")
+    p.add_argument("--length", type=_positive(float), default=None, metavar="S",
+                   help="IR length in seconds (default: the silence after the sweep)")
+    p.add_argument("--harmonics", type=Path, default=None, metavar="DIR",
+                   help="also write harmonic IRs (orders 2-5) into DIR")
+    p.add_argument("--trim", action="store_true", help="cut leading silence before the onset")
+    p.add_argument("--json", type=Path, default=None, metavar="FILE",
+                   help="write the quality report as JSON")
+    p.add_argument("--allow-clipped", action="store_true",
+                   help="accept a clipped recording (results will be distorted)")
+    p.add_argument("--force", action="store_true", help="replace existing outputs")
+
+
+cmd_extract.configure = _cfg_extract
+
+
+def _settings(a) -> dict:
+    skip = {"func", "debug", "quiet", "force"}
+    return {k: (str(v) if isinstance(v, Path) else v) for k, v in vars(a).items() if k not in skip}
+
+
+# --- measure -------------------------------------------------------------------------------
+def confirm_caution(a) -> None:
+    """Show the caution; require --yes or a typed 'yes' on a terminal."""
+    print(safety.caution_text(), file=sys.stderr)
+    if a.yes:
+        return
+    if not sys.stdin.isatty():
+        raise InputError("sound would be played: read the caution above and pass --yes to "
+                         "confirm (no terminal to ask on)")
+    reply = input("Type 'yes' to play the signal: ").strip().lower()
+    if reply != "yes":
+        raise InputError("measurement cancelled: the caution was not confirmed")
+
+
+@command("measure", "play a sweep through a sound card, record and extract the IR")
+def cmd_measure(a):
+    from .audio import check_output, read_audio, write_audio
+    from .measure.capture import SimulatedDevice, SoundCard, run_measurement
+    from .measure.deconvolve import extract_ir
+    from .measure.files import format_quality, save_extraction
+    from .measure.sweep import sweep_signal
+    safety.check_level(a.level)
+    s = _sweep_from_args(a)
+    for p in (a.output, a.save_recording, a.json):
+        if p is not None:
+            check_output(p, force=a.force)
+    inputs = []
+    if a.simulate is not None:
+        ir, ir_rate = read_audio(a.simulate, what="simulated room IR")
+        if ir_rate != s.rate:
+            raise InputError(f"{a.simulate}: the simulated room is at {ir_rate} Hz but the sweep "
+                             f"at {s.rate} Hz (pass --rate {ir_rate})")
+        device = SimulatedDevice(ir, latency_samples=a.sim_latency, noise_dbfs=a.sim_noise,
+                                 loopback=a.reference_channel is not None, seed=a.seed)
+        _note("simulated device: no sound will be played")
+        inputs = [a.simulate]
+    else:
+        chans = tuple(int(c) for c in a.input_channels.split(","))
+        device = SoundCard(device=a.device, output_channel=a.output_channel, input_channels=chans)
+        confirm_caution(a)
+    rec = run_measurement(device, sweep_signal(s), s.rate, tail_s=0.5)
+    if a.save_recording is not None:
+        write_audio(a.save_recording, rec, s.rate, force=a.force)
+    ex = extract_ir(rec, s.rate, sweep=s, reference_channel=a.reference_channel,
+                    length_s=a.length, harmonics=a.harmonics is not None, trim=a.trim,
+                    allow_clipped=a.allow_clipped)
+    save_extraction(ex, a.output, harmonics_dir=a.harmonics, json_path=a.json, force=a.force,
+                    inputs=inputs, settings={**_settings(a), "sweep": s.to_dict()})
+    _out(format_quality(ex.quality), a)
+    _out(f"wrote {a.output}", a)
+    return 0
+
+
+def _cfg_measure(p):
+    p.add_argument("output", type=Path, help="IR WAV to write")
+    _sweep_options(p, level_default=safety.START_LEVEL_DBFS)
+    g = p.add_argument_group("device")
+    g.add_argument("--device", default=None, help="PortAudio device index or name")
+    g.add_argument("--output-channel", type=int, default=1, help="1-based output channel (1)")
+    g.add_argument("--input-channels", default="1",
+                   help="1-based input channels, comma-separated (1); include the loopback")
+    g.add_argument("--yes", action="store_true",
+                   help="confirm you have read the hearing and equipment caution")
+    g.add_argument("--save-recording", type=Path, default=None, metavar="FILE",
+                   help="also keep the raw recording")
+    g = p.add_argument_group("rehearsal without a sound card")
+    g.add_argument("--simulate", type=Path, default=None, metavar="IR.wav",
+                   help="measure a simulated room with this response instead of a sound card")
+    g.add_argument("--sim-noise", type=float, default=-90.0, help="simulated noise, dBFS (-90)")
+    g.add_argument("--sim-latency", type=int, default=0, help="simulated latency, samples (0)")
+    g.add_argument("--seed", type=int, default=0, help="noise seed for --simulate (0)")
+    _extract_options(p)
+
+
+cmd_measure.configure = _cfg_measure
+
+
+# --- entry point ---------------------------------------------------------------------------
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="roomconv", parents=[_common()],
+        description="Measure, analyse, synthesize and render through room impulse responses.")
+    parser.add_argument("--version", action="version", version=f"roomconv {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name, (func, help_) in COMMANDS.items():
+        p = sub.add_parser(name, help=help_, description=help_, parents=[_common()])
+        func.configure(p)
+        p.set_defaults(func=func)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    _load_plugins()
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.func(args) or 0)
+    except RoomconvError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"roomconv: error: {exc}", file=sys.stderr)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("roomconv: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # noqa: BLE001 - the last line of defence for users
+        if args.debug:
+            traceback.print_exc()
+        print(f"roomconv: internal error: {type(exc).__name__}: {exc} "
+              "(run again with --debug for details and report it)", file=sys.stderr)
+        return 1
+
+
+def _load_plugins() -> None:
+    """Import the modules that register further sub-commands."""
+    import importlib
+    for mod in ("roomconv.cli_analysis", "roomconv.cli_synth", "roomconv.cli_render",
+                "roomconv.demo"):
+        try:
+            importlib.import_module(mod)
+        except ModuleNotFoundError as exc:
+            if exc.name != mod:
+                raise
+
+
+if __name__ == "__main__":
+    sys.exit(main())

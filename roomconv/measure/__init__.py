@@ -1,0 +1,1 @@
+"""Swept-sine measurement: the excitation, its deconvolution and the quality of the result."""
