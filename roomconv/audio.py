@@ -109,6 +109,10 @@ def atomic_path(path, *, force: bool = False, inputs: Iterable = ()) -> Iterator
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        # mkstemp makes the file private; give it the permissions a plain open() would.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp_path, 0o666 & ~umask)
         os.replace(tmp_path, out)
     finally:
         if tmp_path.exists():

@@ -1,0 +1,230 @@
+"""Writers for analysis results: a terminal table, CSV, and a self-contained HTML report
+with decay-curve and per-band plots (matplotlib, embedded as PNG data).
+"""
+
+from __future__ import annotations
+
+import base64
+import csv
+import html
+import io
+
+import numpy as np
+
+from ..safety import caution_text
+from .parameters import METRICS
+
+HEADERS = {"edt_s": "EDT s", "t20_s": "T20 s", "t30_s": "T30 s", "c50_db": "C50 dB",
+           "c80_db": "C80 dB", "d50": "D50", "ts_ms": "Ts ms", "inr_db": "INR dB",
+           "xi_permille": "xi ‰", "curvature_pct": "C %", "g_db": "G dB"}
+_FMT = {"edt_s": "{:.2f}", "t20_s": "{:.2f}", "t30_s": "{:.2f}", "c50_db": "{:+.1f}",
+        "c80_db": "{:+.1f}", "d50": "{:.2f}", "ts_ms": "{:.0f}", "inr_db": "{:.0f}",
+        "xi_permille": "{:.1f}", "curvature_pct": "{:+.1f}", "g_db": "{:+.1f}"}
+
+
+def fmt(metric: str, value) -> str:
+    return "—" if value is None else _FMT[metric].format(value)
+
+
+def band_label(band_hz) -> str:
+    if band_hz is None:
+        return "wide"
+    return f"{band_hz / 1000:g}k" if band_hz >= 1000 else f"{band_hz:g}"
+
+
+def _metrics(doc) -> tuple[str, ...]:
+    return METRICS + (("g_db",) if doc["settings"].get("calibration") is not None else ())
+
+
+def table_rows(position: dict, metrics) -> list[list[str]]:
+    rows = []
+    for r in position["bands"] + [position["wideband"]]:
+        rows.append([band_label(r["band_hz"])] + [fmt(m, r.get(m)) for m in metrics])
+    return rows
+
+
+def text_table(header: list[str], rows: list[list[str]]) -> str:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]
+    line = "  ".join(h.rjust(w) for h, w in zip(header, widths))
+    out = [line, "-" * len(line)]
+    out += ["  ".join(c.rjust(w) for c, w in zip(r, widths)) for r in rows]
+    return "\n".join(out)
+
+
+def terminal_report(doc: dict, *, warnings: bool = True) -> str:
+    """Per-position tables, the average with uncertainty, single numbers and warnings."""
+    metrics = _metrics(doc)
+    header = ["band"] + [HEADERS[m] for m in metrics]
+    parts = []
+    for p in doc["positions"]:
+        parts.append(f"\n{p['file']}  channel {p['channel']}")
+        parts.append(text_table(header, table_rows(p, metrics)))
+        if warnings:
+            ws = [w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]]
+            parts += [f"  ! {w}" for w in ws]
+    if len(doc["positions"]) > 1:
+        parts.append(f"\nAverage over {len(doc['positions'])} positions (mean ± std; "
+                     "T uncertainty per ISO 3382-2)")
+        avg_header = ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"]
+        rows = []
+        for r in doc["average"]["bands"]:
+            u = r["t30_s"].get("uncertainty")
+            rows.append([band_label(r["band_hz"]),
+                         _pm("edt_s", r), _pm("t20_s", r), _pm("t30_s", r),
+                         "—" if u is None else f"{u:.3f}",
+                         _pm("c80_db", r), _pm("d50", r), _pm("ts_ms", r)])
+        parts.append(text_table(avg_header, rows))
+    sn = doc["average"]["single_numbers"]
+    parts.append("\nMid-frequency values: " + ", ".join(
+        f"{k} {'—' if v is None else f'{v:.3g}'}" for k, v in sn.items()))
+    for n in doc.get("notes", []):
+        parts.append(f"note: {n}")
+    for e in doc.get("errors", []):
+        parts.append(f"error: {e}")
+    return "\n".join(parts)
+
+
+def _pm(metric, row) -> str:
+    s = row[metric]
+    if s["mean"] is None:
+        return "—"
+    txt = fmt(metric, s["mean"])
+    return txt + (f"±{_FMT[metric].format(s['std']).lstrip('+')}" if s["std"] is not None else "")
+
+
+def csv_text(doc: dict) -> str:
+    """One row per position × band (wideband as band 'wideband'), then the averages."""
+    metrics = _metrics(doc)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["file", "channel", "band_hz"] + list(metrics) + ["warnings"])
+    for p in doc["positions"]:
+        for r in p["bands"] + [p["wideband"]]:
+            w.writerow([p["file"], p["channel"],
+                        "wideband" if r["band_hz"] is None else r["band_hz"]]
+                       + ["" if r.get(m) is None else f"{r[m]:.6g}" for m in metrics]
+                       + [" | ".join(r["warnings"])])
+    for r in doc["average"]["bands"]:
+        row = ["average", "", r["band_hz"]]
+        row += ["" if r[m]["mean"] is None else f"{r[m]['mean']:.6g}" for m in metrics]
+        row.append("")
+        w.writerow(row)
+    return buf.getvalue()
+
+
+# --- HTML ----------------------------------------------------------------------------------
+def _png(fig) -> str:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=96, bbox_inches="tight")
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def decay_figure(results, rate: int, title: str):
+    from matplotlib.figure import Figure  # lazy: only reports need matplotlib
+    fig = Figure(figsize=(8, 4.2))
+    ax = fig.add_subplot(111)
+    import matplotlib
+    cmap = matplotlib.colormaps["viridis"]
+    for i, r in enumerate(results):
+        if r.curve_db is None:
+            continue
+        t = np.arange(r.curve_db.size) / rate
+        ax.plot(t, r.curve_db, lw=1.2, color=cmap(i / max(1, len(results) - 1)),
+                label=band_label(r.band_hz))
+    ax.set_ylim(-70, 2)
+    ax.set_xlabel("time after onset (s)")
+    ax.set_ylabel("decay (dB)")
+    ax.set_title(title)
+    ax.grid(alpha=0.3)
+    ax.legend(ncol=5, fontsize=7, loc="upper right")
+    return fig
+
+
+def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
+    """Per-band values of ``metric`` at every position, the average with error bars, and
+    optional extra series {label: {band_hz: value}} (e.g. a prediction)."""
+    from matplotlib.figure import Figure
+    fig = Figure(figsize=(8, 3.6))
+    ax = fig.add_subplot(111)
+    for p in doc["positions"]:
+        xs = [r["band_hz"] for r in p["bands"] if r.get(metric) is not None]
+        ys = [r[metric] for r in p["bands"] if r.get(metric) is not None]
+        ax.plot(xs, ys, "o", ms=3, alpha=0.4, color="tab:gray")
+    avg = [r for r in doc["average"]["bands"] if r[metric]["mean"] is not None]
+    if avg:
+        err = [r[metric].get("uncertainty") or r[metric]["std"] or 0 for r in avg]
+        ax.errorbar([r["band_hz"] for r in avg], [r[metric]["mean"] for r in avg], yerr=err,
+                    fmt="-o", color="tab:blue", capsize=3, label="average")
+    for label, series in (extra or {}).items():
+        ks = sorted(series)
+        ax.plot(ks, [series[k] for k in ks], "--s", ms=4, label=label)
+    ax.set_xscale("log")
+    bands = sorted({r["band_hz"] for r in doc["average"]["bands"]})
+    ax.set_xticks(bands)
+    ax.set_xticklabels([band_label(b) for b in bands], fontsize=7)
+    ax.minorticks_off()
+    ax.set_xlabel("band (Hz)")
+    ax.set_ylabel(ylabel)
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    return fig
+
+
+def _html_table(header, rows) -> str:
+    h = "".join(f"<th>{html.escape(c)}</th>" for c in header)
+    body = "".join("<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>"
+                   for r in rows)
+    return f"<table><thead><tr>{h}</tr></thead><tbody>{body}</tbody></table>"
+
+
+_CSS = """body{font-family:system-ui,sans-serif;max-width:1000px;margin:2em auto;color:#222}
+table{border-collapse:collapse;font-size:13px;margin:0.5em 0}td,th{border:1px solid #ccc;
+padding:2px 6px;text-align:right}th{background:#eef}h1{font-size:1.5em}h2{margin-top:1.6em}
+.warn{color:#a40}.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
+white-space:pre-wrap;font-size:12px}img{max-width:100%}"""
+
+
+def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
+                extra_series: dict | None = None) -> str:
+    """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first."""
+    doc = study.document
+    metrics = _metrics(doc)
+    header = ["band"] + [HEADERS[m] for m in metrics]
+    out = [f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
+           f"</title><style>{_CSS}</style></head><body><h1>{html.escape(title)}</h1>",
+           f"<p>roomconv {html.escape(doc['roomconv_version'])}; {doc['settings']['bands']} "
+           f"bands; {html.escape(doc['settings']['decay_method'])}.</p>"]
+    for heading, body in sections:
+        out.append(f"<h2>{html.escape(heading)}</h2>{body}")
+    sn = doc["average"]["single_numbers"]
+    out.append("<h2>Headline figures</h2>" + _html_table(
+        ["quantity", "value"],
+        [[k, "—" if v is None else f"{v:.3g}"] for k, v in sn.items()]))
+    if len(doc["positions"]) > 1:
+        rows = []
+        for r in doc["average"]["bands"]:
+            u = r["t30_s"].get("uncertainty")
+            rows.append([band_label(r["band_hz"]), _pm("edt_s", r), _pm("t20_s", r),
+                         _pm("t30_s", r), "—" if u is None else f"{u:.3f}", _pm("c80_db", r),
+                         _pm("d50", r), _pm("ts_ms", r), str(r["t30_s"]["n"])])
+        out.append(f"<h2>Average over {len(doc['positions'])} positions</h2>")
+        out.append(_html_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50",
+                                "Ts ms", "n"], rows))
+    out.append(f"<img alt='T30 per band' src='{_png(band_figure(doc, 't30_s', 'T30 (s)', extra_series))}'>")
+    out.append(f"<img alt='EDT per band' src='{_png(band_figure(doc, 'edt_s', 'EDT (s)'))}'>")
+    out.append(f"<img alt='C80 per band' src='{_png(band_figure(doc, 'c80_db', 'C80 (dB)'))}'>")
+    for p in doc["positions"]:
+        out.append(f"<h2>{html.escape(str(p['file']))} — channel {p['channel']}</h2>")
+        out.append(_html_table(header, table_rows(p, metrics)))
+        ws = [w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]]
+        out += [f"<p class='warn'>⚠ {html.escape(w)}</p>" for w in ws]
+        res, _wide, rate = study.curves[(str(p["file"]), p["channel"])]
+        fig = decay_figure(res, rate, f"Decay curves, {p['file']} ch {p['channel']}")
+        out.append(f"<img alt='decay curves' src='{_png(fig)}'>")
+    for n in doc.get("notes", []):
+        out.append(f"<p>note: {html.escape(n)}</p>")
+    for e in doc.get("errors", []):
+        out.append(f"<p class='warn'>error: {html.escape(e)}</p>")
+    out.append("<h2>Cautions</h2><div class='caution'>"
+               f"{html.escape(caution_text())}</div></body></html>")
+    return "\n".join(out)

@@ -1,0 +1,92 @@
+"""Averages over source–receiver positions, their spread, the ISO 3382-2 statistical
+uncertainty of decay times, and the mid-frequency single numbers used in reports.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .bands import all_bands
+from .parameters import METRICS
+
+#: Decays per position to use in the uncertainty formula for the integrated impulse response
+#: method (ISO 3382-2:2008, A.2: the IR method counts as n = 10 — from memory).
+DECAYS_PER_POSITION_IR = 10
+
+#: Just-noticeable differences (ISO 3382-1:2009, Table A.1 — from memory).
+JND = {"edt_s": ("relative", 0.05), "t20_s": ("relative", 0.05), "t30_s": ("relative", 0.05),
+       "c80_db": ("absolute", 1.0), "c50_db": ("absolute", 1.0), "d50": ("absolute", 0.05),
+       "ts_ms": ("absolute", 10.0), "g_db": ("absolute", 1.0)}
+
+
+def decay_time_uncertainty(t: float, bandwidth_hz: float, positions: int, kind: str,
+                           decays_per_position: int = DECAYS_PER_POSITION_IR) -> float:
+    """Standard deviation of a spatially averaged T20 or T30.
+
+    σ(T20) = 0.88·T·sqrt((1 + 1.90/n) / (N·B·T)),  σ(T30) = 0.55·T·sqrt((1 + 1.52/n) / (N·B·T)),
+    with B the bandwidth (Hz), N the number of positions and n the decays averaged at each.
+
+    References
+    ----------
+    ISO 3382-2:2008, Annex A, eqs. (A.1)–(A.2) (from memory).
+    """
+    if kind == "t20":
+        k, c = 0.88, 1.90
+    elif kind == "t30":
+        k, c = 0.55, 1.52
+    else:
+        raise ValueError("kind is t20 or t30")
+    n = decays_per_position
+    return float(k * t * np.sqrt((1 + c / n) / (positions * bandwidth_hz * t)))
+
+
+def _bandwidth(band_hz: float, kind: str) -> float | None:
+    for b in all_bands(kind):
+        if b.nominal == band_hz:
+            return b.bandwidth
+    return None
+
+
+def spatial_average(positions: list[list[dict]], kind: str = "octave",
+                    with_g: bool = False) -> list[dict]:
+    """Average per band over positions (each a list of band dicts from ``as_dict``).
+
+    Null values are left out of a mean; ``n`` says how many were used.
+    """
+    by_band: dict[float, list[dict]] = {}
+    for pos in positions:
+        for row in pos:
+            by_band.setdefault(row["band_hz"], []).append(row)
+    metrics = METRICS + (("g_db",) if with_g else ())
+    out = []
+    for band_hz in sorted(by_band):
+        rows = by_band[band_hz]
+        entry = {"band_hz": band_hz}
+        for m in metrics:
+            vals = np.array([r[m] for r in rows if r.get(m) is not None], dtype=float)
+            stat = {"mean": None, "std": None, "n": int(vals.size)}
+            if vals.size:
+                stat["mean"] = float(vals.mean())
+                stat["std"] = float(vals.std(ddof=1)) if vals.size > 1 else None
+            if m in ("t20_s", "t30_s") and vals.size:
+                bw = _bandwidth(band_hz, kind)
+                stat["uncertainty"] = (decay_time_uncertainty(stat["mean"], bw, vals.size, m[:3])
+                                       if bw else None)
+            entry[m] = stat
+        out.append(entry)
+    return out
+
+
+def single_numbers(average: list[dict], kind: str = "octave") -> dict:
+    """Mid-frequency values: mean of the 500 Hz and 1 kHz octaves (ISO 3382-1:2009, A.3 —
+    from memory), or of the six third-octaves 400 Hz–1.25 kHz."""
+    mids = (500, 1000) if kind == "octave" else (400, 500, 630, 800, 1000, 1250)
+    rows = [r for r in average if r["band_hz"] in mids]
+    names = {"edt_s": "edt_mid_s", "t20_s": "t20_mid_s", "t30_s": "t30_mid_s",
+             "c50_db": "c50_mid_db", "c80_db": "c80_mid_db", "d50": "d50_mid",
+             "ts_ms": "ts_mid_ms"}
+    out = {}
+    for m, key in names.items():
+        vals = [r[m]["mean"] for r in rows if r[m]["mean"] is not None]
+        out[key] = float(np.mean(vals)) if len(vals) == len(mids) else None
+    return out

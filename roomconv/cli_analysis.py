@@ -1,0 +1,67 @@
+"""The ``analyze`` command: ISO 3382 parameters of one or many impulse responses."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from .audio import check_output, write_json, write_text
+from .cli import _out, command
+from .progress import Progress
+
+
+@command("analyze", "room-acoustic parameters (ISO 3382) of impulse responses")
+def cmd_analyze(a):
+    from .analysis.report import csv_text, html_report, terminal_report
+    from .analysis.study import analyse_files, parse_calibration
+    from .audio import audio_info
+    inputs = list(a.irs)
+    report_file = a.report / "report.html" if a.report is not None else None
+    for p in (a.json, a.csv, report_file):
+        if p is not None and p != report_file:
+            check_output(p, force=a.force, inputs=inputs)
+    if a.report is not None:
+        a.report.mkdir(parents=True, exist_ok=True)
+        check_output(report_file, force=a.force, inputs=inputs)
+    cal = parse_calibration(a.calibration)
+    total = 0
+    for p in inputs:
+        try:
+            total += audio_info(p).channels
+        except Exception:  # unreadable files are reported by the analysis itself
+            total += 1
+    with Progress(total, "analysing", enabled=None if not a.quiet else False) as bar:
+        study = analyse_files(inputs, bands=a.bands, reverse_filter=a.reverse_filter,
+                              calibration=cal, progress=bar)
+    doc = study.document
+    _out(terminal_report(doc), a)
+    if a.json is not None:
+        write_json(a.json, doc, force=a.force, inputs=inputs)
+        _out(f"wrote {a.json}", a)
+    if a.csv is not None:
+        write_text(a.csv, csv_text(doc), force=a.force, inputs=inputs)
+        _out(f"wrote {a.csv}", a)
+    if report_file is not None:
+        write_text(report_file, html_report(study), force=a.force, inputs=inputs)
+        _out(f"wrote {report_file}", a)
+    return 2 if study.errors else 0
+
+
+def _cfg(p):
+    p.add_argument("irs", nargs="+", type=Path, metavar="IR.wav",
+                   help="impulse responses; every channel is its own position")
+    p.add_argument("--bands", choices=("octave", "third"), default="octave",
+                   help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands")
+    p.add_argument("--json", type=Path, default=None, metavar="OUT.json",
+                   help="write all results as JSON")
+    p.add_argument("--csv", type=Path, default=None, metavar="OUT.csv", help="write a CSV table")
+    p.add_argument("--report", type=Path, default=None, metavar="DIR",
+                   help="write DIR/report.html with tables and plots")
+    p.add_argument("--calibration", default=None, metavar="DB|FILE.json",
+                   help="reference level at 10 m free field (dB of the summed squared IR), "
+                        "a number or a JSON file per band; enables strength G")
+    p.add_argument("--reverse-filter", action="store_true",
+                   help="filter bands backwards in time (less low-frequency filter bias)")
+    p.add_argument("--force", action="store_true", help="replace existing outputs")
+
+
+cmd_analyze.configure = _cfg
