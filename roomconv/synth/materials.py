@@ -1,0 +1,107 @@
+"""Absorption coefficients of common surfaces per octave band (63 Hz–8 kHz).
+
+Sources: the 125 Hz–4 kHz values are typical handbook coefficients as tabulated in
+Everest & Pohlmann, *Master Handbook of Acoustics* (appendix table, "Absorption
+coefficients of general building materials and furnishings") and the compiled table
+"Absorption Coefficients α of Building Materials and Finishes" (sengpielaudio.com), which
+agree for the rows used here. Tables of this kind stop at 125 Hz and 4 kHz: the 63 Hz and
+8 kHz columns copy the neighbouring band (our extrapolation, marked ``extrapolated``).
+Users can add their own in a JSON or TOML file (see :func:`load_materials`).
+"""
+
+from __future__ import annotations
+
+import json
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError, describe
+
+OCTAVES = (63, 125, 250, 500, 1000, 2000, 4000, 8000)
+
+_HB = "Master Handbook of Acoustics / sengpielaudio absorption table"
+
+
+@dataclass(frozen=True)
+class Material:
+    name: str
+    alpha: tuple[float, ...]  #: one value per band in OCTAVES
+    source: str
+    note: str = ""
+
+    def at(self, band_hz: float) -> float:
+        return self.alpha[OCTAVES.index(int(band_hz))]
+
+
+def _six(name, values, source=_HB, note="63 Hz and 8 kHz extrapolated from 125 Hz / 4 kHz"):
+    a = tuple(float(v) for v in values)
+    return Material(name, (a[0],) + a + (a[-1],), source, note)
+
+
+MATERIALS: dict[str, Material] = {m.name: m for m in [
+    _six("concrete", (0.01, 0.01, 0.015, 0.02, 0.02, 0.02)),
+    _six("brick", (0.03, 0.03, 0.03, 0.04, 0.05, 0.07)),
+    _six("brick-painted", (0.01, 0.01, 0.02, 0.02, 0.02, 0.03)),
+    _six("concrete-block-painted", (0.10, 0.05, 0.06, 0.07, 0.09, 0.08)),
+    _six("plaster", (0.013, 0.015, 0.02, 0.03, 0.04, 0.05)),
+    _six("plaster-on-lath", (0.14, 0.10, 0.06, 0.05, 0.04, 0.03)),
+    _six("gypsum-board", (0.29, 0.10, 0.05, 0.04, 0.07, 0.09)),
+    _six("glass-heavy", (0.18, 0.06, 0.04, 0.03, 0.02, 0.02)),
+    _six("glass-window", (0.35, 0.25, 0.18, 0.12, 0.07, 0.04)),
+    _six("wood-floor", (0.15, 0.11, 0.10, 0.07, 0.06, 0.07)),
+    _six("parquet", (0.04, 0.04, 0.07, 0.06, 0.06, 0.07)),
+    _six("linoleum", (0.02, 0.03, 0.03, 0.03, 0.03, 0.02)),
+    _six("carpet", (0.02, 0.06, 0.14, 0.37, 0.60, 0.65)),
+    _six("carpet-on-foam", (0.08, 0.24, 0.57, 0.69, 0.71, 0.73)),
+    _six("curtain-light", (0.03, 0.04, 0.11, 0.17, 0.24, 0.35)),
+    _six("curtain-heavy", (0.14, 0.35, 0.55, 0.72, 0.70, 0.65)),
+    _six("acoustic-tile", (0.09, 0.28, 0.78, 0.84, 0.73, 0.64)),
+    _six("seats-upholstered-empty", (0.49, 0.66, 0.80, 0.88, 0.82, 0.70)),
+    _six("seats-upholstered-occupied", (0.60, 0.74, 0.88, 0.96, 0.93, 0.85)),
+    _six("marble", (0.01, 0.01, 0.01, 0.01, 0.02, 0.02)),
+    _six("wood-door", (0.10, 0.07, 0.05, 0.04, 0.04, 0.04)),
+    Material("anechoic", (1.0,) * 8, "ideal absorber (definition)"),
+    Material("rigid", (0.0,) * 8, "ideal reflector (definition)"),
+]}
+
+
+def check_material(m: Material) -> Material:
+    if len(m.alpha) != len(OCTAVES):
+        raise InputError(f"material '{m.name}' needs {len(OCTAVES)} absorption values "
+                         f"({', '.join(map(str, OCTAVES))} Hz), got {len(m.alpha)}")
+    for f, a in zip(OCTAVES, m.alpha):
+        if not (0.0 <= a <= 1.0) or not np.isfinite(a):
+            raise InputError(f"material '{m.name}': absorption {a} at {f} Hz is outside 0..1")
+    return m
+
+
+def load_materials(path) -> dict[str, Material]:
+    """Read user materials: ``{"name": {"alpha": [8 values], "source": "..."}}`` in JSON or
+    TOML (``[name]`` tables with the same keys). Six values (125 Hz–4 kHz) are extended."""
+    p = Path(path)
+    if not p.exists():
+        raise InputError(describe(p, "materials file not found"))
+    try:
+        text = p.read_text(encoding="utf-8")
+        data = tomllib.loads(text) if p.suffix.lower() == ".toml" else json.loads(text)
+    except (json.JSONDecodeError, tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise InputError(describe(p, f"cannot be parsed: {exc}")) from None
+    out = {}
+    for name, row in data.items():
+        if not isinstance(row, dict) or "alpha" not in row:
+            raise InputError(describe(p, f"material '{name}' needs an 'alpha' list"))
+        vals = [float(v) for v in row["alpha"]]
+        src = str(row.get("source", f"user file {p.name}"))
+        m = _six(name, vals, src) if len(vals) == 6 else Material(name, tuple(vals), src)
+        out[name] = check_material(m)
+    return out
+
+
+def get_material(name: str, extra: dict[str, Material] | None = None) -> Material:
+    table = {**MATERIALS, **(extra or {})}
+    if name not in table:
+        raise InputError(f"unknown material '{name}' (see 'roomconv rooms' for the list)")
+    return table[name]
