@@ -1,0 +1,276 @@
+"""Offline rendering of files of any length: read in blocks, convolve, mix, measure, write
+progressively to a temporary file, then scale/dither into the final file and rename.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import soundfile as sf
+
+from ..audio import audio_format_for, audio_info, check_output, read_audio
+from ..errors import InputError, describe
+from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
+from .partitioned import UniformPartitionedConvolver, choose_block, routing_for
+
+NORMALIZE = ("none", "peak", "truepeak", "loudness")
+DEFAULT_TARGET = {"peak": -1.0, "truepeak": -1.0, "loudness": -23.0}
+INTEGER_SUBTYPES = {"PCM_16": 16, "PCM_24": 24, "PCM_32": 32, "PCM_S8": 8, "PCM_U8": 8}
+
+
+@dataclass
+class RenderSettings:
+    """What a render does besides the convolution itself."""
+
+    mix: float = 1.0               #: 0 = dry only, 1 = wet only
+    predelay_ms: float = 0.0
+    gain_db: float = 0.0
+    normalize: str = "none"        #: none | peak | truepeak | loudness
+    target: float | None = None    #: dBFS, dBTP or LUFS depending on ``normalize``
+    subtype: str = "FLOAT"
+    precision: str = "float64"
+    outputs: int | None = None     #: general matrix routing: outputs per input
+    shared: bool = False           #: one IR channel for every input
+    keep_tail: bool = True
+    dither: bool = True
+    seed: int = 0
+
+    def check(self) -> "RenderSettings":
+        if not 0.0 <= self.mix <= 1.0:
+            raise InputError(f"--mix {self.mix} must lie between 0 (dry) and 1 (wet)")
+        if self.predelay_ms < 0:
+            raise InputError(f"--predelay {self.predelay_ms} ms must not be negative")
+        if self.normalize not in NORMALIZE:
+            raise InputError(f"--normalize must be one of {', '.join(NORMALIZE)}")
+        if self.precision not in ("float64", "float32"):
+            raise InputError("--precision must be float64 or float32")
+        return self
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass
+class RenderReport:
+    output: Path
+    frames: int
+    channels: int
+    rate: int
+    routing: str
+    peak_dbfs: float               #: after gain/normalization
+    true_peak_dbtp: float | None = None
+    loudness_lufs: float | None = None
+    gain_db: float = 0.0
+    ir_resampled_from: int | None = None
+    warnings: list = field(default_factory=list)
+
+
+def resample_ir(ir: np.ndarray, rate: int, new_rate: int) -> np.ndarray:
+    """Resample an IR with soxr's very-high-quality filter (steep and flat up to near
+    Nyquist), keeping its level: gain is preserved for band-limited content."""
+    import soxr  # noqa: PLC0415
+    return np.asarray(soxr.resample(np.ascontiguousarray(ir), rate, new_rate, quality="VHQ"),
+                      dtype=np.float64).reshape(-1, ir.shape[1] if ir.ndim == 2 else 1)
+
+
+def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
+               ) -> tuple[np.ndarray, int | None]:
+    ir = ir[:, None] if ir.ndim == 1 else ir
+    resampled = None
+    if ir_rate != rate:
+        ir = resample_ir(ir, ir_rate, rate)
+        resampled = ir_rate
+    d = int(round(predelay_ms * rate / 1000.0))
+    if d:
+        ir = np.concatenate([np.zeros((d, ir.shape[1])), ir])
+    return ir, resampled
+
+
+def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
+    if x.shape[1] == n_out:
+        return x
+    if x.shape[1] == 1:
+        return np.repeat(x, n_out, axis=1)
+    raise InputError("the dry signal cannot be mixed in: inputs and outputs differ in count "
+                     "(use --mix 1)")
+
+
+def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings,
+                  ir_rate: int | None = None) -> np.ndarray:
+    """In-memory render (no normalization or dither): the convolution, pre-delay and mix."""
+    s = settings.check()
+    dry = dry[:, None] if dry.ndim == 1 else dry
+    ir, _ = prepare_ir(ir, ir_rate or rate, rate, s.predelay_ms)
+    routing = routing_for(dry.shape[1], ir.shape[1], outputs=s.outputs, shared=s.shared)
+    n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
+    B = choose_block(ir.shape[0])
+    conv = UniformPartitionedConvolver(ir, routing, B, precision=s.precision)
+    out = np.empty((n_out, routing.n_out))
+    for start in range(0, n_out, B):
+        blk = np.zeros((B, routing.n_in))
+        seg = dry[start:start + B]
+        blk[: seg.shape[0]] = seg
+        y = conv.process(blk)
+        if s.mix < 1.0:
+            y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
+        n = min(B, n_out - start)
+        out[start:start + n] = y[:n]
+    return out * 10 ** (s.gain_db / 20)
+
+
+def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
+                progress: Callable[[float], None] | None = None) -> RenderReport:
+    """Render ``dry_path`` through ``ir_path`` into ``out_path`` in bounded memory.
+
+    Parameters
+    ----------
+    settings : RenderSettings
+    force : bool
+        Replace an existing output (never an input).
+    progress : callable, optional
+        Called with the fraction done (0–1) as blocks are written.
+    """
+    s = settings.check()
+    dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
+    check_output(out_path, force=force, inputs=[dry_path, ir_path])
+    info = audio_info(dry_path)
+    if info.frames == 0:
+        raise InputError(describe(dry_path, "the dry file holds no samples"))
+    rate, n_in = info.samplerate, info.channels
+    ir, ir_rate = read_audio(ir_path, what="impulse response")
+    if not np.any(ir):
+        raise InputError(describe(ir_path, "the impulse response is silent"))
+    ir, resampled = prepare_ir(ir, ir_rate, rate, s.predelay_ms)
+    try:
+        routing = routing_for(n_in, ir.shape[1], outputs=s.outputs, shared=s.shared)
+    except InputError as exc:
+        raise InputError(f"{dry_path.name} through {ir_path.name}: {exc}") from None
+    if s.mix < 1.0:
+        dry_routed(np.zeros((1, n_in)), routing.n_out)  # refuse early if it cannot be mixed
+    n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
+    B = choose_block(ir.shape[0])
+    conv = UniformPartitionedConvolver(ir, routing, B, precision=s.precision)
+    integer = s.subtype in INTEGER_SUBTYPES
+    fmt = audio_format_for(out_path, n_out * routing.n_out * (8 if s.subtype == "DOUBLE" else 4))
+    if not sf.check_format(fmt, s.subtype):
+        raise InputError(describe(out_path, f"the {fmt} format cannot hold subtype {s.subtype}"))
+
+    peak, tpk = PeakMeter(), TruePeakMeter(routing.n_out) if s.normalize == "truepeak" else None
+    loud = LoudnessMeter(rate, routing.n_out) if s.normalize == "loudness" else None
+    folder = out_path.parent if str(out_path.parent) else Path(".")
+    stage1 = _temp(folder, out_path.name, ".pass1")
+    final_tmp = _temp(folder, out_path.name, ".part")
+    try:
+        stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
+        stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
+                                     n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4))
+        with sf.SoundFile(str(dry_path)) as src, \
+                sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub,
+                             format=stage_fmt) as dst:
+            written = 0
+            while written < n_out:
+                x = src.read(B, dtype="float64", always_2d=True)
+                if x.size and not np.all(np.isfinite(x)):
+                    raise InputError(describe(dry_path, "holds NaN or infinite samples"))
+                blk = np.zeros((B, n_in))
+                blk[: x.shape[0]] = x
+                y = conv.process(blk)
+                if s.mix < 1.0:
+                    y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
+                n = min(B, n_out - written)
+                y = y[:n] * 10 ** (s.gain_db / 20)
+                peak.feed(y)
+                if tpk is not None:
+                    tpk.feed(y)
+                if loud is not None:
+                    loud.feed(y)
+                dst.write(y)
+                written += n
+                if progress:
+                    progress(0.8 * written / n_out if integer or s.normalize != "none"
+                             else written / n_out)
+        report = RenderReport(out_path, n_out, routing.n_out, rate, routing.name, peak.dbfs,
+                              gain_db=s.gain_db, ir_resampled_from=resampled)
+        extra_db = 0.0
+        if tpk is not None:
+            tpk.finish()
+            report.true_peak_dbtp = tpk.dbtp
+        if loud is not None:
+            report.loudness_lufs = loud.integrated()
+        if s.normalize != "none":
+            target = s.target if s.target is not None else DEFAULT_TARGET[s.normalize]
+            level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
+                     "loudness": report.loudness_lufs}[s.normalize]
+            if not np.isfinite(level):
+                raise InputError(f"{out_path.name}: the rendered signal is silent; nothing to "
+                                 "normalize")
+            extra_db = target - level
+        report.gain_db = s.gain_db + extra_db
+        report.peak_dbfs = peak.dbfs + extra_db
+        if report.true_peak_dbtp is not None:
+            report.true_peak_dbtp += extra_db
+        if report.loudness_lufs is not None:
+            report.loudness_lufs += extra_db
+        if report.peak_dbfs > 0:
+            msg = (f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale")
+            msg += (": it will clip in this integer format; lower --gain or use --normalize peak"
+                    if integer else "; a later conversion to integer would clip")
+            report.warnings.append(msg)
+        if extra_db == 0.0 and not integer:
+            os.replace(stage1, final_tmp)
+        else:
+            _second_pass(stage1, final_tmp, fmt, s, 10 ** (extra_db / 20), B, progress)
+        os.chmod(final_tmp, 0o666 & ~_umask())
+        os.replace(final_tmp, out_path)
+        if progress:
+            progress(1.0)
+        return report
+    finally:
+        for p in (stage1, final_tmp):
+            if p.exists():
+                p.unlink()
+
+
+def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int, progress):
+    """Scale, add TPDF dither for integer formats, clip to the format and write."""
+    bits = INTEGER_SUBTYPES.get(s.subtype)
+    rng = np.random.default_rng(s.seed)
+    with sf.SoundFile(str(src_path)) as src, \
+            sf.SoundFile(str(dst_path), "w", src.samplerate, src.channels, s.subtype,
+                         format=fmt) as dst:
+        total, done = src.frames, 0
+        while True:
+            y = src.read(max(B, 65536), dtype="float64", always_2d=True)
+            if not y.size:
+                break
+            y = y * gain
+            if bits:
+                # Quantize here (round to nearest): libsndfile's own float→int conversion
+                # truncates, which would bias the error by half a step.
+                scale = 2.0 ** (bits - 1)
+                if s.dither:
+                    # TPDF: the sum of two independent uniform variables of ±½ LSB.
+                    y = y + (rng.random(y.shape) - rng.random(y.shape)) / scale
+                q = np.clip(np.round(y * scale), -scale, scale - 1)
+                y = (q * 2.0 ** (32 - bits)).astype(np.int32)
+            dst.write(y)
+            done += y.shape[0]
+            if progress:
+                progress(0.8 + 0.2 * done / total)
+
+
+def _temp(folder: Path, name: str, suffix: str) -> Path:
+    fd, p = tempfile.mkstemp(prefix=f".{name}.", suffix=suffix, dir=folder)
+    os.close(fd)
+    return Path(p)
+
+
+def _umask() -> int:
+    m = os.umask(0)
+    os.umask(m)
+    return m

@@ -1,0 +1,85 @@
+"""The convolution engines against scipy.signal.fftconvolve, for every routing and
+partition shape."""
+
+import numpy as np
+import pytest
+from scipy.signal import fftconvolve
+
+from roomconv.errors import InputError
+from roomconv.render.partitioned import (NonUniformConvolver, UniformPartitionedConvolver,
+                                         plan_partition, routing_for)
+
+
+def reference(x, h, routing):
+    out = np.zeros((x.shape[0] + h.shape[0] - 1, routing.n_out))
+    for p in range(routing.n_paths):
+        out[:, routing.path_out[p]] += fftconvolve(x[:, routing.path_in[p]],
+                                                   h[:, routing.path_ir[p]])
+    return out
+
+
+def stream(conv, x, n_out):
+    B = conv.block
+    nb = -(-n_out // B) + 1
+    xp = np.zeros((nb * B, x.shape[1]))
+    xp[: x.shape[0]] = x
+    return np.concatenate([conv.process(xp[i * B:(i + 1) * B]) for i in range(nb)])[:n_out]
+
+
+def rel_db(y, ref):
+    return 10 * np.log10(np.sum((y - ref) ** 2) / np.sum(ref ** 2))
+
+
+CASES = [  # (n_in, ir channels, outputs)
+    (1, 1, None), (1, 2, None), (2, 1, None), (2, 2, None), (2, 4, None), (3, 6, 2),
+]
+
+
+@pytest.mark.parametrize("engine", [UniformPartitionedConvolver, NonUniformConvolver])
+@pytest.mark.parametrize("n_in, n_ir, outputs", CASES)
+@pytest.mark.parametrize("seed", range(3))
+def test_exact_against_fftconvolve(engine, n_in, n_ir, outputs, seed):
+    rng = np.random.default_rng(seed)
+    taps = int(rng.choice([1, 7, 31, 200, 3001, 20000]))  # includes one sample, < one block
+    block = int(rng.choice([32, 64, 128, 256]))
+    n = int(rng.integers(1, 9000))
+    h = rng.standard_normal((taps, n_ir))
+    x = rng.standard_normal((n, n_in))
+    r = routing_for(n_in, n_ir, outputs=outputs)
+    conv = engine(h, r, block)
+    ref = reference(x, h, r)
+    y = stream(conv, x, ref.shape[0])
+    assert rel_db(y, ref) < -120  # float64: better than −120 dB
+    assert conv.latency_samples == block
+
+
+def test_float32_precision_is_stated():
+    # The docstring promises about −130 dB for few partitions; we hold it to −110 dB.
+    rng = np.random.default_rng(0)
+    h = rng.standard_normal((4000, 1))
+    x = rng.standard_normal((20000, 1))
+    r = routing_for(1, 1)
+    conv = UniformPartitionedConvolver(h, r, 4096, precision="float32")
+    ref = reference(x, h, r)
+    assert rel_db(stream(conv, x, ref.shape[0]), ref) < -110
+
+
+def test_non_uniform_plan_respects_its_timing_rule():
+    plan = plan_partition(240000, 128)
+    assert plan[0][0] == 128 and plan[0][1] == 0
+    for (b, off, ln), (b2, off2, _) in zip(plan, plan[1:]):
+        assert off + ln == off2           # contiguous cover of the response
+        assert off2 >= 2 * b2 - 128       # room to spread the next stage's work
+    assert plan[-1][1] + plan[-1][2] == 240000
+
+
+def test_routings_and_refusals():
+    assert routing_for(2, 4).name == "true stereo"
+    assert routing_for(2, 4).path_ir == (0, 1, 2, 3)
+    assert routing_for(1, 3).n_out == 3
+    with pytest.raises(InputError, match="cannot route"):
+        routing_for(3, 2)
+    with pytest.raises(InputError, match="needs 4 IR"):
+        routing_for(2, 3, outputs=2)
+    with pytest.raises(InputError, match="NaN"):
+        UniformPartitionedConvolver(np.full(10, np.nan), routing_for(1, 1), 64)
