@@ -155,9 +155,10 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
         err = [r[metric].get("uncertainty") or r[metric]["std"] or 0 for r in avg]
         ax.errorbar([r["band_hz"] for r in avg], [r[metric]["mean"] for r in avg], yerr=err,
                     fmt="-o", color="tab:blue", capsize=3, label="average")
-    for label, series in (extra or {}).items():
+    colours = ("tab:green", "tab:orange", "tab:red", "tab:purple")
+    for (label, series), colour in zip((extra or {}).items(), colours):
         ks = sorted(series)
-        ax.plot(ks, [series[k] for k in ks], "--s", ms=4, label=label)
+        ax.plot(ks, [series[k] for k in ks], "--s", ms=4, color=colour, label=label)
     ax.set_xscale("log")
     bands = sorted({r["band_hz"] for r in doc["average"]["bands"]})
     ax.set_xticks(bands)

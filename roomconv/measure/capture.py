@@ -102,7 +102,13 @@ class SimulatedDevice:
     def playrec(self, signal: np.ndarray, rate: int) -> np.ndarray:
         x = np.asarray(signal, dtype=np.float64)
         a2, a3 = self.distortion
-        driven = x + a2 * x**2 + a3 * x**3
+        driven = x
+        if a2 or a3:
+            # Apply the polynomial at 4× the rate and filter back down, as the converter's
+            # anti-alias filter would: harmonics above Nyquist must not fold into the band.
+            from scipy.signal import resample_poly  # noqa: PLC0415
+            up = resample_poly(x, 4, 1)
+            driven = resample_poly(up + a2 * up**2 + a3 * up**3, 1, 4)[: x.size]
         ir = np.asarray(self.ir, dtype=np.float64)
         ir = ir[:, None] if ir.ndim == 1 else ir
         n = x.size

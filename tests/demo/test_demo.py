@@ -1,0 +1,67 @@
+"""The demo at reduced size: numbers against the synthetic hall's own prediction, every
+quality verdict and every output file."""
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from roomconv.demo import QUICK, linden_hall
+from roomconv.synth.room import eyring
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    from roomconv.cli import main
+    out = tmp_path_factory.mktemp("demo") / "out"
+    assert main(["demo", "--out", str(out), "--quick", "--quiet"]) == 0
+    return out
+
+
+def test_measured_t30_follows_the_prediction(demo):
+    doc = json.loads((demo / "results.json").read_text())
+    pred = eyring(linden_hall())
+    avg = {r["band_hz"]: r["t30_s"]["mean"] for r in doc["average"]["bands"]}
+    for band in (63, 125, 250, 500, 1000, 2000, 4000):
+        assert avg[band] == pytest.approx(pred[band], rel=0.10), band
+    # At 8 kHz air absorption makes T fall steeply across the octave; the band filter then
+    # reads the slower lower edge (see the issue note), so the margin there is wider.
+    assert avg[8000] == pytest.approx(pred[8000], rel=0.15)
+    assert len(doc["measured_vs_predicted"]) == 8
+
+
+def test_every_position_has_a_quality_verdict(demo):
+    doc = json.loads((demo / "results.json").read_text())
+    names = {f"S1R{i + 1}" for i in range(len(QUICK.receivers))}
+    assert set(doc["quality"]) == names
+    for v in doc["quality"].values():
+        assert v["verdict"].startswith("pass") and v["latency_samples"] == 384
+
+
+def test_every_output_is_present_readable_and_has_provenance(demo):
+    audio = list((demo / "irs").glob("*.wav")) + list((demo / "harmonics").glob("*.wav")) + \
+        list((demo / "renders").glob("*.wav"))
+    assert len(list((demo / "harmonics").glob("*.wav"))) == 4
+    assert {p.name for p in (demo / "renders").glob("*.wav")} == {
+        "plucks__measured.wav", "plucks__predicted.wav"}
+    for p in audio:
+        x, rate = sf.read(p)
+        assert rate == 48000 and x.size and np.all(np.isfinite(x))
+        assert p.with_name(f"{p.stem}.provenance.json").exists(), p
+    for name in ("results.json", "results.csv", "report.html"):
+        assert (demo / name).stat().st_size > 0
+        assert (demo / f"{name.split('.')[0]}.provenance.json").exists(), name
+    page = (demo / "report.html").read_text()
+    for heading in ("The room", "Measurement chain", "Data quality", "Measured against",
+                    "Cautions"):
+        assert heading in page
+    prov = json.loads((demo / "renders" / "plucks__measured.provenance.json").read_text())
+    assert len(prov["inputs"][0]["sha256"]) == 64
+
+
+def test_demo_refuses_a_non_empty_folder_without_force(tmp_path, cli):
+    (tmp_path / "keep.txt").write_text("mine")
+    code, _, err = cli("demo", "--out", tmp_path, "--quick")
+    assert code == 2 and "--force" in err
+    assert (tmp_path / "keep.txt").read_text() == "mine"
