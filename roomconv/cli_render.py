@@ -80,3 +80,109 @@ def _cfg_render(p):
 
 
 cmd_render.configure = _cfg_render
+
+
+class BatchDisplay:
+    """Overall bar plus one line per running job (redrawn in place on a terminal)."""
+
+    def __init__(self, total: int, stream=None, enabled: bool | None = None):
+        import sys
+        self.stream = stream or sys.stderr
+        self.enabled = self.stream.isatty() if enabled is None else enabled
+        self.total, self.finished = total, 0
+        self.active: dict[str, float] = {}
+        self._lines = 0
+        self._last = 0.0
+
+    def __call__(self, kind, payload):
+        import time as _t
+        if kind == "start":
+            self.active[payload.name] = 0.0
+        elif kind == "progress":
+            name, frac = payload
+            if name in self.active:
+                self.active[name] = frac
+        elif kind in ("done", "skip"):
+            self.finished += 1
+            self.active.pop(payload.job.name, None)
+            mark = {"done": "ok", "skipped": "skip", "failed": "FAIL"}[payload.status]
+            self._clear()
+            line = f"[{self.finished}/{self.total}] {mark:<4} {payload.job.name}"
+            if payload.message:
+                line += f": {payload.message}"
+            print(line, file=self.stream)
+        now = _t.monotonic()
+        if self.enabled and (now - self._last > 0.1 or kind != "progress"):
+            self._last = now
+            self._draw()
+
+    def _clear(self):
+        if self.enabled and self._lines:
+            self.stream.write(f"\x1b[{self._lines}F\x1b[J")
+            self._lines = 0
+
+    def _draw(self):
+        self._clear()
+        lines = []
+        for name, frac in sorted(self.active.items()):
+            fill = int(frac * 20)
+            lines.append(f"  {name[:40]:<40} [{'#' * fill}{'.' * (20 - fill)}] {100 * frac:3.0f}%")
+        frac = self.finished / max(self.total, 1)
+        fill = int(frac * 30)
+        lines.append(f"overall [{'#' * fill}{'.' * (30 - fill)}] {self.finished}/{self.total}")
+        self.stream.write("\n".join(lines) + "\n")
+        self.stream.flush()
+        self._lines = len(lines)
+
+    def close(self):
+        if self.enabled:
+            self._draw()
+
+
+@command("batch", "render many dry files through many IRs (local pool or Dask cluster)")
+def cmd_batch(a):
+    from .render.batch import dask_executor, local_executor, plan_jobs, run_batch
+    from .errors import InputError
+    s = settings_from_args(a)
+    out_dir = a.out_dir
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError(f"{out_dir}: exists and is not a folder")
+    out_dir.mkdir(parents=True, exist_ok=True)
+    jobs = plan_jobs(a.dry, a.ir, out_dir, s)
+    display = BatchDisplay(len(jobs), enabled=False if a.quiet else None)
+    if a.scheduler:
+        executor, progress, owner = dask_executor(a.scheduler)
+    else:
+        executor, progress, owner = local_executor(a.workers)
+    try:
+        with executor:
+            outcomes = run_batch(jobs, executor, force=a.force, progress=progress,
+                                 on_event=display)
+    finally:
+        display.close()
+        owner_close = getattr(owner, "close", None) or getattr(owner, "shutdown", None)
+        if owner_close:
+            owner_close()
+    done = sum(o.status == "done" for o in outcomes)
+    skipped = sum(o.status == "skipped" for o in outcomes)
+    failed = [o for o in outcomes if o.status == "failed"]
+    _out(f"batch: {done} rendered, {skipped} already finished, {len(failed)} failed, "
+         f"{len(jobs)} in all → {out_dir}", a)
+    for o in failed:
+        _note(f"failed: {o.job.name}: {o.message}")
+    if failed:
+        return 2 if all(o.exit_code == 2 for o in failed) else 1
+    return 0
+
+
+def _cfg_batch(p):
+    p.add_argument("dry", nargs="+", type=Path, help="dry files")
+    p.add_argument("--ir", nargs="+", type=Path, required=True, help="impulse responses")
+    p.add_argument("--out-dir", type=Path, required=True, help="folder for <dry>__<ir>.wav")
+    p.add_argument("--workers", type=int, default=None, help="local processes (all cores)")
+    p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
+                   help="run on a Dask distributed cluster instead of local processes")
+    render_options(p, single=False)
+
+
+cmd_batch.configure = _cfg_batch
