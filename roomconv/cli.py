@@ -280,4 +280,7 @@ def _load_plugins() -> None:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    # Run through the package module so that sub-commands registered by the other cli_*
+    # modules land in the same COMMANDS table.
+    from roomconv.cli import main as _main
+    sys.exit(_main())

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
+
 from .audio import write_provenance
 from .cli import _note, _out, command
 from .progress import Progress
@@ -186,3 +188,67 @@ def _cfg_batch(p):
 
 
 cmd_batch.configure = _cfg_batch
+
+
+@command("live", "convolve a sound-card input with an IR in real time")
+def cmd_live(a):
+    import sys
+    from .audio import read_audio
+    from .cli import confirm_caution
+    from .errors import InputError
+    from .render.offline import resample_ir
+    from .render.stream import LiveProcessor, run_live
+    from .measure.capture import load_sounddevice
+    ir, ir_rate = read_audio(a.ir, what="impulse response")
+    ins = tuple(int(c) for c in a.input_channels.split(","))
+    outs = tuple(int(c) for c in a.output_channels.split(","))
+    sd = load_sounddevice()
+    rate = a.rate
+    if rate is None:
+        try:
+            rate = int(sd.query_devices(a.device, "output")["default_samplerate"])
+        except Exception:
+            rate = ir_rate
+    if ir_rate != rate:
+        ir = resample_ir(ir, ir_rate, rate)
+    if a.ceiling > -1.0:
+        raise InputError(f"--ceiling {a.ceiling} dBFS is above the output cap of -1 dBFS")
+    proc = LiveProcessor(ir, rate, block=a.block, n_in=len(ins), mix=a.mix, gain_db=a.gain,
+                         ceiling_dbfs=a.ceiling, precision=a.precision)
+    confirm_caution(a)
+    _note(f"live: {proc.block}-sample blocks at {rate} Hz, {len(proc.engine.stages)} stages, "
+          f"routing {proc.routing.name}; Ctrl-C stops")
+
+    def meter(st):
+        if a.quiet:
+            return
+        sys.stderr.write(f"\rin {st.in_peak_dbfs:6.1f} dBFS  out {st.out_peak_dbfs:6.1f} dBFS  "
+                         f"limiter {st.limiter_db:4.1f} dB  dropouts {st.dropouts}  ")
+        sys.stderr.flush()
+
+    st = run_live(proc, rate, device=a.device, input_channels=ins, output_channels=outs,
+                  duration_s=a.duration, on_meter=meter)
+    comp = np.array(st.compute_s) / (proc.block / rate) if st.compute_s else np.zeros(1)
+    _out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
+         f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
+         f"{100 * comp.mean():.1f} % / p99 {100 * np.percentile(comp, 99):.1f} % of a block", a)
+    return 0
+
+
+def _cfg_live(p):
+    p.add_argument("--ir", type=Path, required=True, help="impulse response")
+    p.add_argument("--block", type=int, default=128, help="block size, 32-1024 samples (128)")
+    p.add_argument("--rate", type=int, default=None, help="sample rate (the device's default)")
+    p.add_argument("--device", default=None, help="PortAudio device index or name")
+    p.add_argument("--input-channels", default="1", help="1-based inputs, comma-separated (1)")
+    p.add_argument("--output-channels", default="1", help="1-based outputs (1)")
+    p.add_argument("--mix", type=float, default=1.0, help="wet/dry 0..1 (1)")
+    p.add_argument("--gain", type=float, default=-6.0, help="output gain, dB (-6)")
+    p.add_argument("--ceiling", type=float, default=-1.0, help="limiter ceiling, dBFS (-1)")
+    p.add_argument("--precision", choices=("float64", "float32"), default="float64")
+    p.add_argument("--duration", type=float, default=None, help="stop after S seconds")
+    p.add_argument("--yes", action="store_true",
+                   help="confirm you have read the hearing and equipment caution")
+
+
+cmd_live.configure = _cfg_live

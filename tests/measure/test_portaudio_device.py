@@ -48,7 +48,7 @@ pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
 pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
 """)
     env = {**os.environ, "XDG_CONFIG_HOME": str(tmp_path)}
-    cmd = [sys.executable, "-m", "roomconv.cli", "measure", str(tmp_path / "ir.wav"), "--yes",
+    cmd = [sys.executable, "-m", "roomconv", "measure", str(tmp_path / "ir.wav"), "--yes",
            "--duration", "1.5", "--low", "10", "--high", "22000", "--pre", "0.3",
            "--silence", "1.0", "--level", "-20", "--length", "0.5"]
     proc = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=90)
