@@ -16,7 +16,7 @@ import soundfile as sf
 from ..audio import audio_format_for, audio_info, check_output, read_audio
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
-from .partitioned import UniformPartitionedConvolver, choose_block, routing_for
+from .partitioned import offline_convolver, routing_for
 
 NORMALIZE = ("none", "peak", "truepeak", "loudness")
 DEFAULT_TARGET = {"peak": -1.0, "truepeak": -1.0, "loudness": -23.0}
@@ -108,8 +108,8 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     ir, _ = prepare_ir(ir, ir_rate or rate, rate, s.predelay_ms)
     routing = routing_for(dry.shape[1], ir.shape[1], outputs=s.outputs, shared=s.shared)
     n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
-    B = choose_block(ir.shape[0])
-    conv = UniformPartitionedConvolver(ir, routing, B, precision=s.precision)
+    conv = offline_convolver(ir, routing, precision=s.precision)
+    B = conv.block
     out = np.empty((n_out, routing.n_out))
     for start in range(0, n_out, B):
         blk = np.zeros((B, routing.n_in))
@@ -153,8 +153,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     if s.mix < 1.0:
         dry_routed(np.zeros((1, n_in)), routing.n_out)  # refuse early if it cannot be mixed
     n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
-    B = choose_block(ir.shape[0])
-    conv = UniformPartitionedConvolver(ir, routing, B, precision=s.precision)
+    conv = offline_convolver(ir, routing, precision=s.precision)
+    B = conv.block
     integer = s.subtype in INTEGER_SUBTYPES
     fmt = audio_format_for(out_path, n_out * routing.n_out * (8 if s.subtype == "DOUBLE" else 4))
     if not sf.check_format(fmt, s.subtype):

@@ -6,8 +6,9 @@ import pytest
 from scipy.signal import fftconvolve
 
 from roomconv.errors import InputError
-from roomconv.render.partitioned import (NonUniformConvolver, UniformPartitionedConvolver,
-                                         plan_partition, routing_for)
+from roomconv.render.partitioned import (NonUniformConvolver, OverlapSaveConvolver,
+                                         UniformPartitionedConvolver, plan_partition,
+                                         routing_for)
 
 
 def reference(x, h, routing):
@@ -35,7 +36,12 @@ CASES = [  # (n_in, ir channels, outputs)
 ]
 
 
-@pytest.mark.parametrize("engine", [UniformPartitionedConvolver, NonUniformConvolver])
+def _overlap_save(h, r, block):
+    return OverlapSaveConvolver(h, r)
+
+
+@pytest.mark.parametrize("engine", [UniformPartitionedConvolver, NonUniformConvolver,
+                                    _overlap_save])
 @pytest.mark.parametrize("n_in, n_ir, outputs", CASES)
 @pytest.mark.parametrize("seed", range(3))
 def test_exact_against_fftconvolve(engine, n_in, n_ir, outputs, seed):
@@ -50,7 +56,7 @@ def test_exact_against_fftconvolve(engine, n_in, n_ir, outputs, seed):
     ref = reference(x, h, r)
     y = stream(conv, x, ref.shape[0])
     assert rel_db(y, ref) < -120  # float64: better than −120 dB
-    assert conv.latency_samples == block
+    assert conv.latency_samples == conv.block
 
 
 def test_float32_precision_is_stated():

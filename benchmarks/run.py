@@ -1,0 +1,179 @@
+"""Performance figures, each against scipy measured in the same run (interleaved, median of
+at least five repeats). Targets are printed beside the figures; nothing here is a test.
+
+    python -m benchmarks.run            # all jobs (a few minutes on two cores)
+    python -m benchmarks.run --quick    # shorter signals, for a smoke run
+    python -m benchmarks.run --long     # adds the 2-hour render's peak memory
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+from scipy.signal import oaconvolve, sosfilt
+
+from roomconv.analysis.bands import band_sos, bands_for_rate
+from roomconv.analysis.parameters import room_parameters
+from roomconv.render.partitioned import offline_convolver, routing_for
+from roomconv.render.stream import LiveProcessor
+
+FS = 48000
+
+
+def interleaved(funcs: dict, repeats: int) -> dict:
+    times = {k: [] for k in funcs}
+    for _ in range(repeats):
+        for k, f in funcs.items():
+            t = time.perf_counter()
+            f()
+            times[k].append(time.perf_counter() - t)
+    return {k: float(np.median(v)) for k, v in times.items()}
+
+
+def ours_offline(x, h, routing, precision):
+    conv = offline_convolver(h, routing, precision=precision)
+    B = conv.block
+    n = x.shape[0] + h.shape[0] - 1
+    out = np.empty((n, routing.n_out), dtype=np.float32 if precision == "float32" else float)
+    blk = np.zeros((B, routing.n_in))
+    for s in range(0, n, B):
+        seg = x[s:s + B]
+        blk[:] = 0
+        blk[: seg.shape[0]] = seg
+        m = min(B, n - s)
+        out[s:s + m] = conv.process(blk)[:m]
+    return out
+
+
+def scipy_offline(x, h, routing):
+    n = x.shape[0] + h.shape[0] - 1
+    out = np.zeros((n, routing.n_out))
+    for p in range(routing.n_paths):
+        out[:, routing.path_out[p]] += oaconvolve(x[:, routing.path_in[p]], h[:, routing.path_ir[p]])
+    return out
+
+
+def job(name, seconds, ir_seconds, n_ir, repeats):
+    rng = np.random.default_rng(0)
+    x = rng.standard_normal((int(seconds * FS), 2))
+    h = rng.standard_normal((int(ir_seconds * FS), n_ir)) * 0.01
+    r = routing_for(2, n_ir)
+    res = interleaved({"scipy": lambda: scipy_offline(x, h, r),
+                       "ours64": lambda: ours_offline(x, h, r, "float64"),
+                       "ours32": lambda: ours_offline(x, h, r, "float32")}, repeats)
+    print(f"{name}: scipy.signal.oaconvolve {res['scipy']:.2f} s | ours float64 "
+          f"{res['ours64']:.2f} s, ratio {res['scipy'] / res['ours64']:.1f}x (target >= 5x) | "
+          f"float32 {res['ours32']:.2f} s, ratio {res['scipy'] / res['ours32']:.1f}x")
+
+
+SCRIPT = """
+import sys, numpy as np, soundfile as sf
+from scipy.signal import oaconvolve
+x, r = sf.read(sys.argv[1]); h, _ = sf.read(sys.argv[2])
+y = np.stack([oaconvolve(x[:, c], h[:, c]) for c in range(x.shape[1])], axis=1)
+sf.write(sys.argv[3], y, r, subtype="FLOAT")
+"""
+
+
+def whole_process(seconds, repeats):
+    rng = np.random.default_rng(1)
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        sf.write(tmp / "dry.wav", 0.1 * rng.standard_normal((int(seconds * FS), 2)), FS,
+                 subtype="FLOAT")
+        sf.write(tmp / "ir.wav", 0.01 * rng.standard_normal((4 * FS, 2)), FS, subtype="FLOAT")
+        (tmp / "ref.py").write_text(SCRIPT)
+
+        def ours():
+            subprocess.run([sys.executable, "-m", "roomconv", "render", str(tmp / "dry.wav"),
+                            "--ir", str(tmp / "ir.wav"), "-o", str(tmp / "a.wav"), "--force",
+                            "--quiet"], check=True)
+
+        def ref():
+            subprocess.run([sys.executable, str(tmp / "ref.py"), str(tmp / "dry.wav"),
+                            str(tmp / "ir.wav"), str(tmp / "b.wav")], check=True)
+        res = interleaved({"scipy": ref, "ours": ours}, repeats)
+    print(f"whole process, {seconds:.0f} s stereo through 4 s IR: soundfile+oaconvolve script "
+          f"{res['scipy']:.2f} s | roomconv render {res['ours']:.2f} s, ratio "
+          f"{res['scipy'] / res['ours']:.1f}x (target >= 2.5x)")
+
+
+def live(block, ir_seconds=5.0, callbacks=3000):
+    rng = np.random.default_rng(2)
+    h = rng.standard_normal(int(ir_seconds * FS)) * 0.01
+    proc = LiveProcessor(h, FS, block=block)
+    x = rng.standard_normal((block, 1)) * 0.1
+    for _ in range(callbacks):
+        proc.process(x)
+    c = np.array(proc.stats.compute_s[200:]) / (block / FS)
+    # The same audio through scipy in one go, per block, for scale.
+    t = time.perf_counter()
+    oaconvolve(rng.standard_normal(callbacks * block), h)
+    scipy_per_block = (time.perf_counter() - t) / callbacks / (block / FS)
+    return c.mean(), np.percentile(c, 99), scipy_per_block
+
+
+def analysis(repeats):
+    rng = np.random.default_rng(3)
+    t = np.arange(10 * FS) / FS
+    h = rng.standard_normal(t.size) * np.exp(-6.9 * t / 1.5) + 1e-4 * rng.standard_normal(t.size)
+    bands, _ = bands_for_rate("third", FS)
+    res = interleaved({
+        "filters": lambda: [sosfilt(band_sos(b, FS), h) for b in bands],
+        "ours": lambda: room_parameters(h, FS, bands="third")}, repeats)
+    print(f"analysis, 10 s IR at 48 kHz, {len(bands)} third-octave bands: all parameters "
+          f"{res['ours']:.2f} s (target < 0.5 s) | scipy.signal.sosfilt of the same bands alone "
+          f"{res['filters']:.2f} s, ratio {res['filters'] / res['ours']:.2f}")
+
+
+def memory(seconds):
+    rng = np.random.default_rng(4)
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        with sf.SoundFile(tmp / "long.wav", "w", FS, 2, "PCM_16", format="RF64") as f:
+            chunk = (0.1 * rng.standard_normal((FS * 60, 2)))
+            for _ in range(int(seconds // 60)):
+                f.write(chunk)
+        sf.write(tmp / "ir.wav", 0.01 * rng.standard_normal((4 * FS, 2)), FS, subtype="FLOAT")
+        code = ("import resource, subprocess, sys; subprocess.run(sys.argv[1:], check=True); "
+                "print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)")
+        out = subprocess.run([sys.executable, "-c", code, sys.executable, "-m", "roomconv",
+                              "render", str(tmp / "long.wav"), "--ir", str(tmp / "ir.wav"),
+                              "-o", str(tmp / "o.wav"), "--quiet"],
+                             check=True, capture_output=True, text=True)
+        rss_mb = int(out.stdout.strip().splitlines()[-1]) / 1024
+    print(f"memory, {seconds / 60:.0f} min stereo render: peak RSS {rss_mb:.0f} MB "
+          f"(target < 500 MB for 2 hours)")
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--long", action="store_true")
+    a = ap.parse_args()
+    reps = 5
+    secs = 30 if a.quick else 180
+    print(f"roomconv benchmarks ({os.cpu_count()} cores; medians of {reps}, interleaved)")
+    job(f"job A, {secs} s stereo through a 4 s stereo IR", secs, 4.0, 2, reps)
+    job(f"job B, {secs} s true stereo through 4 IRs of 6 s", secs, 6.0, 4, reps)
+    whole_process(secs, reps)
+    for block in (128, 64):
+        mean, p99, sc = live(block, callbacks=1500 if a.quick else 3000)
+        target = "mean <= 2 %, p99 <= 10 %" if block == 128 else "mean <= 10 %"
+        print(f"live, 5 s mono IR, {block}-sample blocks: compute mean {100 * mean:.1f} %, "
+              f"p99 {100 * p99:.1f} % of a block ({target}) | scipy oaconvolve of the same "
+              f"audio offline: {100 * sc:.1f} % of a block")
+    analysis(reps)
+    memory(7200 if a.long else (120 if a.quick else 1200))
+
+
+if __name__ == "__main__":
+    main()
