@@ -228,6 +228,17 @@ def _cfg_measure(p):
 cmd_measure.configure = _cfg_measure
 
 
+# --- tui --------------------------------------------------------------------------------
+@command("tui", "the terminal workbench (Textual)")
+def cmd_tui(a):
+    from tui.app import main as tui_main
+    tui_main()
+    return 0
+
+
+cmd_tui.configure = lambda p: None
+
+
 # --- entry point ---------------------------------------------------------------------------
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(

@@ -1,0 +1,169 @@
+"""The workbench driven headlessly: every tab's main flow, with screen-text checks."""
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from roomconv.cli import main as cli_main
+from tui.app import RoomconvApp
+
+pytestmark = pytest.mark.timeout(120)
+FS = 48000
+
+
+def decaying_ir(path, T=0.6, seconds=1.5, seed=0, channels=1):
+    rng = np.random.default_rng(seed)
+    t = np.arange(int(seconds * FS)) / FS
+    h = rng.standard_normal((t.size, channels)) * np.exp(-6.9 * t / T)[:, None] * 0.1
+    sf.write(path, h, FS, subtype="FLOAT")
+    return path
+
+
+async def press(app, pilot, selector):
+    """Press a button the way Enter does (clicks depend on the layout's geometry)."""
+    app.query_one(selector).press()
+    await pilot.pause()
+
+
+async def settle(app, pilot):
+    await pilot.pause()
+    await app.workers.wait_for_complete()
+    await pilot.pause()
+
+
+def screen_text(app) -> str:
+    return "\n".join(str(w.render()) for w in app.screen.query("Static"))
+
+
+async def test_help_overlay_and_tab_keys():
+    app = RoomconvApp()
+    async with app.run_test(size=(140, 50)) as pilot:
+        await pilot.press("o")
+        assert app.query_one("#tabs").active == "room"
+        await pilot.press("question_mark")
+        assert "Keys" in screen_text(app) and "Measure" in screen_text(app)
+        await pilot.press("escape")
+        await pilot.press("a")
+        assert app.query_one("#tabs").active == "analyze"
+
+
+async def test_room_tab_predicts_and_synthesizes(tmp_path):
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 60)) as pilot:
+        await pilot.press("o")
+        size = app.query_one("#room-size")
+        size.value = "10x7x3"
+        await pilot.pause()
+        table = app.query_one("#room-prediction")
+        assert table.row_count == 2
+        status = str(app.query_one("#room-status").render())
+        assert "V = 210 m³" in status
+        size.value = "10x7"
+        await pilot.pause()
+        assert "cannot predict" in str(app.query_one("#room-status").render())
+        size.value = "10x7x3"
+        app.query_one("#room-out").value = str(tmp_path / "synth.wav")
+        app.query_one("#room-source").value = "2,2,1.5"
+        app.query_one("#room-receiver").value = "8,5,1.2"
+        await press(app, pilot, "#room-synth")
+        await settle(app, pilot)
+        assert (tmp_path / "synth.wav").exists()
+        assert "wrote" in str(app.query_one("#room-status").render())
+        await press(app, pilot, "#room-to-render")
+        await pilot.pause()
+        assert app.query_one("#rn-ir").value == str(tmp_path / "synth.wav")
+        assert app.query_one("#tabs").active == "render"
+
+
+async def test_analyze_tab_matches_the_command_line(tmp_path):
+    ir = decaying_ir(tmp_path / "hall.wav")
+    assert cli_main(["analyze", str(ir), "--json", str(tmp_path / "ref.json"), "--quiet"]) == 0
+    ref = json.loads((tmp_path / "ref.json").read_text())["positions"][0]["bands"]
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 70)) as pilot:
+        await pilot.press("a")
+        app.query_one("#an-files").value = str(ir)
+        await press(app, pilot, "#an-run")
+        await settle(app, pilot)
+        table = app.query_one("#an-table")
+        rows = [table.get_row_at(i) for i in range(table.row_count)]
+        by_band = {r[1]: r for r in rows}
+        for band in ref:
+            label = f"{band['band_hz'] / 1000:g}k" if band["band_hz"] >= 1000 else \
+                f"{band['band_hz']:g}"
+            want = "—" if band["t30_s"] is None else f"{band['t30_s']:.2f}"
+            assert by_band[label][4] == want  # the T30 column
+        text = screen_text(app)
+        assert "T30 per band" in text and "Decay curves" in text
+        app.query_one("#an-export-dir").value = str(tmp_path / "export")
+        await press(app, pilot, "#an-export")
+        await pilot.pause()
+        assert (tmp_path / "export" / "report.html").exists()
+        assert (tmp_path / "export" / "results.csv").exists()
+
+
+async def test_analyze_reports_bad_input_as_a_notice(tmp_path):
+    app = RoomconvApp()
+    async with app.run_test(size=(140, 50)) as pilot:
+        await pilot.press("a")
+        app.query_one("#an-files").value = str(tmp_path / "missing.wav")
+        await press(app, pilot, "#an-run")
+        await settle(app, pilot)
+        assert any("not found" in n.message for n in app._notifications)
+
+
+async def test_render_tab_renders_a_queue(tmp_path):
+    rng = np.random.default_rng(1)
+    for i in range(2):
+        sf.write(tmp_path / f"dry{i}.wav", 0.1 * rng.standard_normal(FS // 2), FS)
+    ir = decaying_ir(tmp_path / "ir.wav", T=0.3, seconds=0.5)
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 60)) as pilot:
+        await pilot.press("r")
+        app.query_one("#rn-dry").value = f"{tmp_path / 'dry0.wav'} {tmp_path / 'dry1.wav'}"
+        app.query_one("#rn-ir").value = str(ir)
+        app.query_one("#rn-out").value = str(tmp_path / "wet")
+        app.query_one("#rn-mix").value = "0.5"
+        await press(app, pilot, "#rn-run")
+        await settle(app, pilot)
+        assert "rendered 2 of 2" in str(app.query_one("#rn-status").render())
+        y, rate = sf.read(tmp_path / "wet" / "dry1__ir.wav")
+        assert rate == FS and y.shape[0] == FS // 2 + int(0.5 * FS) - 1
+        assert app.query_one("#rn-all").percentage == 1.0
+        assert "CAUTION" in screen_text(app)
+        await press(app, pilot, "#rn-preview")  # without the tick box: refused, nothing played
+        await pilot.pause()
+        assert any("caution" in n.message for n in app._notifications)
+
+
+async def test_measure_tab_against_a_simulated_room(tmp_path):
+    room = decaying_ir(tmp_path / "room.wav", T=0.3, seconds=0.8)
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 70)) as pilot:
+        await settle(app, pilot)
+        assert "sound" in str(app.query_one("#ms-devices").render())
+        app.query_one("#ms-sim").value = str(room)
+        app.query_one("#ms-duration").value = "2"
+        app.query_one("#ms-silence").value = "1"
+        app.query_one("#ms-ref").value = "1"
+        app.query_one("#ms-folder").value = str(tmp_path / "session")
+        await press(app, pilot, "#ms-run")
+        await settle(app, pilot)
+        assert (tmp_path / "session" / "P1.wav").exists()
+        table = app.query_one("#ms-positions")
+        assert table.row_count == 1 and float(table.get_row_at(0)[2]) > 45
+        assert app.query_one("#ms-name").value == "P2"
+        assert len(app.session) == 1
+        # The session flows into Analyze.
+        await pilot.press("a")
+        await press(app, pilot, "#an-session")
+        assert str(tmp_path / "session" / "P1.wav") in app.query_one("#an-files").value
+        # Without the simulated room and without the caution ticked, nothing is played.
+        await pilot.press("m")
+        app.query_one("#ms-sim").value = ""
+        await press(app, pilot, "#ms-run")
+        await settle(app, pilot)
+        assert any("caution" in n.message for n in app._notifications)
+        assert "CAUTION" in screen_text(app)

@@ -1,0 +1,1 @@
+"""The roomconv terminal workbench (Textual)."""

@@ -1,0 +1,101 @@
+"""The roomconv workbench: Measure, Analyze, Render and Room tabs, a help overlay, and
+notices for errors. Start with ``roomconv tui`` or ``roomconv-tui``."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Footer, Header, Input, Static, TabbedContent, TabPane
+
+from tui.screens.analyze import AnalyzePane
+from tui.screens.measure import MeasurePane
+from tui.screens.render import RenderPane
+from tui.screens.room import RoomPane
+
+HELP = """\
+Keys
+  m  Measure      a  Analyze      r  Render      o  Room
+  ?  this help    q  quit         Tab / Shift+Tab  move between fields
+  Enter on a button runs it; long work runs in the background and can be
+  cancelled (Render: Cancel). Errors appear as notices in the corner.
+
+Tabs
+  Measure  sweep settings, caution, level check, measure or import a recording;
+           each result becomes a position of the session.
+  Analyze  ISO 3382 parameters per band, warnings, decay curves, averages, export.
+  Render   dry files through an IR: wet/dry, pre-delay, gain, normalization, queue.
+  Room     a shoebox room and its materials; predicted T as you type; synthesize."""
+
+
+class HelpScreen(ModalScreen):
+    BINDINGS = [Binding("escape,question_mark,q", "dismiss", "close")]
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="help-box"):
+            yield Static(HELP)
+
+
+class RoomconvApp(App):
+    TITLE = "roomconv"
+    SUB_TITLE = "room impulse responses"
+    CSS_PATH = "app.tcss"
+    BINDINGS = [
+        Binding("m", "tab('measure')", "Measure"),
+        Binding("a", "tab('analyze')", "Analyze"),
+        Binding("r", "tab('render')", "Render"),
+        Binding("o", "tab('room')", "Room"),
+        Binding("question_mark,f1", "help", "Help"),
+        Binding("q", "quit", "Quit"),
+    ]
+
+    def __init__(self):
+        super().__init__()
+        self.session: list[dict] = []
+        self.last_synth: Path | None = None
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        with TabbedContent(initial="measure", id="tabs"):
+            with TabPane("Measure", id="measure"):
+                yield MeasurePane()
+            with TabPane("Analyze", id="analyze"):
+                yield AnalyzePane()
+            with TabPane("Render", id="render"):
+                yield RenderPane()
+            with TabPane("Room", id="room"):
+                yield RoomPane()
+        yield Footer()
+
+    def check_action(self, action: str, parameters) -> bool | None:
+        # Single-letter keys must type into inputs, not switch tabs.
+        if action in ("tab", "quit", "help") and isinstance(self.focused, Input):
+            return False
+        return True
+
+    def action_tab(self, name: str) -> None:
+        self.query_one("#tabs", TabbedContent).active = name
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen())
+
+    def send_to(self, tab: str, path: str) -> None:
+        """Hand a file to another tab (Room → Analyze / Render)."""
+        if tab == "analyze":
+            box = self.query_one("#an-files", Input)
+            box.value = (box.value + " " + path).strip()
+        else:
+            self.query_one("#rn-ir", Input).value = path
+        self.action_tab(tab)
+        self.notify(f"{path} sent to {tab}")
+
+
+def main() -> None:
+    RoomconvApp().run()
+
+
+if __name__ == "__main__":
+    main()

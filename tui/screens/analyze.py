@@ -1,0 +1,125 @@
+"""Analyze tab: pick IR files (or the session's positions), octave or third-octave bands, see
+the band table, warnings in plain words, decay curves and bars, and export the report."""
+
+from __future__ import annotations
+
+import shlex
+from pathlib import Path
+
+from textual import on, work
+from textual.app import ComposeResult
+from textual.containers import Horizontal, VerticalScroll
+from textual.widgets import Button, DataTable, Input, Label, Select, Static
+
+from roomconv.analysis.report import HEADERS, band_label, fmt
+from roomconv.errors import RoomconvError
+
+COLUMNS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db")
+
+
+class AnalyzePane(VerticalScroll):
+    study = None
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(classes="row"):
+            yield Label("IR files")
+            yield Input(placeholder="hall1.wav hall2.wav …", id="an-files")
+            yield Button("Session positions", id="an-session")
+        with Horizontal(classes="row"):
+            yield Label("Bands")
+            yield Select([("octave", "octave"), ("third-octave", "third")], value="octave",
+                         allow_blank=False, id="an-bands")
+            yield Button("Analyze", id="an-run", variant="primary")
+        with Horizontal(classes="row"):
+            yield Label("Export to")
+            yield Input("analysis_out", id="an-export-dir")
+            yield Button("Export JSON/CSV/HTML", id="an-export")
+        yield Static("", id="an-status", classes="status")
+        yield DataTable(id="an-table")
+        yield Static("", id="an-warnings", classes="status")
+        yield Static("", id="an-bars", classes="chart")
+        yield Static("", id="an-decay", classes="chart")
+
+    def on_mount(self) -> None:
+        t = self.query_one("#an-table", DataTable)
+        t.add_columns("position", "band", *[HEADERS[c] for c in COLUMNS])
+
+    @on(Button.Pressed, "#an-session")
+    def use_session(self) -> None:
+        files = [str(p["file"]) for p in self.app.session]
+        if not files:
+            self.app.notify("no positions measured yet in this session", severity="warning")
+            return
+        self.query_one("#an-files", Input).value = " ".join(shlex.quote(f) for f in files)
+
+    @on(Button.Pressed, "#an-run")
+    def run_pressed(self) -> None:
+        self.analyse()
+
+    @work(thread=True, exclusive=True, group="analyze")
+    def analyse(self) -> None:
+        from roomconv.analysis.study import analyse_files
+        app = self.app
+        try:
+            files = shlex.split(self.query_one("#an-files", Input).value)
+            if not files:
+                raise RoomconvError("type one or more IR file paths first")
+            bands = self.query_one("#an-bands", Select).value
+            app.call_from_thread(self.query_one("#an-status", Static).update, "analysing…")
+            study = analyse_files([Path(f) for f in files], bands=bands)
+        except RoomconvError as exc:
+            app.call_from_thread(app.notify, str(exc), severity="error", title="Analyze")
+            app.call_from_thread(self.query_one("#an-status", Static).update, "")
+            return
+        self.study = study
+        app.call_from_thread(self.show, study)
+
+    def show(self, study) -> None:
+        doc = study.document
+        t = self.query_one("#an-table", DataTable)
+        t.clear()
+        for p in doc["positions"]:
+            name = f"{Path(p['file']).name}:{p['channel']}"
+            for r in p["bands"] + [p["wideband"]]:
+                t.add_row(name, band_label(r["band_hz"]), *[fmt(c, r.get(c)) for c in COLUMNS])
+        if len(doc["positions"]) > 1:
+            for r in doc["average"]["bands"]:
+                t.add_row("average", band_label(r["band_hz"]),
+                          *[fmt(c, r[c]["mean"]) if c in r else "—" for c in COLUMNS])
+        warns = [w for p in doc["positions"] for r in p["bands"] + [p["wideband"]]
+                 for w in r["warnings"]] + doc.get("errors", [])
+        self.query_one("#an-warnings", Static).update(
+            "\n".join(f"! {w}" for w in warns[:12]) + (f"\n… {len(warns) - 12} more"
+                                                      if len(warns) > 12 else ""))
+        from tui.widgets import bar_chart, decay_plot
+        avg = {r["band_hz"]: r["t30_s"]["mean"] for r in doc["average"]["bands"]}
+        self.query_one("#an-bars", Static).update(
+            "T30 per band (average)\n" + bar_chart([(band_label(b), v) for b, v in avg.items()]))
+        first = doc["positions"][0]
+        res, _wide, rate = study.curves[(str(first["file"]), first["channel"])]
+        curves = [(band_label(r.band_hz), r.curve_db, rate) for r in res]
+        self.query_one("#an-decay", Static).update(
+            f"Decay curves, {Path(first['file']).name}\n" + decay_plot(curves))
+        sn = doc["average"]["single_numbers"]
+        self.query_one("#an-status", Static).update(
+            f"{len(doc['positions'])} position(s); T30 mid "
+            f"{fmt('t30_s', sn['t30_mid_s'])} s, EDT mid {fmt('edt_s', sn['edt_mid_s'])} s, "
+            f"C80 mid {fmt('c80_db', sn['c80_mid_db'])} dB")
+
+    @on(Button.Pressed, "#an-export")
+    def export(self) -> None:
+        from roomconv.analysis.report import csv_text, html_report
+        from roomconv.audio import write_json, write_text
+        if self.study is None:
+            self.app.notify("analyze something first", severity="warning")
+            return
+        folder = Path(self.query_one("#an-export-dir", Input).value)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+            write_json(folder / "results.json", self.study.document, force=True)
+            write_text(folder / "results.csv", csv_text(self.study.document), force=True)
+            write_text(folder / "report.html", html_report(self.study), force=True)
+        except (OSError, RoomconvError) as exc:
+            self.app.notify(str(exc), severity="error", title="Export")
+            return
+        self.app.notify(f"exported to {folder}", title="Analyze")
