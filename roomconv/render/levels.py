@@ -4,7 +4,9 @@ integrated loudness (ITU-R BS.1770-4), fed block by block so files of any length
 from __future__ import annotations
 
 import numpy as np
-from scipy.signal import lfilter, lfilter_zi, resample_poly
+
+# scipy.signal is imported inside the meters that need it: importing it costs about a second,
+# which a plain render (sample peak only) should not pay.
 
 
 class PeakMeter:
@@ -40,6 +42,7 @@ class TruePeakMeter:
         self.peak = 0.0
 
     def feed(self, block: np.ndarray) -> None:
+        from scipy.signal import resample_poly  # noqa: PLC0415
         x = np.concatenate([self._tail, block])
         up = resample_poly(x, self.UP, 1, axis=0, window=("kaiser", 10.0))
         # Outputs near either end lack filter context; those samples are measured in the
@@ -75,6 +78,7 @@ class LoudnessMeter:
 
     def __init__(self, rate: int, channels: int):
         import pyloudnorm  # noqa: PLC0415 - only loudness normalization needs it
+        from scipy.signal import lfilter_zi  # noqa: PLC0415
         meter = pyloudnorm.Meter(rate)
         self.rate = rate
         self.filters = [(f.b, f.a) for f in meter._filters.values()]
@@ -87,6 +91,7 @@ class LoudnessMeter:
         self.g = np.array([self.WEIGHTS[i] if i < 5 else 1.0 for i in range(channels)])
 
     def feed(self, block: np.ndarray) -> None:
+        from scipy.signal import lfilter  # noqa: PLC0415
         y = block
         for i, (b, a) in enumerate(self.filters):
             y, self.state[i] = lfilter(b, a, y, axis=0, zi=self.state[i])

@@ -220,9 +220,10 @@ class OverlapSaveConvolver:
         self.n, self.block = n, n - self.taps + 1
         self.workers = workers
         self.H = sfft.rfft(h.astype(rdtype), n, axis=0, workers=workers)
-        self.mix = routing.mix_matrix().astype(rdtype)
         self.path_in = list(routing.path_in)
+        self.path_out = list(routing.path_out)
         self.buf = np.zeros((n, routing.n_in), dtype=rdtype)
+        self.Y = np.zeros((n // 2 + 1, routing.n_out), dtype=self.H.dtype)
         self.latency_samples = self.block
         self.precision = precision
 
@@ -232,7 +233,11 @@ class OverlapSaveConvolver:
             self.buf[:m1] = self.buf[self.block:]
         self.buf[m1:] = block
         X = sfft.rfft(self.buf, axis=0, workers=self.workers)
-        Y = (X[:, self.path_in] * self.H) @ self.mix
+        # Multiply-add path by path into the outputs' spectra (no paths × bins temporaries).
+        Y = self.Y
+        Y[:] = 0
+        for p, (i, o) in enumerate(zip(self.path_in, self.path_out)):
+            Y[:, o] += X[:, i] * self.H[:, p]
         return sfft.irfft(Y, self.n, axis=0, workers=self.workers)[m1:]
 
 
