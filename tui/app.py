@@ -19,9 +19,10 @@ from tui.screens.room import RoomPane
 HELP = """\
 Keys
   m  Measure      a  Analyze      r  Render      o  Room
-  ?  this help    q  quit         Tab / Shift+Tab  move between fields
-  Enter on a button runs it; long work runs in the background and can be
-  cancelled (Render: Cancel). Errors appear as notices in the corner.
+  ?  this help    q  quit         x  cancel running work
+  Tab / Shift+Tab  move between fields; Enter on a button runs it.
+  Long work runs in the background; x (or Render's Cancel) stops it.
+  Errors appear as notices in the corner.
 
 Tabs
   Measure  sweep settings, caution, level check, measure or import a recording;
@@ -49,6 +50,7 @@ class RoomconvApp(App):
         Binding("r", "tab('render')", "Render"),
         Binding("o", "tab('room')", "Room"),
         Binding("question_mark,f1", "help", "Help"),
+        Binding("x", "cancel", "Cancel work"),
         Binding("q", "quit", "Quit"),
     ]
 
@@ -72,7 +74,7 @@ class RoomconvApp(App):
 
     def check_action(self, action: str, parameters) -> bool | None:
         # Single-letter keys must type into inputs, not switch tabs.
-        if action in ("tab", "quit", "help") and isinstance(self.focused, Input):
+        if action in ("tab", "quit", "help", "cancel") and isinstance(self.focused, Input):
             return False
         return True
 
@@ -81,6 +83,18 @@ class RoomconvApp(App):
 
     def action_help(self) -> None:
         self.push_screen(HelpScreen())
+
+    def action_cancel(self) -> None:
+        """Cancel every running job: renders stop at the next block, other work is dropped
+        when its current step returns."""
+        running = [w for w in self.workers if w.is_running]
+        for w in running:
+            w.cancel()
+        render = self.query("RenderPane")
+        for pane in render:
+            pane.cancel()
+        self.notify(f"cancelled {len(running)} running job(s)" if running else
+                    "nothing is running")
 
     def send_to(self, tab: str, path: str) -> None:
         """Hand a file to another tab (Room → Analyze / Render)."""

@@ -47,6 +47,8 @@ async def test_help_overlay_and_tab_keys():
         await pilot.press("escape")
         await pilot.press("a")
         assert app.query_one("#tabs").active == "analyze"
+        await pilot.press("x")
+        assert any("nothing is running" in n.message for n in app._notifications)
 
 
 async def test_room_tab_predicts_and_synthesizes(tmp_path):

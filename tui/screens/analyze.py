@@ -7,6 +7,7 @@ import shlex
 from pathlib import Path
 
 from textual import on, work
+from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
@@ -70,6 +71,8 @@ class AnalyzePane(VerticalScroll):
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Analyze")
             app.call_from_thread(self.query_one("#an-status", Static).update, "")
+            return
+        if get_current_worker().is_cancelled:
             return
         self.study = study
         app.call_from_thread(self.show, study)

@@ -9,6 +9,7 @@ import time
 from pathlib import Path
 
 from textual import on, work
+from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, Checkbox, DataTable, Input, Label, ProgressBar, Static
@@ -167,6 +168,10 @@ class MeasurePane(VerticalScroll):
                 stop.set()
             app.call_from_thread(bar.update, progress=0.97)
             ex = extract_ir(rec, s.rate, sweep=s, reference_channel=ref)
+            if get_current_worker().is_cancelled:
+                app.call_from_thread(self.query_one("#ms-status", Static).update,
+                                     "measurement cancelled; nothing saved")
+                return
             self.save_position(ex, [])
             app.call_from_thread(bar.update, progress=1.0)
         except RoomconvError as exc:

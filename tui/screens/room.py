@@ -6,6 +6,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from textual import on, work
+from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
@@ -105,6 +106,8 @@ class RoomPane(VerticalScroll):
                                        "receiver": list(rcv), "stereo": stereo})
         except (ValueError, RoomconvError) as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Room")
+            return
+        if get_current_worker().is_cancelled:
             return
         app.last_synth = out
         app.call_from_thread(self.query_one("#room-status", Static).update,
