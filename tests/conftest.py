@@ -38,3 +38,22 @@ def rel_error_db(estimate: np.ndarray, truth: np.ndarray) -> float:
     e = np.pad(estimate, (0, n - estimate.size))
     t = np.pad(truth, (0, n - truth.size))
     return float(10 * np.log10(np.sum((e - t) ** 2) / np.sum(t ** 2)))
+
+
+def alsa_file_device(folder, capture: np.ndarray) -> dict:
+    """An ALSA ``file``-plugin default device for PortAudio (see shared AUDIO-CI notes).
+
+    Writes ``capture`` (mono, float32 LE) to CAPTURE.raw for the input side; playback lands
+    in PLAYED.raw. Returns the environment for a subprocess (the variable must be set before
+    PortAudio initialises).
+    """
+    import os
+    np.asarray(capture, dtype="<f4").tofile(folder / "CAPTURE.raw")
+    (folder / "alsa").mkdir()
+    (folder / "alsa" / "asoundrc").write_text(f"""
+pcm.rc_play {{ type file slave.pcm "null" file "{folder}/PLAYED.raw" format "raw" }}
+pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" infile "{folder}/CAPTURE.raw" format "raw" }}
+pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
+pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
+""")
+    return {**os.environ, "XDG_CONFIG_HOME": str(folder)}

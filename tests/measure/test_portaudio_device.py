@@ -6,7 +6,6 @@ PortAudio initialises, so the measurement runs in a subprocess.
 """
 
 import ctypes.util
-import os
 import subprocess
 import sys
 
@@ -16,7 +15,7 @@ import soundfile as sf
 from scipy.signal import fftconvolve
 
 from roomconv.measure.sweep import Sweep, sweep_signal
-from tests.conftest import band_limited_room, rel_error_db
+from tests.conftest import alsa_file_device, band_limited_room, rel_error_db
 
 pytestmark = [pytest.mark.audio, pytest.mark.timeout(120)]
 
@@ -37,17 +36,9 @@ def test_measure_through_portaudio_file_device(tmp_path):
               silence_pre=0.3, silence_post=1.0)
     room = band_limited_room(FS, rt=0.15, length_s=0.3) * 0.3
     answer = fftconvolve(sweep_signal(s), room)
-    capture = np.zeros(answer.size + 3 * FS, dtype="<f4")
+    capture = np.zeros(answer.size + 3 * FS)
     capture[: answer.size] = answer
-    capture.tofile(tmp_path / "CAPTURE.raw")
-    (tmp_path / "alsa").mkdir()
-    (tmp_path / "alsa" / "asoundrc").write_text(f"""
-pcm.rc_play {{ type file slave.pcm "null" file "{tmp_path}/PLAYED.raw" format "raw" }}
-pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" infile "{tmp_path}/CAPTURE.raw" format "raw" }}
-pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
-pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
-""")
-    env = {**os.environ, "XDG_CONFIG_HOME": str(tmp_path)}
+    env = alsa_file_device(tmp_path, capture)
     cmd = [sys.executable, "-m", "roomconv", "measure", str(tmp_path / "ir.wav"), "--yes",
            "--duration", "1.5", "--low", "10", "--high", "22000", "--pre", "0.3",
            "--silence", "1.0", "--level", "-20", "--length", "0.5"]

@@ -2,7 +2,6 @@
 file-plugin device (input read from CAPTURE.raw, output written to PLAYED.raw)."""
 
 import ctypes.util
-import os
 import subprocess
 import sys
 
@@ -12,6 +11,7 @@ import soundfile as sf
 from scipy.signal import fftconvolve
 
 from roomconv.render.stream import LiveProcessor
+from tests.conftest import alsa_file_device
 
 FS = 48000
 
@@ -54,15 +54,7 @@ def test_live_through_portaudio_file_device(tmp_path):
     ir = rng.standard_normal(t.size) * np.exp(-25 * t) * 0.02
     sf.write(tmp_path / "ir.wav", ir, FS, subtype="DOUBLE")
     x = (0.1 * rng.standard_normal(FS * 3)).astype("<f4")
-    np.concatenate([x, np.zeros(FS * 2, "<f4")]).tofile(tmp_path / "CAPTURE.raw")
-    (tmp_path / "alsa").mkdir()
-    (tmp_path / "alsa" / "asoundrc").write_text(f"""
-pcm.rc_play {{ type file slave.pcm "null" file "{tmp_path}/PLAYED.raw" format "raw" }}
-pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" infile "{tmp_path}/CAPTURE.raw" format "raw" }}
-pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
-pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
-""")
-    env = {**os.environ, "XDG_CONFIG_HOME": str(tmp_path)}
+    env = alsa_file_device(tmp_path, np.concatenate([x, np.zeros(FS * 2, "<f4")]))
     proc = subprocess.run([sys.executable, "-m", "roomconv", "live", "--ir",
                            str(tmp_path / "ir.wav"), "--yes", "--block", "256", "--gain", "0",
                            "--rate", str(FS), "--duration", "2.5"],
