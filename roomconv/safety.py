@@ -79,16 +79,23 @@ class OutputLimiter:
         self.max_reduction_db = 0.0
 
     def process(self, block: np.ndarray) -> np.ndarray:
-        """Limit one block (samples × channels), returning a new array."""
+        """Limit one block (samples × channels), returning a new array.
+
+        The gain reduction u = 1 − g follows u[n] = max(1 − need[n], r·u[n−1]) (instant
+        attack, exponential release r); unrolled, u[n] = r^(n+1)·max(u_prev, max_k v[k]·r^−(k+1)),
+        a cumulative maximum, so the block needs no per-sample Python loop.
+        """
         peaks = np.max(np.abs(block), axis=1) if block.ndim == 2 else np.abs(block)
-        gains = np.empty(len(peaks))
-        g = self._gain
-        for i, pk in enumerate(peaks):
-            need = self.ceiling / pk if pk > self.ceiling else 1.0
-            g = min(need, 1.0 - (1.0 - g) * self._release)
-            gains[i] = g
-        self._gain = g
-        if gains.size:
-            self.max_reduction_db = max(self.max_reduction_db, -20 * np.log10(gains.min()))
+        n = peaks.size
+        if n == 0:
+            return block.copy()
+        with np.errstate(divide="ignore"):
+            need = np.where(peaks > self.ceiling, self.ceiling / peaks, 1.0)
+        powers = self._release ** np.arange(1, n + 1)
+        u = powers * np.maximum(1.0 - self._gain,
+                                np.maximum.accumulate((1.0 - need) / powers))
+        gains = 1.0 - u
+        self._gain = float(gains[-1])
+        self.max_reduction_db = max(self.max_reduction_db, -20 * np.log10(gains.min()))
         out = block * (gains[:, None] if block.ndim == 2 else gains)
         return hard_cap(out, 20 * np.log10(self.ceiling))

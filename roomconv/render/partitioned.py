@@ -348,9 +348,14 @@ class NonUniformConvolver:
                 st.fill = 0
                 block_start = t0 + B - st.b
                 self._pending[s] = (block_start + st.offset, 0)
-        idx = np.arange(t0, t0 + B) % H
-        out = self._acc[idx]  # fancy indexing copies
-        self._acc[idx] = 0.0
+        s0 = t0 % H
+        if s0 + B <= H:
+            out = self._acc[s0:s0 + B].copy()
+            self._acc[s0:s0 + B] = 0.0
+        else:
+            idx = np.arange(t0, t0 + B) % H
+            out = self._acc[idx]  # fancy indexing copies
+            self._acc[idx] = 0.0
         self._t += B
         return out
 
@@ -358,8 +363,11 @@ class NonUniformConvolver:
         H = self._acc.shape[0]
         if start < self._t:
             raise RuntimeError("partition plan violated: a stage finished too late")
-        idx = np.arange(start, start + y.shape[0]) % H
-        self._acc[idx] += y
+        s0, n = start % H, y.shape[0]
+        if s0 + n <= H:
+            self._acc[s0:s0 + n] += y
+        else:
+            self._acc[np.arange(start, start + n) % H] += y
 
 
 def choose_block(taps: int, *, mode: str = "offline", latency: int | None = None) -> int:

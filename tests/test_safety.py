@@ -1,0 +1,40 @@
+"""Safety helpers: the limiter against its defining recursion, ramps and caps."""
+
+import numpy as np
+import pytest
+
+from roomconv.errors import InputError
+from roomconv.safety import OutputLimiter, apply_ramps, check_level, hard_cap
+
+
+def reference_gain(x, rate, ceiling_db, release_s=0.2):
+    """The limiter's definition, one sample at a time: instant attack, exponential release."""
+    c = 10 ** (ceiling_db / 20)
+    r = np.exp(-1 / (release_s * rate))
+    g, out = 1.0, []
+    for v in np.abs(x):
+        need = c / v if v > c else 1.0
+        g = min(need, 1 - (1 - g) * r)
+        out.append(g)
+    return np.array(out)
+
+
+@pytest.mark.parametrize("block", [1, 64, 1000])
+def test_vectorized_limiter_equals_its_recursion(block):
+    rng = np.random.default_rng(0)
+    x = rng.standard_normal(6000) * np.linspace(0.05, 4, 6000)
+    lim = OutputLimiter(48000, -3.0)
+    y = np.concatenate([lim.process(x[i:i + block, None]) for i in range(0, x.size, block)])
+    want = np.clip(x * reference_gain(x, 48000, -3.0), -10 ** (-3 / 20), 10 ** (-3 / 20))
+    assert np.max(np.abs(y[:, 0] - want)) < 1e-12
+    assert np.max(np.abs(y)) <= 10 ** (-3 / 20)
+
+
+def test_ramps_caps_and_level_check():
+    x = np.ones((1000, 2))
+    r = apply_ramps(x, 1000, 0.1)
+    assert r[0, 0] == 0 and r[-1, 1] < 0.01 and r[500, 0] == 1
+    assert np.max(hard_cap(np.array([3.0, -3.0]), -6.0)) == pytest.approx(10 ** (-6 / 20))
+    assert check_level(-20) == -20
+    with pytest.raises(InputError, match="output cap"):
+        check_level(0.0)
