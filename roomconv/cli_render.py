@@ -11,7 +11,7 @@ from .cli import _note, _out, command
 from .progress import Progress
 
 
-def render_options(p, *, single: bool = True):
+def render_options(p):
     g = p.add_argument_group("rendering")
     g.add_argument("--mix", type=float, default=1.0, help="wet/dry: 0 dry only … 1 wet only (1)")
     g.add_argument("--predelay", type=float, default=0.0, metavar="MS",
@@ -184,7 +184,7 @@ def _cfg_batch(p):
     p.add_argument("--workers", type=int, default=None, help="local processes (all cores)")
     p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
                    help="run on a Dask distributed cluster instead of local processes")
-    render_options(p, single=False)
+    render_options(p)
 
 
 cmd_batch.configure = _cfg_batch

@@ -20,7 +20,7 @@ import numpy as np
 
 from . import __version__
 from .audio import write_audio, write_json, write_provenance, write_text
-from .cli import _out, command
+from .cli import command
 from .errors import InputError
 from .progress import Progress
 
@@ -72,7 +72,6 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     from .analysis.study import analyse_arrays
     from .measure.capture import SimulatedDevice, run_measurement
     from .measure.deconvolve import extract_ir
-    from .measure.files import format_quality
     from .measure.sweep import Sweep, sweep_signal
     from .render.offline import RenderSettings, render_file
     from .synth.generate import Receivers, synthesize

@@ -12,7 +12,7 @@ import numpy as np
 from .. import __version__
 from ..audio import read_audio, read_json
 from ..errors import InputError, describe
-from .parameters import BandResult, room_parameters
+from .parameters import room_parameters
 from .spatial import single_numbers, spatial_average
 
 
@@ -110,6 +110,3 @@ def analyse_files(paths, *, bands: str = "octave", reverse_filter: bool = False,
     study.document["errors"] = study.errors
     return study
 
-
-def band_result_of(study: Study, file, channel: int) -> tuple[list[BandResult], BandResult, int]:
-    return study.curves[(str(file), channel)]

@@ -370,13 +370,9 @@ class NonUniformConvolver:
             self._acc[np.arange(start, start + n) % H] += y
 
 
-def choose_block(taps: int, *, mode: str = "offline", latency: int | None = None) -> int:
-    """Block size for a job: offline favours throughput (large FFTs over few partitions),
-    live takes the requested latency rounded to a power of two (32–1024)."""
-    if mode == "live":
-        b = latency or 256
-        if not 32 <= b <= 1024:
-            raise InputError(f"live block size {b} is outside 32..1024")
-        return 1 << int(np.round(np.log2(b)))
-    target = 1 << int(np.ceil(np.log2(max(taps, 1))))
-    return int(min(max(target // 2, 4096), 1 << 17))
+def live_block_size(requested: int = 256) -> int:
+    """Callback block size for live use: the requested latency, 32–1024 samples, rounded to
+    a power of two (offline renders choose their own size in :func:`offline_convolver`)."""
+    if not 32 <= requested <= 1024:
+        raise InputError(f"live block size {requested} is outside 32..1024")
+    return 1 << int(np.round(np.log2(requested)))

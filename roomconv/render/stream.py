@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .. import safety
-from .partitioned import NonUniformConvolver, choose_block, routing_for
+from .partitioned import NonUniformConvolver, live_block_size, routing_for
 
 
 @dataclass
@@ -35,7 +35,7 @@ class LiveProcessor:
                  mix: float = 1.0, gain_db: float = 0.0, ceiling_dbfs: float = -1.0,
                  fade_in_s: float = 0.5, precision: str = "float64"):
         ir = ir[:, None] if ir.ndim == 1 else ir
-        self.block = choose_block(0, mode="live", latency=block)
+        self.block = live_block_size(block)
         self.routing = routing_for(n_in, ir.shape[1])
         # Blocks of at most 2048 keep the largest FFT short enough for the 99th percentile
         # of callback time; the longer tail costs a few more (cheap) partitions.
@@ -98,7 +98,7 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
     sd = load_sounddevice()
     stop_event = stop_event or threading.Event()
     limit = None if duration_s is None else int(duration_s * rate)
-    n_in, n_out = len(input_channels), len(output_channels)
+    n_out = len(output_channels)
     if proc.n_out != n_out:
         from ..errors import InputError
         raise InputError(f"the routing gives {proc.n_out} output channel(s) but "
