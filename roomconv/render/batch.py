@@ -94,7 +94,9 @@ def run_job(job: Job, progress=None) -> dict:
         if any(i["sha256"] is None for i in job.provenance["inputs"]):
             missing = [i["file"] for i in job.provenance["inputs"] if i["sha256"] is None]
             raise InputError(f"{missing[0]}: file not found")
-        rep = render_file(job.dry, job.ir, job.output, settings, force=True, progress=tick)
+        # One FFT thread per job: the pool (or the cluster) already runs jobs side by side.
+        rep = render_file(job.dry, job.ir, job.output, settings, force=True, progress=tick,
+                          workers=1)
         write_json(sidecar_path(job.output, "provenance"), job.provenance, force=True)
         return {"ok": True, "peak_dbfs": rep.peak_dbfs, "seconds": rep.frames / rep.rate,
                 "warnings": rep.warnings}

@@ -124,7 +124,8 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
 
 
 def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
-                progress: Callable[[float], None] | None = None) -> RenderReport:
+                progress: Callable[[float], None] | None = None,
+                workers: int | None = None) -> RenderReport:
     """Render ``dry_path`` through ``ir_path`` into ``out_path`` in bounded memory.
 
     Parameters
@@ -134,6 +135,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         Replace an existing output (never an input).
     progress : callable, optional
         Called with the fraction done (0–1) as blocks are written.
+    workers : int, optional
+        FFT threads (default every core; a batch gives each job one).
     """
     s = settings.check()
     dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
@@ -153,7 +156,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     if s.mix < 1.0:
         dry_routed(np.zeros((1, n_in)), routing.n_out)  # refuse early if it cannot be mixed
     n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
-    conv = offline_convolver(ir, routing, precision=s.precision)
+    conv = offline_convolver(ir, routing, precision=s.precision, workers=workers)
     B = conv.block
     integer = s.subtype in INTEGER_SUBTYPES
     fmt = audio_format_for(out_path, n_out * routing.n_out * (8 if s.subtype == "DOUBLE" else 4))
