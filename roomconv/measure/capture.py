@@ -142,3 +142,42 @@ def run_measurement(device, playback: np.ndarray, rate: int, *, tail_s: float = 
                          f"of {level_cap_dbfs:g} dBFS")
     padded = np.concatenate([x, np.zeros(int(round(tail_s * rate)))])
     return device.playrec(padded, rate)
+
+
+def metered_playrec(device, signal: np.ndarray, rate: int, on_level, interval_s: float = 0.1
+                    ) -> np.ndarray:
+    """Play and record like :func:`run_measurement`, calling ``on_level(peak_dbfs, fraction)``
+    about every ``interval_s`` with the input peak of the last interval, for a live meter.
+
+    A real card records in the background while this polls the part filled so far; a
+    simulated device's recording is replayed interval by interval.
+    """
+    x = np.asarray(signal, dtype=np.float64).reshape(-1)
+    step = max(1, int(interval_s * rate))
+
+    def level(seg):
+        return 20 * np.log10(max(float(np.max(np.abs(seg))) if seg.size else 0.0, 1e-12))
+
+    if isinstance(device, SoundCard):
+        import time
+        sd = load_sounddevice()
+        try:
+            rec = sd.playrec(safety.hard_cap(x).astype(np.float32)[:, None], samplerate=rate,
+                             input_mapping=list(device.input_channels),
+                             output_mapping=[device.output_channel], device=device.device,
+                             dtype="float32", blocking=False)
+        except Exception as exc:
+            raise DeviceError(f"the sound card refused the stream: {exc}") from None
+        t0 = time.monotonic()
+        while True:
+            n = min(x.size, int((time.monotonic() - t0) * rate))
+            on_level(level(rec[max(0, n - step):n]), n / x.size)
+            if n >= x.size:
+                break
+            time.sleep(interval_s)
+        sd.wait()
+        return np.asarray(rec, dtype=np.float64)
+    rec = device.playrec(x, rate)
+    for n in range(step, rec.shape[0] + step, step):
+        on_level(level(rec[n - step:n]), min(1.0, n / rec.shape[0]))
+    return rec

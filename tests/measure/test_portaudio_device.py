@@ -56,3 +56,26 @@ def test_measure_through_portaudio_file_device(tmp_path):
     played = np.fromfile(tmp_path / "PLAYED.raw", dtype="<f4")
     assert played.size > 0
     assert np.max(np.abs(played)) <= 10 ** (-20 / 20) * 1.001
+
+
+METER_SCRIPT = """
+import numpy as np
+from roomconv.measure.capture import SoundCard, metered_playrec
+levels = []
+tone = 0.1 * np.sin(2 * np.pi * 1000 * np.arange(24000) / 48000)
+rec = metered_playrec(SoundCard(), tone, 48000, lambda db, f: levels.append((db, f)))
+print(len(levels), max(db for db, _ in levels), levels[-1][1], rec.shape[0])
+"""
+
+
+@pytest.mark.skipif(_alsa_available() is not None, reason=str(_alsa_available()))
+def test_level_meter_through_portaudio_file_device(tmp_path):
+    # The capture file holds a tone at −20 dBFS; the meter must read it while "recording".
+    t = np.arange(3 * FS) / FS
+    env = alsa_file_device(tmp_path, 0.1 * np.sin(2 * np.pi * 500 * t))
+    proc = subprocess.run([sys.executable, "-c", METER_SCRIPT], env=env, capture_output=True,
+                          text=True, timeout=60)
+    assert proc.returncode == 0, proc.stderr
+    count, peak, last, frames = proc.stdout.split()
+    assert int(count) >= 3 and float(last) == 1.0 and int(frames) == 24000
+    assert float(peak) == pytest.approx(-20.0, abs=0.5)

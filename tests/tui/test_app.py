@@ -151,6 +151,11 @@ async def test_measure_tab_against_a_simulated_room(tmp_path):
         app.query_one("#ms-silence").value = "1"
         app.query_one("#ms-ref").value = "1"
         app.query_one("#ms-folder").value = str(tmp_path / "session")
+        await press(app, pilot, "#ms-level-check")
+        await settle(app, pilot)
+        meter = str(app.query_one("#ms-meter").render())
+        assert "dBFS" in meter and "100 %" in meter
+        assert "level check: input peak" in str(app.query_one("#ms-status").render())
         await press(app, pilot, "#ms-run")
         await settle(app, pilot)
         assert (tmp_path / "session" / "P1.wav").exists()

@@ -12,7 +12,8 @@ from textual import on, work
 from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
-from textual.widgets import Button, Checkbox, DataTable, Input, Label, ProgressBar, Static
+from textual.widgets import (Button, Checkbox, DataTable, Input, Label, ProgressBar, Select,
+                             Static)
 
 from roomconv.errors import RoomconvError
 from roomconv.safety import caution_text
@@ -23,7 +24,8 @@ class MeasurePane(VerticalScroll):
         yield Static("checking sound devices…", id="ms-devices", classes="status")
         with Horizontal(classes="row"):
             yield Label("Device")
-            yield Input(placeholder="index or name (default)", id="ms-device")
+            yield Select([("system default", "default")], value="default", allow_blank=False,
+                         id="ms-device")
             yield Label("Out ch")
             yield Input("1", id="ms-out-ch", classes="narrow")
             yield Label("In ch")
@@ -61,6 +63,7 @@ class MeasurePane(VerticalScroll):
             yield Label("Sweep file")
             yield Input(placeholder="sweep.wav", id="ms-sweep")
             yield Button("Import", id="ms-import")
+        yield Static("input meter: —", id="ms-meter", classes="status")
         yield ProgressBar(total=1.0, show_eta=False, id="ms-progress")
         yield Static("", id="ms-status", classes="status")
         yield DataTable(id="ms-positions")
@@ -73,14 +76,17 @@ class MeasurePane(VerticalScroll):
     @work(thread=True, group="devices")
     def probe_devices(self) -> None:
         from roomconv.measure.capture import list_devices
+        devs = []
         try:
             devs = list_devices()
-            text = ("sound devices: " + "; ".join(
-                f"{d['index']}: {d['name']} ({d['inputs']} in / {d['outputs']} out)"
-                for d in devs)) if devs else \
+            text = (f"{len(devs)} sound device(s) found; choose one below") if devs else \
                 "no sound device found: import recordings or rehearse on a simulated room"
         except RoomconvError as exc:
             text = f"no sound card path ({exc}); import recordings or rehearse on a simulated room"
+        options = [("system default", "default")] + [
+            (f"{d['index']}: {d['name']} ({d['inputs']} in / {d['outputs']} out)",
+             str(d["index"])) for d in devs]
+        self.app.call_from_thread(self.query_one("#ms-device", Select).set_options, options)
         self.app.call_from_thread(self.query_one("#ms-devices", Static).update, text)
 
     def sweep(self):
@@ -104,11 +110,11 @@ class MeasurePane(VerticalScroll):
         if not self.query_one("#ms-ack", Checkbox).value:
             raise RoomconvError("read the hearing and equipment caution and tick the box "
                                 "before any sound is played")
-        dev = self.query_one("#ms-device", Input).value.strip() or None
+        choice = self.query_one("#ms-device", Select).value
+        dev = None if choice in ("default", Select.BLANK) else int(choice)
         ins = tuple(int(c) for c in self.query_one("#ms-in-ch", Input).value.split(","))
         out = int(self.query_one("#ms-out-ch", Input).value)
-        return SoundCard(device=int(dev) if dev and dev.isdigit() else dev, output_channel=out,
-                         input_channels=ins), False
+        return SoundCard(device=dev, output_channel=out, input_channels=ins), False
 
     @on(Button.Pressed, "#ms-level-check")
     def level_pressed(self) -> None:
@@ -116,19 +122,29 @@ class MeasurePane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="measure")
     def level_check(self) -> None:
-        """A 1 s, 1 kHz tone at −40 dBFS, ramped; reports the input peak."""
+        """A 2 s, 1 kHz tone at −40 dBFS, ramped, with a live input meter."""
         import numpy as np
+        from roomconv.measure.capture import metered_playrec
         from roomconv.safety import apply_ramps
         app = self.app
+        meter = self.query_one("#ms-meter", Static)
+        peaks = []
+
+        def show(peak_db, frac):
+            peaks.append(peak_db)
+            bar = "█" * int(max(0.0, min(1.0, (peak_db + 80) / 80)) * 40)
+            app.call_from_thread(meter.update, f"input meter: {bar:<40} {peak_db:6.1f} dBFS "
+                                               f"({100 * frac:3.0f} %)")
         try:
             device, _ = self.device()
             rate = 48000
-            t = np.arange(rate) / rate
+            t = np.arange(2 * rate) / rate
             tone = apply_ramps(10 ** (-40 / 20) * np.sin(2 * np.pi * 1000 * t), rate)
-            rec = device.playrec(tone, rate)
-            peak = 20 * np.log10(max(np.max(np.abs(rec)), 1e-12))
+            metered_playrec(device, tone, rate, show)
             app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                 f"level check: input peak {peak:.1f} dBFS for a -40 dBFS tone")
+                                 f"level check: input peak {max(peaks):.1f} dBFS for a "
+                                 "-40 dBFS tone; aim for the sweep to peak 10-20 dB below "
+                                 "full scale at the microphone")
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Level check")
 
