@@ -102,7 +102,7 @@ def whole_process(seconds, repeats):
     rng = np.random.default_rng(1)
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
-        sf.write(tmp / "dry.wav", 0.1 * rng.standard_normal((int(seconds * FS), 2)), FS,
+        sf.write(tmp / "dry.wav", 0.02 * rng.standard_normal((int(seconds * FS), 2)), FS,
                  subtype="FLOAT")
         sf.write(tmp / "ir.wav", 0.01 * rng.standard_normal((4 * FS, 2)), FS, subtype="FLOAT")
         (tmp / "ref.py").write_text(SCRIPT)
