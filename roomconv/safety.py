@@ -89,6 +89,8 @@ class OutputLimiter:
         n = peaks.size
         if n == 0:
             return block.copy()
+        if self._gain == 1.0 and peaks.max() <= self.ceiling:
+            return block.copy()  # nothing to limit: the common case, kept cheap
         with np.errstate(divide="ignore"):
             need = np.where(peaks > self.ceiling, self.ceiling / peaks, 1.0)
         powers = self._release ** np.arange(1, n + 1)

@@ -107,6 +107,13 @@ class _Stage:
         self.H = np.ascontiguousarray(H[::-1]).astype(cdtype)
         self.path_in = np.array(routing.path_in)
         self.mix = routing.mix_matrix().astype(rdtype)
+        # Shortcuts for the common routings (one path per input, one per output): no gather
+        # of inputs and no mixing product per block.
+        self.gather = list(routing.path_in) != list(range(routing.n_in))
+        self.mixes = not (routing.n_paths == routing.n_out
+                          and list(routing.path_out) == list(range(routing.n_out)))
+        # Small FFTs spend more time in dispatch than in arithmetic: numpy's is lighter.
+        self.small = self.n <= 4096 and workers in (None, 1)
         self.n_in = routing.n_in
         K = b + 1
         self.fdl = np.zeros((2 * self.P, K, self.n_in), dtype=cdtype)
@@ -121,7 +128,8 @@ class _Stage:
         """Take ``b`` new input samples (b × n_in) and store their spectrum in the delay line."""
         self.inbuf[: self.b] = self.inbuf[self.b:]
         self.inbuf[self.b:] = block
-        X = sfft.rfft(self.inbuf, axis=0, workers=self.workers)
+        X = np.fft.rfft(self.inbuf, axis=0) if self.small else \
+            sfft.rfft(self.inbuf, axis=0, workers=self.workers)
         self.pos = (self.pos + 1) % self.P
         self.fdl[self.pos] = X
         self.fdl[self.pos + self.P] = X
@@ -135,7 +143,9 @@ class _Stage:
         # window[j] is the spectrum j blocks older than the oldest: partition P-1-j.
         window = self.fdl[self.pos + 1: self.pos + 1 + self.P]
         # self.H is reversed: row r holds partition P-1-r, matching window row r.
-        Xs = window[first:last][:, :, self.path_in]
+        Xs = window[first:last]
+        if self.gather:
+            Xs = Xs[:, :, self.path_in]
         part = np.einsum("pkn,pkn->kn", Xs, self.H[first:last])
         self._acc = part if self._acc is None else self._acc + part
 
@@ -143,8 +153,9 @@ class _Stage:
         """Inverse transform the accumulated spectrum: ``b`` output samples × outputs."""
         if self._acc is None:
             self.accumulate()
-        y = sfft.irfft(self._acc, self.n, axis=0, workers=self.workers)[self.b:]
-        return y @ self.mix
+        y = (np.fft.irfft(self._acc, self.n, axis=0) if self.small else
+             sfft.irfft(self._acc, self.n, axis=0, workers=self.workers))[self.b:]
+        return y @ self.mix if self.mixes else y
 
 
 class UniformPartitionedConvolver:

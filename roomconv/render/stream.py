@@ -22,10 +22,18 @@ class LiveStats:
     callbacks: int = 0
     frames: int = 0
     dropouts: int = 0                   #: PortAudio over/underflow flags seen
-    in_peak_dbfs: float = float("-inf")
-    out_peak_dbfs: float = float("-inf")
+    in_peak: float = 0.0                #: linear sample peaks since the start
+    out_peak: float = 0.0
     limiter_db: float = 0.0
     compute_s: list = field(default_factory=list)
+
+    @property
+    def in_peak_dbfs(self) -> float:
+        return 20 * np.log10(self.in_peak) if self.in_peak > 0 else float("-inf")
+
+    @property
+    def out_peak_dbfs(self) -> float:
+        return 20 * np.log10(self.out_peak) if self.out_peak > 0 else float("-inf")
 
 
 class LiveProcessor:
@@ -60,24 +68,28 @@ class LiveProcessor:
             y = self.mix * wet + (1 - self.mix) * dry
         else:
             y = wet
-        g = np.full(x.shape[0], self.gain)
-        if self.fade_pos < self.fade_len:
-            ramp = np.minimum(1.0, (self.fade_pos + np.arange(x.shape[0])) / self.fade_len)
-            g *= 0.5 - 0.5 * np.cos(np.pi * ramp)
-            self.fade_pos += x.shape[0]
-        if self._stopping:
-            k = self._stopping
-            g *= np.linspace(k / self._fade_out_blocks, (k - 1) / self._fade_out_blocks,
-                             x.shape[0])
-            self._stopping -= 1
-        y = self.limiter.process(y * g[:, None])
+        if self.fade_pos < self.fade_len or self._stopping:
+            g = np.full(x.shape[0], self.gain)
+            if self.fade_pos < self.fade_len:
+                ramp = np.minimum(1.0, (self.fade_pos + np.arange(x.shape[0])) / self.fade_len)
+                g *= 0.5 - 0.5 * np.cos(np.pi * ramp)
+                self.fade_pos += x.shape[0]
+            if self._stopping:
+                k = self._stopping
+                g *= np.linspace(k / self._fade_out_blocks, (k - 1) / self._fade_out_blocks,
+                                 x.shape[0])
+                self._stopping -= 1
+            y = y * g[:, None]
+        elif self.gain != 1.0:
+            y = y * self.gain
+        y = self.limiter.process(y)
         st = self.stats
         st.callbacks += 1
         st.frames += x.shape[0]
+        # Peaks kept linear here; the meter converts to dB when it draws.
         if x.size:
-            st.in_peak_dbfs = max(st.in_peak_dbfs, 20 * np.log10(max(np.max(np.abs(x)), 1e-12)))
-            st.out_peak_dbfs = max(st.out_peak_dbfs,
-                                   20 * np.log10(max(np.max(np.abs(y)), 1e-12)))
+            st.in_peak = max(st.in_peak, float(np.abs(x).max()))
+            st.out_peak = max(st.out_peak, float(np.abs(y).max()))
         st.limiter_db = self.limiter.max_reduction_db
         st.compute_s.append(time.perf_counter() - t0)
         return y
