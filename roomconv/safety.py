@@ -85,12 +85,12 @@ class OutputLimiter:
         attack, exponential release r); unrolled, u[n] = r^(n+1)·max(u_prev, max_k v[k]·r^−(k+1)),
         a cumulative maximum, so the block needs no per-sample Python loop.
         """
+        if block.size == 0:
+            return block.copy()
+        if self._gain == 1.0 and float(np.abs(block).max()) <= self.ceiling:
+            return block.copy()  # nothing to limit: the common case, kept cheap
         peaks = np.max(np.abs(block), axis=1) if block.ndim == 2 else np.abs(block)
         n = peaks.size
-        if n == 0:
-            return block.copy()
-        if self._gain == 1.0 and peaks.max() <= self.ceiling:
-            return block.copy()  # nothing to limit: the common case, kept cheap
         with np.errstate(divide="ignore"):
             need = np.where(peaks > self.ceiling, self.ceiling / peaks, 1.0)
         powers = self._release ** np.arange(1, n + 1)
