@@ -25,8 +25,9 @@ def render_options(p):
     g.add_argument("--subtype", default="FLOAT",
                    help="output sample format: FLOAT (default), DOUBLE, PCM_24, PCM_16 …; "
                         "integer formats get TPDF dither")
-    g.add_argument("--precision", choices=("float64", "float32"), default="float64",
-                   help="engine precision (float32 is faster; about -130 dB error)")
+    g.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
+                   help="engine precision: auto = float32 (about -130 dB error, faster) "
+                        "unless --subtype DOUBLE, which computes in float64")
     g.add_argument("--outputs", type=int, default=None, metavar="M",
                    help="general matrix routing: the IR holds inputs×M channels, input-major")
     g.add_argument("--shared", action="store_true",

@@ -33,7 +33,7 @@ class RenderSettings:
     normalize: str = "none"        #: none | peak | truepeak | loudness
     target: float | None = None    #: dBFS, dBTP or LUFS depending on ``normalize``
     subtype: str = "FLOAT"
-    precision: str = "float64"
+    precision: str = "auto"       #: auto | float64 | float32 (see engine_precision)
     outputs: int | None = None     #: general matrix routing: outputs per input
     shared: bool = False           #: one IR channel for every input
     keep_tail: bool = True
@@ -47,9 +47,20 @@ class RenderSettings:
             raise InputError(f"--predelay {self.predelay_ms} ms must not be negative")
         if self.normalize not in NORMALIZE:
             raise InputError(f"--normalize must be one of {', '.join(NORMALIZE)}")
-        if self.precision not in ("float64", "float32"):
-            raise InputError("--precision must be float64 or float32")
+        if self.precision not in ("auto", "float64", "float32"):
+            raise InputError("--precision must be auto, float64 or float32")
         return self
+
+    def engine_precision(self) -> str:
+        """``auto``: float32 arithmetic unless the file keeps doubles.
+
+        The float32 engine's error is about −130 dB relative to the signal (measured against
+        fftconvolve in the tests), far below audibility and below what a 16-bit file or a
+        24-bit converter resolves; DOUBLE files are computed in float64.
+        """
+        if self.precision != "auto":
+            return self.precision
+        return "float64" if self.subtype == "DOUBLE" else "float32"
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -108,7 +119,9 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     ir, _ = prepare_ir(ir, ir_rate or rate, rate, s.predelay_ms)
     routing = routing_for(dry.shape[1], ir.shape[1], outputs=s.outputs, shared=s.shared)
     n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
-    conv = offline_convolver(ir, routing, precision=s.precision)
+    # In memory the result stays float64, so "auto" computes in float64 here.
+    conv = offline_convolver(ir, routing,
+                             precision="float64" if s.precision == "auto" else s.precision)
     B = conv.block
     out = np.empty((n_out, routing.n_out))
     for start in range(0, n_out, B):
@@ -156,7 +169,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     if s.mix < 1.0:
         dry_routed(np.zeros((1, n_in)), routing.n_out)  # refuse early if it cannot be mixed
     n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
-    conv = offline_convolver(ir, routing, precision=s.precision, workers=workers)
+    conv = offline_convolver(ir, routing, precision=s.engine_precision(), workers=workers)
     B = conv.block
     integer = s.subtype in INTEGER_SUBTYPES
     fmt = audio_format_for(out_path, n_out * routing.n_out * (8 if s.subtype == "DOUBLE" else 4))

@@ -186,3 +186,16 @@ def test_unwritable_folder(files, cli, tmp_path):
         assert code == 2 and "not writable" in err
     finally:
         ro.chmod(0o755)
+
+
+def test_auto_precision_follows_the_output_format(files, cli):
+    # auto: float32 arithmetic (about −130 dB) for float/integer files, float64 for DOUBLE.
+    tmp, dry, ir = files
+    ref = np.stack([fftconvolve(dry[:, c], ir[:, c]) for c in range(2)], axis=1)
+    assert RenderSettings(subtype="FLOAT").engine_precision() == "float32"
+    assert RenderSettings(subtype="DOUBLE").engine_precision() == "float64"
+    assert RenderSettings(precision="float64").engine_precision() == "float64"
+    code, _, err = cli("render", tmp / "dry.wav", "--ir", tmp / "ir.wav", "-o", tmp / "f.wav")
+    assert code == 0, err
+    wet, _ = sf.read(tmp / "f.wav")
+    assert 10 * np.log10(np.sum((wet - ref) ** 2) / np.sum(ref ** 2)) < -120
