@@ -43,6 +43,46 @@ def fft_backends(repeats):
         + " (the engine uses scipy.fft with all threads offline)")
 
 
+def compiled_mac(repeats):
+    """The multiply-accumulate of one live callback (stage 0: 7 partitions × 129 bins, and a
+    slice of the long stage: 8 × 1025) in numpy's einsum against an optional numba loop."""
+    try:
+        import numba  # noqa: PLC0415 - optional, benchmark only
+    except ImportError:
+        print("multiply-accumulate: numba not installed; the engine uses numpy.einsum")
+        return
+
+    @numba.njit(cache=False)
+    def mac(X, H, out):
+        for k in range(X.shape[1]):
+            acc = 0j
+            for p in range(X.shape[0]):
+                acc += X[p, k] * H[p, k]
+            out[k] = acc
+
+    rng = np.random.default_rng(6)
+    shapes = [(7, 129), (8, 1025)]
+    arrays = [(rng.standard_normal(s) + 1j * rng.standard_normal(s),
+               rng.standard_normal(s) + 1j * rng.standard_normal(s),
+               np.empty(s[1], complex)) for s in shapes]
+    for X, H, out in arrays:
+        mac(X, H, out)  # compile outside the timing
+
+    def with_numpy():
+        for X, H, _ in arrays:
+            for _ in range(200):
+                np.einsum("pk,pk->k", X, H)
+
+    def with_numba():
+        for X, H, out in arrays:
+            for _ in range(200):
+                mac(X, H, out)
+    res = interleaved({"numpy": with_numpy, "numba": with_numba}, repeats)
+    print(f"multiply-accumulate per live callback: numpy.einsum {res['numpy'] / 200 * 1e6:.1f} us"
+          f" | numba {res['numba'] / 200 * 1e6:.1f} us (ratio "
+          f"{res['numpy'] / res['numba']:.1f}x; the engine keeps the pure numpy path)")
+
+
 def interleaved(funcs: dict, repeats: int) -> dict:
     times = {k: [] for k in funcs}
     for _ in range(repeats):
@@ -178,6 +218,7 @@ def main():
     secs = 30 if a.quick else 180
     print(f"roomconv benchmarks ({os.cpu_count()} cores; medians of {reps}, interleaved)")
     fft_backends(reps)
+    compiled_mac(reps)
     job(f"job A, {secs} s stereo through a 4 s stereo IR", secs, 4.0, 2, reps)
     job(f"job B, {secs} s true stereo through 4 IRs of 6 s", secs, 6.0, 4, reps)
     whole_process(secs, reps)
