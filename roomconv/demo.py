@@ -113,7 +113,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                 bar.update()
         # 2. Measure each position through the simulated chain and extract the IR.
         rng = np.random.default_rng(SEED)
-        irs, qualities, names = {}, {}, {}
+        irs, qualities = {}, {}
         for (si, ri), h in truths.items():
             n_rec = playback.size + int(0.5 * RATE)
             device = SimulatedDevice(h, latency_samples=384, loopback=True,
@@ -125,7 +125,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                 save_audio(out / "recordings" / f"{name}_recording.wav", rec,
                            extra={"what": "simulated recording, mic + loopback"})
             ex = extract_ir(rec, RATE, sweep=sweep, reference_channel=1, length_s=2.4)
-            irs[name], qualities[name], names[(si, ri)] = ex.ir[:, 0], ex.quality, name
+            irs[name], qualities[name] = ex.ir[:, 0], ex.quality
             save_audio(out / "irs" / f"{name}.wav", ex.ir, extra={"position": name,
                                                                   "quality": ex.quality})
             if (si, ri) == (1, 1):
@@ -187,7 +187,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                 renders.append((target, rep))
             bar.update()
         # 5. The report.
-        sections = _report_sections(room, sweep, qualities, comparison, renders, out)
+        sections = _report_sections(room, sweep, doc["quality"], comparison, renders, out)
         extra = {"Eyring prediction": {float(b): v for b, v in pred_e.items()},
                  "Sabine prediction": {float(b): v for b, v in pred_s.items()}}
         page = html_report(study, title="Linden Hall — room acoustic study (demo)",
@@ -199,7 +199,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
 
     summary = _summary(doc, time.monotonic() - t_start, out)
     write_json(out / "summary.json", summary, force=True)
-    for line in _summary_lines(summary, doc, qualities):
+    for line in _summary_lines(summary, doc):
         log(line)
     log("files:")
     for p in [out / "report.html", out / "results.json", out / "results.csv",
@@ -209,13 +209,14 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
 
 
 def _verdict(q: dict) -> dict:
+    from .measure.quality import REQUIRED_INR_DB
     inr = min(q["ir"]["inr_db"])
     clipped = sum(q["recording"]["clipped_samples"])
     if clipped:
         v = "fail: clipped recording"
-    elif inr >= 45:
-        v = "pass: T30 evaluable (peak-to-noise ratio ≥ 45 dB)"
-    elif inr >= 35:
+    elif inr >= REQUIRED_INR_DB["t30"]:
+        v = f"pass: T30 evaluable (peak-to-noise ratio ≥ {REQUIRED_INR_DB['t30']:.0f} dB)"
+    elif inr >= REQUIRED_INR_DB["t20"]:
         v = "limited: T20 only"
     else:
         v = "fail: too noisy for decay times"
@@ -224,7 +225,7 @@ def _verdict(q: dict) -> dict:
             "warnings": q.get("warnings", [])}
 
 
-def _report_sections(room, sweep, qualities, comparison, renders, out):
+def _report_sections(room, sweep, verdicts, comparison, renders, out):
     from .analysis.report import _html_table
     surf = [[s, room.surfaces[s], f"{room.surface_area(s):.0f}"] for s in room.surfaces]
     surf += [[f"{p.surface} (part)", p.material, f"{p.area_m2:.0f}"] for p in room.patches]
@@ -241,8 +242,7 @@ def _report_sections(room, sweep, qualities, comparison, renders, out):
              "recording is deconvolved with the sweep's analytic inverse and divided by the "
              "loopback response.</p>")
     rows = [[n, v["verdict"], f"{v['inr_db']:.1f}", str(v["clipped_samples"]),
-             str(v["latency_samples"])] for n, v in
-            ((n, _verdict(q)) for n, q in qualities.items())]
+             str(v["latency_samples"])] for n, v in verdicts.items()]
     quality = _html_table(["position", "verdict", "INR dB", "clipped", "latency removed"],
                           rows)
     comp = _html_table(["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
@@ -271,14 +271,14 @@ def _summary(doc, seconds, out) -> dict:
             "seconds": seconds, "output": str(out), "roomconv_version": __version__}
 
 
-def _summary_lines(summary, doc, qualities):
+def _summary_lines(summary, doc):
     lines = ["", "Linden Hall (demo) — headline figures, mid-frequency (500 Hz / 1 kHz)",
              f"{'position':<10}{'T30 s':>8}{'EDT s':>8}{'C80 dB':>8}{'D50':>7}  quality"]
     fmt = lambda v, f: "—" if v is None else f.format(v)  # noqa: E731
     for name, v in summary["positions"].items():
         lines.append(f"{name:<10}{fmt(v['t30_mid_s'], '{:.2f}'):>8}"
                      f"{fmt(v['edt_mid_s'], '{:.2f}'):>8}{fmt(v['c80_mid_db'], '{:+.1f}'):>8}"
-                     f"{fmt(v['d50_mid'], '{:.2f}'):>7}  {_verdict(qualities[name])['verdict']}")
+                     f"{fmt(v['d50_mid'], '{:.2f}'):>7}  {doc['quality'][name]['verdict']}")
     a = summary["average"]
     lines.append(f"{'average':<10}{fmt(a['t30_mid_s'], '{:.2f}'):>8}"
                  f"{fmt(a['edt_mid_s'], '{:.2f}'):>8}{fmt(a['c80_mid_db'], '{:+.1f}'):>8}"

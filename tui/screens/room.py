@@ -11,20 +11,13 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
 
+from roomconv.cli_synth import parse_triple
 from roomconv.errors import RoomconvError
 from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
 
 DEFAULTS = {"left": "plaster", "right": "plaster", "front": "wood-panel", "back": "plaster",
             "floor": "carpet", "ceiling": "acoustic-tile"}
-
-
-def _triple(text: str, sep: str = ","):
-    parts = text.lower().replace("x", ",").split(",") if sep == "x" else text.split(",")
-    vals = tuple(float(p) for p in parts)
-    if len(vals) != 3:
-        raise ValueError("three numbers needed")
-    return vals
 
 
 class RoomPane(VerticalScroll):
@@ -64,7 +57,7 @@ class RoomPane(VerticalScroll):
         self.update_prediction()
 
     def room(self) -> RoomModel:
-        L, W, H = _triple(self.query_one("#room-size", Input).value, "x")
+        L, W, H = parse_triple(self.query_one("#room-size", Input).value, "size", sep="x")
         surfaces = {s: self.query_one(f"#mat-{s}", Select).value for s in SURFACES}
         return RoomModel(L, W, H, surfaces)
 
@@ -95,8 +88,8 @@ class RoomPane(VerticalScroll):
         app = self.app
         try:
             room = self.room()
-            src = _triple(self.query_one("#room-source", Input).value)
-            rcv = _triple(self.query_one("#room-receiver", Input).value)
+            src = parse_triple(self.query_one("#room-source", Input).value, "source")
+            rcv = parse_triple(self.query_one("#room-receiver", Input).value, "receiver")
             out = Path(self.query_one("#room-out", Input).value)
             stereo = self.query_one("#room-stereo", Select).value
             res = synthesize(room, src, rcv, receivers=Receivers.parse(stereo), seed=0)
