@@ -5,6 +5,8 @@ Every code path that sends sound to a device goes through here first.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .errors import InputError
@@ -72,32 +74,52 @@ class OutputLimiter:
     Gain never lets a sample exceed the ceiling; the release is exponential.
     """
 
+    #: Longest stretch handled in one vectorized pass (r^-n must stay finite).
+    CHUNK = 8192
+
     def __init__(self, rate: int, ceiling_dbfs: float = OUTPUT_CAP_DBFS, release_s: float = 0.2):
         self.ceiling = db_to_gain(ceiling_dbfs)
         self._release = float(np.exp(-1.0 / max(release_s * rate, 1.0)))
         self._gain = 1.0
         self.max_reduction_db = 0.0
+        self._powers: dict[int, tuple[np.ndarray, np.ndarray]] = {}
 
     def process(self, block: np.ndarray) -> np.ndarray:
-        """Limit one block (samples × channels), returning a new array.
+        """Limit one block (samples × channels, or samples), returning a new array.
 
         The gain reduction u = 1 − g follows u[n] = max(1 − need[n], r·u[n−1]) (instant
         attack, exponential release r); unrolled, u[n] = r^(n+1)·max(u_prev, max_k v[k]·r^−(k+1)),
         a cumulative maximum, so the block needs no per-sample Python loop.
         """
+        if block.shape[0] > self.CHUNK:
+            return np.concatenate([self.process(block[i:i + self.CHUNK])
+                                   for i in range(0, block.shape[0], self.CHUNK)])
         if block.size == 0:
             return block.copy()
-        if self._gain == 1.0 and float(np.abs(block).max()) <= self.ceiling:
+        c = self.ceiling
+        mag = np.abs(block)
+        peaks = mag.reshape(-1) if block.ndim == 1 or block.shape[1] == 1 else mag.max(axis=1)
+        if self._gain == 1.0 and peaks.max() <= c:
             return block.copy()  # nothing to limit: the common case, kept cheap
-        peaks = np.max(np.abs(block), axis=1) if block.ndim == 2 else np.abs(block)
         n = peaks.size
-        with np.errstate(divide="ignore"):
-            need = np.where(peaks > self.ceiling, self.ceiling / peaks, 1.0)
-        powers = self._release ** np.arange(1, n + 1)
-        u = powers * np.maximum(1.0 - self._gain,
-                                np.maximum.accumulate((1.0 - need) / powers))
-        gains = 1.0 - u
+        if n not in self._powers:
+            k = np.arange(1, n + 1)
+            self._powers[n] = (self._release ** k, self._release ** -k)
+        up, down = self._powers[n]
+        # 1 − need, where need = min(1, c / peak) is the gain each sample needs on its own.
+        v = np.maximum(peaks, c)
+        np.divide(c, v, out=v)
+        np.subtract(1.0, v, out=v)
+        v *= down
+        np.maximum.accumulate(v, out=v)
+        np.maximum(v, 1.0 - self._gain, out=v)
+        v *= up
+        gains = np.subtract(1.0, v, out=v)
         self._gain = float(gains[-1])
-        self.max_reduction_db = max(self.max_reduction_db, -20 * np.log10(gains.min()))
+        lowest = float(gains.min())
+        if lowest < 1.0:
+            self.max_reduction_db = max(self.max_reduction_db, -20 * math.log10(lowest))
         out = block * (gains[:, None] if block.ndim == 2 else gains)
-        return hard_cap(out, 20 * np.log10(self.ceiling))
+        # A last line of defence against rounding: never above the ceiling.
+        np.minimum(out, c, out=out)
+        return np.maximum(out, -c, out=out)

@@ -30,6 +30,19 @@ def test_vectorized_limiter_equals_its_recursion(block):
     assert np.max(np.abs(y)) <= 10 ** (-3 / 20)
 
 
+def test_limiter_on_long_stereo_blocks_equals_its_recursion():
+    # Blocks longer than the limiter's internal chunk (r^-n must not overflow), and stereo,
+    # where both channels take the gain their louder sample needs.
+    rng = np.random.default_rng(1)
+    x = rng.standard_normal((20000, 2)) * np.linspace(0.05, 4, 20000)[:, None]
+    lim = OutputLimiter(48000, -3.0)
+    y = lim.process(x)
+    g = reference_gain(np.abs(x).max(axis=1), 48000, -3.0)
+    c = 10 ** (-3 / 20)
+    assert np.max(np.abs(y - np.clip(x * g[:, None], -c, c))) < 1e-12
+    assert lim.max_reduction_db == pytest.approx(-20 * np.log10(g.min()))
+
+
 def test_ramps_caps_and_level_check():
     x = np.ones((1000, 2))
     r = apply_ramps(x, 1000, 0.1)
