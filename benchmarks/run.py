@@ -168,7 +168,7 @@ def live(block, ir_seconds=5.0, callbacks=3000):
     x = rng.standard_normal((block, 1)) * 0.1
     for _ in range(callbacks):
         proc.process(x)
-    c = np.array(proc.stats.compute_s[200:]) / (block / FS)
+    c = proc.stats.compute.recent(skip=200) / (block / FS)
     # The same audio through scipy in one go, per block, for scale.
     t = time.perf_counter()
     oaconvolve(rng.standard_normal(callbacks * block), h)

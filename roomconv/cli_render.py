@@ -229,10 +229,11 @@ def cmd_live(a):
 
     st = run_live(proc, rate, device=a.device, input_channels=ins, output_channels=outs,
                   duration_s=a.duration, on_meter=meter)
-    comp = np.array(st.compute_s) / (proc.block / rate) if st.compute_s else np.zeros(1)
+    per_block = proc.block / rate
     _out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
          f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
-         f"{100 * comp.mean():.1f} % / p99 {100 * np.percentile(comp, 99):.1f} % of a block", a)
+         f"{100 * st.compute.mean_s / per_block:.1f} % / p99 "
+         f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block", a)
     return 0
 
 
@@ -246,7 +247,9 @@ def _cfg_live(p):
     p.add_argument("--mix", type=float, default=1.0, help="wet/dry 0..1 (1)")
     p.add_argument("--gain", type=float, default=-6.0, help="output gain, dB (-6)")
     p.add_argument("--ceiling", type=float, default=-1.0, help="limiter ceiling, dBFS (-1)")
-    p.add_argument("--precision", choices=("float64", "float32"), default="float64")
+    p.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
+                   help="engine precision: auto = float32, as the sound card stream is "
+                        "float32 (about -135 dB error); float64 is exact to about -300 dB")
     p.add_argument("--duration", type=float, default=None, help="stop after S seconds")
     p.add_argument("--yes", action="store_true",
                    help="confirm you have read the hearing and equipment caution")
