@@ -83,24 +83,36 @@ class OutputLimiter:
         self._gain = 1.0
         self.max_reduction_db = 0.0
         self._powers: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+        self.last_peak = 0.0  #: peak of the last block returned, linear
 
-    def process(self, block: np.ndarray) -> np.ndarray:
-        """Limit one block (samples × channels, or samples), returning a new array.
+    def process(self, block: np.ndarray, *, in_place: bool = False) -> np.ndarray:
+        """Limit one block (samples × channels, or samples).
+
+        Returns a new array, or ``block`` itself, changed, with ``in_place``. The output's
+        peak is left in :attr:`last_peak` (linear), for meters.
 
         The gain reduction u = 1 − g follows u[n] = max(1 − need[n], r·u[n−1]) (instant
         attack, exponential release r); unrolled, u[n] = r^(n+1)·max(u_prev, max_k v[k]·r^−(k+1)),
         a cumulative maximum, so the block needs no per-sample Python loop.
         """
         if block.shape[0] > self.CHUNK:
-            return np.concatenate([self.process(block[i:i + self.CHUNK])
-                                   for i in range(0, block.shape[0], self.CHUNK)])
+            parts, top = [], 0.0
+            for i in range(0, block.shape[0], self.CHUNK):
+                parts.append(self.process(block[i:i + self.CHUNK], in_place=in_place))
+                top = max(top, self.last_peak)
+            self.last_peak = top
+            return block if in_place else np.concatenate(parts)
         if block.size == 0:
-            return block.copy()
+            self.last_peak = 0.0
+            return block if in_place else block.copy()
         c = self.ceiling
         mag = np.abs(block)
         peaks = mag.reshape(-1) if block.ndim == 1 or block.shape[1] == 1 else mag.max(axis=1)
-        if self._gain == 1.0 and peaks.max() <= c:
-            return block.copy()  # nothing to limit: the common case, kept cheap
+        top = float(peaks.max())
+        if self._gain == 1.0 and top <= c:
+            # Nothing to limit: the common case, kept cheap.
+            self.last_peak = top
+            return block if in_place else block.copy()
         n = peaks.size
         if n not in self._powers:
             k = np.arange(1, n + 1)
@@ -119,7 +131,9 @@ class OutputLimiter:
         lowest = float(gains.min())
         if lowest < 1.0:
             self.max_reduction_db = max(self.max_reduction_db, -20 * math.log10(lowest))
-        out = block * (gains[:, None] if block.ndim == 2 else gains)
+        self.last_peak = min(c, float((peaks * gains).max()))
+        g = gains[:, None] if block.ndim == 2 else gains
+        out = np.multiply(block, g, out=block if in_place else None)
         # A last line of defence against rounding: never above the ceiling.
         np.minimum(out, c, out=out)
         return np.maximum(out, -c, out=out)

@@ -41,6 +41,12 @@ def test_limiter_on_long_stereo_blocks_equals_its_recursion():
     c = 10 ** (-3 / 20)
     assert np.max(np.abs(y - np.clip(x * g[:, None], -c, c))) < 1e-12
     assert lim.max_reduction_db == pytest.approx(-20 * np.log10(g.min()))
+    assert lim.last_peak == pytest.approx(np.abs(y).max())
+    # In place: the same numbers, written into the caller's array.
+    again = OutputLimiter(48000, -3.0)
+    z = x.copy()
+    assert again.process(z, in_place=True) is z
+    assert np.array_equal(z, y) and again.last_peak == lim.last_peak
 
 
 def test_ramps_caps_and_level_check():
