@@ -70,13 +70,28 @@ def test_float32_precision_is_stated():
     assert rel_db(stream(conv, x, ref.shape[0]), ref) < -110
 
 
-def test_non_uniform_plan_respects_its_timing_rule():
-    plan = plan_partition(240000, 128)
+@pytest.mark.parametrize("ratio, max_block", [(4, 16384), (8, 8192), (16, 2048), (32, 1024)])
+def test_non_uniform_plan_respects_its_timing_rule(ratio, max_block):
+    plan = plan_partition(240000, 128, ratio=ratio, max_block=max_block)
     assert plan[0][0] == 128 and plan[0][1] == 0
     for (b, off, ln), (b2, off2, _) in zip(plan, plan[1:]):
         assert off + ln == off2           # contiguous cover of the response
         assert off2 >= 2 * b2 - 128       # room to spread the next stage's work
     assert plan[-1][1] + plan[-1][2] == 240000
+
+
+@pytest.mark.parametrize("block", [32, 64, 128, 1024])
+def test_live_two_stage_partition_is_exact(block):
+    # The live chain's own engine (LiveProcessor picks a two-stage plan per block size)
+    # against scipy.signal.fftconvolve, in float64, over many firings of the long stage.
+    from roomconv.render.stream import LiveProcessor
+    rng = np.random.default_rng(block)
+    h = rng.standard_normal((30011, 1))
+    x = rng.standard_normal((40000, 1))
+    conv = LiveProcessor(h, 48000, block=block, precision="float64").engine
+    assert len(conv.plan) == 2 and conv.stages[1].b // block >= 4
+    ref = reference(x, h, conv.routing)
+    assert rel_db(stream(conv, x, ref.shape[0]), ref) < -120
 
 
 def test_routings_and_refusals():
