@@ -193,13 +193,15 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 x = src.read(B, dtype="float64", always_2d=True)
                 if x.size and not np.all(np.isfinite(x)):
                     raise InputError(describe(dry_path, "holds NaN or infinite samples"))
-                blk = np.zeros((B, n_in))
-                blk[: x.shape[0]] = x
-                y = conv.process(blk)
+                y = conv.process(x)  # a short last block is zero-padded by the engine
                 if s.mix < 1.0:
-                    y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
+                    dry = np.zeros((B, n_in))
+                    dry[: x.shape[0]] = x
+                    y = s.mix * y + (1 - s.mix) * dry_routed(dry, routing.n_out)
                 n = min(B, n_out - written)
-                y = y[:n] * 10 ** (s.gain_db / 20)
+                y = y[:n]
+                if s.gain_db:
+                    y = y * 10 ** (s.gain_db / 20)
                 peak.feed(y)
                 if tpk is not None:
                     tpk.feed(y)
