@@ -44,6 +44,12 @@ def _positive(kind):
     return conv
 
 
+def device_spec(text: str) -> int | str:
+    """``--device``: a number is PortAudio's device index, anything else part of its name
+    (sounddevice would otherwise look for a device whose *name* contains "0")."""
+    return int(text) if text.strip().isdigit() else text
+
+
 def _out(msg: str, args) -> None:
     if not getattr(args, "quiet", False):
         print(msg)
@@ -208,7 +214,8 @@ def _cfg_measure(p):
     p.add_argument("output", type=Path, help="IR WAV to write")
     _sweep_options(p, level_default=safety.START_LEVEL_DBFS)
     g = p.add_argument_group("device")
-    g.add_argument("--device", default=None, help="PortAudio device index or name")
+    g.add_argument("--device", type=device_spec, default=None,
+                   help="PortAudio device: its index, or part of its name")
     g.add_argument("--output-channel", type=int, default=1, help="1-based output channel (1)")
     g.add_argument("--input-channels", default="1",
                    help="1-based input channels, comma-separated (1); include the loopback")

@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from .audio import write_provenance
-from .cli import _note, _out, command
+from .cli import _note, _out, command, device_spec
 from .progress import Progress
 
 
@@ -217,7 +217,8 @@ def cmd_live(a):
     proc = LiveProcessor(ir, rate, block=a.block, n_in=len(ins), mix=a.mix, gain_db=a.gain,
                          ceiling_dbfs=a.ceiling, precision=a.precision)
     confirm_caution(a)
-    _note(f"live: {proc.block}-sample blocks at {rate} Hz, {len(proc.engine.stages)} stages, "
+    n_st = len(proc.engine.stages)
+    _note(f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
           f"routing {proc.routing.name}; Ctrl-C stops")
 
     def meter(st):
@@ -241,7 +242,8 @@ def _cfg_live(p):
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("--block", type=int, default=128, help="block size, 32-1024 samples (128)")
     p.add_argument("--rate", type=int, default=None, help="sample rate (the device's default)")
-    p.add_argument("--device", default=None, help="PortAudio device index or name")
+    p.add_argument("--device", type=device_spec, default=None,
+                   help="PortAudio device: its index, or part of its name")
     p.add_argument("--input-channels", default="1", help="1-based inputs, comma-separated (1)")
     p.add_argument("--output-channels", default="1", help="1-based outputs (1)")
     p.add_argument("--mix", type=float, default=1.0, help="wet/dry 0..1 (1)")
