@@ -156,3 +156,12 @@ def test_measure_on_a_real_card_requires_the_caution_to_be_confirmed(tmp_path, c
 def test_measure_refuses_a_level_above_the_cap(tmp_path, cli):
     code, _, err = cli("measure", tmp_path / "ir.wav", "--level", "0", "--yes")
     assert code == 2 and "output cap" in err
+
+
+def test_device_numbers_are_indices_and_words_are_names():
+    # sounddevice reads a str as part of a device name, an int as its index.
+    from roomconv.cli import build_parser, device_spec
+    assert device_spec("0") == 0 and device_spec(" 12 ") == 12
+    assert device_spec("USB Audio") == "USB Audio" and device_spec("hw:1,0") == "hw:1,0"
+    a = build_parser().parse_args(["measure", "ir.wav", "--device", "3"])
+    assert a.device == 3
