@@ -91,3 +91,22 @@ def test_live_through_portaudio_file_device(tmp_path):
     want = ref[FS:2 * FS]
     err = 10 * np.log10(np.sum((got - want) ** 2) / np.sum(want ** 2))
     assert err < -100  # float32 I/O bounds it
+
+
+def test_float32_live_engine_keeps_its_precision_over_many_partitions():
+    # The float32 engine's stated -135 dB must not erode as partitions pile up: a 10 s
+    # response in 32-sample blocks puts over 450 partitions in the long stage. Reference:
+    # scipy.signal.fftconvolve in float64; the response decays like a room's (T = 5 s).
+    rng = np.random.default_rng(4)
+    t = np.arange(10 * FS) / FS
+    h = rng.standard_normal(t.size) * np.exp(-6.9 * t / 5.0)
+    h /= np.sqrt(np.sum(h ** 2))
+    eng = LiveProcessor(h, FS, block=32).engine  # precision "auto": float32
+    assert eng.stages[-1].P > 450
+    n = 12 * FS
+    x = 0.1 * rng.standard_normal(n)
+    y = np.concatenate([eng.process(x[i:i + 32, None]) for i in range(0, n, 32)])[:, 0]
+    ref = fftconvolve(x, h)[:n]
+    tail = slice(10 * FS, n)  # every partition busy
+    err = 10 * np.log10(np.sum((y[tail] - ref[tail]) ** 2) / np.sum(ref[tail] ** 2))
+    assert err < -120
