@@ -192,7 +192,7 @@ class UniformPartitionedConvolver:
     routing : Routing
         From :func:`routing_for`.
     block : int
-        Block size B; each :meth:`process` call takes and returns B samples.
+        Block size B; each :meth:`process` call takes up to B samples and returns B.
     precision : 'float64' or 'float32'
         float32 keeps spectra in complex64 (about −130 dB relative error for few partitions;
         the error grows with the partition count as the accumulation is single precision).
