@@ -175,12 +175,49 @@ def local_executor(workers: int | None):
     return ProcessPoolExecutor(max_workers=workers, mp_context=ctx), manager.Queue(), manager
 
 
-def dask_executor(address: str):
-    """An executor on a Dask distributed scheduler.
+class ClusterProgress:
+    """Per-job progress from Dask workers: a named ``distributed.Queue`` behind the same
+    ``put`` / ``get_nowait`` as the local pool's manager queue.
 
-    Jobs report start and finish only: a cluster-wide queue for per-block progress would
-    cost a scheduler round trip per block.
+    Only the queue's name travels with a job; each side opens the queue when it first
+    uses it (a pickled Queue would be opened by the scheduler as it unpacks the task, and a
+    LocalCluster's in-process scheduler then waits on itself). A render reports once per
+    engine block (a few seconds of audio or more): a handful of round trips per job.
     """
+
+    def __init__(self, client=None, name: str | None = None):
+        import uuid  # noqa: PLC0415
+        self.name = name or f"roomconv-progress-{uuid.uuid4().hex}"
+        self._client = client
+        self._queue = None
+
+    def __getstate__(self):
+        return {"name": self.name}
+
+    def __setstate__(self, state):
+        self.name, self._client, self._queue = state["name"], None, None
+
+    def _open(self):
+        if self._queue is None:
+            from distributed import Queue  # noqa: PLC0415 - optional extra
+            self._queue = Queue(self.name, client=self._client)
+        return self._queue
+
+    def put(self, item) -> None:
+        self._open().put(item)
+
+    def get_nowait(self):
+        q = self._open()
+        if q.qsize() == 0:
+            raise queue_mod.Empty
+        try:
+            return q.get(timeout=1)
+        except TimeoutError:
+            raise queue_mod.Empty from None
+
+
+def dask_executor(address: str):
+    """An executor on a Dask distributed scheduler, with a :class:`ClusterProgress`."""
     try:
         from distributed import Client  # noqa: PLC0415 - optional extra
     except ImportError:
@@ -190,4 +227,4 @@ def dask_executor(address: str):
         client = Client(address, timeout="10s")
     except (OSError, TimeoutError) as exc:
         raise InputError(f"cannot reach the Dask scheduler at {address}: {exc}") from None
-    return client.get_executor(), None, client
+    return client.get_executor(), ClusterProgress(client), client

@@ -79,6 +79,34 @@ def test_dask_local_cluster_runs_the_same_code_path(inputs, cli):
     assert np.allclose(y, fftconvolve(d, h))
 
 
+@pytest.mark.timeout(180)
+def test_dask_workers_report_per_job_progress(inputs):
+    # The cluster path reports fractions while a job renders, as the local pool does.
+    distributed = pytest.importorskip("distributed")
+    from roomconv.render.batch import dask_executor, plan_jobs, run_batch
+    from roomconv.render.offline import RenderSettings
+    # A 3 s response keeps the engine's hop short, so each take renders in several blocks.
+    rng = np.random.default_rng(9)
+    sf.write(inputs / "long_room.wav", 0.01 * rng.standard_normal(3 * 48000), 48000)
+    sf.write(inputs / "long_take.wav", 0.1 * rng.standard_normal(40 * 48000), 48000)
+    (inputs / "dask_progress").mkdir()
+    jobs = plan_jobs([inputs / "long_take.wav"], [inputs / "long_room.wav"],
+                     inputs / "dask_progress", RenderSettings())
+    events = []
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        executor, progress, client = dask_executor(cluster.scheduler_address)
+        try:
+            outcomes = run_batch(jobs, executor, progress=progress,
+                                 on_event=lambda kind, payload: events.append((kind, payload)))
+        finally:
+            client.close()
+    assert [o.status for o in outcomes] == ["done"], [o.message for o in outcomes]
+    fractions = [p[1] for kind, p in events if kind == "progress"]
+    assert len(fractions) >= 3 and fractions == sorted(fractions) and fractions[-1] == 1.0
+    assert all(p[0] == jobs[0].name for kind, p in events if kind == "progress")
+
+
 def test_unreachable_scheduler_is_a_clear_error(inputs, cli):
     pytest.importorskip("distributed")
     code, _, err = cli("batch", inputs / "take0.wav", "--ir", inputs / "room0.wav",
