@@ -124,15 +124,18 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
                              precision="float64" if s.precision == "auto" else s.precision)
     B = conv.block
     out = np.empty((n_out, routing.n_out))
-    for start in range(0, n_out, B):
-        blk = np.zeros((B, routing.n_in))
-        seg = dry[start:start + B]
-        blk[: seg.shape[0]] = seg
-        y = conv.process(blk)
-        if s.mix < 1.0:
-            y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
-        n = min(B, n_out - start)
-        out[start:start + n] = y[:n]
+    try:
+        for start in range(0, n_out, B):
+            blk = np.zeros((B, routing.n_in))
+            seg = dry[start:start + B]
+            blk[: seg.shape[0]] = seg
+            y = conv.process(blk)
+            if s.mix < 1.0:
+                y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
+            n = min(B, n_out - start)
+            out[start:start + n] = y[:n]
+    finally:
+        conv.close()
     return out * 10 ** (s.gain_db / 20)
 
 
@@ -249,6 +252,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             progress(1.0)
         return report
     finally:
+        conv.close()
         for p in (stage1, final_tmp):
             if p.exists():
                 p.unlink()

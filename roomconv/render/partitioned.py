@@ -284,6 +284,10 @@ class UniformPartitionedConvolver:
         out[:] = y[: out.shape[0]]
         return out
 
+    def close(self) -> None:
+        """Stop the transform threads (they also stop when the convolver is collected)."""
+        self._stage._threads.close()
+
 
 class OverlapSaveConvolver:
     """Single-partition overlap-save for offline work: one FFT of size N per hop of
@@ -307,7 +311,7 @@ class OverlapSaveConvolver:
         h = _as_paths(ir, routing)
         self.routing, self.taps = routing, h.shape[0]
         rdtype = np.float32 if precision == "float32" else np.float64
-        n = fft_size or overlap_save_size(self.taps, precision, routing.n_paths)
+        n = fft_size or overlap_save_size(self.taps, precision)
         if n < self.taps + 1:
             raise InputError(f"FFT size {n} is too small for {self.taps} taps")
         self.n, self.block = n, n - self.taps + 1
@@ -369,22 +373,19 @@ class OverlapSaveConvolver:
         self._threads.close()
 
 
-def overlap_save_size(taps: int, precision: str = "float64", paths: int = 1) -> int:
-    """FFT size for single-block overlap-save, at least 2^14.
-
-    float64: the smallest 2^k, 3·2^k or 5·2^k of at least 4·taps for one or two paths, and
-    of at least 2.2·taps for more (every path keeps a spectrum, so memory traffic grows with
-    N × paths). float32: the power of two of at least 3·taps.
+def overlap_save_size(taps: int, precision: str = "float64") -> int:
+    """FFT size for single-block overlap-save, at least 2^14: in float64 the smallest 2^k,
+    3·2^k or 5·2^k of at least 2.2·taps; in float32 the power of two of at least 3·taps.
 
     Larger FFTs waste fewer samples per hop (N − taps + 1 of N are kept) but cost more per
     point once out of cache. Measured at 48 kHz on a 2-core machine (medians of five,
-    interleaved): stereo through a 4 s stereo IR was fastest at 3·2^18 (12 % ahead of 2^19,
-    20 % ahead of 2^20); true stereo through 6 s IRs at 5·2^17 (6 % ahead of 3·2^18, 23 %
-    ahead of 5·2^18); float32 at 2^20 for both.
+    interleaved): for stereo through a 4 s IR, 3·2^18 ran 12 % ahead of 2^19 while the
+    machine was quiet but 15 % behind it while it was busy, so the smaller, steadier size
+    is used; true stereo through 6 s IRs was fastest at 5·2^17; float32 at 2^20 for both.
     """
     if precision == "float32":
         return max(1 << 14, 1 << int(np.ceil(np.log2(3.0 * taps))))
-    want = max(1 << 14, int(np.ceil((4.0 if paths <= 2 else 2.2) * taps)))
+    want = max(1 << 14, int(np.ceil(2.2 * taps)))
     return min(c << max(0, int(np.ceil(np.log2(want / c)))) for c in (1, 3, 5))
 
 
@@ -400,7 +401,7 @@ def offline_convolver(ir, routing: Routing, *, precision: str = "float64",
     threads (default: every core) share the channels' transforms."""
     taps = np.asarray(ir).shape[0]
     workers = workers or os.cpu_count() or 1
-    n = overlap_save_size(taps, precision, routing.n_paths)
+    n = overlap_save_size(taps, precision)
     if n > MAX_OVERLAP_SAVE and 1.5 * taps <= MAX_OVERLAP_SAVE:
         n = MAX_OVERLAP_SAVE
     if n <= MAX_OVERLAP_SAVE:

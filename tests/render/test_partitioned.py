@@ -71,7 +71,7 @@ def test_short_blocks_and_out_arrays_stream_exactly(engine):
     conv = (offline_convolver(h, r) if engine == "overlap-save"
             else UniformPartitionedConvolver(h, r, 4096, workers=2))  # threaded transforms
     if engine == "overlap-save":
-        assert conv.n == overlap_save_size(5000, paths=4) and conv.n >= 2.2 * 5000
+        assert conv.n == overlap_save_size(5000) and conv.n >= 2.2 * 5000
     ref = reference(x, h, r)
     y = np.full(ref.shape, np.nan)
     for s in range(0, ref.shape[0], conv.block):
