@@ -4,8 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
-
 from .audio import write_provenance
 from .cli import _note, _out, command, device_spec
 from .progress import Progress

@@ -124,7 +124,6 @@ class _Stage:
         self.n = 2 * b
         taps = h_paths.shape[0]
         self.P = max(1, -(-taps // b))
-        self.workers = workers
         self.cdtype = cdtype
         rdtype = np.float32 if cdtype == np.complex64 else np.float64
         self.rdtype = rdtype
@@ -236,7 +235,8 @@ class UniformPartitionedConvolver:
         float32 keeps spectra in complex64 (about −130 dB relative error for few partitions;
         the error grows with the partition count as the accumulation is single precision).
     workers : int, optional
-        Threads for scipy.fft.
+        Threads for the transforms of large blocks (one channel each) and for building
+        the partition spectra.
 
     Notes
     -----
