@@ -111,6 +111,17 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
                      "(use --mix 1)")
 
 
+def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
+    """The engine's next block for input ``x`` (a short last block is zero-padded by the
+    engine), with the dry signal mixed in when ``mix`` < 1."""
+    y = conv.process(x)
+    if mix < 1.0:
+        dry = np.zeros((conv.block, x.shape[1]))
+        dry[: x.shape[0]] = x
+        y = mix * y + (1 - mix) * dry_routed(dry, n_out)
+    return y
+
+
 def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings,
                   ir_rate: int | None = None) -> np.ndarray:
     """In-memory render (no normalization or dither): the convolution, pre-delay and mix."""
@@ -126,12 +137,7 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     out = np.empty((n_out, routing.n_out))
     try:
         for start in range(0, n_out, B):
-            blk = np.zeros((B, routing.n_in))
-            seg = dry[start:start + B]
-            blk[: seg.shape[0]] = seg
-            y = conv.process(blk)
-            if s.mix < 1.0:
-                y = s.mix * y + (1 - s.mix) * dry_routed(blk, routing.n_out)
+            y = _wet_dry(conv, dry[start:start + B], s.mix, routing.n_out)
             n = min(B, n_out - start)
             out[start:start + n] = y[:n]
     finally:
@@ -196,11 +202,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 x = src.read(B, dtype="float64", always_2d=True)
                 if x.size and not np.all(np.isfinite(x)):
                     raise InputError(describe(dry_path, "holds NaN or infinite samples"))
-                y = conv.process(x)  # a short last block is zero-padded by the engine
-                if s.mix < 1.0:
-                    dry = np.zeros((B, n_in))
-                    dry[: x.shape[0]] = x
-                    y = s.mix * y + (1 - s.mix) * dry_routed(dry, routing.n_out)
+                y = _wet_dry(conv, x, s.mix, routing.n_out)
                 n = min(B, n_out - written)
                 y = y[:n]
                 if s.gain_db:

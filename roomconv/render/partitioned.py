@@ -85,6 +85,16 @@ def _as_paths(ir: np.ndarray, routing: Routing) -> np.ndarray:
     return h[:, list(routing.path_ir)]
 
 
+def _input_block(block, size: int, n_in: int) -> np.ndarray:
+    """An offline engine's input: up to ``size`` samples × ``n_in`` (a 1-D block is one
+    channel); anything larger is refused."""
+    x = np.asarray(block)
+    x = x[:, None] if x.ndim == 1 else x
+    if x.shape[0] > size or x.shape[1] != n_in:
+        raise InputError(f"a block of {x.shape} does not fit {size} samples × {n_in} input(s)")
+    return x
+
+
 class _ChannelThreads:
     """Run one function per channel on a few threads (scipy.fft and numpy's ufuncs release
     the GIL); inline when one thread or one channel."""
@@ -269,11 +279,7 @@ class UniformPartitionedConvolver:
     def process(self, block: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
         """Take up to ``block`` new samples (a short last block is zero-padded) and return
         the next ``block`` output samples, written into ``out`` when given."""
-        x = np.asarray(block)
-        x = x[:, None] if x.ndim == 1 else x
-        if x.shape[0] > self.block or x.shape[1] != self.routing.n_in:
-            raise InputError(f"a block of {x.shape} does not fit {self.block} samples × "
-                             f"{self.routing.n_in} input(s)")
+        x = _input_block(block, self.block, self.routing.n_in)
         cur = self._stage.current
         cur[: x.shape[0]] = x
         cur[x.shape[0]:] = 0.0
@@ -357,11 +363,7 @@ class OverlapSaveConvolver:
         """Take up to ``block`` new samples (samples × inputs; a short last block is
         zero-padded) and return the next ``block`` output samples, written into ``out``
         (at most ``block`` × outputs) when given."""
-        x = np.asarray(block)
-        x = x[:, None] if x.ndim == 1 else x
-        if x.shape[0] > self.block or x.shape[1] != self.routing.n_in:
-            raise InputError(f"a block of {x.shape} does not fit {self.block} samples × "
-                             f"{self.routing.n_in} input(s)")
+        x = _input_block(block, self.block, self.routing.n_in)
         if out is None:
             out = np.empty((self.block, self.routing.n_out), dtype=self._inputs.dtype)
         self._threads.run(self._forward, self.routing.n_in, x)
