@@ -30,7 +30,7 @@ def cmd_analyze(a):
         except Exception:  # unreadable files are reported by the analysis itself
             total += 1
     with Progress(total, "analysing", enabled=None if not a.quiet else False) as bar:
-        study = analyse_files(inputs, bands=a.bands, reverse_filter=a.reverse_filter,
+        study = analyse_files(inputs, bands=a.bands, filtering=a.filtering,
                               calibration=cal, progress=bar)
     doc = study.document
     _out(terminal_report(doc), a)
@@ -56,11 +56,15 @@ def _cfg(p):
     p.add_argument("--csv", type=Path, default=None, metavar="OUT.csv", help="write a CSV table")
     p.add_argument("--report", type=Path, default=None, metavar="DIR",
                    help="write DIR/report.html with tables and plots")
-    p.add_argument("--calibration", default=None, metavar="DB|FILE.json",
-                   help="reference level at 10 m free field (dB of the summed squared IR), "
-                        "a number or a JSON file per band; enables strength G")
-    p.add_argument("--reverse-filter", action="store_true",
-                   help="filter bands backwards in time (less low-frequency filter bias)")
+    p.add_argument("--calibration", default=None, metavar="FILE.json|DB",
+                   help="strength reference for G: a file from 'roomconv calibrate' (per band), "
+                        "or one number, 10 lg(∫p² dt) of the source at 10 m in a free field in "
+                        "full-scale²·s, which gives the wideband G only")
+    p.add_argument("--filtering", choices=("auto", "forward", "reverse"), default="auto",
+                   help="band filtering: auto (default: backwards in time for decay times, "
+                        "zero-phase for C50/C80/D50/Ts, which keeps the filter's own response "
+                        "out of both); forward or reverse use one filter for everything, only "
+                        "for comparison with other methods")
     p.add_argument("--force", action="store_true", help="replace existing outputs")
 
 

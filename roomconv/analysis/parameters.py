@@ -1,7 +1,19 @@
-"""ISO 3382 parameters of one impulse response, per band and wideband.
+"""ISO 3382 parameters of one impulse response, per band and wideband, each with its validity.
 
-:func:`room_parameters` returns :class:`BandResult` rows; a value that cannot be evaluated
-honestly is ``None`` with a warning that says why.
+:func:`room_parameters` returns :class:`BandResult` rows. Every value is right within the
+ISO 3382-1 just-noticeable difference as far as this module can tell, or carries a
+``caution`` verdict with a warning code and text, or is ``None`` ("not evaluable") with the
+reason.
+
+How the band filter is kept out of the results (the default, ``filtering="auto"``):
+
+- decay times use the band signal filtered backwards in time, which puts the filter's own
+  ringing before the onset instead of into the decay (Jacobsen & Rindel 1987);
+- energy ratios and centre time use zero-phase filtering (forwards and backwards), which
+  delays no energy across the 50/80 ms limits;
+- the strength G uses the single-pass band energy, which is the same either way round and
+  matches the calibration (:mod:`roomconv.analysis.calibration`);
+- time zero is the broadband response's direct sound for every band.
 """
 
 from __future__ import annotations
@@ -9,19 +21,59 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.signal import sosfiltfilt
 
 from ..errors import InputError
-from ..measure.quality import REQUIRED_INR_DB
-from .bands import Band, bands_for_rate, filter_band
-from .decay import decay_db, fit_decay, lundeby_truncation, onset_index, schroeder_integral
+from ..measure.quality import energy_envelope
+from .bands import Band, band_sos, bands_for_rate, filter_band
+from .decay import (
+    Truncation,
+    available_range_db,
+    decay_db,
+    fit_decay,
+    lundeby_truncation,
+    onset_index,
+    schroeder_integral,
+)
+
+__all__ = ["RANGES", "METRICS", "JND", "BandResult", "analyse_response", "room_parameters",
+           "check_impulse_response", "OK", "CAUTION", "NOT_EVALUABLE", "FILTERINGS"]
+
+OK, CAUTION, NOT_EVALUABLE = "ok", "caution", "not evaluable"
+_RANK = {OK: 0, CAUTION: 1, NOT_EVALUABLE: 2}
+FILTERINGS = ("auto", "forward", "reverse")
 
 #: Evaluation ranges, dB below the start of the decay (ISO 3382-1:2009, 5.3.3 / A.2.1).
 RANGES = {"edt": (0.0, -10.0), "t20": (-5.0, -25.0), "t30": (-5.0, -35.0)}
-#: Filter-decay rule of thumb: B·T below 16 and the filter's own decay biases T.
+#: The noise must lie this far below the lower end of each range (ISO 3382-1:2009, 5.3.3:
+#: "at least 10 dB" — from memory). Below it, down to the range's end plus
+#: ``RANGE_MARGIN_CAUTION_DB``, a value is given with a caution; below that, not at all.
+RANGE_MARGIN_DB = 10.0
+RANGE_MARGIN_CAUTION_DB = 5.0
+#: B·T below 16 and a forward band filter's own decay lengthens T (Jacobsen, F. (1987), A note
+#: on acoustic decay measurements, J. Sound Vib. 115, 163–170 — from memory); filtering
+#: backwards in time lowers the limit to about 4 (Jacobsen, F., Rindel, J. H. (1987), Time
+#: reversed decay measurements, J. Sound Vib. 117, 187–190 — from memory).
 MIN_BT = 16.0
+MIN_BT_REVERSED = 4.0
+#: ISO 3382-2:2008, Annex B: ξ above 10 ‰ or a curvature C above 10 % mark a decay that is not
+#: a straight line, so one T does not describe it (from memory).
+XI_LIMIT_PERMILLE = 10.0
+CURVATURE_LIMIT_PCT = 10.0
+#: Just-noticeable differences (ISO 3382-1:2009, Table A.1 — from memory): ("relative", 5 %)
+#: or ("absolute", value in the parameter's unit).
+JND = {"edt_s": ("relative", 0.05), "t20_s": ("relative", 0.05), "t30_s": ("relative", 0.05),
+       "c80_db": ("absolute", 1.0), "c50_db": ("absolute", 1.0), "d50": ("absolute", 0.05),
+       "ts_ms": ("absolute", 10.0), "g_db": ("absolute", 1.0)}
+#: A noise correction that moves an energy ratio by more than half its JND is flagged.
+NOISE_BIAS_FRACTION_OF_JND = 0.5
 
+DECAY_METRICS = ("edt_s", "t20_s", "t30_s")
+RATIO_METRICS = ("c50_db", "c80_db", "d50", "ts_ms")
 METRICS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db",
            "xi_permille", "curvature_pct")
+#: Values that get a verdict of their own.
+JUDGED = DECAY_METRICS + RATIO_METRICS + ("g_db",)
 
 
 @dataclass
@@ -38,42 +90,127 @@ class BandResult:
     ts_ms: float | None = None
     inr_db: float | None = None
     xi_permille: float | None = None
+    #: "t30" or "t20": the evaluation range whose line fit ``xi_permille`` belongs to.
+    xi_range: str | None = None
     curvature_pct: float | None = None
     g_db: float | None = None
     warnings: list[str] = field(default_factory=list)
+    #: Machine-readable codes of the warnings (``"t30_noise_margin"``, ``"low_bt"``, …).
+    warning_codes: list[str] = field(default_factory=list)
+    #: Verdict per judged value: "ok", "caution" or "not evaluable".
+    value_verdicts: dict[str, str] = field(default_factory=dict)
     #: Not part of the JSON: the decay curve (dB) from the onset, and the truncation time.
     curve_db: np.ndarray | None = field(default=None, repr=False)
     truncation_s: float | None = None
     noise_db: float | None = None
 
+    @property
+    def verdict(self) -> str:
+        """The band's verdict: the worst of its values' verdicts that have a value, else
+        "not evaluable" when nothing could be evaluated."""
+        given = [v for k, v in self.value_verdicts.items() if getattr(self, k) is not None]
+        if not given:
+            return NOT_EVALUABLE
+        return max(given, key=_RANK.__getitem__)
+
+    def flag(self, metrics, level: str, code: str, text: str) -> None:
+        """Record a warning against ``metrics``; ``level`` NOT_EVALUABLE also clears them."""
+        for m in metrics:
+            if level == NOT_EVALUABLE:
+                setattr(self, m, None)
+            if _RANK[level] > _RANK[self.value_verdicts.get(m, OK)]:
+                self.value_verdicts[m] = level
+        if code not in self.warning_codes:
+            self.warning_codes.append(code)
+        self.warnings.append(text)
+
+    def finish(self, with_g: bool) -> None:
+        """Every judged value that exists and has no verdict yet is "ok"; missing ones are
+        "not evaluable"."""
+        for m in JUDGED:
+            if m == "g_db" and not with_g:
+                self.value_verdicts.pop(m, None)
+                continue
+            if getattr(self, m) is None:
+                self.value_verdicts[m] = NOT_EVALUABLE
+            else:
+                self.value_verdicts.setdefault(m, OK)
+
     def as_dict(self, with_g: bool = False) -> dict:
-        d = {"band_hz": self.band_hz}
+        d: dict = {"band_hz": self.band_hz}
         for k in METRICS:
-            d[k] = self.__dict__[k]
+            d[k] = getattr(self, k)
+        d["xi_range"] = self.xi_range
         if with_g:
             d["g_db"] = self.g_db
+        d["verdict"] = self.verdict
+        d["verdicts"] = {k: v for k, v in self.value_verdicts.items()
+                         if with_g or k != "g_db"}
+        d["warning_codes"] = list(self.warning_codes)
         d["warnings"] = list(self.warnings)
         return d
 
 
+def _label(band: Band | None) -> str:
+    return f"{band.label} Hz" if band else "wideband"
+
+
+def _band_signals(h: np.ndarray, rate: int, band: Band | None, filtering: str):
+    """(decay signal, energy-ratio signal) for one band."""
+    h = np.asarray(h, dtype=np.float64)
+    if band is None:
+        return h, h
+    if filtering == "forward":
+        x = filter_band(h, rate, band)
+        return x, x
+    decay = filter_band(h, rate, band, reverse=True)
+    if filtering == "reverse":
+        return decay, decay
+    return decay, sosfiltfilt(band_sos(band, rate), h)
+
+
+def _pre_onset(band: Band | None, rate: int, onset: int) -> int:
+    """Samples before the onset that still belong to the direct sound once a band filter has
+    spread it: two over the bandwidth (most of a band-pass's impulse-response energy lies
+    within 1/B of its peak — common practice)."""
+    if band is None:
+        return 0
+    return int(min(onset, round(2.0 * rate / band.bandwidth)))
+
+
 def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
-                     reverse_filter: bool = False, calibration_db: float | None = None,
+                     onset: int | None = None, filtering: str = "auto",
+                     strength_reference_db: float | None = None,
+                     strength_missing: str | None = None,
                      label: str | None = None) -> BandResult:
     """All parameters of one response in one band (``band=None``: wideband, unfiltered).
 
     Parameters
     ----------
     h : ndarray, 1-D
-        The impulse response; sample 0 need not be the onset.
+        The whole impulse response (not cut at its onset).
     rate : int
         Sample rate, Hz.
     band : Band, optional
         Filter into this band first.
-    reverse_filter : bool
-        Filter backwards in time (see :func:`roomconv.analysis.bands.filter_band`).
-    calibration_db : float, optional
-        Level of the same source's response at 10 m in a free field, as 10·log10 of the sum
-        of squares in the same units; enables the strength G.
+    onset : int, optional
+        Sample of the broadband direct sound (default: found in ``h``, which is right only
+        for the unfiltered response).
+    filtering : {"auto", "forward", "reverse"}
+        "auto" (default): backwards in time for decay times, zero-phase for energy ratios.
+        The others use one filtering for everything, for comparison with other methods.
+    strength_reference_db : float, optional
+        L_ref = 10·lg(∫p₁₀² dt) of the same source at 10 m in a free field for this band
+        (full-scale²·s, the units of ``h``); enables the strength G.
+    strength_missing : str, optional
+        When a calibration was given but has no value for this band: why (G becomes
+        "not evaluable" with this reason).
+    label : str, optional
+        Name of the band in messages.
+
+    Returns
+    -------
+    BandResult
 
     References
     ----------
@@ -81,114 +218,311 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     Performance spaces, clause 5 and Annex A (EDT, T, C50, C80, D50, Ts, G).
     ISO 3382-2:2008, Annex B (non-linearity ξ and curvature C).
     Lundeby, A. et al. (1995), Acustica 81, 344–355 (truncation and compensation).
+    Jacobsen, F., Rindel, J. H. (1987). Time reversed decay measurements. J. Sound Vib. 117,
+    187–190.
+
+    Examples
+    --------
+    >>> rate, T = 8000, 1.0
+    >>> t = np.arange(3 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> r = analyse_response(h, rate)
+    >>> round(r.t30_s, 2), r.value_verdicts["t30_s"]
+    (1.0, 'ok')
     """
-    label = label or (f"{band.label} Hz" if band else "wideband")
+    if filtering not in FILTERINGS:
+        raise InputError(f"unknown band filtering '{filtering}' (use one of "
+                         f"{', '.join(FILTERINGS)})")
+    label = label or _label(band)
+    h = np.asarray(h, dtype=np.float64)
     res = BandResult(band_hz=band.nominal if band else None)
-    x = filter_band(h, rate, band, reverse=reverse_filter) if band else np.asarray(h, float)
-    if not np.any(x):
-        res.warnings.append(f"{label}: no energy in this band")
+    with_g = strength_reference_db is not None or strength_missing is not None
+    if onset is None:
+        onset = onset_index(h)
+    xd, xr = _band_signals(h, rate, band, filtering)
+    if not np.any(xd[onset:]):
+        res.flag(JUDGED, NOT_EVALUABLE, "no_energy", f"{label}: no energy in this band")
+        res.finish(with_g)
         return res
-    i0 = onset_index(x)
-    x = x[i0:]
+    x = xd[onset:]
     min_len = int(0.1 * rate)
     if band is not None:
         # At least ten periods of the band's lower edge, and 100 ms.
         min_len = max(min_len, int(10 * rate / band.lower))
     if x.size < min_len:
-        res.warnings.append(f"{label}: the response is too short after its onset "
-                            f"({x.size / rate:.3f} s; this band needs {min_len / rate:.3f} s)")
+        res.flag(JUDGED, NOT_EVALUABLE, "too_short",
+                 f"{label}: the response is too short after its onset ({x.size / rate:.3f} s; "
+                 f"this band needs {min_len / rate:.3f} s)")
+        res.finish(with_g)
         return res
 
-    tr = lundeby_truncation(x, rate)
+    bw = band.bandwidth if band else rate / 2.0
+    tr = lundeby_truncation(x, rate, interval_s=max(0.01, 1.5 / bw),
+                            min_interval_s=max(0.001, 1.0 / bw), bandwidth_hz=bw)
     res.inr_db = _finite(tr.inr_db)
+    res.truncation_s = tr.index / rate
     if tr.noise_limited and tr.noise_energy > 0:
         res.noise_db = float(10 * np.log10(tr.noise_energy / np.max(np.square(x))))
-    if not tr.converged and tr.noise_limited:
-        res.warnings.append(f"{label}: the noise-floor search did not settle; decay values "
-                            "may be unreliable")
+    if not tr.converged:
+        res.flag(JUDGED, CAUTION, "truncation_unsettled",
+                 f"{label}: the noise-floor search did not settle ({tr.reason or 'no reason'});"
+                 " values that depend on the late decay may be off")
+
+    _decay_times(res, x, rate, tr, band, filtering, label)
+    _energy_ratios(res, xr, rate, onset, tr, band, label)
+    if strength_reference_db is not None:
+        _strength(res, xd, rate, onset, tr, band, strength_reference_db)
+    elif strength_missing is not None:
+        res.flag(("g_db",), NOT_EVALUABLE, "g_no_reference", f"{label}: G not evaluated: "
+                 f"{strength_missing}")
+    res.finish(with_g)
+    return res
+
+
+def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band: Band | None,
+                 filtering: str, label: str) -> None:
+    """EDT, T20, T30 from the compensated Schroeder curve; ξ and curvature; validity."""
     sch = schroeder_integral(x, truncation=tr.index, compensation=tr.compensation,
                              noise_energy=tr.noise_energy if tr.noise_limited else 0.0)
     curve = decay_db(sch)
     res.curve_db = curve
-    res.truncation_s = tr.index / rate
-
+    reach = available_range_db(curve)
+    limit = "the noise" if tr.noise_limited else "the end of the response"
     fits = {}
     for key, (hi, lo) in RANGES.items():
-        need = REQUIRED_INR_DB[key]
-        inr = tr.inr_db if np.isfinite(tr.inr_db) else np.inf
-        if inr < need:
-            res.warnings.append(f"{label}: {key.upper()} not evaluated: peak-to-noise ratio "
-                                f"{inr:.1f} dB is below the {need:.0f} dB its range needs")
+        metric = f"{key}_s"
+        need = -lo + RANGE_MARGIN_DB
+        if reach < -lo + RANGE_MARGIN_CAUTION_DB:
+            res.flag((metric,), NOT_EVALUABLE, f"{key}_range_not_reached",
+                     f"{label}: {key.upper()} not evaluated: the decay covers {reach:.0f} dB "
+                     f"before {limit}; its range needs {need:.0f} dB (ISO 3382-1)")
             continue
         f = fit_decay(curve, rate, hi, lo)
         if f is None:
-            res.warnings.append(f"{label}: {key.upper()} not evaluated: the decay does not reach "
-                                f"{lo:.0f} dB before the noise")
+            res.flag((metric,), NOT_EVALUABLE, f"{key}_range_not_reached",
+                     f"{label}: {key.upper()} not evaluated: the decay does not reach "
+                     f"{lo:.0f} dB before {limit}")
             continue
         fits[key] = f
-        setattr(res, f"{key}_s", f.reverberation_s)
+        setattr(res, metric, f.reverberation_s)
+        if reach < need:
+            res.flag((metric,), CAUTION, f"{key}_noise_margin",
+                     f"{label}: {key.upper()}: {limit} lies only {reach + lo:.0f} dB below the "
+                     f"end of its range, not the {RANGE_MARGIN_DB:.0f} dB ISO 3382-1 asks")
 
-    # ISO 3382-2 B.2/B.3: ξ from the regression of the longest range evaluated; C from T30/T20.
-    main = fits.get("t30") or fits.get("t20")
-    if main is not None:
-        res.xi_permille = 1000.0 * (1.0 - main.r ** 2)
+    # ISO 3382-2 B.2/B.3: ξ from the line fit of the longest range evaluated; C from T30/T20.
+    main_key = "t30" if "t30" in fits else ("t20" if "t20" in fits else None)
+    if main_key is not None:
+        res.xi_permille = 1000.0 * (1.0 - fits[main_key].r ** 2)
+        res.xi_range = main_key
     if "t30" in fits and "t20" in fits:
         res.curvature_pct = 100.0 * (fits["t30"].reverberation_s / fits["t20"].reverberation_s - 1)
-
-    _energy_ratios(res, x, rate, tr)
-    if calibration_db is not None:
-        total = float(np.sum(np.square(x[: tr.index]))) + tr.compensation
-        res.g_db = 10 * np.log10(total) - calibration_db
+    curved = []
+    if res.xi_permille is not None and res.xi_permille > XI_LIMIT_PERMILLE:
+        curved.append(f"ξ {res.xi_permille:.0f} ‰ over the {res.xi_range.upper()} range")
+    if res.curvature_pct is not None and abs(res.curvature_pct) > CURVATURE_LIMIT_PCT:
+        curved.append(f"curvature {res.curvature_pct:+.0f} %")
+    if curved:
+        res.flag(("t20_s", "t30_s"), CAUTION, "curved_decay",
+                 f"{label}: the decay is not a straight line ({', '.join(curved)}; ISO 3382-2 "
+                 f"Annex B limits {XI_LIMIT_PERMILLE:.0f} ‰ and {CURVATURE_LIMIT_PCT:.0f} %): "
+                 "one decay time does not describe it")
 
     t_any = res.t30_s or res.t20_s or res.edt_s
-    if band is not None and t_any is not None and band.bandwidth * t_any < MIN_BT:
-        res.warnings.append(f"{label}: B·T = {band.bandwidth * t_any:.1f} is below {MIN_BT:.0f}: "
-                            "the band filter's own decay may lengthen T (try --reverse-filter)")
-    return res
+    if band is not None and t_any is not None:
+        bt = band.bandwidth * t_any
+        limit_bt = MIN_BT if filtering == "forward" else MIN_BT_REVERSED
+        if bt < limit_bt:
+            res.flag(DECAY_METRICS, CAUTION, "low_bt",
+                     f"{label}: B·T = {bt:.1f} is below {limit_bt:.0f}: the band filter's own "
+                     "decay may lengthen the decay times")
 
 
-def _energy_ratios(res: BandResult, x: np.ndarray, rate: int, tr) -> None:
-    """C50, C80, D50 and Ts from the onset, with the Lundeby tail added to the late energy.
+def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: Truncation,
+                   band: Band | None, label: str) -> None:
+    """C50, C80, D50 and Ts from the broadband onset, noise subtracted, the late decay
+    beyond the truncation point added (Lundeby's compensation), and their noise bias.
 
     References
     ----------
     ISO 3382-1:2009, A.2.3 (C50/C80), A.2.4 (D50), A.2.5 (Ts).
     """
-    e = np.square(x[: tr.index])
-    total = float(e.sum()) + tr.compensation
-    if total <= 0:
+    pre = _pre_onset(band, rate, onset)
+    start = onset - pre
+    stop = onset + tr.index
+    e = np.square(xr[start:stop])
+    if tr.index < int(round(0.08 * rate)):
+        res.flag(RATIO_METRICS, NOT_EVALUABLE, "short_for_clarity",
+                 f"{label}: the decay meets the noise less than 80 ms after the onset: "
+                 "C50, C80, D50 and Ts not evaluated")
         return
-    n50, n80 = int(round(0.05 * rate)), int(round(0.08 * rate))
+    noise = 0.0
+    comp = 0.0
+    k = -tr.slope_db_s * np.log(10) / 10 if np.isfinite(tr.slope_db_s) else 0.0
+    if tr.noise_limited:
+        tail = np.square(xr[onset + tr.noise_start:])
+        noise = float(np.mean(tail)) if tail.size else 0.0
+        comp = noise * rate / k if k > 0 else 0.0
+    elif tr.compensation > 0 and k > 0:
+        # No floor: continue the late decay of this signal from its last stretch.
+        comp = _end_energy(xr[onset:stop], rate, tr.slope_db_s) / k * rate
+    t = (np.arange(e.size) - pre) / rate
+    corrected = _ratios(e - noise, t, comp, k, tr.index / rate, pre, rate)
+    raw = _ratios(e, t, comp, k, tr.index / rate, pre, rate)
+    if corrected is None:
+        res.flag(RATIO_METRICS, NOT_EVALUABLE, "clarity_undefined",
+                 f"{label}: no energy left after 50 ms once the noise is removed: C50, C80, "
+                 "D50 and Ts are not defined")
+        return
+    for m, v in corrected.items():
+        setattr(res, m, v)
+    if raw is None:
+        return
+    for m, v in corrected.items():
+        if v is None or raw[m] is None:
+            continue
+        jnd = JND[m][1]
+        bias = abs(raw[m] - v)
+        if bias > NOISE_BIAS_FRACTION_OF_JND * jnd:
+            name = {"c50_db": "C50", "c80_db": "C80", "d50": "D50", "ts_ms": "Ts"}[m]
+            unit = {"c50_db": " dB", "c80_db": " dB", "d50": "", "ts_ms": " ms"}[m]
+            res.flag((m,), CAUTION, f"{m.split('_')[0]}_noise_bias",
+                     f"{label}: {name}: the background noise moves it by {bias:.2g}{unit} "
+                     f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
+                     "correction is only as good as the noise estimate")
+
+
+def _end_energy(x: np.ndarray, rate: int, slope_db_s: float) -> float:
+    """Energy per sample of the late line at the end of ``x`` (mean of its last 5 %)."""
+    n = max(1, x.size // 20)
+    return float(np.mean(np.square(x[-n:])))
+
+
+def _ratios(e: np.ndarray, t: np.ndarray, comp: float, k: float, t_c: float, pre: int,
+            rate: int) -> dict | None:
+    """C50, C80, D50, Ts from per-sample energies ``e`` at times ``t`` (s, 0 at the onset);
+    ``comp`` energy of an exponential tail of rate ``k`` starting at ``t_c``."""
+    n50 = pre + int(round(0.05 * rate))
+    n80 = pre + int(round(0.08 * rate))
     early50, early80 = float(e[:n50].sum()), float(e[:n80].sum())
-    if total - early80 <= 0 or tr.index < n80:
-        res.warnings.append("response shorter than 80 ms after its onset: clarity not evaluated")
-        return
-    res.c50_db = 10 * np.log10(early50 / (total - early50))
-    res.c80_db = 10 * np.log10(early80 / (total - early80))
-    res.d50 = early50 / total
-    t = np.arange(e.size) / rate
+    total = float(e.sum()) + comp
+    late50, late80 = total - early50, total - early80
+    if total <= 0 or early50 <= 0 or late50 <= 1e-12 * total or late80 <= 1e-12 * total:
+        return None
     moment = float(np.sum(t * e))
-    if tr.compensation > 0 and np.isfinite(tr.slope_db_s):
-        k = -tr.slope_db_s * np.log(10) / 10  # energy decay rate, 1/s
-        tc = tr.index / rate
-        moment += tr.compensation * (tc + 1.0 / k)  # ∫ t·e0·exp(−k(t−tc)) dt over [tc, ∞)
-    res.ts_ms = 1000.0 * moment / total
+    if comp > 0 and k > 0:
+        moment += comp * (t_c + 1.0 / k)  # ∫ t·e(t_c)·exp(−k(t−t_c)) dt over [t_c, ∞)
+    return {"c50_db": float(10 * np.log10(early50 / late50)),
+            "c80_db": float(10 * np.log10(early80 / late80)),
+            "d50": early50 / total,
+            "ts_ms": 1000.0 * moment / total}
+
+
+def _strength(res: BandResult, xd: np.ndarray, rate: int, onset: int, tr: Truncation,
+              band: Band | None, reference_db: float) -> None:
+    """G = 10·lg(∫p² dt) − L_ref, the band energy from the single-pass filter (any direction
+    gives the same total), noise removed and the late decay added.
+
+    References
+    ----------
+    ISO 3382-1:2009, A.2.2 (sound strength G) — from memory.
+    """
+    pre = _pre_onset(band, rate, onset)
+    e = np.square(xd[onset - pre: onset + tr.index])
+    noise = tr.noise_energy if tr.noise_limited else 0.0
+    total = float(e.sum()) - noise * e.size + tr.compensation
+    if total <= 0:
+        res.flag(("g_db",), NOT_EVALUABLE, "g_no_energy",
+                 f"{_label(band)}: G not evaluated: no energy above the noise")
+        return
+    res.g_db = float(10 * np.log10(total / rate)) - reference_db
 
 
 def _finite(v):
     return float(v) if v is not None and np.isfinite(v) else None
 
 
+#: A response whose smoothed energy stays within this many dB of its peak for more than
+#: ``PLATEAU_FRACTION`` of the time it takes to fall 20 dB is a sustained signal (a sweep
+#: recording, music, noise), not an impulse response. An exponential decay spends 5 % of its
+#: first 20 dB within 3 dB of its peak: the 50 % limit is far from any room (common practice).
+PLATEAU_DB = 3.0
+PLATEAU_FRACTION = 0.5
+
+
+def check_impulse_response(h: np.ndarray, rate: int) -> None:
+    """Refuse a signal that is not an impulse response (a sweep recording, music, noise).
+
+    An impulse response rises to its peak at once and then decays. A sustained signal stays
+    near its peak level for a long time, or never decays at all.
+
+    Raises
+    ------
+    InputError
+        With what was seen and what to do.
+    """
+    env, m = energy_envelope(np.asarray(h, dtype=np.float64), rate, 0.01)
+    if env.size < 4:
+        return
+    peak_i = int(np.argmax(env))
+    env_db = 10 * np.log10(np.maximum(env, 1e-300) / env[peak_i])
+    after = env_db[peak_i:]
+    low = np.flatnonzero(after < -20.0)
+    if low.size == 0:
+        floor_db = float(np.median(after[after.size // 2:])) if after.size > 2 else 0.0
+        if floor_db > -10.0:
+            raise InputError("this does not look like an impulse response: its level never "
+                             "falls more than 20 dB after its peak (a recording, music or "
+                             "noise?); extract the impulse response from the recording first")
+        return
+    span = after[: low[0]]
+    near = float(np.count_nonzero(span > -PLATEAU_DB)) / max(1, span.size)
+    if span.size * m / rate > 0.05 and near > PLATEAU_FRACTION:
+        held = float(np.count_nonzero(span > -PLATEAU_DB)) * m / rate
+        raise InputError(f"this does not look like an impulse response: its level stays "
+                         f"within {PLATEAU_DB:.0f} dB of its peak for {held:.2f} s instead of "
+                         "decaying (a sweep recording, music or noise?); extract the impulse "
+                         "response from the recording first")
+
+
 def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
-                    reverse_filter: bool = False, calibration_db=None,
+                    filtering: str = "auto", strength_reference=None,
                     low: float | None = None, high: float | None = None
                     ) -> tuple[list[BandResult], BandResult, list[str]]:
     """Per-band and wideband parameters of a 1-D response.
 
-    ``calibration_db`` may be a number (all bands) or a mapping nominal band → level
-    (key ``"wideband"`` for the unfiltered value).
+    Parameters
+    ----------
+    h : ndarray, 1-D
+        The impulse response.
+    rate : int
+        Sample rate, Hz.
+    bands : {"octave", "third"}
+        Band set (IEC 61260-1).
+    filtering : {"auto", "forward", "reverse"}
+        See :func:`analyse_response`.
+    strength_reference : StrengthReference, optional
+        Enables G per band where it has a value (:mod:`roomconv.analysis.calibration`).
+    low, high : float, optional
+        Nominal band centres (Hz) to keep.
 
-    Returns ``(band_results, wideband_result, notes)``.
+    Returns
+    -------
+    band_results, wideband_result, notes
+
+    Raises
+    ------
+    InputError
+        For a response with NaN, silence, or a signal that is not an impulse response.
+
+    Examples
+    --------
+    >>> rate, T = 16000, 0.8
+    >>> t = np.arange(3 * rate) / rate
+    >>> h = np.random.default_rng(2).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> res, wide, notes = room_parameters(h, rate, low=500, high=2000)
+    >>> [r.band_hz for r in res], round(wide.t30_s, 1)
+    ([500.0, 1000.0, 2000.0], 0.8)
     """
     h = np.asarray(h, dtype=np.float64)
     if h.ndim != 1:
@@ -197,15 +531,21 @@ def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
         raise InputError("the response holds NaN or infinite samples")
     if not np.any(h):
         raise InputError("the response is silent (all zeros)")
+    check_impulse_response(h, rate)
     band_list, notes = bands_for_rate(bands, rate, low=low, high=high)
-    results = [analyse_response(h, rate, band=b, reverse_filter=reverse_filter,
-                                calibration_db=_cal(calibration_db, b.nominal))
-               for b in band_list]
-    wide = analyse_response(h, rate, calibration_db=_cal(calibration_db, "wideband"))
+    onset = onset_index(h)
+
+    def ref(band_hz):
+        if strength_reference is None:
+            return None, None
+        return strength_reference.lookup(band_hz, rate)
+
+    results = []
+    for b in band_list:
+        level, why = ref(b.nominal)
+        results.append(analyse_response(h, rate, band=b, onset=onset, filtering=filtering,
+                                        strength_reference_db=level, strength_missing=why))
+    level, why = ref(None)
+    wide = analyse_response(h, rate, onset=onset, filtering=filtering,
+                            strength_reference_db=level, strength_missing=why)
     return results, wide, notes
-
-
-def _cal(cal, key):
-    if cal is None or isinstance(cal, (int, float)):
-        return cal
-    return cal.get(key, cal.get(str(key)))

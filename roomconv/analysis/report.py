@@ -12,11 +12,27 @@ import io
 import numpy as np
 
 from ..safety import caution_text
-from .parameters import METRICS
+from .parameters import CAUTION, METRICS, NOT_EVALUABLE, OK
 
 HEADERS = {"edt_s": "EDT s", "t20_s": "T20 s", "t30_s": "T30 s", "c50_db": "C50 dB",
            "c80_db": "C80 dB", "d50": "D50", "ts_ms": "Ts ms", "inr_db": "INR dB",
-           "xi_permille": "xi ‰", "curvature_pct": "C %", "g_db": "G dB"}
+           "xi_permille": "ξ ‰", "curvature_pct": "Curvature %", "g_db": "G dB"}
+#: The single numbers in words (mean of the 500 Hz and 1 kHz octaves, or the six
+#: third-octaves 400 Hz–1.25 kHz).
+SINGLE_NUMBER_NAMES = {
+    "edt_mid_s": ("Early decay time EDT", "s", "{:.2f}"),
+    "t20_mid_s": ("Reverberation time T20", "s", "{:.2f}"),
+    "t30_mid_s": ("Reverberation time T30", "s", "{:.2f}"),
+    "c50_mid_db": ("Clarity C50", "dB", "{:+.1f}"),
+    "c80_mid_db": ("Clarity C80", "dB", "{:+.1f}"),
+    "d50_mid": ("Definition D50", "", "{:.2f}"),
+    "ts_mid_ms": ("Centre time Ts", "ms", "{:.0f}"),
+    "g_mid_db": ("Strength G", "dB", "{:+.1f}"),
+}
+#: Marks beside a value in text tables: flagged values are visibly flagged.
+MARK = {OK: "", CAUTION: "*", NOT_EVALUABLE: ""}
+LEGEND = ("* caution: the value is given but a check failed (see the warnings); — not "
+          "evaluable (the warnings say why)")
 _FMT = {"edt_s": "{:.2f}", "t20_s": "{:.2f}", "t30_s": "{:.2f}", "c50_db": "{:+.1f}",
         "c80_db": "{:+.1f}", "d50": "{:.2f}", "ts_ms": "{:.0f}", "inr_db": "{:.0f}",
         "xi_permille": "{:.1f}", "curvature_pct": "{:+.1f}", "g_db": "{:+.1f}"}
@@ -32,15 +48,46 @@ def band_label(band_hz) -> str:
     return f"{band_hz / 1000:g}k" if band_hz >= 1000 else f"{band_hz:g}"
 
 
+_JUDGED = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "g_db")
+
+
 def _metrics(doc) -> tuple[str, ...]:
     return METRICS + (("g_db",) if doc["settings"].get("calibration") is not None else ())
+
+
+def value_verdict(row: dict, metric: str) -> str:
+    """The verdict of one value in a band row (its own, else the band's)."""
+    if row.get(metric) is None:
+        return NOT_EVALUABLE
+    return (row.get("verdicts") or {}).get(metric, OK)
+
+
+def marked(row: dict, metric: str) -> str:
+    """The formatted value with its caution mark."""
+    return fmt(metric, row.get(metric)) + MARK[value_verdict(row, metric)]
 
 
 def table_rows(position: dict, metrics) -> list[list[str]]:
     rows = []
     for r in position["bands"] + [position["wideband"]]:
-        rows.append([band_label(r["band_hz"])] + [fmt(m, r.get(m)) for m in metrics])
+        rows.append([band_label(r["band_hz"])] + [marked(r, m) for m in metrics]
+                    + [r.get("verdict", "")])
     return rows
+
+
+def single_number_lines(doc: dict) -> list[str]:
+    """The mid-frequency single numbers in words, with units and verdicts."""
+    sn = doc["average"]["single_numbers"]
+    verdicts = doc["average"].get("single_number_verdicts", {})
+    mids = "500 Hz and 1 kHz" if doc["settings"]["bands"] == "octave" else "400 Hz–1.25 kHz"
+    out = []
+    for key, v in sn.items():
+        name, unit, f = SINGLE_NUMBER_NAMES[key]
+        text = "not evaluable" if v is None else f"{f.format(v)} {unit}".strip()
+        verdict = verdicts.get(key, OK)
+        note = " (caution: see the band warnings)" if verdict == CAUTION and v is not None else ""
+        out.append(f"{name}, mean of {mids}: {text}{note}")
+    return out
 
 
 def text_table(header: list[str], rows: list[list[str]]) -> str:
@@ -54,7 +101,7 @@ def text_table(header: list[str], rows: list[list[str]]) -> str:
 def terminal_report(doc: dict, *, warnings: bool = True) -> str:
     """Per-position tables, the average with uncertainty, single numbers and warnings."""
     metrics = _metrics(doc)
-    header = ["band"] + [HEADERS[m] for m in metrics]
+    header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
     parts = []
     for p in doc["positions"]:
         parts.append(f"\n{p['file']}  channel {p['channel']}")
@@ -74,9 +121,9 @@ def terminal_report(doc: dict, *, warnings: bool = True) -> str:
                          "—" if u is None else f"{u:.3f}",
                          _pm("c80_db", r), _pm("d50", r), _pm("ts_ms", r)])
         parts.append(text_table(avg_header, rows))
-    sn = doc["average"]["single_numbers"]
-    parts.append("\nMid-frequency values: " + ", ".join(
-        f"{k} {'—' if v is None else f'{v:.3g}'}" for k, v in sn.items()))
+    parts.append("\nMid-frequency values:")
+    parts += [f"  {line}" for line in single_number_lines(doc)]
+    parts.append(LEGEND)
     for n in doc.get("notes", []):
         parts.append(f"note: {n}")
     for e in doc.get("errors", []):
@@ -89,7 +136,8 @@ def _pm(metric, row) -> str:
     if s["mean"] is None:
         return "—"
     txt = fmt(metric, s["mean"])
-    return txt + (f"±{_FMT[metric].format(s['std']).lstrip('+')}" if s["std"] is not None else "")
+    txt += f"±{_FMT[metric].format(s['std']).lstrip('+')}" if s["std"] is not None else ""
+    return txt + MARK.get(s.get("verdict") or OK, "")
 
 
 def csv_text(doc: dict) -> str:
@@ -97,17 +145,22 @@ def csv_text(doc: dict) -> str:
     metrics = _metrics(doc)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["file", "channel", "band_hz"] + list(metrics) + ["warnings"])
+    judged = [m for m in metrics if m in _JUDGED]
+    w.writerow(["file", "channel", "band_hz"] + list(metrics) + ["verdict"]
+               + [f"{m}_verdict" for m in judged] + ["warning_codes", "warnings"])
     for p in doc["positions"]:
         for r in p["bands"] + [p["wideband"]]:
             w.writerow([p["file"], p["channel"],
                         "wideband" if r["band_hz"] is None else r["band_hz"]]
                        + ["" if r.get(m) is None else f"{r[m]:.6g}" for m in metrics]
-                       + [" | ".join(r["warnings"])])
+                       + [r.get("verdict", "")] + [value_verdict(r, m) for m in judged]
+                       + [" ".join(r.get("warning_codes", [])), " | ".join(r["warnings"])])
     for r in doc["average"]["bands"]:
         row = ["average", "", r["band_hz"]]
         row += ["" if r[m]["mean"] is None else f"{r[m]['mean']:.6g}" for m in metrics]
         row.append("")
+        row += [r[m].get("verdict") or "" for m in judged]
+        row += ["", ""]
         w.writerow(row)
     return buf.getvalue()
 
@@ -136,7 +189,8 @@ def decay_figure(results, rate: int, title: str):
     ax.set_ylabel("decay (dB)")
     ax.set_title(title)
     ax.grid(alpha=0.3)
-    ax.legend(ncol=5, fontsize=7, loc="upper right")
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(ncol=5, fontsize=7, loc="upper right")
     return fig
 
 
@@ -167,21 +221,32 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
     ax.set_xlabel("band (Hz)")
     ax.set_ylabel(ylabel)
     ax.grid(alpha=0.3)
-    ax.legend(fontsize=8)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=8)
     return fig
+
+
+def _cell(c: str) -> str:
+    if c.endswith("*"):
+        return (f"<td class='flag' title='caution: see the warnings below'>"
+                f"{html.escape(c[:-1])}&nbsp;⚠</td>")
+    if c == "—":
+        return "<td class='na' title='not evaluable: see the warnings below'>—</td>"
+    if c == CAUTION:
+        return f"<td class='flag'>{html.escape(c)}</td>"
+    return f"<td>{html.escape(c)}</td>"
 
 
 def _html_table(header, rows) -> str:
     h = "".join(f"<th>{html.escape(c)}</th>" for c in header)
-    body = "".join("<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>"
-                   for r in rows)
+    body = "".join("<tr>" + "".join(_cell(c) for c in r) + "</tr>" for r in rows)
     return f"<table><thead><tr>{h}</tr></thead><tbody>{body}</tbody></table>"
 
 
 _CSS = """body{font-family:system-ui,sans-serif;max-width:1000px;margin:2em auto;color:#222}
 table{border-collapse:collapse;font-size:13px;margin:0.5em 0}td,th{border:1px solid #ccc;
 padding:2px 6px;text-align:right}th{background:#eef}h1{font-size:1.5em}h2{margin-top:1.6em}
-.warn{color:#a40}.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
+.warn{color:#a40}td.flag{background:#ffe2b8;font-weight:600}td.na{color:#999}.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
 white-space:pre-wrap;font-size:12px}img{max-width:100%}"""
 
 
@@ -190,17 +255,16 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
     """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first."""
     doc = study.document
     metrics = _metrics(doc)
-    header = ["band"] + [HEADERS[m] for m in metrics]
+    header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
     out = [f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
            f"</title><style>{_CSS}</style></head><body><h1>{html.escape(title)}</h1>",
            f"<p>roomconv {html.escape(doc['roomconv_version'])}; {doc['settings']['bands']} "
            f"bands; {html.escape(doc['settings']['decay_method'])}.</p>"]
     for heading, body in sections:
         out.append(f"<h2>{html.escape(heading)}</h2>{body}")
-    sn = doc["average"]["single_numbers"]
-    out.append("<h2>Headline figures</h2>" + _html_table(
-        ["quantity", "value"],
-        [[k, "—" if v is None else f"{v:.3g}"] for k, v in sn.items()]))
+    out.append("<h2>Headline figures</h2><ul>" + "".join(
+        f"<li>{html.escape(line)}</li>" for line in single_number_lines(doc)) + "</ul>")
+    out.append(f"<p>{html.escape(LEGEND.replace('*', '⚠'))}</p>")
     if len(doc["positions"]) > 1:
         rows = []
         for r in doc["average"]["bands"]:

@@ -7,16 +7,14 @@ from __future__ import annotations
 import numpy as np
 
 from .bands import all_bands
-from .parameters import METRICS
+from .parameters import CAUTION, JND, METRICS, NOT_EVALUABLE, OK
+
+__all__ = ["DECAYS_PER_POSITION_IR", "JND", "decay_time_uncertainty", "spatial_average",
+           "single_numbers", "SINGLE_NUMBERS"]
 
 #: Decays per position to use in the uncertainty formula for the integrated impulse response
 #: method (ISO 3382-2:2008, A.2: the IR method counts as n = 10 — from memory).
 DECAYS_PER_POSITION_IR = 10
-
-#: Just-noticeable differences (ISO 3382-1:2009, Table A.1 — from memory).
-JND = {"edt_s": ("relative", 0.05), "t20_s": ("relative", 0.05), "t30_s": ("relative", 0.05),
-       "c80_db": ("absolute", 1.0), "c50_db": ("absolute", 1.0), "d50": ("absolute", 0.05),
-       "ts_ms": ("absolute", 10.0), "g_db": ("absolute", 1.0)}
 
 
 def decay_time_uncertainty(t: float, bandwidth_hz: float, positions: int, kind: str,
@@ -51,7 +49,9 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
                     with_g: bool = False) -> list[dict]:
     """Average per band over positions (each a list of band dicts from ``as_dict``).
 
-    Null values are left out of a mean; ``n`` says how many were used.
+    Null values are left out of a mean; ``n`` says how many were used. The mean's
+    ``verdict`` is "caution" when any value in it was flagged, "not evaluable" when none
+    could be used.
     """
     by_band: dict[float, list[dict]] = {}
     for pos in positions:
@@ -64,7 +64,12 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
         entry = {"band_hz": band_hz}
         for m in metrics:
             vals = np.array([r[m] for r in rows if r.get(m) is not None], dtype=float)
-            stat = {"mean": None, "std": None, "n": int(vals.size)}
+            stat = {"mean": None, "std": None, "n": int(vals.size),
+                    "verdict": NOT_EVALUABLE if m in JND else None}
+            if vals.size and m in JND:
+                flagged = any((r.get("verdicts") or {}).get(m, OK) == CAUTION
+                              for r in rows if r.get(m) is not None)
+                stat["verdict"] = CAUTION if flagged else OK
             if vals.size:
                 stat["mean"] = float(vals.mean())
                 stat["std"] = float(vals.std(ddof=1)) if vals.size > 1 else None
@@ -77,16 +82,31 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
     return out
 
 
-def single_numbers(average: list[dict], kind: str = "octave") -> dict:
-    """Mid-frequency values: mean of the 500 Hz and 1 kHz octaves (ISO 3382-1:2009, A.3 —
-    from memory), or of the six third-octaves 400 Hz–1.25 kHz."""
+#: Mid-frequency single numbers: key → parameter (ISO 3382-1:2009, A.3 and Table A.1: the
+#: mean of the 500 Hz and 1 kHz octaves — from memory).
+SINGLE_NUMBERS = {"edt_mid_s": "edt_s", "t20_mid_s": "t20_s", "t30_mid_s": "t30_s",
+                  "c50_mid_db": "c50_db", "c80_mid_db": "c80_db", "d50_mid": "d50",
+                  "ts_mid_ms": "ts_ms", "g_mid_db": "g_db"}
+
+
+def single_numbers(average: list[dict], kind: str = "octave", *, with_verdicts: bool = False):
+    """Mid-frequency values: mean of the 500 Hz and 1 kHz octaves, or of the six
+    third-octaves 400 Hz–1.25 kHz (ISO 3382-1:2009, A.3 — from memory).
+
+    A value needs every mid band; G appears only when the average holds G. With
+    ``with_verdicts`` also returns a verdict per value: the worst of its bands'.
+    """
     mids = (500, 1000) if kind == "octave" else (400, 500, 630, 800, 1000, 1250)
     rows = [r for r in average if r["band_hz"] in mids]
-    names = {"edt_s": "edt_mid_s", "t20_s": "t20_mid_s", "t30_s": "t30_mid_s",
-             "c50_db": "c50_mid_db", "c80_db": "c80_mid_db", "d50": "d50_mid",
-             "ts_ms": "ts_mid_ms"}
-    out = {}
-    for m, key in names.items():
+    has_g = bool(average) and "g_db" in average[0]
+    out, verdicts = {}, {}
+    for key, m in SINGLE_NUMBERS.items():
+        if m == "g_db" and not has_g:
+            continue
         vals = [r[m]["mean"] for r in rows if r[m]["mean"] is not None]
-        out[key] = float(np.mean(vals)) if len(vals) == len(mids) else None
-    return out
+        ok = len(vals) == len(mids)
+        out[key] = float(np.mean(vals)) if ok else None
+        marks = [r[m].get("verdict") or OK for r in rows]
+        verdicts[key] = (NOT_EVALUABLE if not ok else
+                         CAUTION if CAUTION in marks else OK)
+    return (out, verdicts) if with_verdicts else out

@@ -13,6 +13,22 @@ from .. import __version__
 from ..audio import read_audio, read_json
 from ..errors import InputError, describe
 from .parameters import room_parameters
+
+#: What each band-filtering choice does, for the document's settings.
+FILTERING_TEXT = {
+    "auto": "decay times: band filter run backwards in time; C50, C80, D50, Ts: zero-phase "
+            "band filter; G: single-pass band energy",
+    "forward": "one forward band filter for every parameter",
+    "reverse": "one band filter run backwards in time for every parameter",
+}
+VERDICT_TEXT = ("ok: within the ISO 3382-1 just-noticeable difference as far as the checks "
+                "can tell; caution: given, but see the warning; not evaluable: no value, the "
+                "warning says why")
+
+
+def reference_to_dict(ref) -> dict:
+    from .calibration import reference_to_dict as to_dict
+    return to_dict(ref)
 from .spatial import single_numbers, spatial_average
 
 
@@ -27,56 +43,58 @@ class Study:
 
 
 def parse_calibration(text: str | None):
-    """``--calibration``: a number (dB, all bands) or a JSON file {band: dB, "wideband": dB}."""
+    """The strength calibration option: a number (dB, wideband G only) or a file written by
+    ``roomconv calibrate``; ``None`` when not given. See :mod:`roomconv.analysis.calibration`."""
     if text is None:
         return None
-    try:
-        return float(text)
-    except ValueError:
-        pass
-    d = read_json(text, what="calibration file")
-    try:
-        return {(k if k == "wideband" else float(k)): float(v) for k, v in d.items()}
-    except (TypeError, ValueError):
-        raise InputError(describe(text, "calibration values must be numbers keyed by band "
-                                        "(e.g. {\"500\": 72.5, \"wideband\": 80.1})")) from None
+    from .calibration import parse_strength_reference
+    return parse_strength_reference(text)
 
 
-def analyse_arrays(items, *, bands: str = "octave", reverse_filter: bool = False,
+def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
                    calibration=None, progress=None) -> Study:
-    """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`."""
+    """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`.
+
+    ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
+    Channels are numbered from 1 in the document, as a person counts them.
+    """
     positions, curves, errors, notes = [], {}, [], []
     for name, data, rate in items:
         for ch in range(data.shape[1]):
             try:
                 res, wide, n = room_parameters(data[:, ch], rate, bands=bands,
-                                               reverse_filter=reverse_filter,
-                                               calibration_db=calibration)
+                                               filtering=filtering,
+                                               strength_reference=calibration)
             except InputError as exc:
-                errors.append(describe(name, f"channel {ch}: {exc}"))
+                errors.append(describe(name, f"channel {ch + 1}: {exc}"))
                 continue
             finally:
                 if progress is not None:
                     progress.update(1)
             notes += [x for x in n if x not in notes]
             with_g = calibration is not None
-            positions.append({"file": str(name), "channel": ch, "rate": rate,
+            positions.append({"file": str(name), "channel": ch + 1, "rate": rate,
                               "bands": [r.as_dict(with_g) for r in res],
                               "wideband": wide.as_dict(with_g)})
-            curves[(str(name), ch)] = (res, wide, rate)
+            curves[(str(name), ch + 1)] = (res, wide, rate)
     if not positions:
         raise InputError("no response could be analysed: " + "; ".join(errors))
-    avg = spatial_average([p["bands"] for p in positions], bands, calibration is not None)
+    with_g = calibration is not None
+    avg = spatial_average([p["bands"] for p in positions], bands, with_g)
+    sn, sn_verdicts = single_numbers(avg, bands, with_verdicts=True)
     doc = {
         "positions": positions,
-        "average": {"bands": avg, "single_numbers": single_numbers(avg, bands),
+        "average": {"bands": avg, "single_numbers": sn, "single_number_verdicts": sn_verdicts,
                     "positions": len(positions)},
-        "settings": {"bands": bands, "reverse_filter": reverse_filter,
-                     "calibration": calibration if not isinstance(calibration, dict)
-                     else {str(k): v for k, v in calibration.items()},
+        "settings": {"bands": bands, "filtering": filtering,
+                     "calibration": None if calibration is None
+                     else reference_to_dict(calibration),
                      "decay_method": "Schroeder integral with Lundeby truncation, noise "
                                      "subtraction and tail compensation",
-                     "onset": "first sample within 20 dB of the band's peak"},
+                     "band_filtering": FILTERING_TEXT[filtering],
+                     "onset": "first sample of the broadband response within 20 dB of its "
+                              "peak, for every band",
+                     "verdicts": VERDICT_TEXT},
         "notes": notes,
         "errors": errors,
         "roomconv_version": __version__,
@@ -84,7 +102,7 @@ def analyse_arrays(items, *, bands: str = "octave", reverse_filter: bool = False
     return Study(doc, curves, errors)
 
 
-def analyse_files(paths, *, bands: str = "octave", reverse_filter: bool = False,
+def analyse_files(paths, *, bands: str = "octave", filtering: str = "auto",
                   calibration=None, progress=None) -> Study:
     """Read each IR file and analyse every channel as its own position.
 
@@ -104,7 +122,7 @@ def analyse_files(paths, *, bands: str = "octave", reverse_filter: bool = False,
         items.append((Path(p), data, rate))
     if not items:
         raise InputError("no response could be analysed: " + "; ".join(errors))
-    study = analyse_arrays(items, bands=bands, reverse_filter=reverse_filter,
+    study = analyse_arrays(items, bands=bands, filtering=filtering,
                            calibration=calibration, progress=progress)
     study.errors = errors + study.errors
     study.document["errors"] = study.errors
