@@ -21,7 +21,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.signal import sosfiltfilt
+from scipy.signal import sosfilt
 
 from ..errors import InputError
 from ..measure.quality import energy_envelope
@@ -166,7 +166,23 @@ def _band_signals(h: np.ndarray, rate: int, band: Band | None, filtering: str):
     decay = filter_band(h, rate, band, reverse=True)
     if filtering == "reverse":
         return decay, decay
-    return decay, sosfiltfilt(band_sos(band, rate), h)
+    return decay, zero_phase_band(h, rate, band)
+
+
+def zero_phase_band(h: np.ndarray, rate: int, band: Band) -> np.ndarray:
+    """The band filter run forwards, then backwards: zero phase, |H|² magnitude.
+
+    Both passes start from rest on zero padding long enough for the band filter's ringing
+    (ten over the bandwidth) to die away, so a response that starts or ends in noise gives
+    no start-up transient (``scipy.signal.sosfiltfilt``'s short odd padding and step initial
+    state add one, many times the noise, to the first ~100 ms of a narrow low band).
+    """
+    pad = int(np.ceil(10.0 * rate / band.bandwidth))
+    sos = band_sos(band, rate)
+    x = np.concatenate([np.zeros(pad), np.asarray(h, dtype=np.float64), np.zeros(pad)])
+    y = sosfilt(sos, x)
+    y = sosfilt(sos, y[::-1])[::-1]
+    return y[pad: pad + len(h)]
 
 
 def _pre_onset(band: Band | None, rate: int, onset: int) -> int:
@@ -310,6 +326,8 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
                      f"{label}: {key.upper()}: {limit} lies only {reach + lo:.0f} dB below the "
                      f"end of its range, not the {RANGE_MARGIN_DB:.0f} dB ISO 3382-1 asks")
 
+    _decay_noise_uncertainty(res, x, rate, tr, band, sch, curve, fits, label)
+
     # ISO 3382-2 B.2/B.3: ξ from the line fit of the longest range evaluated; C from T30/T20.
     main_key = "t30" if "t30" in fits else ("t20" if "t20" in fits else None)
     if main_key is not None:
@@ -338,6 +356,131 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
                      "decay may lengthen the decay times")
 
 
+#: A value whose noise-induced standard uncertainty exceeds this fraction of its JND gets a
+#: caution; over ``NOISE_SIGMA_NULL_JND`` JNDs it is not given at all (common practice: a
+#: 95 % interval about the size of the JND, and a value that could be off by several JNDs
+#: says nothing).
+NOISE_SIGMA_CAUTION_JND = 0.5
+NOISE_SIGMA_NULL_JND = 3.0
+
+
+def _dof_samples(band: Band | None, rate: int) -> float:
+    """Samples per independent energy value of a signal of the band's width (rate/B)."""
+    bw = band.bandwidth if band is not None else rate / 2.0
+    return max(1.0, rate / bw)
+
+
+def noise_energy_variance(signal: np.ndarray | float, samples: np.ndarray | float, noise: float,
+                          per_dof: float, noise_dof: float) -> np.ndarray:
+    """Variance of a noise-corrected energy sum over a window, from the noise alone.
+
+    A window of ``samples`` holds the signal energy ``signal`` (noise removed) and the
+    background noise of mean square ``noise``. Squaring s + n gives s² + 2sn + n²: the cross
+    term has variance 4·s²·ν per independent value and the noise term 2ν² (Gaussian noise);
+    a band of width B gives one independent value per ``per_dof`` = rate/B samples. The noise
+    level itself is read from ``noise_dof`` independent values, so subtracting it leaves a
+    relative error of 1/sqrt(noise_dof) on ν·samples.
+
+    References
+    ----------
+    Bendat, J. S., Piersol, A. G. (2010). Random Data, 4th ed., Wiley: variance of mean-square
+    estimates of band-limited Gaussian signals, 1/(B·T) (from memory).
+    """
+    signal = np.maximum(np.asarray(signal, dtype=np.float64), 0.0)
+    samples = np.asarray(samples, dtype=np.float64)
+    random = per_dof * (4.0 * noise * signal + 2.0 * noise ** 2 * samples)
+    level = (noise * samples) ** 2 / max(noise_dof, 1.0)
+    return random + level
+
+
+def _decay_noise_uncertainty(res: BandResult, x: np.ndarray, rate: int, tr: Truncation,
+                             band: Band | None, sch: np.ndarray, curve: np.ndarray, fits: dict,
+                             label: str) -> None:
+    """Flag decay times the background noise makes uncertain beyond their JND.
+
+    The level error of the Schroeder curve at each end of a range, δL = 4.34·σ_E/E, moves
+    the fitted decay time by about sqrt(δL₁² + δL₂²)/(range in dB), relative.
+    """
+    nu, start = _noise_bound(x, tr)
+    if nu <= 0:
+        return
+    per_dof = _dof_samples(band, rate)
+    noise_dof = (x.size - start) / per_dof
+    remaining = tr.index - np.arange(tr.index)
+    var = noise_energy_variance(sch - tr.compensation, remaining, nu, per_dof, noise_dof)
+    d_level = 10 / np.log(10) * np.sqrt(var) / sch
+    for key, f in fits.items():
+        hi, lo = RANGES[key]
+        i_hi = int(np.flatnonzero(curve <= hi)[0])
+        below = np.flatnonzero(curve <= lo)
+        i_lo = int(below[0]) if below.size else curve.size - 1
+        sigma = float(np.hypot(d_level[i_hi], d_level[i_lo])) / (hi - lo)
+        _judge_sigma(res, f"{key}_s", key.upper(), sigma, JND[f"{key}_s"][1], "%", label,
+                     relative=True)
+
+
+def _noise_bound(x: np.ndarray, tr: Truncation) -> tuple[float, int]:
+    """The noise level and where it was read; with no floor found, the mean square of the
+    last 10 % is an upper bound of any noise (the decay may still be falling there)."""
+    if tr.noise_limited:
+        return tr.noise_energy, tr.noise_start
+    start = int(0.9 * x.size)
+    return float(np.mean(np.square(x[start:]))) if x.size > start else 0.0, start
+
+
+def _judge_sigma(res: BandResult, metric: str, name: str, sigma: float, jnd: float, unit: str,
+                 label: str, *, relative: bool = False) -> None:
+    if not np.isfinite(sigma) or sigma <= NOISE_SIGMA_CAUTION_JND * jnd:
+        return
+    shown = f"±{100 * sigma:.0f} %" if relative else f"±{sigma:.2g}{unit}"
+    jnd_shown = f"{100 * jnd:.0f} %" if relative else f"{jnd:g}{unit}"
+    if sigma > NOISE_SIGMA_NULL_JND * jnd:
+        res.flag((metric,), NOT_EVALUABLE, f"{metric.split('_')[0]}_noise_uncertain",
+                 f"{label}: {name} not evaluated: the background noise makes it uncertain by "
+                 f"{shown} (one standard deviation), over {NOISE_SIGMA_NULL_JND:g} times its "
+                 f"JND of {jnd_shown}")
+    else:
+        res.flag((metric,), CAUTION, f"{metric.split('_')[0]}_noise_uncertain",
+                 f"{label}: {name}: the background noise makes it uncertain by {shown} (one "
+                 f"standard deviation), more than half its JND of {jnd_shown}")
+
+
+def _ratio_noise_uncertainty(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int,
+                             rate: int, noise: float, comp: float, band: Band | None,
+                             noise_dof: float, label: str) -> None:
+    """Flag C50, C80, D50 and Ts the background noise makes uncertain beyond half a JND."""
+    per_dof = _dof_samples(band, rate)
+    s = np.maximum(e - noise, 0.0)
+
+    def var(sl):
+        return float(noise_energy_variance(s[sl].sum(), s[sl].size, noise, per_dof, noise_dof))
+
+    total = float(s.sum()) + comp
+    if total <= 0:
+        return
+    k10 = 10 / np.log(10)
+    for ms, cname, dname in ((50, "c50_db", "d50"), (80, "c80_db", None)):
+        n = pre + int(round(ms / 1000 * rate))
+        early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
+        if early <= 0 or late <= 0:
+            continue
+        v_e, v_l = var(slice(0, n)), var(slice(n, None))
+        sig_c = k10 * np.sqrt(v_e / early ** 2 + v_l / late ** 2)
+        _judge_sigma(res, cname, cname[:3].upper(), float(sig_c), JND[cname][1], " dB", label)
+        if dname:
+            d = early / total
+            sig_d = d * (1 - d) * np.sqrt(v_e / early ** 2 + v_l / late ** 2)
+            _judge_sigma(res, dname, "D50", float(sig_d), JND[dname][1], "", label)
+    moment = float(np.sum(t * s))
+    if moment > 0:
+        v_m = per_dof * float(np.sum(t ** 2 * (4 * noise * s + 2 * noise ** 2)))
+        v_m += (noise * float(np.sum(t))) ** 2 / max(noise_dof, 1.0)
+        v_t = var(slice(None))
+        ts = 1000 * moment / total
+        sig_ts = ts * np.sqrt(v_m / moment ** 2 + v_t / total ** 2)
+        _judge_sigma(res, "ts_ms", "Ts", float(sig_ts), JND["ts_ms"][1], " ms", label)
+
+
 def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: Truncation,
                    band: Band | None, label: str) -> None:
     """C50, C80, D50 and Ts from the broadband onset, noise subtracted, the late decay
@@ -358,14 +501,23 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
         return
     noise = 0.0
     comp = 0.0
+    noise_dof = 1.0
     k = -tr.slope_db_s * np.log(10) / 10 if np.isfinite(tr.slope_db_s) else 0.0
     if tr.noise_limited:
         tail = np.square(xr[onset + tr.noise_start:])
         noise = float(np.mean(tail)) if tail.size else 0.0
+        noise_dof = tail.size / _dof_samples(band, rate)
         comp = noise * rate / k if k > 0 else 0.0
-    elif tr.compensation > 0 and k > 0:
-        # No floor: continue the late decay of this signal from its last stretch.
-        comp = _end_energy(xr[onset:stop], rate, tr.slope_db_s) / k * rate
+    else:
+        if tr.compensation > 0 and k > 0:
+            # No floor: continue the late decay of this signal from its last stretch.
+            comp = _end_energy(xr[onset:stop], rate, tr.slope_db_s) / k * rate
+        bound, nstart = _noise_bound(xr[onset:], tr)
+        if bound > 0:  # judge the uncertainty against the most noise there could be
+            _ratio_noise_uncertainty(res, e, (np.arange(e.size) - pre) / rate, pre, rate,
+                                     bound, comp, band,
+                                     (xr.size - onset - nstart) / _dof_samples(band, rate),
+                                     label)
     t = (np.arange(e.size) - pre) / rate
     corrected = _ratios(e - noise, t, comp, k, tr.index / rate, pre, rate)
     raw = _ratios(e, t, comp, k, tr.index / rate, pre, rate)
@@ -376,6 +528,8 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
         return
     for m, v in corrected.items():
         setattr(res, m, v)
+    if noise > 0:
+        _ratio_noise_uncertainty(res, e, t, pre, rate, noise, comp, band, noise_dof, label)
     if raw is None:
         return
     for m, v in corrected.items():
