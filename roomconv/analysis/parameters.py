@@ -99,6 +99,8 @@ class BandResult:
     warning_codes: list[str] = field(default_factory=list)
     #: Verdict per judged value: "ok", "caution" or "not evaluable".
     value_verdicts: dict[str, str] = field(default_factory=dict)
+    #: The warning codes behind each value's verdict.
+    value_codes: dict[str, list[str]] = field(default_factory=dict)
     #: Not part of the JSON: the decay curve (dB) from the onset, and the truncation time.
     curve_db: np.ndarray | None = field(default=None, repr=False)
     truncation_s: float | None = None
@@ -120,6 +122,9 @@ class BandResult:
                 setattr(self, m, None)
             if _RANK[level] > _RANK[self.value_verdicts.get(m, OK)]:
                 self.value_verdicts[m] = level
+            codes = self.value_codes.setdefault(m, [])
+            if code not in codes:
+                codes.append(code)
         if code not in self.warning_codes:
             self.warning_codes.append(code)
         self.warnings.append(text)
@@ -147,6 +152,8 @@ class BandResult:
         d["verdicts"] = {k: v for k, v in self.value_verdicts.items()
                          if with_g or k != "g_db"}
         d["warning_codes"] = list(self.warning_codes)
+        d["warning_codes_by_value"] = {k: list(v) for k, v in self.value_codes.items()
+                                       if v and (with_g or k != "g_db")}
         d["warnings"] = list(self.warnings)
         return d
 
@@ -346,6 +353,8 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
                  f"Annex B limits {XI_LIMIT_PERMILLE:.0f} ‰ and {CURVATURE_LIMIT_PCT:.0f} %): "
                  "one decay time does not describe it")
 
+    _statistical_uncertainty(res, band, rate, label)
+
     t_any = res.t30_s or res.t20_s or res.edt_s
     if band is not None and t_any is not None:
         bt = band.bandwidth * t_any
@@ -354,6 +363,48 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
             res.flag(DECAY_METRICS, CAUTION, "low_bt",
                      f"{label}: B·T = {bt:.1f} is below {limit_bt:.0f}: the band filter's own "
                      "decay may lengthen the decay times")
+
+
+#: ISO 3382-2:2008, A.2 (from memory): σ(T) = k·T·sqrt((1 + c/n)/(N·B·T)) for N positions and
+#: n decays averaged at each; the integrated impulse response counts as n = 10. EDT has no
+#: constant in the standard: 1.97 extends the T20/T30 pair (0.88 for 20 dB, 0.55 for 30 dB,
+#: about range^−1.16) to its 10 dB range (common practice estimate).
+STATISTICAL_CONSTANTS = {"edt_s": (1.97, 2.28), "t20_s": (0.88, 1.90), "t30_s": (0.55, 1.52)}
+DECAYS_PER_POSITION_IR = 10
+STATISTICAL = "statistical_uncertainty"
+
+
+def decay_time_sigma(metric: str, t_s: float, bandwidth_hz: float, positions: int = 1,
+                     decays_per_position: int = DECAYS_PER_POSITION_IR) -> float:
+    """Relative standard uncertainty of a decay time from the randomness of the diffuse
+    decay itself (ISO 3382-2:2008, A.2 — from memory; EDT extended, see
+    ``STATISTICAL_CONSTANTS``).
+
+    Examples
+    --------
+    >>> round(decay_time_sigma("t30_s", 1.0, 100.0, positions=4), 4)
+    0.0295
+    """
+    k, c = STATISTICAL_CONSTANTS[metric]
+    return float(k * np.sqrt((1 + c / decays_per_position)
+                             / (positions * bandwidth_hz * t_s)))
+
+
+def _statistical_uncertainty(res: BandResult, band: Band | None, rate: int, label: str) -> None:
+    """Caution on decay times whose single-position statistical uncertainty exceeds half the
+    JND: one position's value may differ from the room's by more than a listener notices.
+    A spatial average over enough positions clears it (see ``spatial_average``)."""
+    bw = band.bandwidth if band is not None else rate / 2.0
+    for m in DECAY_METRICS:
+        v = getattr(res, m)
+        if v is None:
+            continue
+        sigma = decay_time_sigma(m, v, bw)
+        if sigma > NOISE_SIGMA_CAUTION_JND * JND[m][1]:
+            res.flag((m,), CAUTION, STATISTICAL,
+                     f"{label}: {m[:-2].upper()} at one position is uncertain by ±"
+                     f"{100 * sigma:.0f} % (ISO 3382-2 for B·T = {bw * v:.0f}), more than half "
+                     "its JND; average several positions")
 
 
 #: A value whose noise-induced standard uncertainty exceeds this fraction of its JND gets a
@@ -596,47 +647,58 @@ def _finite(v):
     return float(v) if v is not None and np.isfinite(v) else None
 
 
-#: A response whose smoothed energy stays within this many dB of its peak for more than
-#: ``PLATEAU_FRACTION`` of the time it takes to fall 20 dB is a sustained signal (a sweep
-#: recording, music, noise), not an impulse response. An exponential decay spends 5 % of its
-#: first 20 dB within 3 dB of its peak: the 50 % limit is far from any room (common practice).
-PLATEAU_DB = 3.0
-PLATEAU_FRACTION = 0.5
+#: An impulse response falls from its peak like a decay: the upper hull of its energy
+#: envelope (the loudest level still to come) takes about as long to fall its second third
+#: of the way to the floor as its first. A sustained signal (a sweep recording, music) holds
+#: its level for seconds, then falls at the room's rate: the first third takes far longer.
+#: A ratio over 4, over at least 50 ms, is not a decay (common practice); nor is a signal
+#: that never falls 10 dB below its peak.
+SUSTAIN_RATIO = 4.0
+SUSTAIN_MIN_S = 0.05
+MIN_FALL_DB = 10.0
 
 
 def check_impulse_response(h: np.ndarray, rate: int) -> None:
     """Refuse a signal that is not an impulse response (a sweep recording, music, noise).
 
-    An impulse response rises to its peak at once and then decays. A sustained signal stays
-    near its peak level for a long time, or never decays at all.
-
     Raises
     ------
     InputError
         With what was seen and what to do.
+
+    Examples
+    --------
+    >>> rate = 8000
+    >>> t = np.arange(rate) / rate
+    >>> check_impulse_response(np.random.default_rng(0).standard_normal(rate) * 10 ** (-6 * t),
+    ...                        rate)  # a decay: accepted
+    >>> check_impulse_response(np.sin(2 * np.pi * 440 * t), rate)
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: this does not look like an impulse response: its level never falls 10 dB below its peak (a recording, music or noise?); extract the impulse response from the recording first
     """
     env, m = energy_envelope(np.asarray(h, dtype=np.float64), rate, 0.01)
     if env.size < 4:
         return
     peak_i = int(np.argmax(env))
-    env_db = 10 * np.log10(np.maximum(env, 1e-300) / env[peak_i])
-    after = env_db[peak_i:]
-    low = np.flatnonzero(after < -20.0)
-    if low.size == 0:
-        floor_db = float(np.median(after[after.size // 2:])) if after.size > 2 else 0.0
-        if floor_db > -10.0:
-            raise InputError("this does not look like an impulse response: its level never "
-                             "falls more than 20 dB after its peak (a recording, music or "
-                             "noise?); extract the impulse response from the recording first")
-        return
-    span = after[: low[0]]
-    near = float(np.count_nonzero(span > -PLATEAU_DB)) / max(1, span.size)
-    if span.size * m / rate > 0.05 and near > PLATEAU_FRACTION:
-        held = float(np.count_nonzero(span > -PLATEAU_DB)) * m / rate
-        raise InputError(f"this does not look like an impulse response: its level stays "
-                         f"within {PLATEAU_DB:.0f} dB of its peak for {held:.2f} s instead of "
-                         "decaying (a sweep recording, music or noise?); extract the impulse "
-                         "response from the recording first")
+    env_db = 10 * np.log10(np.maximum(env[peak_i:], 1e-300) / env[peak_i])
+    hull = np.maximum.accumulate(env_db[::-1])[::-1]
+    floor = float(np.mean(env_db[-max(1, env_db.size // 20):]))
+    fall = -floor
+    if fall < MIN_FALL_DB:
+        raise InputError("this does not look like an impulse response: its level never falls "
+                         f"{MIN_FALL_DB:.0f} dB below its peak (a recording, music or noise?); "
+                         "extract the impulse response from the recording first")
+    below_a = np.flatnonzero(hull < -fall / 3)
+    below_b = np.flatnonzero(hull < -2 * fall / 3)
+    t_a = int(below_a[0]) if below_a.size else env_db.size
+    t_b = int(below_b[0]) if below_b.size else env_db.size
+    held_s = t_a * m / rate
+    if held_s > SUSTAIN_MIN_S and t_a > SUSTAIN_RATIO * max(1, t_b - t_a):
+        raise InputError(f"this does not look like an impulse response: it stays within "
+                         f"{fall / 3:.0f} dB of its peak for {held_s:.2f} s, then falls in "
+                         f"{(t_b - t_a) * m / rate:.2f} s (a sweep recording, music or noise?); "
+                         "extract the impulse response from the recording first")
 
 
 def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
@@ -685,8 +747,8 @@ def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
         raise InputError("the response holds NaN or infinite samples")
     if not np.any(h):
         raise InputError("the response is silent (all zeros)")
-    check_impulse_response(h, rate)
     band_list, notes = bands_for_rate(bands, rate, low=low, high=high)
+    check_impulse_response(h, rate)
     onset = onset_index(h)
 
     def ref(band_hz):

@@ -7,14 +7,21 @@ from __future__ import annotations
 import numpy as np
 
 from .bands import all_bands
-from .parameters import CAUTION, JND, METRICS, NOT_EVALUABLE, OK
+from .parameters import (
+    CAUTION,
+    JND,
+    METRICS,
+    NOISE_SIGMA_CAUTION_JND,
+    NOT_EVALUABLE,
+    OK,
+    STATISTICAL,
+    DECAYS_PER_POSITION_IR,
+    decay_time_sigma,
+)
 
 __all__ = ["DECAYS_PER_POSITION_IR", "JND", "decay_time_uncertainty", "spatial_average",
            "single_numbers", "SINGLE_NUMBERS"]
 
-#: Decays per position to use in the uncertainty formula for the integrated impulse response
-#: method (ISO 3382-2:2008, A.2: the IR method counts as n = 10 — from memory).
-DECAYS_PER_POSITION_IR = 10
 
 
 def decay_time_uncertainty(t: float, bandwidth_hz: float, positions: int, kind: str,
@@ -36,6 +43,15 @@ def decay_time_uncertainty(t: float, bandwidth_hz: float, positions: int, kind: 
         raise ValueError("kind is t20 or t30")
     n = decays_per_position
     return float(k * t * np.sqrt((1 + c / n) / (positions * bandwidth_hz * t)))
+
+
+def _flagged_beyond_statistics(row: dict, metric: str) -> bool:
+    """A position's value is flagged for a reason other than its single-position statistical
+    uncertainty (which the average reduces and judges afresh)."""
+    if (row.get("verdicts") or {}).get(metric, OK) != CAUTION:
+        return False
+    codes = (row.get("warning_codes_by_value") or {}).get(metric, [])
+    return not codes or any(c != STATISTICAL for c in codes)
 
 
 def _bandwidth(band_hz: float, kind: str) -> float | None:
@@ -67,8 +83,14 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
             stat = {"mean": None, "std": None, "n": int(vals.size),
                     "verdict": NOT_EVALUABLE if m in JND else None}
             if vals.size and m in JND:
-                flagged = any((r.get("verdicts") or {}).get(m, OK) == CAUTION
-                              for r in rows if r.get(m) is not None)
+                flagged = any(_flagged_beyond_statistics(r, m) for r in rows
+                              if r.get(m) is not None)
+                bw = _bandwidth(band_hz, kind) if band_hz is not None else None
+                if m in ("edt_s", "t20_s", "t30_s") and bw:
+                    # The average's own statistical uncertainty, with N positions.
+                    sigma = decay_time_sigma(m, float(vals.mean()), bw, positions=vals.size)
+                    stat["relative_uncertainty"] = sigma
+                    flagged = flagged or sigma > NOISE_SIGMA_CAUTION_JND * JND[m][1]
                 stat["verdict"] = CAUTION if flagged else OK
             if vals.size:
                 stat["mean"] = float(vals.mean())

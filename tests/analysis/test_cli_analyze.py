@@ -40,7 +40,7 @@ def test_json_contract_layout(irs, cli):
         (str(a), 1), (str(b), 1), (str(b), 2)]
     keys = {"band_hz", "edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db",
             "xi_permille", "xi_range", "curvature_pct", "verdict", "verdicts", "warning_codes",
-            "warnings"}
+            "warning_codes_by_value", "warnings"}
     pos = doc["positions"][0]
     assert [r["band_hz"] for r in pos["bands"]] == [31.5, 63, 125, 250, 500, 1000, 2000, 4000,
                                                     8000]

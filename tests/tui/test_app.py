@@ -96,7 +96,10 @@ async def test_analyze_tab_matches_the_command_line(tmp_path):
             label = f"{band['band_hz'] / 1000:g}k" if band["band_hz"] >= 1000 else \
                 f"{band['band_hz']:g}"
             want = "—" if band["t30_s"] is None else f"{band['t30_s']:.2f}"
-            assert by_band[label][4] == want  # the T30 column
+            if band["verdicts"]["t30_s"] == "caution":
+                want += " ⚠"  # a flagged value is flagged in the table itself
+            assert str(by_band[label][4]) == want  # the T30 column
+            assert str(by_band[label][-1]) == band["verdict"]
         text = screen_text(app)
         assert "T30 per band" in text and "Decay curves" in text
         app.query_one("#an-export-dir").value = str(tmp_path / "export")

@@ -12,7 +12,9 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
 
-from roomconv.analysis.report import HEADERS, band_label, fmt
+from rich.text import Text
+
+from roomconv.analysis.report import HEADERS, LEGEND, band_label, fmt, value_verdict
 from roomconv.errors import RoomconvError
 
 COLUMNS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db")
@@ -43,7 +45,7 @@ class AnalyzePane(VerticalScroll):
 
     def on_mount(self) -> None:
         t = self.query_one("#an-table", DataTable)
-        t.add_columns("position", "band", *[HEADERS[c] for c in COLUMNS])
+        t.add_columns("position", "band", *[HEADERS[c] for c in COLUMNS], "verdict")
 
     @on(Button.Pressed, "#an-session")
     def use_session(self) -> None:
@@ -84,16 +86,18 @@ class AnalyzePane(VerticalScroll):
         for p in doc["positions"]:
             name = f"{Path(p['file']).name}:{p['channel']}"
             for r in p["bands"] + [p["wideband"]]:
-                t.add_row(name, band_label(r["band_hz"]), *[fmt(c, r.get(c)) for c in COLUMNS])
+                t.add_row(name, band_label(r["band_hz"]), *[_cell(r, c) for c in COLUMNS],
+                          _verdict_text(r.get("verdict", "")))
         if len(doc["positions"]) > 1:
             for r in doc["average"]["bands"]:
                 t.add_row("average", band_label(r["band_hz"]),
-                          *[fmt(c, r[c]["mean"]) if c in r else "—" for c in COLUMNS])
+                          *[_mean_cell(r, c) for c in COLUMNS], "")
         warns = [w for p in doc["positions"] for r in p["bands"] + [p["wideband"]]
                  for w in r["warnings"]] + doc.get("errors", [])
         self.query_one("#an-warnings", Static).update(
-            "\n".join(f"! {w}" for w in warns[:12]) + (f"\n… {len(warns) - 12} more"
-                                                      if len(warns) > 12 else ""))
+            LEGEND.replace("*", "⚠") + "\n"
+            + "\n".join(f"! {w}" for w in warns[:12]) + (f"\n… {len(warns) - 12} more"
+                                                         if len(warns) > 12 else ""))
         from tui.widgets import bar_chart, decay_plot
         avg = {r["band_hz"]: r["t30_s"]["mean"] for r in doc["average"]["bands"]}
         self.query_one("#an-bars", Static).update(
@@ -126,3 +130,29 @@ class AnalyzePane(VerticalScroll):
             self.app.notify(str(exc), severity="error", title="Export")
             return
         self.app.notify(f"exported to {folder}", title="Analyze")
+
+
+#: Cell styles: a flagged value is visibly flagged in the table itself.
+_STYLE = {"caution": "bold black on dark_orange", "not evaluable": "dim"}
+
+
+def _cell(row: dict, metric: str) -> Text:
+    verdict = value_verdict(row, metric) if metric != "inr_db" else "ok"
+    text = fmt(metric, row.get(metric))
+    if verdict == "caution":
+        return Text(f"{text} ⚠", style=_STYLE["caution"])
+    return Text(text, style=_STYLE.get(verdict, ""))
+
+
+def _mean_cell(row: dict, metric: str) -> Text:
+    if metric not in row:
+        return Text("—", style="dim")
+    stat = row[metric]
+    text = fmt(metric, stat["mean"])
+    if stat.get("verdict") == "caution" and stat["mean"] is not None:
+        return Text(f"{text} ⚠", style=_STYLE["caution"])
+    return Text(text, style="" if stat["mean"] is not None else "dim")
+
+
+def _verdict_text(verdict: str) -> Text:
+    return Text(verdict, style=_STYLE.get(verdict, "green"))
