@@ -375,9 +375,10 @@ def _check_pulse(x: np.ndarray, rate: int, onset: int) -> None:
     w = max(1, int(round(0.001 * rate)))
     env = uniform_filter1d(e, w, mode="constant")
     if noise > 0 and env.max() < 10 ** (MIN_BAND_INR_DB / 10) * noise:
-        raise InputError(f"the reference response barely stands above its own end (its peak is "
+        raise InputError(f"the reference response's peak stands only "
                          f"{10 * math.log10(env.max() / noise):.0f} dB above the mean of its "
-                         f"last 10 %); it does not look like an impulse response ({hint})")
+                         f"last 10 % (at least {MIN_BAND_INR_DB:.0f} dB needed): it is too noisy "
+                         f"for a reference, or not an impulse response ({hint})")
     total, _, _ = _direct_energy(x, rate, onset, bandwidth=None, per_unit_time=False,
                                  max_error_db=None)
     pk = int(np.argmax(e))
