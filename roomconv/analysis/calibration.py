@@ -7,6 +7,7 @@ file ``roomconv calibrate`` writes, or given as one number for the wideband G on
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -169,8 +170,9 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
     Returns
     -------
     StrengthReference
-        Bands whose direct sound does not stand 20 dB above the noise are left out, with the
-        reason in ``notes``.
+        Bands whose direct sound does not stand 20 dB above the noise, or whose value the noise
+        would leave uncertain by more than half the JND of G, are left out with the reason in
+        ``notes``; ``uncertainty_db`` holds the random error of the others.
 
     Raises
     ------
@@ -180,7 +182,9 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
 
     Notes
     -----
-    Steps for each band (and for the unfiltered response):
+    Everything above the noise after the direct sound counts as direct sound, so the response
+    must be free of reflections (an anechoic room, or gated before the first reflection with
+    the low bands' ringing in mind). Steps for each band (and for the unfiltered response):
 
     1. filter the response into the band (:func:`~roomconv.analysis.bands.filter_band`,
        forward; the total energy is the same either way);
@@ -344,7 +348,6 @@ def parse_strength_reference(text: str) -> StrengthReference:
     if p.is_dir():
         raise InputError(describe(p, "is a folder, not a strength reference file",
                                   "give the JSON file from roomconv calibrate"))
-    import json
     try:
         d = json.loads(p.read_text(encoding="utf-8"))
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:

@@ -313,3 +313,31 @@ def test_reference_from_dict_accepts_a_wideband_only_file():
     ref = reference_from_dict(d, source="wide.json")
     assert ref.lookup(None, 96000) == (-60.0, None)
     assert ref.lookup(500.0, 96000)[0] is None
+
+
+# --- the consumer's side: G = 10·lg(∫p² dt) − L_ref ---------------------------------------
+def _strength(h, rate, ref, band):
+    from roomconv.analysis.bands import filter_band
+    level, why = ref.lookup(band, rate)
+    assert why is None, why
+    x = h if band is None else filter_band(h, rate, band)
+    return 10 * math.log10(np.sum(x ** 2) / rate) - level
+
+
+@pytest.mark.parametrize("rate", [44100, 48000, 96000])
+def test_the_source_itself_at_r_metres_has_g_of_20_lg_10_over_r(rate):
+    # Definition of G against the free-field level at 10 m (ISO 3382-1:2009 Annex A, from
+    # memory) with the inverse-square law: the free-field response at r has G = 20·lg(10/r).
+    # Reference at 48 kHz and 3 m; the response at another rate must not shift G (the
+    # per-sample sum used to add 10·lg(96000/48000) = 3.01 dB at 96 kHz).
+    h96 = band_limited_pulse()
+    ref = reference_from_response(with_noise(at_rate(h96, 48000), -110), 48000, distance_m=3.0)
+    for r in (5.0, 20.0):
+        h = at_rate(h96, rate) * (3.0 / r)         # the same source heard at r
+        want = 20 * math.log10(10.0 / r)
+        for b in bands_for_rate("octave", min(rate, 48000))[0]:
+            if b.nominal > 4000 and rate != 48000:
+                continue                           # 8 kHz: the filter's order differs by rate
+            assert _strength(h, rate, ref, b) == pytest.approx(want, abs=0.1), (r, b.nominal)
+        if rate == 48000:
+            assert _strength(h, rate, ref, None) == pytest.approx(want, abs=0.05)
