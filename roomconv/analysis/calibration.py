@@ -43,6 +43,12 @@ PULSE_WINDOW_S = (0.005, 0.050)
 #: Below this distance the source is unlikely to act as a point source, so scaling by the
 #: inverse-square law to 10 m is doubtful (common practice).
 NEAR_FIELD_M = 2.0
+#: 10·lg(1600π): a source's free-field energy at 10 m, ρc·E/(4π·10²), over its diffuse-field
+#: energy 4ρc·E/A with A in m² (Vigran 2008, eq. 4.48; ρc cancels).
+DIFFUSE_TO_10M_DB = 10.0 * math.log10(1600.0 * math.pi)
+#: Fewest positions for a reverberation-room reference (common practice: the diffuse field
+#: varies from point to point, and the spread is what tells how well the mean is known).
+MIN_ROOM_POSITIONS = 3
 
 
 @dataclass(frozen=True)
@@ -122,7 +128,8 @@ class StrengthReference:
             band_hz = band_hz.nominal
         if band_hz is None:
             if self.wideband_db is None:
-                return None, "wideband G not evaluated: the strength reference has no wideband value"
+                return None, ("wideband G not evaluated: the strength reference has no wideband "
+                              "value")
             if self.rate_hz is not None and int(rate_hz) != int(self.rate_hz):
                 return None, (f"wideband G not evaluated: the strength reference was measured at "
                               f"{self.rate_hz} Hz and the response is at {rate_hz} Hz, so their "
@@ -249,6 +256,126 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
     return StrengthReference(wideband_db=10.0 * math.log10(wide) + scale_db, bands_db=values,
                              band_set=bands, rate_hz=rate, method=method, notes=tuple(notes),
                              uncertainty_db=uncertainty)
+
+
+def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
+                                 reverberation_s: dict, surface_m2: float | None = None,
+                                 bands: str = "octave", speed_of_sound: float = 343.0
+                                 ) -> StrengthReference:
+    """Strength reference from impulse responses of the source in a reverberation room.
+
+    In a diffuse field the energy of an impulse E is ∫p² dt = 4ρc·E/A, while the same source
+    in a free field at 10 m gives ρc·E/(4π·10²); hence, per band,
+    L₁₀ = L_rev + 10·lg(A / 1 m²) − 10·lg(1600π) [+ 10·lg(1 + S·c/(8·V·f))], with the
+    equivalent absorption area A = 55.26·V/(c·T) (Sabine) and L_rev the level of the
+    energy averaged over the positions.
+
+    Parameters
+    ----------
+    responses : sequence of ndarray
+        Impulse responses (1-D, full-scale units) of the source at several positions in the
+        diffuse field (beyond the room's hall radius, away from the walls).
+    rate : int
+        Sample rate of all responses, Hz.
+    volume_m3 : float
+        Room volume, m³.
+    reverberation_s : dict
+        Nominal band centre (Hz) → reverberation time T of the room, s (T30, measured).
+    surface_m2 : float, optional
+        Room surface; when given, the Waterhouse correction 10·lg(1 + S·c/(8·V·f)) for the
+        energy held near the boundaries is added (f: exact mid-band frequency).
+    bands : {"octave", "third"}
+        Band set.
+    speed_of_sound : float
+        c, m/s.
+
+    Returns
+    -------
+    StrengthReference
+        No wideband value (T and A vary across the band); bands without T, too noisy, or
+        whose position-to-position spread leaves the mean uncertain by more than half the JND
+        of G (three standard errors above 0.5 dB) are left out with the reason in ``notes``.
+
+    Notes
+    -----
+    Each response's band energy is integrated with its noise (mean square of the last 10 %)
+    subtracted until the smoothed energy meets the noise, and the exponential tail cut off
+    there is added back from T: e(t_c)·T/(6·ln 10).
+
+    References
+    ----------
+    Vigran, T. E. (2008). Building Acoustics. Taylor & Francis, eq. 4.48 (direct and diffuse
+    field of a source in a room) and A = 55.26·V/(c·T) (Sabine).
+    ISO 3382-1:2009, Annex A (strength G against the free field at 10 m) and ISO 3741
+    (sound power in reverberation rooms, Waterhouse correction) — from memory.
+    Lundeby, A., Vigran, T. E., Bietz, H., Vorländer, M. (1995). Uncertainties of measurements
+    in room acoustics. Acustica 81, 344–355 (noise from the tail; compensation of the energy
+    cut off).
+    """
+    items = [np.asarray(h, dtype=np.float64).reshape(-1) for h in responses]
+    if not items:
+        raise InputError("the reverberation-room method needs at least one response")
+    if len(items) < MIN_ROOM_POSITIONS:
+        raise InputError(f"the reverberation-room method needs responses at {MIN_ROOM_POSITIONS}"
+                         f" positions or more (got {len(items)}): the diffuse field varies from "
+                         "point to point")
+    if not (isinstance(rate, (int, np.integer)) and rate > 0):
+        raise InputError(f"sample rate {rate!r} is not a positive whole number of Hz")
+    for name, v in (("room volume", volume_m3), ("speed of sound", speed_of_sound)):
+        if not (_is_number(v) and math.isfinite(v) and v > 0):
+            raise InputError(f"{name} {v!r} is not a finite number above 0")
+    if surface_m2 is not None and not (_is_number(surface_m2) and math.isfinite(surface_m2)
+                                       and surface_m2 > 0):
+        raise InputError(f"room surface {surface_m2!r} is not a finite number above 0")
+    if bands not in BAND_SETS:
+        raise InputError(f"unknown band set '{bands}' (use octave or third)")
+    for i, h in enumerate(items):
+        if not np.all(np.isfinite(h)) or not np.any(h):
+            raise InputError(f"response {i + 1} is silent or holds NaN or infinite samples")
+    rate = int(rate)
+    t_by_band = {float(k): v for k, v in reverberation_s.items()}
+    band_list, notes = bands_for_rate(bands, rate)
+    notes = list(notes)
+    values, uncertainty = {}, {}
+    for b in band_list:
+        t = t_by_band.get(float(b.nominal))
+        if t is None:
+            notes.append(f"{b.label} Hz band left out: no reverberation time given for it")
+            continue
+        if not (_is_number(t) and math.isfinite(t) and t > 0):
+            raise InputError(f"reverberation time {t!r} s for the {b.label} Hz band is not a "
+                             "finite number above 0")
+        levels, why = [], None
+        for h in items:
+            e, why = _diffuse_energy(filter_band(h, rate, b), rate, b.bandwidth, float(t))
+            if e is None:
+                break
+            levels.append(10.0 * math.log10(e))
+        if why is not None:
+            notes.append(f"{b.label} Hz band left out: {why}")
+            continue
+        mean_db = 10.0 * math.log10(np.mean(10.0 ** (np.asarray(levels) / 10.0)))
+        sem = float(np.std(levels, ddof=1) / math.sqrt(len(levels)))
+        if 3.0 * sem > MAX_NOISE_ERROR_DB:
+            notes.append(f"{b.label} Hz band left out: the positions spread by "
+                         f"{np.std(levels, ddof=1):.1f} dB, leaving the mean uncertain by "
+                         f"±{3 * sem:.1f} dB (three standard errors; at most "
+                         f"{MAX_NOISE_ERROR_DB:g} dB allowed); measure at more positions")
+            continue
+        area = 24.0 * math.log(10.0) * volume_m3 / (speed_of_sound * t)   # 55.26·V/(c·T)
+        level = mean_db + 10.0 * math.log10(area) - DIFFUSE_TO_10M_DB
+        if surface_m2 is not None:
+            level += 10.0 * math.log10(1.0 + surface_m2 * speed_of_sound
+                                       / (8.0 * volume_m3 * b.exact))
+        values[float(b.nominal)] = level
+        uncertainty[float(b.nominal)] = sem
+    if surface_m2 is None:
+        notes.append("Waterhouse correction not applied (give the room surface to add it)")
+    method = (f"reverberation room of {volume_m3:g} m³, {len(items)} positions, "
+              f"A = 55.26·V/(c·T) per band"
+              + (f", Waterhouse correction for {surface_m2:g} m²" if surface_m2 else ""))
+    return StrengthReference(wideband_db=None, bands_db=values, band_set=bands, rate_hz=rate,
+                             method=method, notes=tuple(notes), uncertainty_db=uncertainty)
 
 
 def reference_to_dict(ref: StrengthReference) -> dict:
@@ -437,6 +564,35 @@ def _direct_energy(x: np.ndarray, rate: int, onset: int, *, bandwidth: float | N
                       f"deviations; at most {max_error_db:g} dB allowed); measure with more "
                       "level or less noise"), None
     return (energy / rate if per_unit_time else energy), None, sigma_db
+
+
+def _diffuse_energy(x: np.ndarray, rate: int, bandwidth: float, t60: float
+                    ) -> tuple[float | None, str | None]:
+    """∫p² dt of a reverberant band response: noise subtracted up to where the smoothed energy
+    meets the noise, plus the exponential tail beyond, from T (Lundeby et al. 1995)."""
+    e = np.square(x)
+    n = e.size
+    w = max(1, int(round(rate * max(0.01, 1.0 / bandwidth))))
+    noise = _tail_noise(e)
+    env = uniform_filter1d(e, w, mode="constant")
+    k_pk = int(np.argmax(env))
+    peak = float(env[k_pk])
+    if peak <= 0:
+        return None, "no energy in this band"
+    if noise > 0 and peak < 10 ** (MIN_BAND_INR_DB / 10) * noise:
+        return None, (f"a response stands only {10 * math.log10(peak / noise):.0f} dB above its "
+                      f"noise (at least {MIN_BAND_INR_DB:.0f} dB needed)")
+    after = np.flatnonzero(env[k_pk:] <= max(2.0 * noise, 1e-12 * peak))
+    if after.size == 0 or k_pk + int(after[0]) >= n - int(round(0.1 * n)):
+        return None, ("a response does not decay into its noise before its last 10 %; record "
+                      "longer responses")
+    end = k_pk + int(after[0])
+    energy = float(np.sum(e[:end])) - noise * end
+    # e(t) ∝ exp(−6·ln10·t/T): the energy beyond t_c is e(t_c)·T/(6·ln 10) per unit time.
+    energy += max(float(env[end]) - noise, 0.0) * t60 * rate / (6.0 * math.log(10.0))
+    if not energy > 0:
+        return None, "no energy left once the noise is subtracted"
+    return energy / rate, None
 
 
 def _noise_error(seg: np.ndarray, tail: np.ndarray, w: int, subtracted: float) -> float:

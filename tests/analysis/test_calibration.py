@@ -3,7 +3,9 @@
 Sources named beside each check: closed forms (a sampled unit impulse of amplitude a has
 ∫p² dt = a²/fs), Parseval's theorem evaluated with numpy.fft and scipy.signal.sosfreqz
 (reference libraries), the inverse-square law of a point source in a free field, and the
-ISO 3382-1:2009 Annex A definition of G against a free-field reference at 10 m (from memory).
+ISO 3382-1:2009 Annex A definition of G against a free-field reference at 10 m (from memory),
+and for the reverberation-room method the diffuse-field relation of Vigran (2008), Building
+Acoustics, eq. 4.48, with Sabine's A = 55.26·V/(c·T).
 """
 
 import json
@@ -341,3 +343,66 @@ def test_the_source_itself_at_r_metres_has_g_of_20_lg_10_over_r(rate):
             assert _strength(h, rate, ref, b) == pytest.approx(want, abs=0.1), (r, b.nominal)
         if rate == 48000:
             assert _strength(h, rate, ref, None) == pytest.approx(want, abs=0.05)
+
+
+# --- reverberation room ---------------------------------------------------------------------
+def diffuse_responses(rate=16000, t60=5.0, amplitude=0.05, positions=8, length_s=7.0, seed=0):
+    """Our own reverberation room: Gaussian noise with an energy decay of 60 dB per T, a noise
+    floor 80 dB down. Its band energy is known by construction: amplitude²·k_b·T/(6·ln 10),
+    with k_b the band filter's energy per unit of white noise (Parseval via sosfreqz)."""
+    n = int(length_s * rate)
+    t = np.arange(n) / rate
+    rng = np.random.default_rng(seed)
+    env = amplitude * np.exp(-3 * math.log(10) * t / t60)
+    return [env * rng.standard_normal(n) + 1e-4 * amplitude * rng.standard_normal(n)
+            for _ in range(positions)]
+
+
+def test_reverberation_room_reference_against_the_diffuse_field_relation():
+    # Diffuse field ∫p² dt = 4ρc·E/A against free field at 10 m ρc·E/(4π·10²) (Vigran 2008,
+    # Building Acoustics, eq. 4.48), A = 55.26·V/(c·T) (Sabine), so
+    # L_10 = L_rev + 10·lg(A) − 10·lg(1600π) with 10·lg(1600π) = 37.0 dB.
+    from roomconv.analysis.calibration import reverberation_room_reference
+    rate, t60, amp, volume, c = 16000, 5.0, 0.05, 200.0, 343.0
+    bands = bands_for_rate("octave", rate)[0]
+    ref = reverberation_room_reference(diffuse_responses(rate, t60, amp), rate,
+                                       volume_m3=volume, reverberation_s={b.nominal: t60
+                                                                          for b in bands})
+    assert ref.wideband_db is None and ref.band_set == "octave"
+    assert len(ref.bands_db) >= 5
+    for b in bands:
+        if b.nominal not in ref.bands_db:
+            assert any(n.startswith(f"{b.label} Hz band left out") for n in ref.notes)
+            continue
+        _, resp = sosfreqz(band_sos(b, rate), worN=1 << 16, whole=True)
+        energy = amp ** 2 * np.mean(np.abs(resp) ** 2) * t60 / (6 * math.log(10))
+        area = 55.26 * volume / (c * t60)
+        want = 10 * math.log10(energy) + 10 * math.log10(area) - 37.0
+        sem = ref.uncertainty_db[b.nominal]
+        # Random: each position's band energy fluctuates (finite bandwidth × decay time);
+        # the standard error across positions bounds it. 0.02 dB: the rounded 37.0 and 55.26.
+        assert ref.bands_db[b.nominal] == pytest.approx(want, abs=3 * sem + 0.02), b.nominal
+    # Waterhouse correction 10·lg(1 + S·c/(8·V·f)) (ISO 3741, from memory).
+    with_s = reverberation_room_reference(diffuse_responses(rate, t60, amp), rate,
+                                          volume_m3=volume, surface_m2=210.0,
+                                          reverberation_s={b.nominal: t60 for b in bands})
+    for b in bands:
+        if b.nominal in ref.bands_db:
+            extra = 10 * math.log10(1 + 210.0 * c / (8 * volume * b.exact))
+            assert with_s.bands_db[b.nominal] - ref.bands_db[b.nominal] == pytest.approx(extra)
+
+
+def test_reverberation_room_needs_several_positions_and_valid_times():
+    from roomconv.analysis.calibration import reverberation_room_reference
+    resp = diffuse_responses(positions=2)
+    with pytest.raises(InputError, match="3 positions"):
+        reverberation_room_reference(resp, 16000, volume_m3=200.0, reverberation_s={500: 5.0})
+    resp = diffuse_responses(positions=3)
+    with pytest.raises(InputError, match="500 Hz"):
+        reverberation_room_reference(resp, 16000, volume_m3=200.0,
+                                     reverberation_s={500: float("nan")})
+    with pytest.raises(InputError, match="room volume"):
+        reverberation_room_reference(resp, 16000, volume_m3=-1.0, reverberation_s={500: 5.0})
+    ref = reverberation_room_reference(resp, 16000, volume_m3=200.0, reverberation_s={500: 5.0})
+    assert set(ref.bands_db) <= {500.0}
+    assert any("1k Hz band left out: no reverberation time" in n for n in ref.notes)

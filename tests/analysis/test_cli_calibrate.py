@@ -9,7 +9,8 @@ import pytest
 import soundfile as sf
 
 from roomconv.analysis.calibration import parse_strength_reference, reference_from_response
-from tests.analysis.test_calibration import _sweep_recording, at_rate, band_limited_pulse, with_noise
+from tests.analysis.test_calibration import (_sweep_recording, at_rate, band_limited_pulse,
+                                             with_noise)
 
 FS = 48000
 
@@ -123,3 +124,45 @@ def test_close_distance_is_cautioned(ref_wav, tmp_path, cli):
     path, _ = ref_wav
     code, _, err = cli("calibrate", path, "--distance", 0.5, "-o", tmp_path / "c.json")
     assert code == 0 and "point source" in err
+
+
+def test_reverberation_room_method_end_to_end(tmp_path, cli):
+    from roomconv.analysis.calibration import reverberation_room_reference
+    from tests.analysis.test_calibration import diffuse_responses
+    rate = 16000
+    resp = diffuse_responses(rate, positions=6)
+    paths = []
+    for i, h in enumerate(resp):
+        paths.append(tmp_path / f"rev{i + 1}.wav")
+        sf.write(paths[-1], h, rate, subtype="DOUBLE")
+    out = tmp_path / "cal.json"
+    spec = "125=5,250=5,500=5,1000=5,2000=5,4000=5"
+    code, _, err = cli("calibrate", *paths, "--room-volume", 200, "--room-reverberation",
+                            spec, "-o", out)
+    assert code == 0, err
+    d = json.loads(out.read_text())
+    lib = reverberation_room_reference(resp, rate, volume_m3=200.0,
+                                       reverberation_s={f: 5.0 for f in (125, 250, 500, 1000,
+                                                                         2000, 4000)})
+    assert d["wideband_db"] is None and "reverberation room" in d["method"]
+    assert {float(k): v for k, v in d["bands_db"].items()} == pytest.approx(lib.bands_db)
+    assert "Waterhouse" in err
+
+
+@pytest.mark.parametrize("extra, text", [
+    (["--distance", "3", "--room-volume", "200"], "not both"),
+    (["--room-volume", "200"], "--room-reverberation"),
+    (["--room-volume", "-5", "--room-reverberation", "500=2"], "--room-volume"),
+    (["--room-volume", "200", "--room-reverberation", "500:2"], "--room-reverberation"),
+    (["--room-volume", "200", "--room-reverberation", "500=nan"], "--room-reverberation"),
+])
+def test_method_options_are_checked(ref_wav, tmp_path, cli, extra, text):
+    path, _ = ref_wav
+    out = tmp_path / "cal.json"
+    _refused(cli, ["calibrate", path, "-o", out, *extra], text, out)
+
+
+def test_free_field_takes_one_response(ref_wav, tmp_path, cli):
+    path, _ = ref_wav
+    out = tmp_path / "cal.json"
+    _refused(cli, ["calibrate", path, path, "--distance", 3, "-o", out], "one response", out)

@@ -90,7 +90,7 @@ def test_without_loopback_the_analytic_inverse_stays_flat(rate):
     # sweep's fades, so the check band is the part of the sweep at full level, from one octave
     # above f1 (where the inverse filter's normalization is taken) to f2·exp(−fade_out/L)
     # (Farina 2000: the sweep is at frequency f1·exp(t/L) at time t).
-    s, rec, system, gain = _simulate(rate)
+    s, rec, system, _ = _simulate(rate)
     mic = rec[:, :1]
     ex = extract_ir(mic, rate, sweep=s, length_s=LENGTH_S, harmonics=False)
     card_b = np.convolve(butter(1, 15.0, "high", fs=rate)[0], [1.0, -0.3])
@@ -108,7 +108,7 @@ def test_spectral_division_is_flat_across_the_estimated_band():
     # Without a sweep description the excitation is divided out (regularized); before the
     # regularization moved outside the band this path lost tens of dB near f2.
     rate = 48000
-    s, rec, system, gain = _simulate(rate)
+    s, rec, system, _ = _simulate(rate)
     played = sweep_signal(s)
     b_hp, a_hp = butter(1, 15.0, "high", fs=rate)
     mic = rec[:, 0]
