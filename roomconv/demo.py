@@ -215,7 +215,8 @@ def _verdict(q: dict) -> dict:
     if clipped:
         v = "fail: clipped recording"
     elif inr >= REQUIRED_INR_DB["t30"]:
-        v = f"pass: T30 evaluable (peak-to-noise ratio ≥ {REQUIRED_INR_DB['t30']:.0f} dB)"
+        v = ("pass: T30 evaluable (impulse-to-noise ratio (INR) "
+             f"≥ {REQUIRED_INR_DB['t30']:.0f} dB)")
     elif inr >= REQUIRED_INR_DB["t20"]:
         v = "limited: T20 only"
     else:

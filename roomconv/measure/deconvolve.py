@@ -206,21 +206,38 @@ def _zero_indices(sweep: Sweep) -> list[int]:
     return [sweep.n_pre + r * sweep.n_period + sweep.n_sweep - 1 for r in range(sweep.repeats)]
 
 
-def _band_weights(f: np.ndarray, band: tuple[float, float], transition_oct: float = 1 / 3):
-    """1 inside the band, 0 outside, raised-cosine over ``transition_oct`` octaves (log axis)."""
+def _band_weights(f: np.ndarray, band: tuple[float, float], rate: int,
+                  transition_oct: float = 1 / 3) -> np.ndarray:
+    """1 across ``band``, 0 well outside it, raised-cosine transitions *outside* the band.
+
+    The upper transition runs from f2 up to f2·2^transition_oct (or to Nyquist, whichever
+    comes first; none if f2 is Nyquist), the lower one from f1·2^−transition_oct up to f1, on
+    a log-frequency axis. Keeping both transitions outside [f1, f2] is what keeps a divided
+    response flat up to the swept band's edges: a transition inside the band would weigh the
+    regularization in where the sweep still carries full energy.
+    """
     lo, hi = band
+    nyq = rate / 2.0
     with np.errstate(divide="ignore"):
         lf = np.log2(np.maximum(f, 1e-12))
     w = np.ones_like(f)
-    for edge, sign in ((np.log2(lo), 1), (np.log2(hi), -1)):
-        x = sign * (lf - edge) / transition_oct  # > 0 inside
-        part = np.clip(x, 0, 1)
-        w *= 0.5 - 0.5 * np.cos(np.pi * part)
+    # Below f1: rises from 0 at f1/2^t to 1 at f1.
+    x_lo = np.clip((lf - (np.log2(lo) - transition_oct)) / transition_oct, 0.0, 1.0)
+    w *= 0.5 - 0.5 * np.cos(np.pi * x_lo)
+    top = min(hi * 2.0 ** transition_oct, nyq)
+    if top > hi * (1 + 1e-9):
+        # Above f2: falls from 1 at f2 to 0 at ``top`` (Nyquist at the latest).
+        x_hi = np.clip((np.log2(top) - lf) / (np.log2(top) - np.log2(hi)), 0.0, 1.0)
+        w *= 0.5 - 0.5 * np.cos(np.pi * x_hi)
     return w
 
 
-def _regularized_inverse(P: np.ndarray, f: np.ndarray, band) -> np.ndarray:
+def _regularized_inverse(P: np.ndarray, f: np.ndarray, band, rate: int) -> np.ndarray:
     """conj(P) / (|P|² + ε(f)) with ε small in band and large outside (Kirkeby-style).
+
+    ε is 10⁻⁸ of the spectrum's peak power across the band (it only keeps the division
+    finite) and rises to the peak power itself outside, with the transitions of
+    :func:`_band_weights` lying outside the band.
 
     References
     ----------
@@ -229,7 +246,7 @@ def _regularized_inverse(P: np.ndarray, f: np.ndarray, band) -> np.ndarray:
     """
     p2 = np.abs(P) ** 2
     top = p2.max()
-    w = _band_weights(f, band)
+    w = _band_weights(f, band, rate)
     eps = top * (1e-8 * w + 1.0 * (1 - w))
     return np.conj(P) / (p2 + eps)
 
@@ -238,7 +255,7 @@ def _spectral_division(y, exc, rate, band) -> tuple[np.ndarray, int]:
     nfft = sfft.next_fast_len(y.shape[0] + exc.size)
     P = sfft.rfft(exc, nfft)
     f = sfft.rfftfreq(nfft, 1.0 / rate)
-    Hinv = _regularized_inverse(P, f, band)
+    Hinv = _regularized_inverse(P, f, band, rate)
     h = sfft.irfft(sfft.rfft(y, nfft, axis=0) * Hinv[:, None], nfft, axis=0)
     # Keep a stretch of negative time in front so that sample index z is zero lag.
     z = min(nfft // 4, int(rate))
@@ -300,7 +317,7 @@ def _divide_by_reference(ext, mics, ref, rate, band, n_out, pre):
     nfft = sfft.next_fast_len(2 * ext.shape[0])
     f = sfft.rfftfreq(nfft, 1.0 / rate)
     R = sfft.rfft(h_ref, nfft)
-    Rinv = _regularized_inverse(R, f, band)
+    Rinv = _regularized_inverse(R, f, band, rate)
     H = sfft.rfft(ext[:, mics], nfft, axis=0) * Rinv[:, None]
     h = sfft.irfft(H, nfft, axis=0)[:n_out]
     return h, max(latency, 0)

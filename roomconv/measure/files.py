@@ -99,7 +99,7 @@ def format_quality(quality: dict) -> str:
                      f"{rec['clipped_samples'][c]}{nf_txt}")
     ir = quality.get("ir", {})
     for c, inr in enumerate(ir.get("inr_db", [])):
-        lines.append(f"  IR {c}: peak-to-noise ratio {inr:.1f} dB, peak at sample "
+        lines.append(f"  IR {c}: impulse-to-noise ratio (INR) {inr:.1f} dB, peak at sample "
                      f"{ir['peak_sample'][c]}")
     if "reference_latency_samples" in quality:
         lines.append(f"  loopback latency removed: {quality['reference_latency_samples']} samples")

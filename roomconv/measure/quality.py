@@ -7,9 +7,9 @@ from __future__ import annotations
 
 import numpy as np
 
-#: Peak-to-noise ratios an evaluation range needs: the range itself plus 10 dB above the noise
-#: (ISO 3382-1:2009, 5.3.3 / ISO 3382-2:2008, 5.3.3 — from memory). EDT 0..-10, T20 -5..-25,
-#: T30 -5..-35 dB.
+#: Impulse-to-noise ratios (INR) an evaluation range needs: the range itself plus 10 dB above
+#: the noise (ISO 3382-1:2009, 5.3.3 / ISO 3382-2:2008, 5.3.3 — from memory). EDT 0..-10,
+#: T20 -5..-25, T30 -5..-35 dB.
 REQUIRED_INR_DB = {"edt": 20.0, "t20": 35.0, "t30": 45.0}
 
 CLIP_LEVEL = 0.999
@@ -66,7 +66,7 @@ def energy_envelope(h: np.ndarray, rate: int, interval_s: float = 0.01) -> tuple
 
 def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
                  tail_fraction: float = 0.1) -> tuple[float, float]:
-    """Peak-to-noise ratio (dB) of a 1-D IR from its smoothed energy envelope.
+    """Impulse-to-noise ratio (INR, dB) of a 1-D IR from its smoothed energy envelope.
 
     The noise is the mean energy of the last ``tail_fraction`` of the response, the peak the
     largest interval mean. Returns ``(inr_db, noise_db_re_peak_sample)``.
@@ -82,11 +82,11 @@ def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
 
 
 def inr_warnings(inr_db: float, label: str) -> list[str]:
-    """Plain-language warnings for what a peak-to-noise ratio rules out."""
+    """Plain-language warnings for what an impulse-to-noise ratio (INR) rules out."""
     out = []
     for key in ("t30", "t20", "edt"):
         need = REQUIRED_INR_DB[key]
         if inr_db < need:
-            out.append(f"{label}: peak-to-noise ratio {inr_db:.1f} dB is below the {need:.0f} dB "
-                       f"that {key.upper()} needs; it will not be evaluated")
+            out.append(f"{label}: impulse-to-noise ratio (INR) {inr_db:.1f} dB is below the "
+                       f"{need:.0f} dB that {key.upper()} needs; it will not be evaluated")
     return out

@@ -40,7 +40,8 @@ def test_extract_writes_ir_quality_and_harmonics(setup, cli):
     code, out, err = cli("extract", rec, "--sweep", sweep, "-o", tmp / "ir.wav",
                          "--json", tmp / "q.json", "--harmonics", tmp / "harm")
     assert code == 0, err
-    assert "peak-to-noise ratio" in out
+    assert "impulse-to-noise ratio (INR)" in out
+    assert "peak-to-noise" not in out
     ir, rate = sf.read(tmp / "ir.wav")
     assert rate == FS
     assert rel_error_db(ir, room) < -60

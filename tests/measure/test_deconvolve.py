@@ -140,3 +140,6 @@ def test_quality_warns_when_noise_rules_out_t30():
     ex = extract_ir(y, FS, sweep=WIDE, length_s=1.0)
     assert ex.quality["ir"]["inr_db"][0] < 45
     assert any("T30" in w for w in ex.quality["warnings"])
+    # One name for the idea across measurement and analysis.
+    assert any("impulse-to-noise ratio (INR)" in w for w in ex.quality["warnings"])
+    assert not any("peak-to-noise" in w for w in ex.quality["warnings"])

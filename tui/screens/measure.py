@@ -232,5 +232,6 @@ class MeasurePane(VerticalScroll):
         nxt = f"P{len(app.session) + 1}"
         app.call_from_thread(setattr, self.query_one("#ms-name", Input), "value", nxt)
         app.call_from_thread(self.query_one("#ms-status", Static).update,
-                             f"{name}: peak-to-noise ratio {min(q['ir']['inr_db']):.1f} dB; "
+                             f"{name}: impulse-to-noise ratio (INR) "
+                             f"{min(q['ir']['inr_db']):.1f} dB; "
                              + ("; ".join(q["warnings"][:2]) or "no warnings"))
