@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 
-BLOCKS = " ▁▂▃▄▅▆▇█"
-
 
 def bar_chart(rows: list[tuple[str, float | None]], width: int = 36, unit: str = "s") -> str:
     """One line per (label, value): a bar scaled to the largest value."""
