@@ -4,9 +4,10 @@ early/late balance and resampling. Each function takes and returns (samples × c
 from __future__ import annotations
 
 import numpy as np
-from scipy.signal import resample_poly
 
 from ..errors import InputError
+from ..signal import cosine_step, db_to_gain, raised_cosine
+from ..signal import resample as _resample
 from .image_source import band_weights
 from .materials import OCTAVES
 
@@ -28,7 +29,7 @@ def trim(ir: np.ndarray, rate: int, *, threshold_db: float = -60.0,
     e = np.max(np.abs(x), axis=1)
     if e.max() == 0:
         raise InputError("the response is silent; nothing to trim")
-    live = np.flatnonzero(e >= e.max() * 10 ** (threshold_db / 20))
+    live = np.flatnonzero(e >= e.max() * db_to_gain(threshold_db))
     start = max(0, live[0] - int(lead_s * rate))
     end = live[-1] + 1
     return x[start:end], int(start), int(x.shape[0] - end)
@@ -41,11 +42,10 @@ def fade(ir: np.ndarray, rate: int, *, fade_in_s: float = 0.0, fade_out_s: float
         n = min(int(round(dur * rate)), x.shape[0])
         if n <= 0:
             continue
-        w = 0.5 - 0.5 * np.cos(np.pi * (np.arange(n) + 1) / (n + 1))
         if head:
-            x[:n] *= w[:, None]
+            x[:n] *= raised_cosine(n, rising=True)[:, None]
         else:
-            x[-n:] *= w[::-1, None]
+            x[-n:] *= raised_cosine(n, rising=False)[:, None]
     return x
 
 
@@ -57,12 +57,12 @@ def normalize(ir: np.ndarray, *, peak_dbfs: float | None = None,
         pk = np.max(np.abs(x))
         if pk == 0:
             raise InputError("cannot normalize a silent response")
-        return x * (10 ** (peak_dbfs / 20) / pk)
+        return x * (db_to_gain(peak_dbfs) / pk)
     if energy_db is not None:
         en = np.sum(x * x)
         if en == 0:
             raise InputError("cannot normalize a silent response")
-        return x * np.sqrt(10 ** (energy_db / 10) / en)
+        return x * (db_to_gain(energy_db) / np.sqrt(en))
     return x
 
 
@@ -110,17 +110,13 @@ def early_late_balance(ir: np.ndarray, rate: int, gain_db: float, *, split_s: fl
     t0 = int(np.argmax(np.max(np.abs(x), axis=1)))
     t = (np.arange(x.shape[0]) - t0) / rate
     u = np.clip((t - split_s) / crossfade_s + 0.5, 0, 1)
-    g = 1 + (10 ** (gain_db / 20) - 1) * (0.5 - 0.5 * np.cos(np.pi * u))
+    g = 1 + (db_to_gain(gain_db) - 1) * cosine_step(u)
     return x * g[:, None]
 
 
 def resample(ir: np.ndarray, rate: int, new_rate: int) -> np.ndarray:
-    """Polyphase resampling with a long Kaiser-windowed filter (β = 8.6, steep near Nyquist)."""
+    """Resample to ``new_rate`` with soxr's very-high-quality filter (see
+    :func:`roomconv.signal.resample`), keeping (samples × channels)."""
     if new_rate <= 0:
         raise InputError(f"sample rate {new_rate} must be positive")
-    if new_rate == rate:
-        return _2d(ir)
-    from math import gcd
-    g = gcd(int(rate), int(new_rate))
-    up, down = int(new_rate) // g, int(rate) // g
-    return resample_poly(_2d(ir), up, down, axis=0, window=("kaiser", 8.6))
+    return _resample(_2d(ir), rate, new_rate)

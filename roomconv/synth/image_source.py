@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..signal import cosine_step, db_to_gain
 from .air import air_attenuation, speed_of_sound
 from .materials import OCTAVES
 from .room import SURFACES, RoomModel
@@ -101,8 +102,7 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     lf = np.log2(f)
     cross = [0.5 * (np.log2(a) + np.log2(b)) for a, b in zip(bands[:-1], bands[1:])]
     # up[k] = weight of "above crossover k"
-    up = [np.clip((lf - c) / transition_oct + 0.5, 0, 1) for c in cross]
-    up = [np.sin(0.5 * np.pi * u) ** 2 for u in up]
+    up = [cosine_step((lf - c) / transition_oct + 0.5) for c in cross]
     w = []
     for i in range(len(bands)):
         lo = up[i - 1] if i > 0 else np.ones_like(f)
@@ -126,7 +126,7 @@ def render_images(images: ImageSet, rate: int, n_samples: int, *, temperature_c:
     gains = images.gains[keep]
     if air:
         att = air_attenuation(np.array(images.bands, float), temperature_c, humidity_pct)
-        gains = gains * 10 ** (-np.outer(images.distance[keep], att) / 20)
+        gains = gains * db_to_gain(-np.outer(images.distance[keep], att))
     if directivity is not None:
         gains = gains * directivity[keep][:, None]
     base = np.floor(t).astype(int)

@@ -5,7 +5,6 @@ import json
 import numpy as np
 import pytest
 import soundfile as sf
-from scipy.signal import resample_poly
 
 from roomconv.analysis.parameters import room_parameters
 from roomconv.synth import edit
@@ -25,7 +24,10 @@ def test_trim_and_fades():
     y, cut0, cut1 = edit.trim(x, FS, threshold_db=-60)
     assert cut0 == 1000 - int(0.001 * FS) and cut1 >= 5000
     f = edit.fade(np.ones((100, 1)), FS, fade_out_s=50 / FS)
-    assert f[0, 0] == 1 and f[-1, 0] < 0.01 and np.all(np.diff(f[-50:, 0]) < 0)
+    assert f[0, 0] == 1 and f[-1, 0] == 0 and np.all(np.diff(f[-50:, 0]) < 0)
+    # A raised cosine (Hann half-window, Harris 1978) is 0.5 halfway through the fade.
+    g = edit.fade(np.ones((100, 1)), FS, fade_in_s=50 / FS)
+    assert g[0, 0] == 0 and g[25, 0] == pytest.approx(0.5) and g[50:, 0].min() == 1
 
 
 def test_decay_scale_changes_T_by_the_factor():
@@ -41,11 +43,35 @@ def test_decay_scale_changes_T_by_the_factor():
         assert a.t30_s == pytest.approx(0.7 * b.t30_s, rel=0.05), b.band_hz
 
 
-def test_resample_against_scipy_and_reverse():
+def _tone_rms_and_error(y, rate, f, skip):
+    """RMS of y and of its difference from the ideal sin(2πf·n/rate), edges skipped."""
+    ideal = np.sin(2 * np.pi * f * np.arange(y.size) / rate)
+    m = slice(skip, y.size - skip)
+    return np.sqrt(np.mean(y[m] ** 2)), np.sqrt(np.mean((y[m] - ideal[m]) ** 2))
+
+
+def test_resample_keeps_a_19_khz_tone():
+    # Physical criterion (sampling theorem): a 19 kHz tone lies below both Nyquist
+    # frequencies (22.05 and 24 kHz), so ideal resampling returns the same sine sampled at the
+    # new rate, rms 1/sqrt(2), same phase. Check its level within 0.1 dB, and the rms error
+    # against the ideal sine below 1e-3: a time shift δ alone gives an rms error of
+    # 2πfδ/sqrt(2), so 1e-3 also bounds any delay to below 1.2e-8 s (0.0006 samples).
+    f = 19000.0
+    x = np.sin(2 * np.pi * f * np.arange(FS) / FS)
+    y = edit.resample(x, FS, 44100)[:, 0]
+    assert y.size == 44100
+    rms, err = _tone_rms_and_error(y, 44100, f, skip=2205)
+    assert 20 * np.log10(rms * np.sqrt(2)) == pytest.approx(0.0, abs=0.1)
+    assert err < 1e-3
+    z = edit.resample(y, 44100, FS)[:, 0]
+    assert z.size == FS
+    rms, err = _tone_rms_and_error(z, FS, f, skip=2400)
+    assert 20 * np.log10(rms * np.sqrt(2)) == pytest.approx(0.0, abs=0.1)
+    assert err < 1e-3
+
+
+def test_reverse():
     x = _decay(0.2, seconds=0.5)
-    y = edit.resample(x, FS, 44100)
-    ref = resample_poly(x, 147, 160, window=("kaiser", 8.6))
-    assert np.allclose(y[:, 0], ref)
     assert np.array_equal(edit.reverse(x)[:, 0], x[::-1])
 
 
