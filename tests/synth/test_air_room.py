@@ -5,8 +5,8 @@ import pytest
 
 from roomconv.errors import InputError
 from roomconv.synth.air import air_attenuation, power_attenuation, speed_of_sound
-from roomconv.synth.materials import MATERIALS, load_materials
-from roomconv.synth.room import Absorber, Patch, RoomModel, eyring, sabine
+from roomconv.synth.materials import MATERIALS, Material, load_materials
+from roomconv.synth.room import SURFACES, Absorber, Patch, RoomModel, eyring, sabine
 
 # Exact octave mid-band frequencies 1000·10^(3x/10), 63 Hz … 8 kHz.
 EXACT = 1000 * 10 ** (0.3 * np.arange(-4, 4))
@@ -65,23 +65,31 @@ def test_sabine_matches_handbook_worked_example():
         assert got[b] == pytest.approx(T, abs=0.006), b  # the book rounds to 0.01 s
 
 
-def test_eyring_closed_form_and_sabine_limit():
-    # IEC 60050-801, 801-31-09: T = 24·ln10·V / (−c·S·ln(1 − ᾱ)).
-    room = RoomModel(10, 8, 4, {s: "carpet" for s in
-                                ("left", "right", "front", "back", "floor", "ceiling")})
-    c = speed_of_sound(20)
+def test_eyring_and_sabine_against_the_textbook_constant():
+    # With ᾱ = 1 − 1/e on every surface, −ln(1 − ᾱ) = 1 exactly, so Eyring's formula
+    # (Eyring 1930; IEC 60050-801, 801-31-09) reduces to T = 0.161·V/S and Sabine's to
+    # T = 0.161·V/(S·ᾱ); 0.161 s/m is the textbook constant 24·ln10/c for c ≈ 343 m/s
+    # (Kuttruff, Room Acoustics, ch. 5; from memory).
+    a = 1 - np.exp(-1)
+    mat = Material("e-fold", (a,) * 8, "closed-form test value")
+    room = RoomModel(10, 8, 4, {s: "e-fold" for s in SURFACES},
+                     extra_materials={"e-fold": mat})
     V, S = 320.0, 2 * (80 + 40 + 32)
-    for b in (500, 2000):
-        a = MATERIALS["carpet"].at(b)
-        assert eyring(room, air=False)[b] == pytest.approx(
-            24 * np.log(10) * V / (-c * S * np.log(1 - a)), rel=1e-9)
-    # As ᾱ → 0, −ln(1−ᾱ) → ᾱ and Eyring → Sabine.
-    hard = RoomModel(10, 8, 4, {s: "marble" for s in
-                                ("left", "right", "front", "back", "floor", "ceiling")})
-    s, e = sabine(hard, air=False), eyring(hard, air=False)
+    for b in (125, 1000, 4000):
+        assert eyring(room, air=False)[b] == pytest.approx(0.161 * V / S, rel=1e-3)
+        assert sabine(room, air=False)[b] == pytest.approx(0.161 * V / (S * a), rel=1e-3)
+    # A room that absorbs everything has no reverberation by Eyring (the limit ᾱ → 1),
+    # while Sabine's formula still gives 0.161·V/S: the known failing of Sabine in dead
+    # rooms that Eyring's paper was written to fix.
+    dead = RoomModel(10, 8, 4, {s: "anechoic" for s in SURFACES})
+    assert eyring(dead, air=False)[1000] == 0.0
+    assert sabine(dead, air=False)[1000] == pytest.approx(0.161 * V / S, rel=1e-3)
+    # As ᾱ → 0, −ln(1−ᾱ) → ᾱ and Eyring → Sabine from below (series of the logarithm).
+    hard = RoomModel(10, 8, 4, {s: "marble" for s in SURFACES})
+    s_, e_ = sabine(hard, air=False), eyring(hard, air=False)
     for b in (125, 1000):
-        assert e[b] == pytest.approx(s[b], rel=0.01)
-        assert e[b] < s[b]
+        assert e_[b] == pytest.approx(s_[b], rel=0.01)
+        assert e_[b] < s_[b]
 
 
 def test_air_term_shortens_high_bands():
