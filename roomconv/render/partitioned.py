@@ -16,10 +16,32 @@ from scipy import fft as sfft
 
 from ..errors import InputError
 
+__all__ = ["Routing", "routing_for", "UniformPartitionedConvolver", "OverlapSaveConvolver",
+           "NonUniformConvolver", "overlap_save_size", "offline_convolver", "plan_partition",
+           "live_block_size", "MAX_OVERLAP_SAVE"]
+
 
 @dataclass(frozen=True)
 class Routing:
-    """Which input feeds which output through which IR channel."""
+    """Which input feeds which output through which IR channel.
+
+    Channels are numbered from 0 here (array indices); front ends show them from 1.
+
+    Attributes
+    ----------
+    n_in, n_out : int
+        Number of input and output channels.
+    path_in, path_out, path_ir : tuple of int
+        For each path: its input channel, output channel and IR channel.
+    name : str
+        A short description ("mono", "per-channel", "true stereo", ...).
+
+    Examples
+    --------
+    >>> r = routing_for(2, 4)
+    >>> r.name, r.n_paths
+    ('true stereo', 4)
+    """
 
     n_in: int
     n_out: int
@@ -30,10 +52,20 @@ class Routing:
 
     @property
     def n_paths(self) -> int:
+        """Number of (input, IR channel, output) paths."""
         return len(self.path_in)
 
     def mix_matrix(self) -> np.ndarray:
-        """(paths × outputs) 0/1 matrix that sums path results into outputs."""
+        """(paths × outputs) 0/1 matrix that sums path results into outputs.
+
+        Examples
+        --------
+        >>> routing_for(2, 4).mix_matrix()
+        array([[1., 0.],
+               [0., 1.],
+               [1., 0.],
+               [0., 1.]])
+        """
         m = np.zeros((self.n_paths, self.n_out))
         m[np.arange(self.n_paths), list(self.path_out)] = 1.0
         return m
@@ -51,6 +83,28 @@ def routing_for(n_in: int, n_ir: int, *, outputs: int | None = None, shared: boo
       left input → left output, left → right, right → left, right → right).
     - N in, N·M IRs with ``outputs=M``: a general matrix, IR channel i·M + o feeds input i to
       output o.
+
+    Parameters
+    ----------
+    n_in : int
+        Input channels of the dry signal.
+    n_ir : int
+        Channels of the impulse response.
+    outputs : int, optional
+        Output channels of a general matrix (IR channels input-major).
+    shared : bool
+        Use IR channel 0 for every input.
+
+    Returns
+    -------
+    Routing
+
+    Examples
+    --------
+    >>> routing_for(1, 2).name
+    'mono to 2'
+    >>> routing_for(2, 6, outputs=3).path_ir
+    (0, 1, 2, 3, 4, 5)
     """
     if outputs is not None:
         if n_ir != n_in * outputs:
@@ -274,11 +328,33 @@ class UniformPartitionedConvolver:
 
     @property
     def partitions(self) -> int:
+        """Number of partitions of length ``block`` the response is cut into."""
         return self._stage.P
 
     def process(self, block: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """Take up to ``block`` new samples (a short last block is zero-padded) and return
-        the next ``block`` output samples, written into ``out`` when given."""
+        """Convolve the next block.
+
+        Parameters
+        ----------
+        block : ndarray, shape (n,) or (n, inputs), n ≤ ``self.block``
+            New input samples; a short last block is zero-padded.
+        out : ndarray, optional
+            Written with the result (its first ``len(out)`` samples) when given.
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution.
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(0).standard_normal((2, 300))
+        >>> eng = UniformPartitionedConvolver(h, routing_for(1, 1), 64)
+        >>> y = np.concatenate([eng.process(x[i:i + 64]) for i in range(0, 640, 64)])
+        >>> bool(np.allclose(y[:599, 0], fftconvolve(x, h)))
+        True
+        """
         x = _input_block(block, self.block, self.routing.n_in)
         cur = self._stage.current
         cur[: x.shape[0]] = x
@@ -298,6 +374,17 @@ class UniformPartitionedConvolver:
 class OverlapSaveConvolver:
     """Single-partition overlap-save for offline work: one FFT of size N per hop of
     N − taps + 1 samples, paths combined into outputs before the inverse transform.
+
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+        From :func:`routing_for`.
+    fft_size : int, optional
+        N; by default :func:`overlap_save_size`.
+    precision : 'float64' or 'float32'
+    workers : int, optional
+        Threads sharing the channels' transforms.
 
     Each :meth:`process` call takes ``block`` (= the hop) samples and returns y[iB:(i+1)B].
 
@@ -360,9 +447,29 @@ class OverlapSaveConvolver:
         out[:, o] = sfft.irfft(Y, self.n)[m1:m1 + out.shape[0]]
 
     def process(self, block: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """Take up to ``block`` new samples (samples × inputs; a short last block is
-        zero-padded) and return the next ``block`` output samples, written into ``out``
-        (at most ``block`` × outputs) when given."""
+        """Convolve the next hop.
+
+        Parameters
+        ----------
+        block : ndarray, shape (n,) or (n, inputs), n ≤ ``self.block``
+            New input samples; a short last block is zero-padded.
+        out : ndarray, optional
+            At most ``block`` × outputs, written with the result when given.
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution (``out`` when given).
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(1).standard_normal((2, 1000))
+        >>> eng = OverlapSaveConvolver(h, routing_for(1, 1), fft_size=4096)
+        >>> y = np.concatenate([eng.process(x), eng.process(np.zeros(0))])
+        >>> bool(np.allclose(y[:1999, 0], fftconvolve(x, h)))
+        True
+        """
         x = _input_block(block, self.block, self.routing.n_in)
         if out is None:
             out = np.empty((self.block, self.routing.n_out), dtype=self._inputs.dtype)
@@ -384,6 +491,22 @@ def overlap_save_size(taps: int, precision: str = "float64") -> int:
     interleaved): for stereo through a 4 s IR, 3·2^18 ran 12 % ahead of 2^19 while the
     machine was quiet but 15 % behind it while it was busy, so the smaller, steadier size
     is used; true stereo through 6 s IRs was fastest at 5·2^17; float32 at 2^20 for both.
+
+    Parameters
+    ----------
+    taps : int
+        Length of the response, samples.
+    precision : 'float64' or 'float32'
+
+    Returns
+    -------
+    int
+        FFT size N, samples.
+
+    Examples
+    --------
+    >>> overlap_save_size(48000), overlap_save_size(48000, "float32")  # 2^17 ≥ 2.2·48000
+    (131072, 262144)
     """
     if precision == "float32":
         return max(1 << 14, 1 << int(np.ceil(np.log2(3.0 * taps))))
@@ -400,7 +523,25 @@ def offline_convolver(ir, routing: Routing, *, precision: str = "float64",
     """The fastest exact engine for a whole-file render: single-block overlap-save while the
     response fits a 2^21-point FFT with a hop of at least a third of it (about 29 s of
     response at 48 kHz), uniformly partitioned overlap-save beyond that. ``workers``
-    threads (default: every core) share the channels' transforms."""
+    threads (default: every core) share the channels' transforms.
+
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+    precision : 'float64' or 'float32'
+    workers : int, optional
+
+    Returns
+    -------
+    OverlapSaveConvolver or UniformPartitionedConvolver
+        Either has ``process(block, out=None)``, ``block`` and ``latency_samples``.
+
+    Examples
+    --------
+    >>> type(offline_convolver(np.ones(100), routing_for(1, 1))).__name__
+    'OverlapSaveConvolver'
+    """
     taps = np.asarray(ir).shape[0]
     workers = workers or os.cpu_count() or 1
     n = overlap_save_size(taps, precision)
@@ -423,6 +564,30 @@ def plan_partition(taps: int, block: int, *, ratio: int = 4, max_block: int = 16
     after its input is complete, so its segment may start no earlier than 2·b_s − block; each
     stage therefore covers exactly up to where the next may start, and the largest block
     takes the rest.
+
+    Parameters
+    ----------
+    taps : int
+        Length of the response, samples.
+    block : int
+        Callback block size, samples (the first stage's block).
+    ratio : int
+        Growth factor of the block from one stage to the next.
+    max_block : int
+        Largest block; the last stage takes the rest of the response.
+
+    Returns
+    -------
+    list of (block, offset, length)
+        Per stage, in samples; the offsets and lengths tile ``[0, taps)``.
+
+    Examples
+    --------
+    >>> plan = plan_partition(10000, 128)
+    >>> plan
+    [(128, 0, 896), (512, 896, 3072), (2048, 3968, 6032)]
+    >>> sum(length for _, _, length in plan)
+    10000
 
     References
     ----------
@@ -457,6 +622,16 @@ class NonUniformConvolver:
     its input is complete, spreads its multiply-accumulate over the next b/block calls and
     adds its inverse FFT's output into a delay line, so no call does a whole stage's work.
 
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+    block : int
+        Callback block size, 1–65536 samples.
+    precision : 'float64' or 'float32'
+    ratio, max_block : int
+        Passed to :func:`plan_partition`.
+
     References
     ----------
     Gardner, W. G. (1995), J. Audio Eng. Soc. 43(3), 127–136; Wefers, F. (2015).
@@ -489,6 +664,27 @@ class NonUniformConvolver:
         self.latency_samples = B
 
     def process(self, block: np.ndarray) -> np.ndarray:
+        """Convolve the next callback block.
+
+        Parameters
+        ----------
+        block : ndarray, exactly ``self.block`` samples (× inputs)
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution.
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(2).standard_normal((2, 4096))
+        >>> eng = NonUniformConvolver(h, routing_for(1, 1), 64)
+        >>> xs = np.concatenate([x, np.zeros(4096)])
+        >>> y = np.concatenate([eng.process(xs[i:i + 64]) for i in range(0, 8192, 64)])
+        >>> bool(np.allclose(y[:8191, 0], fftconvolve(x, h)))
+        True
+        """
         B = self.block
         x = np.asarray(block, dtype=np.float64).reshape(B, self.routing.n_in)
         t0 = self._t
@@ -537,7 +733,22 @@ class NonUniformConvolver:
 
 def live_block_size(requested: int = 256) -> int:
     """Callback block size for live use: the requested latency, 32–1024 samples, rounded to
-    a power of two (offline renders choose their own size in :func:`offline_convolver`)."""
+    a power of two (offline renders choose their own size in :func:`offline_convolver`).
+
+    Parameters
+    ----------
+    requested : int
+        Wanted block size, samples.
+
+    Returns
+    -------
+    int
+
+    Examples
+    --------
+    >>> live_block_size(200)
+    256
+    """
     if not 32 <= requested <= 1024:
         raise InputError(f"live block size {requested} is outside 32..1024")
     return 1 << int(np.round(np.log2(requested)))
