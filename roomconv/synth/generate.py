@@ -14,16 +14,35 @@ from .materials import OCTAVES
 from .room import RoomModel, eyring, max_reverberation, sabine
 from .tail import band_noise, diffuse_tail
 
+__all__ = ["Receivers", "SynthResult", "synthesize"]
+
+#: Mean power of a cardioid ½ + ½·cos θ in a diffuse field relative to an omni:
+#: ∫(½ + ½cos θ)² dΩ / 4π = 1/3 (closed form).
+CARDIOID_DIFFUSE_POWER = 1.0 / 3.0
+#: Default length beyond the longest decay: 1.2·T is 72 dB of decay (our choice, below any
+#: practical noise floor), plus the direct sound's travel time and 0.1 s.
+LENGTH_DECAYS = 1.2
+LENGTH_MARGIN_S = 0.1
+
 
 @dataclass
 class Receivers:
-    """Receiver arrangement: 'mono', 'spaced' (spacing m) or 'coincident' (angle degrees)."""
+    """Receiver arrangement: 'mono', 'spaced' (spacing m) or 'coincident' (angle degrees).
+
+    Examples
+    --------
+    >>> Receivers.parse("coincident:90")
+    Receivers(kind='coincident', value=90.0)
+    >>> Receivers.parse("spaced:0.6").channels
+    2
+    """
 
     kind: str = "mono"
     value: float = 0.0
 
     @classmethod
     def parse(cls, text: str | None) -> "Receivers":
+        """Read ``mono``, ``spaced:METRES`` or ``coincident:DEGREES`` (None means mono)."""
         if text in (None, "", "mono"):
             return cls()
         kind, _, val = text.partition(":")
@@ -40,11 +59,29 @@ class Receivers:
 
     @property
     def channels(self) -> int:
+        """1 for mono, 2 for either pair."""
         return 1 if self.kind == "mono" else 2
 
 
 @dataclass
 class SynthResult:
+    """What :func:`synthesize` returns.
+
+    Attributes
+    ----------
+    ir : ndarray, shape (samples, channels)
+    rate : int
+        Hz.
+    sabine, eyring : dict
+        Predicted reverberation time per band, {band_hz: s}.
+    used_rt : dict
+        Reverberation time per band given to the tail, s.
+    mixing_time_s : float
+    image_count : int
+        Images rendered (largest over the channels).
+    notes : list of str
+    """
+
     ir: np.ndarray                 #: (samples, channels)
     rate: int
     sabine: dict
@@ -91,6 +128,24 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
         Which formula sets the tail's decay when ``rt`` does not.
     seed : int
         Makes the tail reproducible.
+    length_s : float, optional
+        Length of the response, s (default: 1.2 × the longest T plus the direct path).
+    air : bool
+        Air absorption (ISO 9613-1) on the image sources and as the limit on ``rt``.
+
+    Returns
+    -------
+    SynthResult
+
+    Examples
+    --------
+    >>> from .room import RoomModel
+    >>> res = synthesize(RoomModel(6, 5, 3), (1, 1, 1.5), (4, 3, 1.2), length_s=0.3)
+    >>> res.ir.shape
+    (14400, 1)
+    >>> r = float(np.linalg.norm(np.subtract((1, 1, 1.5), (4, 3, 1.2))))
+    >>> int(np.argmax(np.abs(res.ir[:, 0]))) == round(r / speed_of_sound(20) * 48000)
+    True
 
     References
     ----------
@@ -120,9 +175,11 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
                          "no reverberation to synthesize")
     c = speed_of_sound(room.temperature_c)
     t_mix = np.sqrt(room.volume) / 1000.0
+    # The crossfade from images to tail spans half the mixing time (our choice).
     fade = 0.5 * t_mix
     if length_s is None:
-        length_s = min(30.0, 1.2 * max(used.values()) + np.linalg.norm(src - rcv) / c + 0.1)
+        length_s = min(30.0, LENGTH_DECAYS * max(used.values())
+                       + np.linalg.norm(src - rcv) / c + LENGTH_MARGIN_S)
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")
@@ -130,6 +187,8 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
     positions = _receiver_positions(room, rcv, src, receivers)
     t = np.arange(n) / rate
     u = np.clip((t - (t_mix - fade / 2)) / fade, 0, 1)
+    # Equal-power (cos/sin) rather than the raised-cosine step: images and tail are
+    # uncorrelated, so their powers, not their amplitudes, must sum to one.
     w_early, w_late = np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)
     rng = np.random.default_rng(seed)
     base_noise = [band_noise(rate, n, rng) for _ in range(receivers.channels)]
@@ -149,7 +208,7 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
             vec = imgs.positions - pos
             cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
             direct = 0.5 + 0.5 * cos_t
-            tail_gain = np.sqrt(1.0 / 3.0)  # mean power of a cardioid in a diffuse field
+            tail_gain = np.sqrt(CARDIOID_DIFFUSE_POWER)
         early = render_images(imgs, rate, n, temperature_c=room.temperature_c,
                               humidity_pct=room.humidity_pct, air=air, directivity=direct)
         late = diffuse_tail(used, room.volume, rate, n, c=c, noise=base_noise[ch]) * tail_gain

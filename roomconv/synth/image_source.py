@@ -12,13 +12,22 @@ from .air import air_attenuation, speed_of_sound
 from .materials import OCTAVES
 from .room import SURFACES, RoomModel
 
-#: Half-length (taps each side) of the windowed-sinc fractional delay.
+__all__ = ["SINC_HALF", "ImageSet", "image_sources", "fractional_delay_kernel",
+           "band_weights", "render_images"]
+
+#: Half-length (taps each side) of the windowed-sinc fractional delay (our choice). The 65
+#: Hann-windowed taps are flat to within 0.003 dB up to 0.4·fs and 0.02 dB up to 0.45·fs
+#: for any fraction (evaluated from the kernel's DTFT); tests/synth/test_image_source.py
+#: checks the delays to 0.1 sample.
 SINC_HALF = 32
 
 
 @dataclass
 class ImageSet:
-    """All images up to a distance: positions, distances, per-band pressure gains."""
+    """All images up to a distance: positions, distances, per-band pressure gains.
+
+    Sorted by distance, nearest (the direct sound) first.
+    """
 
     positions: np.ndarray   #: (n, 3)
     distance: np.ndarray    #: (n,) metres
@@ -34,6 +43,34 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
     Along each axis an image sits at (1 − 2q)·s + 2nL and has met the wall at 0 |n − q| times
     and the wall at L |n| times. Its pressure gain is Π β_w^count × 1/r with β = sqrt(1 − α)
     per surface and band.
+
+    Parameters
+    ----------
+    room : RoomModel
+    source, receiver : sequence of 3 float
+        Positions, m.
+    max_distance : float, optional
+        Keep images up to this distance from the receiver, m.
+    max_order : int, optional
+        Keep images with at most this many reflections.
+    bands : sequence of float
+        Octave bands, Hz.
+
+    Returns
+    -------
+    ImageSet
+
+    Examples
+    --------
+    Direct sound and the six first-order images of a rigid box:
+
+    >>> from .room import RoomModel
+    >>> box = RoomModel(5, 4, 3, {s: "rigid" for s in SURFACES})
+    >>> imgs = image_sources(box, (1, 1, 1), (4, 3, 2), max_order=1)
+    >>> imgs.order.tolist()
+    [0, 1, 1, 1, 1, 1, 1]
+    >>> bool(np.isclose(imgs.gains[0, 0], 1 / imgs.distance[0]))
+    True
 
     References
     ----------
@@ -85,7 +122,28 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
 def fractional_delay_kernel(frac: np.ndarray, half: int = SINC_HALF) -> np.ndarray:
     """Hann-windowed sinc kernels placing a unit impulse at ``frac`` ∈ [0, 1) past tap ``half``.
 
-    Returns shape (len(frac), 2·half + 1); tap k sits at offset k − half.
+    Parameters
+    ----------
+    frac : ndarray
+        Fractional delays, samples, in [0, 1).
+    half : int
+        Taps on each side of the centre.
+
+    Returns
+    -------
+    ndarray, shape (len(frac), 2·half + 1)
+        Tap k sits at offset k − half.
+
+    References
+    ----------
+    Laakso, T. I., Välimäki, V., Karjalainen, M., Laine, U. K. (1996). Splitting the unit
+    delay. IEEE Signal Processing Magazine 13(1), 30–60 (windowed-sinc fractional delay).
+
+    Examples
+    --------
+    >>> k = fractional_delay_kernel(np.array([0.0, 0.5]))
+    >>> k.shape, float(k[0, SINC_HALF])
+    ((2, 65), 1.0)
     """
     k = np.arange(-half, half + 1)[None, :] - frac[:, None]
     w = 0.5 + 0.5 * np.cos(np.pi * k / (half + 1))
@@ -96,7 +154,26 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     """Zero-phase octave weights that sum to exactly one at every frequency.
 
     Crossovers lie at the geometric mean of neighbouring centres; each crossover fades with
-    cos²/sin² over ``transition_oct`` octaves (a partition of unity). Shape (bands, freqs).
+    cos²/sin² over ``transition_oct`` octaves (a partition of unity).
+
+    Parameters
+    ----------
+    freqs : ndarray
+        Frequencies, Hz.
+    bands : sequence of float
+        Octave mid-band frequencies, Hz.
+    transition_oct : float
+        Width of each crossover, octaves.
+
+    Returns
+    -------
+    ndarray, shape (bands, freqs)
+
+    Examples
+    --------
+    >>> w = band_weights(np.array([50.0, 700.0, 1414.2, 20000.0]))
+    >>> w.sum(axis=0)
+    array([1., 1., 1., 1.])
     """
     f = np.maximum(np.asarray(freqs, float), 1e-6)
     lf = np.log2(f)
@@ -117,7 +194,33 @@ def render_images(images: ImageSet, rate: int, n_samples: int, *, temperature_c:
     """Place every image at its exact arrival time per band and combine the bands.
 
     Sample 0 is the moment of emission: an image at distance r arrives at r/c seconds.
-    ``directivity`` (n,) multiplies each image's gain (receiver pattern).
+
+    Parameters
+    ----------
+    images : ImageSet
+    rate : int
+        Sample rate, Hz.
+    n_samples : int
+        Length of the result, samples.
+    temperature_c, humidity_pct : float
+        Air, for the speed of sound and (when ``air``) ISO 9613-1 absorption.
+    air : bool
+        Apply air absorption along each image's path.
+    directivity : ndarray, optional
+        (n,) factor on each image's gain (the receiver's pattern).
+
+    Returns
+    -------
+    ndarray, shape (n_samples,)
+
+    Examples
+    --------
+    >>> from .room import RoomModel
+    >>> free = RoomModel(5, 4, 3, {s: "anechoic" for s in SURFACES})
+    >>> imgs = image_sources(free, (1, 1, 1), (4, 3, 2), max_order=0)
+    >>> h = render_images(imgs, 48000, 2048, air=False)
+    >>> bool(np.isclose(h.sum(), 1 / imgs.distance[0], rtol=1e-3))  # DC gain 1/r
+    True
     """
     c = speed_of_sound(temperature_c)
     t = images.distance / c * rate

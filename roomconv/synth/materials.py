@@ -20,6 +20,10 @@ import numpy as np
 
 from ..errors import InputError, describe
 
+__all__ = ["OCTAVES", "Material", "MATERIALS", "check_material", "load_materials",
+           "get_material"]
+
+#: Octave bands of the absorption tables, nominal mid-band frequencies in Hz (IEC 61260-1).
 OCTAVES = (63, 125, 250, 500, 1000, 2000, 4000, 8000)
 
 _HB = "Master Handbook of Acoustics / sengpielaudio absorption table"
@@ -27,12 +31,31 @@ _HB = "Master Handbook of Acoustics / sengpielaudio absorption table"
 
 @dataclass(frozen=True)
 class Material:
+    """A surface material: random-incidence absorption coefficient per octave band.
+
+    Attributes
+    ----------
+    name : str
+    alpha : tuple of float
+        One value in [0, 1] per band of :data:`OCTAVES`.
+    source : str
+        Where the values come from.
+    note : str
+        Anything a user should know (e.g. extrapolated bands).
+
+    Examples
+    --------
+    >>> MATERIALS["carpet"].at(1000)
+    0.37
+    """
+
     name: str
     alpha: tuple[float, ...]  #: one value per band in OCTAVES
     source: str
     note: str = ""
 
     def at(self, band_hz: float) -> float:
+        """α in the octave band ``band_hz`` (one of :data:`OCTAVES`)."""
         return self.alpha[OCTAVES.index(int(band_hz))]
 
 
@@ -70,6 +93,13 @@ MATERIALS: dict[str, Material] = {m.name: m for m in [
 
 
 def check_material(m: Material) -> Material:
+    """Return ``m`` if it has one α in [0, 1] per octave band; raise :class:`InputError` else.
+
+    Examples
+    --------
+    >>> check_material(Material("x", (0.5,) * 8, "test")).name
+    'x'
+    """
     if len(m.alpha) != len(OCTAVES):
         raise InputError(f"material '{m.name}' needs {len(OCTAVES)} absorption values "
                          f"({', '.join(map(str, OCTAVES))} Hz), got {len(m.alpha)}")
@@ -81,7 +111,25 @@ def check_material(m: Material) -> Material:
 
 def load_materials(path) -> dict[str, Material]:
     """Read user materials: ``{"name": {"alpha": [8 values], "source": "..."}}`` in JSON or
-    TOML (``[name]`` tables with the same keys). Six values (125 Hz–4 kHz) are extended."""
+    TOML (``[name]`` tables with the same keys). Six values (125 Hz–4 kHz) are extended.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A ``.json`` or ``.toml`` file.
+
+    Returns
+    -------
+    dict of str to Material
+
+    Examples
+    --------
+    >>> import json, pathlib, tempfile
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "m.json"
+    >>> _ = p.write_text(json.dumps({"felt": {"alpha": [0.1, 0.2, 0.4, 0.6, 0.7, 0.7]}}))
+    >>> load_materials(p)["felt"].alpha
+    (0.1, 0.1, 0.2, 0.4, 0.6, 0.7, 0.7, 0.7)
+    """
     p = Path(path)
     if not p.exists():
         raise InputError(describe(p, "materials file not found"))
@@ -102,6 +150,13 @@ def load_materials(path) -> dict[str, Material]:
 
 
 def get_material(name: str, extra: dict[str, Material] | None = None) -> Material:
+    """The material called ``name`` from the built-in table or ``extra`` (which wins).
+
+    Examples
+    --------
+    >>> get_material("plaster").source.startswith("Master Handbook")
+    True
+    """
     table = {**MATERIALS, **(extra or {})}
     if name not in table:
         raise InputError(f"unknown material '{name}' (see 'roomconv rooms' for the list)")
