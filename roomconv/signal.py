@@ -179,7 +179,9 @@ def resample(x: ArrayLike, rate: int, new_rate: int) -> NDArray[np.float64]:
             raise InputError(f"sample {name} {r} Hz must be a positive number")
     a = np.asarray(x, dtype=np.float64)
     if a.ndim not in (1, 2):
-        raise InputError(f"cannot resample an array of {a.ndim} dimensions (use samples × channels)")
+        raise InputError(
+            f"cannot resample an array of {a.ndim} dimensions (use samples × channels)"
+        )
     if new_rate == rate:
         return a.copy()
     y = soxr.resample(np.ascontiguousarray(a), rate, new_rate, quality="VHQ")

@@ -27,8 +27,7 @@ def test_library_refusal_caught_as_value_error():
 def test_cli_exit_code_2_for_a_bad_room(cli, tmp_path):
     # A receiver outside the room is refused by the library as InputError, which the CLI
     # reports in one line with exit code 2 (the convention for usage errors).
-    code, out, err = cli("synth", "--room", "4x3x2.5", "--receiver", "9,1,1",
-                         tmp_path / "ir.wav")
+    code, out, err = cli("synth", "--room", "4x3x2.5", "--receiver", "9,1,1", tmp_path / "ir.wav")
     assert code == 2
     assert "receiver" in err and "outside the room" in err
     assert not (tmp_path / "ir.wav").exists()

@@ -17,9 +17,9 @@ __all__ = ["PeakMeter", "TruePeakMeter", "LoudnessMeter", "k_weighting_sos"]
 
 # Analogue prototypes of the two K-weighting stages. Evaluated by the bilinear transform at
 # 48 kHz they give the coefficients published in ITU-R BS.1770-4, Tables 1 and 2 (to better
-# than 1e-8, checked in tests/render/test_levels.py); at any other rate the same response. The values are the
-# widely used fit to those tables (published with the open-source libebur128 and in
-# B. Mansbridge's unofficial write-up of the BS.1770 filters; not in the standard itself).
+# than 1e-8, checked in tests/render/test_levels.py); at any other rate the same response.
+# The values are the widely used analogue fit to those tables, as distributed with the
+# open-source libebur128 (from memory; the standard itself prints only the 48 kHz table).
 _SHELF_HZ = 1681.974450955533
 _SHELF_GAIN_DB = 3.999843853973347
 _SHELF_Q = 0.7071752369554196
@@ -65,11 +65,16 @@ def k_weighting_sos(rate: float) -> NDArray[np.float64]:
     """
     k = math.tan(math.pi * _SHELF_HZ / rate)
     vh = 10.0 ** (_SHELF_GAIN_DB / 20.0)
-    vb = vh ** _SHELF_VB_EXP
+    vb = vh**_SHELF_VB_EXP
     a0 = 1.0 + k / _SHELF_Q + k * k
-    shelf = [(vh + vb * k / _SHELF_Q + k * k) / a0, 2.0 * (k * k - vh) / a0,
-             (vh - vb * k / _SHELF_Q + k * k) / a0,
-             1.0, 2.0 * (k * k - 1.0) / a0, (1.0 - k / _SHELF_Q + k * k) / a0]
+    shelf = [
+        (vh + vb * k / _SHELF_Q + k * k) / a0,
+        2.0 * (k * k - vh) / a0,
+        (vh - vb * k / _SHELF_Q + k * k) / a0,
+        1.0,
+        2.0 * (k * k - 1.0) / a0,
+        (1.0 - k / _SHELF_Q + k * k) / a0,
+    ]
     k = math.tan(math.pi * _HIGHPASS_HZ / rate)
     a0 = 1.0 + k / _HIGHPASS_Q + k * k
     highpass = [1.0, -2.0, 1.0, 1.0, 2.0 * (k * k - 1.0) / a0, (1.0 - k / _HIGHPASS_Q + k * k) / a0]
@@ -154,7 +159,7 @@ class TruePeakMeter:
         skip = (self.CONTEXT // 2) * self.UP
         if up.shape[0] > 2 * skip:
             self.peak = max(self.peak, float(np.max(np.abs(up[skip:-skip]))))
-        self._tail = x[-self.CONTEXT:]
+        self._tail = x[-self.CONTEXT :]
 
     def finish(self) -> None:
         """Measure the last samples (call once after the last block)."""
@@ -208,8 +213,9 @@ class LoudnessMeter:
         self._partial = np.zeros(channels)
         self._partial_n = 0
         self.n = 0
-        self.g = np.array([self.WEIGHTS[i] if i < len(self.WEIGHTS) else 1.0
-                           for i in range(channels)])
+        self.g = np.array(
+            [self.WEIGHTS[i] if i < len(self.WEIGHTS) else 1.0 for i in range(channels)]
+        )
 
     def feed(self, block: np.ndarray) -> None:
         """Take the next block (samples × channels)."""
@@ -221,7 +227,7 @@ class LoudnessMeter:
         pos = 0
         while pos < sq.shape[0]:
             take = min(self.hop - self._partial_n, sq.shape[0] - pos)
-            self._partial += sq[pos:pos + take].sum(axis=0)
+            self._partial += sq[pos : pos + take].sum(axis=0)
             self._partial_n += take
             pos += take
             if self._partial_n == self.hop:
@@ -245,8 +251,9 @@ class LoudnessMeter:
         if n_blocks < 1:
             return float("-inf")
         per_block = int(round(_BLOCK_S / _HOP_S))
-        z = np.array([arr[j:j + per_block].sum(axis=0) for j in range(n_blocks)]) / (
-            _BLOCK_S * self.rate)
+        z = np.array([arr[j : j + per_block].sum(axis=0) for j in range(n_blocks)]) / (
+            _BLOCK_S * self.rate
+        )
         power = z @ self.g
         with np.errstate(divide="ignore"):
             lj = _OFFSET_DB + 10 * np.log10(power)

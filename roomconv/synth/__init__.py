@@ -8,8 +8,29 @@ from .materials import MATERIALS, OCTAVES, Material, get_material, load_material
 from .room import SURFACES, Absorber, Patch, RoomModel, eyring, max_reverberation, sabine
 from .tail import band_noise, diffuse_tail
 
-__all__ = ["air_attenuation", "power_attenuation", "speed_of_sound", "Receivers",
-           "SynthResult", "synthesize", "ImageSet", "band_weights", "image_sources",
-           "render_images", "MATERIALS", "OCTAVES", "Material", "get_material",
-           "load_materials", "SURFACES", "Absorber", "Patch", "RoomModel", "eyring",
-           "max_reverberation", "sabine", "band_noise", "diffuse_tail"]
+__all__ = [
+    "air_attenuation",
+    "power_attenuation",
+    "speed_of_sound",
+    "Receivers",
+    "SynthResult",
+    "synthesize",
+    "ImageSet",
+    "band_weights",
+    "image_sources",
+    "render_images",
+    "MATERIALS",
+    "OCTAVES",
+    "Material",
+    "get_material",
+    "load_materials",
+    "SURFACES",
+    "Absorber",
+    "Patch",
+    "RoomModel",
+    "eyring",
+    "max_reverberation",
+    "sabine",
+    "band_noise",
+    "diffuse_tail",
+]

@@ -8,8 +8,8 @@ from ..errors import InputError
 
 __all__ = ["speed_of_sound", "air_attenuation", "power_attenuation", "P_REF"]
 
-T0 = 293.15      # reference temperature, K (ISO 9613-1:1993, 3)
-T01 = 273.16     # triple-point isotherm temperature, K (ISO 9613-1:1993, Annex B)
+T0 = 293.15  # reference temperature, K (ISO 9613-1:1993, 3)
+T01 = 273.16  # triple-point isotherm temperature, K (ISO 9613-1:1993, Annex B)
 P_REF = 101.325  # reference pressure, kPa (ISO 9613-1:1993, 3)
 
 
@@ -44,8 +44,9 @@ def speed_of_sound(temperature_c: float = 20.0) -> float:
     return 331.3 * float(np.sqrt(1.0 + temperature_c / 273.15))
 
 
-def air_attenuation(frequency, temperature_c: float = 20.0, humidity_pct: float = 50.0,
-                    pressure_kpa: float = P_REF):
+def air_attenuation(
+    frequency, temperature_c: float = 20.0, humidity_pct: float = 50.0, pressure_kpa: float = P_REF
+):
     """Pure-tone attenuation coefficient α in dB per metre.
 
     Parameters
@@ -86,18 +87,27 @@ def air_attenuation(frequency, temperature_c: float = 20.0, humidity_pct: float 
     T = temperature_c + 273.15
     pr = pressure_kpa / P_REF
     c_sat = -6.8346 * (T01 / T) ** 1.261 + 4.6151
-    h = humidity_pct * 10.0 ** c_sat / pr  # molar concentration of water vapour, %
+    h = humidity_pct * 10.0**c_sat / pr  # molar concentration of water vapour, %
     fr_o = pr * (24.0 + 4.04e4 * h * (0.02 + h) / (0.391 + h))
     fr_n = pr * (T / T0) ** -0.5 * (9.0 + 280.0 * h * np.exp(-4.170 * ((T / T0) ** (-1 / 3) - 1)))
-    alpha = 8.686 * f ** 2 * (
-        1.84e-11 / pr * (T / T0) ** 0.5
-        + (T / T0) ** -2.5 * (0.01275 * np.exp(-2239.1 / T) / (fr_o + f ** 2 / fr_o)
-                              + 0.1068 * np.exp(-3352.0 / T) / (fr_n + f ** 2 / fr_n)))
+    alpha = (
+        8.686
+        * f**2
+        * (
+            1.84e-11 / pr * (T / T0) ** 0.5
+            + (T / T0) ** -2.5
+            * (
+                0.01275 * np.exp(-2239.1 / T) / (fr_o + f**2 / fr_o)
+                + 0.1068 * np.exp(-3352.0 / T) / (fr_n + f**2 / fr_n)
+            )
+        )
+    )
     return alpha
 
 
-def power_attenuation(frequency, temperature_c: float = 20.0, humidity_pct: float = 50.0,
-                      pressure_kpa: float = P_REF):
+def power_attenuation(
+    frequency, temperature_c: float = 20.0, humidity_pct: float = 50.0, pressure_kpa: float = P_REF
+):
     """Energy attenuation coefficient m (1/m) used as the 4mV term: m = α / (10·log10 e).
 
     Parameters
@@ -123,4 +133,5 @@ def power_attenuation(frequency, temperature_c: float = 20.0, humidity_pct: floa
     True
     """
     return air_attenuation(frequency, temperature_c, humidity_pct, pressure_kpa) / (
-        10.0 * np.log10(np.e))
+        10.0 * np.log10(np.e)
+    )

@@ -11,8 +11,7 @@ from ..signal import resample as _resample
 from .image_source import band_weights
 from .materials import OCTAVES
 
-__all__ = ["trim", "fade", "normalize", "reverse", "scale_decay", "early_late_balance",
-           "resample"]
+__all__ = ["trim", "fade", "normalize", "reverse", "scale_decay", "early_late_balance", "resample"]
 
 _LN10 = np.log(10)
 
@@ -22,8 +21,9 @@ def _2d(x):
     return x[:, None] if x.ndim == 1 else x
 
 
-def trim(ir: np.ndarray, rate: int, *, threshold_db: float = -60.0,
-         lead_s: float = 0.001) -> tuple[np.ndarray, int, int]:
+def trim(
+    ir: np.ndarray, rate: int, *, threshold_db: float = -60.0, lead_s: float = 0.001
+) -> tuple[np.ndarray, int, int]:
     """Cut silence before the first and after the last sample above ``threshold_db`` re peak.
 
     Parameters
@@ -89,8 +89,9 @@ def fade(ir: np.ndarray, rate: int, *, fade_in_s: float = 0.0, fade_out_s: float
     return x
 
 
-def normalize(ir: np.ndarray, *, peak_dbfs: float | None = None,
-              energy_db: float | None = None) -> np.ndarray:
+def normalize(
+    ir: np.ndarray, *, peak_dbfs: float | None = None, energy_db: float | None = None
+) -> np.ndarray:
     """Scale to a peak level (dBFS) or to a total energy 10·log10(Σh²) (dB).
 
     Parameters
@@ -161,6 +162,7 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     ISO 3382-1:2009, 3.10 and 5.3 (the decay times read from the response).
     """
     from ..analysis.parameters import room_parameters
+
     x = _2d(ir)
     factors = factor if isinstance(factor, dict) else {b: float(factor) for b in OCTAVES}
     for b, f in factors.items():
@@ -175,7 +177,9 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
         t0 = onset if onset is not None else int(np.argmax(np.abs(x[:, ch])))
         t = np.maximum(np.arange(n) - t0, 0) / rate
         X = np.fft.rfft(x[:, ch], nfft)
-        by_band = {int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res}
+        by_band = {
+            int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res if r.band_hz is not None
+        }
         for i, b in enumerate(OCTAVES):
             T = by_band.get(b) or wide.t30_s or wide.t20_s
             if T is None:
@@ -186,8 +190,9 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     return out
 
 
-def early_late_balance(ir: np.ndarray, rate: int, gain_db: float, *, split_s: float = 0.08,
-                       crossfade_s: float = 0.01) -> np.ndarray:
+def early_late_balance(
+    ir: np.ndarray, rate: int, gain_db: float, *, split_s: float = 0.08, crossfade_s: float = 0.01
+) -> np.ndarray:
     """Raise (or lower) the late part after ``split_s`` from the peak by ``gain_db``.
 
     The change fades in over ``crossfade_s`` centred on the split (a raised-cosine step).

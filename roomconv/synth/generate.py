@@ -41,14 +41,16 @@ class Receivers:
     value: float = 0.0
 
     @classmethod
-    def parse(cls, text: str | None) -> "Receivers":
+    def parse(cls, text: str | None) -> Receivers:
         """Read ``mono``, ``spaced:METRES`` or ``coincident:DEGREES`` (None means mono)."""
         if text in (None, "", "mono"):
             return cls()
         kind, _, val = text.partition(":")
         if kind not in ("spaced", "coincident"):
-            raise InputError(f"receiver arrangement '{text}' not understood: use mono, "
-                             "spaced:METRES or coincident:DEGREES")
+            raise InputError(
+                f"receiver arrangement '{text}' not understood: use mono, "
+                "spaced:METRES or coincident:DEGREES"
+            )
         try:
             v = float(val)
         except ValueError:
@@ -82,11 +84,11 @@ class SynthResult:
     notes : list of str
     """
 
-    ir: np.ndarray                 #: (samples, channels)
+    ir: np.ndarray  #: (samples, channels)
     rate: int
     sabine: dict
     eyring: dict
-    used_rt: dict                  #: reverberation time per band given to the tail
+    used_rt: dict  #: reverberation time per band given to the tail
     mixing_time_s: float
     image_count: int
     notes: list = field(default_factory=list)
@@ -97,15 +99,26 @@ def _check_point(room: RoomModel, p, what: str) -> np.ndarray:
     if a.shape != (3,) or not np.all(np.isfinite(a)):
         raise InputError(f"{what} must be three numbers X,Y,Z in metres")
     if not room.contains(a):
-        raise InputError(f"{what} {tuple(float(x) for x in a)} is outside the room "
-                         f"(0..{room.length:g}, 0..{room.width:g}, 0..{room.height:g} m)")
+        raise InputError(
+            f"{what} {tuple(float(x) for x in a)} is outside the room "
+            f"(0..{room.length:g}, 0..{room.width:g}, 0..{room.height:g} m)"
+        )
     return a
 
 
-def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
-               receivers: Receivers | None = None, rt: dict | None = None,
-               prediction: str = "eyring", seed: int = 0, length_s: float | None = None,
-               air: bool = True) -> SynthResult:
+def synthesize(
+    room: RoomModel,
+    source,
+    receiver,
+    *,
+    rate: int = 48000,
+    receivers: Receivers | None = None,
+    rt: dict | None = None,
+    prediction: str = "eyring",
+    seed: int = 0,
+    length_s: float | None = None,
+    air: bool = True,
+) -> SynthResult:
     """Synthesize a room impulse response.
 
     Sample 0 is the moment of emission; the direct sound arrives at distance / c. Early
@@ -166,20 +179,24 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
             raise InputError(f"no octave band at {b:g} Hz (use {', '.join(map(str, OCTAVES))})")
         tmax = max_reverberation(room, b) if air else np.inf
         if not (0 < T < tmax):
-            raise InputError(f"a reverberation time of {T:g} s at {b:g} Hz is impossible in this "
-                             f"room: it must be positive and below {tmax:.1f} s, the limit set "
-                             "by air absorption alone")
+            raise InputError(
+                f"a reverberation time of {T:g} s at {b:g} Hz is impossible in this "
+                f"room: it must be positive and below {tmax:.1f} s, the limit set "
+                "by air absorption alone"
+            )
         used[int(b)] = float(T)
     if any(not np.isfinite(v) or v <= 0 for v in used.values()):
-        raise InputError("the room absorbs everything in some band (α = 1 everywhere): "
-                         "no reverberation to synthesize")
+        raise InputError(
+            "the room absorbs everything in some band (α = 1 everywhere): "
+            "no reverberation to synthesize"
+        )
     c = speed_of_sound(room.temperature_c)
     t_mix = np.sqrt(room.volume) / 1000.0
     # The crossfade from images to tail spans half the mixing time (our choice).
     fade = 0.5 * t_mix
     if length_s is None:
-        length_s = min(30.0, LENGTH_DECAYS * max(used.values())
-                       + np.linalg.norm(src - rcv) / c + LENGTH_MARGIN_S)
+        direct_s = float(np.linalg.norm(src - rcv)) / c
+        length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")
@@ -196,7 +213,7 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
         # Diffuse-field correlation of two cardioids at angle φ: (3 + cos φ)/4 (closed form
         # of ∫(½+½cosθ1)(½+½cosθ2)dΩ/4π normalized by its value at φ = 0).
         rho = (3 + np.cos(np.radians(receivers.value))) / 4
-        base_noise[1] = rho * base_noise[0] + np.sqrt(1 - rho ** 2) * base_noise[1]
+        base_noise[1] = rho * base_noise[0] + np.sqrt(1 - rho**2) * base_noise[1]
     chans = []
     count = 0
     for ch, (pos, axis) in enumerate(positions):
@@ -209,8 +226,15 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
             cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
             direct = 0.5 + 0.5 * cos_t
             tail_gain = np.sqrt(CARDIOID_DIFFUSE_POWER)
-        early = render_images(imgs, rate, n, temperature_c=room.temperature_c,
-                              humidity_pct=room.humidity_pct, air=air, directivity=direct)
+        early = render_images(
+            imgs,
+            rate,
+            n,
+            temperature_c=room.temperature_c,
+            humidity_pct=room.humidity_pct,
+            air=air,
+            directivity=direct,
+        )
         late = diffuse_tail(used, room.volume, rate, n, c=c, noise=base_noise[ch]) * tail_gain
         chans.append(early * w_early + late * w_late)
     notes = []
@@ -232,5 +256,7 @@ def _receiver_positions(room, rcv, src, receivers):
     az = np.arctan2(to_src[1], to_src[0])
     half = np.radians(receivers.value) / 2
     # Left channel turned anticlockwise (seen from above), right clockwise.
-    return [(rcv, np.array([np.cos(az + half), np.sin(az + half), 0.0])),
-            (rcv, np.array([np.cos(az - half), np.sin(az - half), 0.0]))]
+    return [
+        (rcv, np.array([np.cos(az + half), np.sin(az + half), 0.0])),
+        (rcv, np.array([np.cos(az - half), np.sin(az - half), 0.0])),
+    ]

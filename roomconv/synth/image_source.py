@@ -12,8 +12,14 @@ from .air import air_attenuation, speed_of_sound
 from .materials import OCTAVES
 from .room import SURFACES, RoomModel
 
-__all__ = ["SINC_HALF", "ImageSet", "image_sources", "fractional_delay_kernel",
-           "band_weights", "render_images"]
+__all__ = [
+    "SINC_HALF",
+    "ImageSet",
+    "image_sources",
+    "fractional_delay_kernel",
+    "band_weights",
+    "render_images",
+]
 
 #: Half-length (taps each side) of the windowed-sinc fractional delay (our choice). The 65
 #: Hann-windowed taps are flat to within 0.003 dB up to 0.4·fs and 0.02 dB up to 0.45·fs
@@ -29,15 +35,22 @@ class ImageSet:
     Sorted by distance, nearest (the direct sound) first.
     """
 
-    positions: np.ndarray   #: (n, 3)
-    distance: np.ndarray    #: (n,) metres
-    order: np.ndarray       #: (n,) number of reflections
-    gains: np.ndarray       #: (n, bands) reflection product × 1/r (no air absorption)
+    positions: np.ndarray  #: (n, 3)
+    distance: np.ndarray  #: (n,) metres
+    order: np.ndarray  #: (n,) number of reflections
+    gains: np.ndarray  #: (n, bands) reflection product × 1/r (no air absorption)
     bands: tuple
 
 
-def image_sources(room: RoomModel, source, receiver, *, max_distance: float | None = None,
-                  max_order: int | None = None, bands=OCTAVES) -> ImageSet:
+def image_sources(
+    room: RoomModel,
+    source,
+    receiver,
+    *,
+    max_distance: float | None = None,
+    max_order: int | None = None,
+    bands=OCTAVES,
+) -> ImageSet:
     """Enumerate image sources by Allen & Berkley's indices.
 
     Along each axis an image sits at (1 − 2q)·s + 2nL and has met the wall at 0 |n − q| times
@@ -80,9 +93,12 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
     s = np.asarray(source, float)
     r = np.asarray(receiver, float)
     dims = room.dims
-    if max_distance is None and max_order is None:
+    if max_distance is not None:
+        reach = max_distance
+    elif max_order is not None:
+        reach = (max_order + 1) * dims.max() * 2
+    else:
         raise ValueError("give max_distance or max_order")
-    reach = max_distance if max_distance is not None else (max_order + 1) * dims.max() * 2
     nmax = np.ceil(reach / (2 * dims)).astype(int) + 1
     grids = []
     for axis in range(3):
@@ -95,9 +111,8 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
     cx, lx0, lx1 = grids[0]
     cy, ly0, ly1 = grids[1]
     cz, lz0, lz1 = grids[2]
-    X, Y, Z = np.meshgrid(np.arange(cx.size), np.arange(cy.size), np.arange(cz.size),
-                          indexing="ij")
-    X, Y, Z = X.ravel(), Y.ravel(), Z.ravel()
+    grid = np.meshgrid(np.arange(cx.size), np.arange(cy.size), np.arange(cz.size), indexing="ij")
+    X, Y, Z = (g.ravel() for g in grid)
     pos = np.stack([cx[X], cy[Y], cz[Z]], axis=1)
     counts = np.stack([lx0[X], lx1[X], ly0[Y], ly1[Y], lz0[Z], lz1[Z]], axis=1)
     order = counts.sum(axis=1)
@@ -177,7 +192,7 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     """
     f = np.maximum(np.asarray(freqs, float), 1e-6)
     lf = np.log2(f)
-    cross = [0.5 * (np.log2(a) + np.log2(b)) for a, b in zip(bands[:-1], bands[1:])]
+    cross = [0.5 * (np.log2(a) + np.log2(b)) for a, b in zip(bands[:-1], bands[1:], strict=True)]
     # up[k] = weight of "above crossover k"
     up = [cosine_step((lf - c) / transition_oct + 0.5) for c in cross]
     w = []
@@ -188,9 +203,16 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     return np.array(w)
 
 
-def render_images(images: ImageSet, rate: int, n_samples: int, *, temperature_c: float = 20.0,
-                  humidity_pct: float = 50.0, air: bool = True,
-                  directivity: np.ndarray | None = None) -> np.ndarray:
+def render_images(
+    images: ImageSet,
+    rate: int,
+    n_samples: int,
+    *,
+    temperature_c: float = 20.0,
+    humidity_pct: float = 50.0,
+    air: bool = True,
+    directivity: np.ndarray | None = None,
+) -> np.ndarray:
     """Place every image at its exact arrival time per band and combine the bands.
 
     Sample 0 is the moment of emission: an image at distance r arrives at r/c seconds.

@@ -10,8 +10,7 @@ from ..errors import InputError
 from .air import power_attenuation, speed_of_sound
 from .materials import OCTAVES, Material, get_material
 
-__all__ = ["SURFACES", "Patch", "Absorber", "RoomModel", "sabine", "eyring",
-           "max_reverberation"]
+__all__ = ["SURFACES", "Patch", "Absorber", "RoomModel", "sabine", "eyring", "max_reverberation"]
 
 #: Surface names: x runs left→right (length), y front→back (width), z floor→ceiling (height).
 SURFACES = ("left", "right", "front", "back", "floor", "ceiling")
@@ -93,7 +92,7 @@ class RoomModel:
             raise InputError(f"unknown surface(s) {sorted(unknown)}; use {', '.join(SURFACES)}")
         full = {s: self.surfaces.get(s, "plaster") for s in SURFACES}
         object.__setattr__(self, "surfaces", full)
-        for s, m in full.items():
+        for m in full.values():
             get_material(m, self.extra_materials)
         for p in self.patches:
             if p.surface not in SURFACES:
@@ -106,8 +105,10 @@ class RoomModel:
         for s in SURFACES:
             covered = sum(p.area_m2 for p in self.patches if p.surface == s)
             if covered > self.surface_area(s) + 1e-9:
-                raise InputError(f"patches cover {covered:.1f} m² of the {s}, which has only "
-                                 f"{self.surface_area(s):.1f} m²")
+                raise InputError(
+                    f"patches cover {covered:.1f} m² of the {s}, which has only "
+                    f"{self.surface_area(s):.1f} m²"
+                )
 
     @property
     def dims(self) -> np.ndarray:
@@ -122,8 +123,14 @@ class RoomModel:
     def surface_area(self, s: str) -> float:
         """Area of surface ``s``, m²."""
         L, W, H = self.length, self.width, self.height
-        return {"left": W * H, "right": W * H, "front": L * H, "back": L * H,
-                "floor": L * W, "ceiling": L * W}[s]
+        return {
+            "left": W * H,
+            "right": W * H,
+            "front": L * H,
+            "back": L * H,
+            "floor": L * W,
+            "ceiling": L * W,
+        }[s]
 
     @property
     def total_area(self) -> float:
@@ -231,8 +238,11 @@ def eyring(room: RoomModel, *, air: bool = True, bands=OCTAVES) -> dict[float, f
         a_mean = min(room.absorption_area(b) / S, 1.0)
         term = float("inf") if a_mean >= 1.0 else -S * np.log1p(-a_mean)
         denom = term + 4 * m * V
-        out[b] = 0.0 if not np.isfinite(denom) else (
-            float("inf") if denom <= 0 else float(24 * np.log(10) * V / (c * denom)))
+        out[b] = (
+            0.0
+            if not np.isfinite(denom)
+            else (float("inf") if denom <= 0 else float(24 * np.log(10) * V / (c * denom)))
+        )
     return out
 
 

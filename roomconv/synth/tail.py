@@ -23,8 +23,7 @@ def _moving_rms(x: np.ndarray, n: int) -> np.ndarray:
     return np.sqrt(np.maximum(np.convolve(x * x, k, mode="same"), 1e-30))
 
 
-def band_noise(rate: int, n_samples: int, rng: np.random.Generator,
-               bands=OCTAVES) -> np.ndarray:
+def band_noise(rate: int, n_samples: int, rng: np.random.Generator, bands=OCTAVES) -> np.ndarray:
     """Unit-variance white noise split into bands (sum over bands = the white noise), each
     band's short-term level evened out.
 
@@ -62,16 +61,24 @@ def band_noise(rate: int, n_samples: int, rng: np.random.Generator,
     out = np.empty((len(bands), n_samples))
     for i, fc in enumerate(bands):
         zb = np.fft.irfft(Z * W[i], nfft)[:n_samples]
-        bw = fc * (2 ** 0.5 - 2 ** -0.5)
+        bw = fc * (2**0.5 - 2**-0.5)
         win = int(max(_EVEN_MIN_S, _EVEN_PERIODS / bw) * rate)
         env = _moving_rms(zb, win)
         out[i] = zb / env * np.sqrt(np.mean(zb * zb))
     return out
 
 
-def diffuse_tail(rt: dict, volume: float, rate: int, n_samples: int, *,
-                 c: float | None = None, seed: int = 0, bands=OCTAVES,
-                 noise: np.ndarray | None = None) -> np.ndarray:
+def diffuse_tail(
+    rt: dict,
+    volume: float,
+    rate: int,
+    n_samples: int,
+    *,
+    c: float | None = None,
+    seed: int = 0,
+    bands=OCTAVES,
+    noise: np.ndarray | None = None,
+) -> np.ndarray:
     """Σ_b noise_b(t) · sqrt(4πc / (V·fs)) · 10^(−3t/T_b).
 
     The level is the expected energy of image-source arrivals per unit time for a source

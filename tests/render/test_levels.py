@@ -45,18 +45,21 @@ def _stereo_sine(level_dbfs, seconds, f=1000.0):
 def _meter(x, block=4801):
     m = LoudnessMeter(FS, x.shape[1])
     for i in range(0, x.shape[0], block):  # an odd block size: gating blocks span feeds
-        m.feed(x[i:i + block])
+        m.feed(x[i : i + block])
     return m.integrated()
 
 
-@pytest.mark.parametrize("parts", [
-    # EBU Tech 3341 (2016) minimum requirements, test cases 1, 3 and 4 (from memory): 1 kHz
-    # stereo sines, expected -23.0 +/- 0.1 LUFS. Cases 3 and 4 need both gates: the -36 dBFS
-    # parts fall below the relative gate, the -72 dBFS parts below the absolute gate.
-    [(-23, 20)],
-    [(-36, 10), (-23, 60), (-36, 10)],
-    [(-72, 10), (-36, 10), (-23, 60), (-36, 10), (-72, 10)],
-])
+@pytest.mark.parametrize(
+    "parts",
+    [
+        # EBU Tech 3341 (2016) minimum requirements, test cases 1, 3 and 4 (from memory): 1 kHz
+        # stereo sines, expected -23.0 +/- 0.1 LUFS. Cases 3 and 4 need both gates: the -36 dBFS
+        # parts fall below the relative gate, the -72 dBFS parts below the absolute gate.
+        [(-23, 20)],
+        [(-36, 10), (-23, 60), (-36, 10)],
+        [(-72, 10), (-36, 10), (-23, 60), (-36, 10), (-72, 10)],
+    ],
+)
 def test_gated_loudness_ebu_3341_cases(parts):
     x = np.concatenate([_stereo_sine(level, sec) for level, sec in parts])
     assert _meter(x) == pytest.approx(-23.0, abs=0.1)
@@ -97,7 +100,7 @@ def test_true_peak_against_8x_oversampled_reference():
     x = (0.5 * env * np.sin(2 * np.pi * 0.25 * n + np.pi / 4))[:, None]
     m = TruePeakMeter(1)
     for i in range(0, x.shape[0], 1000):
-        m.feed(x[i:i + 1000])
+        m.feed(x[i : i + 1000])
     m.finish()
     ref = np.max(np.abs(resample_poly(x[:, 0], 16, 1, window=("kaiser", 10.0))))
     assert m.peak == pytest.approx(0.5, abs=0.005)

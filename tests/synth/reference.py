@@ -8,8 +8,7 @@ from scipy.signal import butter, sosfilt
 
 def octave(x: np.ndarray, rate: int, band_hz: float) -> np.ndarray:
     """One octave band by a 3rd-order Butterworth band-pass (scipy), edges fc/√2 and fc·√2."""
-    sos = butter(3, [band_hz / np.sqrt(2), band_hz * np.sqrt(2)], "bandpass", fs=rate,
-                 output="sos")
+    sos = butter(3, [band_hz / np.sqrt(2), band_hz * np.sqrt(2)], "bandpass", fs=rate, output="sos")
     return sosfilt(sos, x)
 
 

@@ -21,8 +21,10 @@ LN10 = np.log(10)
 
 
 def _alpha_room(alpha: dict[str, float], dims=(7.0, 5.0, 3.0)) -> RoomModel:
-    mats = {f"a{i}": Material(f"a{i}", (a,) * len(OCTAVES), "test value")
-            for i, a in enumerate(alpha.values())}
+    mats = {
+        f"a{i}": Material(f"a{i}", (a,) * len(OCTAVES), "test value")
+        for i, a in enumerate(alpha.values())
+    }
     return RoomModel(*dims, {s: f"a{i}" for i, s in enumerate(alpha)}, extra_materials=mats)
 
 
@@ -37,8 +39,14 @@ def test_third_order_image_by_explicit_mirroring():
     # a 4th-order path. Its pressure amplitude is β_left²·β_right·β_floor / r with
     # β = sqrt(1 − α) (Allen & Berkley 1979, eq. for the reflection factor; geometric
     # acoustics), its delay r/c.
-    alpha = {"left": 0.19, "right": 0.36, "front": 0.51, "back": 0.64, "floor": 0.75,
-             "ceiling": 0.84}
+    alpha = {
+        "left": 0.19,
+        "right": 0.36,
+        "front": 0.51,
+        "back": 0.64,
+        "floor": 0.75,
+        "ceiling": 0.84,
+    }
     room = _alpha_room(alpha)
     src, rcv = np.array([1.3, 1.1, 1.7]), np.array([5.21, 3.37, 1.05])
     L = room.length
@@ -67,9 +75,9 @@ def test_second_order_arrival_in_the_rendered_response():
     k = r / speed_of_sound(20) * FS
     n0 = int(round(k))
     # The windowed-sinc impulse of a unit arrival: its taps sum to 1 (DC gain), here 1/r.
-    window = h[n0 - 20:n0 + 21]
+    window = h[n0 - 20 : n0 + 21]
     assert np.sum(window) == pytest.approx(1 / r, rel=2e-3)
-    assert n0 - 20 <= np.argmax(np.abs(h[n0 - 200:n0 + 200])) + n0 - 200 <= n0 + 20
+    assert n0 - 20 <= np.argmax(np.abs(h[n0 - 200 : n0 + 200])) + n0 - 200 <= n0 + 20
 
 
 @pytest.mark.parametrize("band, T", [(250, 2.0), (1000, 1.6), (4000, 1.2)])
@@ -80,8 +88,7 @@ def test_asked_decay_read_by_a_plain_schroeder_fit(band, T):
     # Air absorption off: at 8 kHz it alone would cap T below 2 s in this hall (refused).
     room = RoomModel(24, 16, 8, {"floor": "seats-upholstered-occupied"})
     rt = {b: T for b in OCTAVES}
-    res = synthesize(room, (5, 4, 1.5), (14, 10, 1.2), seed=3, rt=rt, length_s=1.3 * T,
-                     air=False)
+    res = synthesize(room, (5, 4, 1.5), (14, 10, 1.2), seed=3, rt=rt, length_s=1.3 * T, air=False)
     assert schroeder_t30(octave(res.ir[:, 0], FS, band), FS) == pytest.approx(T, rel=0.05)
 
 
@@ -98,7 +105,7 @@ def test_diffuse_tail_level_follows_the_reflection_density():
     expected = 4 * np.pi * c / V / k * (np.exp(-k * t1) - np.exp(-k * t2))
     # Sampled, each sample carries the energy of 1/fs seconds: the expected Σx² over the
     # samples from t1 on is fs·∫(4πc/(V·fs))·e^(−kt) dt, the integral above.
-    got = np.sum(x[int(t1 * FS):] ** 2)
+    got = np.sum(x[int(t1 * FS) :] ** 2)
     assert 10 * np.log10(got / expected) == pytest.approx(0.0, abs=0.3)
 
 
@@ -106,7 +113,7 @@ def _sphere(n=20000):
     """Fibonacci points, near-uniform on the unit sphere (González 2010, Math. Geosci. 42)."""
     i = np.arange(n) + 0.5
     z = 1 - 2 * i / n
-    phi = np.pi * (1 + 5 ** 0.5) * i
+    phi = np.pi * (1 + 5**0.5) * i
     s = np.sqrt(1 - z * z)
     return np.stack([s * np.cos(phi), s * np.sin(phi), z], axis=1)
 
@@ -126,8 +133,9 @@ def test_coincident_cardioids_correlation_and_level_in_a_diffuse_field():
 
     hall = RoomModel(24, 16, 8, {"floor": "seats-upholstered-occupied"})
     kw = dict(seed=1, length_s=1.0)
-    co = synthesize(hall, (5, 4, 1.5), (14, 10, 1.2), receivers=Receivers.parse("coincident:90"),
-                    **kw)
+    co = synthesize(
+        hall, (5, 4, 1.5), (14, 10, 1.2), receivers=Receivers.parse("coincident:90"), **kw
+    )
     omni = synthesize(hall, (5, 4, 1.5), (14, 10, 1.2), **kw)
     late = slice(int(0.3 * FS), None)  # well after the mixing time sqrt(V) ms = 55 ms
     rho = np.corrcoef(co.ir[late, 0], co.ir[late, 1])[0, 1]

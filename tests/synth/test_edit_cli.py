@@ -35,8 +35,10 @@ def test_decay_scale_changes_T_by_the_factor():
     # Multiplying by exp(3·ln10·t/T·(1 − 1/k)) turns a decay of T into k·T (closed form).
     # The input is an evened-envelope noise decaying at 1 s in every band.
     from roomconv.synth.tail import diffuse_tail
-    x = diffuse_tail({b: 1.0 for b in (63, 125, 250, 500, 1000, 2000, 4000, 8000)}, 500.0,
-                     FS, 3 * FS, seed=4)
+
+    x = diffuse_tail(
+        {b: 1.0 for b in (63, 125, 250, 500, 1000, 2000, 4000, 8000)}, 500.0, FS, 3 * FS, seed=4
+    )
     # Read back with the ISO 3382-1 backward integration written out in reference.py.
     y = edit.scale_decay(x, FS, 0.7)
     for band in (125, 1000, 4000):
@@ -86,10 +88,24 @@ def test_early_late_balance():
 
 def test_synth_command_prints_prediction_and_writes_ir(tmp_path, cli):
     out = tmp_path / "room.wav"
-    code, text, err = cli("synth", out, "--room", "12x8x4", "--materials",
-                          "floor=carpet,walls=plaster,ceiling=acoustic-tile", "--seed", 3,
-                          "--source", "3,2,1.5", "--receiver", "9,6,1.2", "--stereo",
-                          "spaced:0.5", "--rate", 32000)
+    code, text, err = cli(
+        "synth",
+        out,
+        "--room",
+        "12x8x4",
+        "--materials",
+        "floor=carpet,walls=plaster,ceiling=acoustic-tile",
+        "--seed",
+        3,
+        "--source",
+        "3,2,1.5",
+        "--receiver",
+        "9,6,1.2",
+        "--stereo",
+        "spaced:0.5",
+        "--rate",
+        32000,
+    )
     assert code == 0, err
     assert "Sabine" in text and "Eyring" in text
     ir, rate = sf.read(out)
@@ -98,14 +114,17 @@ def test_synth_command_prints_prediction_and_writes_ir(tmp_path, cli):
     assert prov["settings"]["seed"] == 3
 
 
-@pytest.mark.parametrize("args, text", [
-    (["--room", "12x8"], "three numbers"),
-    (["--room", "12x-8x4"], "positive"),
-    (["--room", "12x8x4", "--materials", "floor=lava"], "unknown material"),
-    (["--room", "12x8x4", "--source", "13,2,1"], "outside the room"),
-    (["--room", "12x8x4", "--rt60", "500:300"], "impossible"),
-    (["--room", "12x8x4", "--stereo", "wide:3"], "not understood"),
-])
+@pytest.mark.parametrize(
+    "args, text",
+    [
+        (["--room", "12x8"], "three numbers"),
+        (["--room", "12x-8x4"], "positive"),
+        (["--room", "12x8x4", "--materials", "floor=lava"], "unknown material"),
+        (["--room", "12x8x4", "--source", "13,2,1"], "outside the room"),
+        (["--room", "12x8x4", "--rt60", "500:300"], "impossible"),
+        (["--room", "12x8x4", "--stereo", "wide:3"], "not understood"),
+    ],
+)
 def test_synth_refusals(tmp_path, cli, args, text):
     code, _, err = cli("synth", tmp_path / "x.wav", *args)
     assert code == 2 and text in err and "Traceback" not in err
@@ -123,8 +142,18 @@ def test_edit_command_never_touches_its_input(tmp_path, cli):
     src = tmp_path / "in.wav"
     sf.write(src, _decay(0.5), FS, subtype="FLOAT")
     before = src.read_bytes()
-    code, text, err = cli("edit", src, "-o", tmp_path / "out.wav", "--normalize", "-3",
-                          "--fade-out", "0.1", "--rate", "44100")
+    code, text, err = cli(
+        "edit",
+        src,
+        "-o",
+        tmp_path / "out.wav",
+        "--normalize",
+        "-3",
+        "--fade-out",
+        "0.1",
+        "--rate",
+        "44100",
+    )
     assert code == 0, err
     y, rate = sf.read(tmp_path / "out.wav")
     assert rate == 44100 and np.max(np.abs(y)) == pytest.approx(10 ** (-3 / 20), rel=1e-4)

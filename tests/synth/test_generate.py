@@ -9,8 +9,12 @@ from roomconv.synth.air import speed_of_sound
 from roomconv.synth.generate import Receivers, synthesize
 from roomconv.synth.room import RoomModel
 
-HALL = RoomModel(24, 16, 8, {"floor": "seats-upholstered-occupied", "front": "wood-floor",
-                             "back": "curtain-heavy"})
+HALL = RoomModel(
+    24,
+    16,
+    8,
+    {"floor": "seats-upholstered-occupied", "front": "wood-floor", "back": "curtain-heavy"},
+)
 
 
 def test_sample_zero_is_emission_and_direct_sound_at_r_over_c():
@@ -29,8 +33,14 @@ def test_reproducible_with_a_seed_and_different_without():
 
 
 def test_stereo_pairs():
-    spaced = synthesize(HALL, (5, 4, 1.5), (14, 10, 1.2), receivers=Receivers.parse("spaced:1"),
-                        seed=1, length_s=1.0)
+    spaced = synthesize(
+        HALL,
+        (5, 4, 1.5),
+        (14, 10, 1.2),
+        receivers=Receivers.parse("spaced:1"),
+        seed=1,
+        length_s=1.0,
+    )
     assert spaced.ir.shape[1] == 2
     # The two capsules are 1 m apart along the length: direct sounds differ by the path change.
     c = speed_of_sound(20)
@@ -42,13 +52,16 @@ def test_stereo_pairs():
     # tests/synth/test_closed_forms.py.
 
 
-@pytest.mark.parametrize("kwargs, text", [
-    (dict(source=(30, 4, 1.5)), "outside the room"),
-    (dict(receiver=(5, 4, -1)), "outside the room"),
-    (dict(rt={500: 80.0}), "impossible"),
-    (dict(rt={500: -1.0}), "impossible"),
-    (dict(rt={600: 1.0}), "no octave band"),
-])
+@pytest.mark.parametrize(
+    "kwargs, text",
+    [
+        (dict(source=(30, 4, 1.5)), "outside the room"),
+        (dict(receiver=(5, 4, -1)), "outside the room"),
+        (dict(rt={500: 80.0}), "impossible"),
+        (dict(rt={500: -1.0}), "impossible"),
+        (dict(rt={600: 1.0}), "no octave band"),
+    ],
+)
 def test_bad_synthesis_requests(kwargs, text):
     args = dict(source=(5, 4, 1.5), receiver=(14, 10, 1.2))
     args.update(kwargs)
