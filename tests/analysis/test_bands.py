@@ -42,7 +42,7 @@ def test_class_1_acceptance_limits(kind, omegas):
     checked = 0
     for band in bands:
         sos = band_sos(band, FS)
-        for om, lo, hi in zip(omegas, LOWER, UPPER):
+        for om, lo, hi in zip(omegas, LOWER, UPPER, strict=True):
             for f in {band.exact * om, band.exact / om}:
                 if f >= 0.45 * FS or f < 1.0:
                     continue
