@@ -171,10 +171,51 @@ def synthesize(
     src = _check_point(room, source, "source")
     rcv = _check_point(room, receiver, "receiver")
     sab, eyr = sabine(room, air=air), eyring(room, air=air)
-    pred = eyr if prediction == "eyring" else sab
-    used = dict(pred)
-    for b, T in (rt or {}).items():
-        b = float(b)
+    used = _tail_reverberation(room, eyr if prediction == "eyring" else sab, rt, air)
+    c = speed_of_sound(room.temperature_c)
+    t_mix = np.sqrt(room.volume) / 1000.0
+    # The crossfade from images to tail spans half the mixing time (our choice).
+    fade_s = 0.5 * t_mix
+    if length_s is None:
+        direct_s = float(np.linalg.norm(src - rcv)) / c
+        length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
+    n = int(round(length_s * rate))
+    if n < 16:
+        raise InputError("the requested length is too short")
+
+    w_early, w_late = _early_late_weights(n, rate, t_mix, fade_s)
+    noises = _tail_noises(rate, n, receivers, np.random.default_rng(seed))
+    chans = []
+    count = 0
+    for noise, (pos, axis) in zip(
+        noises, _receiver_positions(room, rcv, src, receivers), strict=True
+    ):
+        imgs = image_sources(room, src, pos, max_distance=c * (t_mix + fade_s))
+        count = max(count, imgs.positions.shape[0])
+        directivity, tail_gain = _cardioid(imgs, pos, axis)
+        early = render_images(
+            imgs,
+            rate,
+            n,
+            temperature_c=room.temperature_c,
+            humidity_pct=room.humidity_pct,
+            air=air,
+            directivity=directivity,
+        )
+        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=noise) * tail_gain
+        chans.append(early * w_early + late * w_late)
+    notes = []
+    if receivers.kind == "spaced":
+        notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
+    return SynthResult(np.stack(chans, axis=1), rate, sab, eyr, used, float(t_mix), count, notes)
+
+
+def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: bool) -> dict:
+    """The decay time per band the tail gets: the prediction, overridden by ``rt`` where the
+    air's own absorption allows it."""
+    used = dict(predicted)
+    for band, T in (rt or {}).items():
+        b = float(band)
         if b not in OCTAVES:
             raise InputError(f"no octave band at {b:g} Hz (use {', '.join(map(str, OCTAVES))})")
         tmax = max_reverberation(room, b) if air else np.inf
@@ -190,57 +231,38 @@ def synthesize(
             "the room absorbs everything in some band (α = 1 everywhere): "
             "no reverberation to synthesize"
         )
-    c = speed_of_sound(room.temperature_c)
-    t_mix = np.sqrt(room.volume) / 1000.0
-    # The crossfade from images to tail spans half the mixing time (our choice).
-    fade = 0.5 * t_mix
-    if length_s is None:
-        direct_s = float(np.linalg.norm(src - rcv)) / c
-        length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
-    n = int(round(length_s * rate))
-    if n < 16:
-        raise InputError("the requested length is too short")
+    return used
 
-    positions = _receiver_positions(room, rcv, src, receivers)
+
+def _early_late_weights(n: int, rate: int, t_mix: float, fade_s: float):
+    """Crossfade weights from the image sources to the tail, centred on the mixing time."""
     t = np.arange(n) / rate
-    u = np.clip((t - (t_mix - fade / 2)) / fade, 0, 1)
+    u = np.clip((t - (t_mix - fade_s / 2)) / fade_s, 0, 1)
     # Equal-power (cos/sin) rather than the raised-cosine step: images and tail are
     # uncorrelated, so their powers, not their amplitudes, must sum to one.
-    w_early, w_late = np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)
-    rng = np.random.default_rng(seed)
-    base_noise = [band_noise(rate, n, rng) for _ in range(receivers.channels)]
+    return np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)
+
+
+def _tail_noises(rate: int, n: int, receivers: Receivers, rng: np.random.Generator) -> list:
+    """One band noise per channel; a coincident pair's two are correlated as cardioids in a
+    diffuse field are."""
+    noises = [band_noise(rate, n, rng) for _ in range(receivers.channels)]
     if receivers.kind == "coincident":
         # Diffuse-field correlation of two cardioids at angle φ: (3 + cos φ)/4 (closed form
         # of ∫(½+½cosθ1)(½+½cosθ2)dΩ/4π normalized by its value at φ = 0).
         rho = (3 + np.cos(np.radians(receivers.value))) / 4
-        base_noise[1] = rho * base_noise[0] + np.sqrt(1 - rho**2) * base_noise[1]
-    chans = []
-    count = 0
-    for ch, (pos, axis) in enumerate(positions):
-        imgs = image_sources(room, src, pos, max_distance=c * (t_mix + fade))
-        count = max(count, imgs.positions.shape[0])
-        direct = None
-        tail_gain = 1.0
-        if axis is not None:
-            vec = imgs.positions - pos
-            cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
-            direct = 0.5 + 0.5 * cos_t
-            tail_gain = np.sqrt(CARDIOID_DIFFUSE_POWER)
-        early = render_images(
-            imgs,
-            rate,
-            n,
-            temperature_c=room.temperature_c,
-            humidity_pct=room.humidity_pct,
-            air=air,
-            directivity=direct,
-        )
-        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=base_noise[ch]) * tail_gain
-        chans.append(early * w_early + late * w_late)
-    notes = []
-    if receivers.kind == "spaced":
-        notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
-    return SynthResult(np.stack(chans, axis=1), rate, sab, eyr, used, float(t_mix), count, notes)
+        noises[1] = rho * noises[0] + np.sqrt(1 - rho**2) * noises[1]
+    return noises
+
+
+def _cardioid(imgs, pos: np.ndarray, axis: np.ndarray | None):
+    """Per-image gain of a cardioid facing ``axis`` and its diffuse-field amplitude gain; an
+    omni (``axis`` None) has neither."""
+    if axis is None:
+        return None, 1.0
+    vec = imgs.positions - pos
+    cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
+    return 0.5 + 0.5 * cos_t, float(np.sqrt(CARDIOID_DIFFUSE_POWER))
 
 
 def _receiver_positions(room, rcv, src, receivers):
