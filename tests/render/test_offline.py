@@ -4,8 +4,8 @@ and refusals."""
 import os
 
 import numpy as np
-import pytest
 import pyloudnorm
+import pytest
 import soundfile as sf
 from scipy.signal import fftconvolve, resample_poly
 

@@ -6,9 +6,13 @@ import pytest
 from scipy.signal import fftconvolve
 
 from roomconv.errors import InputError
-from roomconv.render.partitioned import (NonUniformConvolver, OverlapSaveConvolver,
-                                         UniformPartitionedConvolver, plan_partition,
-                                         routing_for)
+from roomconv.render.partitioned import (
+    NonUniformConvolver,
+    OverlapSaveConvolver,
+    UniformPartitionedConvolver,
+    plan_partition,
+    routing_for,
+)
 
 
 def reference(x, h, routing):
