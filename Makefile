@@ -4,7 +4,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench clean venv
+.PHONY: demo test lint bench clean venv
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -19,6 +19,12 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(PY) -m pytest -q
+
+# Style, likely bugs and types of the library (not yet part of `make test`).
+lint: $(STAMP)
+	$(PY) -m ruff check roomconv tui tests benchmarks demo_audio
+	$(PY) -m ruff format --check roomconv tui tests benchmarks demo_audio
+	$(PY) -m mypy
 
 bench: $(STAMP)
 	$(PY) -m benchmarks.run

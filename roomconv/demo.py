@@ -12,6 +12,7 @@ the output folder with a provenance sidecar, and a self-contained HTML report ti
 from __future__ import annotations
 
 import html
+import importlib.resources
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -24,7 +25,9 @@ from .cli import command
 from .errors import InputError
 from .progress import Progress
 
-DEMO_AUDIO = Path(__file__).resolve().parent.parent / "demo_audio"
+#: The dry clips' source folder in a checkout (demo_audio/, beside the script that made them).
+#: A built wheel carries the same files as the package data ``roomconv.demo_audio``.
+SOURCE_CLIPS = Path(__file__).resolve().parent.parent / "demo_audio"
 RATE = 48000
 SEED = 2026
 
@@ -42,6 +45,25 @@ FULL = Scenario(sources=((4.0, 7.5, 1.6), (4.0, 4.0, 1.6)),
                 sweep_s=5.0, clips=("plucks.wav", "claps.wav", "speech.wav"))
 QUICK = Scenario(sources=((4.0, 7.5, 1.6),), receivers=((12.0, 5.0, 1.2), (17.5, 10.0, 1.2)),
                  sweep_s=3.0, clips=("plucks.wav",))
+
+
+def demo_clip(name: str) -> Path | None:
+    """The bundled dry clip ``name``: package data when installed, else the source folder.
+
+    Examples
+    --------
+    >>> demo_clip("plucks.wav").name
+    'plucks.wav'
+    >>> demo_clip("no-such-clip.wav") is None
+    True
+    """
+    try:
+        root = importlib.resources.files("roomconv.demo_audio")
+    except ModuleNotFoundError:  # a source checkout on PYTHONPATH, not installed
+        root = SOURCE_CLIPS  # type: ignore[assignment]
+    clip = root / name
+    # Installed wheels are unpacked on disk, so the resource is a real file with a path.
+    return Path(str(clip)) if clip.is_file() else None
 
 
 def linden_hall():
@@ -171,9 +193,9 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         rs = RenderSettings(mix=0.85, normalize="truepeak", target=-1.0, subtype="PCM_24")
         renders = []
         for clip in sc.clips:
-            dry = DEMO_AUDIO / clip
-            if not dry.exists():
-                log(f"note: {dry} is missing; skipped")
+            dry = demo_clip(clip)
+            if dry is None:
+                log(f"note: demo clip {clip} is missing; skipped")
                 bar.update()
                 continue
             for label, ir_path in (("measured", out / "irs" / "measured_pair_S1.wav"),

@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 
-BLOCKS = " ▁▂▃▄▅▆▇█"
-
 
 def bar_chart(rows: list[tuple[str, float | None]], width: int = 36, unit: str = "s") -> str:
     """One line per (label, value): a bar scaled to the largest value."""
@@ -22,8 +20,12 @@ def bar_chart(rows: list[tuple[str, float | None]], width: int = 36, unit: str =
     return "\n".join(lines)
 
 
-def decay_plot(curves: list[tuple[str, np.ndarray, int]], width: int = 60, height: int = 12,
-               floor_db: float = -60.0) -> str:
+def decay_plot(
+    curves: list[tuple[str, np.ndarray, int]],
+    width: int = 60,
+    height: int = 12,
+    floor_db: float = -60.0,
+) -> str:
     """Decay curves (label, dB array from onset, rate) on a character grid, one mark per band."""
     marks = "123456789abcdefghij"
     t_max = max((c.size / r for _, c, r in curves if c is not None), default=1.0)
@@ -34,8 +36,11 @@ def decay_plot(curves: list[tuple[str, np.ndarray, int]], width: int = 60, heigh
         t = np.arange(curve.size) / rate
         cols = np.minimum((t / t_max * (width - 1)).astype(int), width - 1)
         rows = np.clip(((curve / floor_db) * (height - 1)).round().astype(int), 0, height - 1)
-        for c, r in zip(cols[:: max(1, curve.size // (width * 4))],
-                        rows[:: max(1, curve.size // (width * 4))]):
+        for c, r in zip(
+            cols[:: max(1, curve.size // (width * 4))],
+            rows[:: max(1, curve.size // (width * 4))],
+            strict=True,
+        ):
             grid[r][c] = marks[k % len(marks)]
     lines = []
     for i, row in enumerate(grid):

@@ -9,6 +9,7 @@ full linear convolution, so a stream of blocks reproduces ``scipy.signal.fftconv
 from __future__ import annotations
 
 import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -16,10 +17,41 @@ from scipy import fft as sfft
 
 from ..errors import InputError
 
+__all__ = [
+    "Routing",
+    "routing_for",
+    "UniformPartitionedConvolver",
+    "OverlapSaveConvolver",
+    "NonUniformConvolver",
+    "overlap_save_size",
+    "offline_convolver",
+    "plan_partition",
+    "live_block_size",
+    "MAX_OVERLAP_SAVE",
+]
+
 
 @dataclass(frozen=True)
 class Routing:
-    """Which input feeds which output through which IR channel."""
+    """Which input feeds which output through which IR channel.
+
+    Channels are numbered from 0 here (array indices); front ends show them from 1.
+
+    Attributes
+    ----------
+    n_in, n_out : int
+        Number of input and output channels.
+    path_in, path_out, path_ir : tuple of int
+        For each path: its input channel, output channel and IR channel.
+    name : str
+        A short description ("mono", "per-channel", "true stereo", ...).
+
+    Examples
+    --------
+    >>> r = routing_for(2, 4)
+    >>> r.name, r.n_paths
+    ('true stereo', 4)
+    """
 
     n_in: int
     n_out: int
@@ -30,17 +62,28 @@ class Routing:
 
     @property
     def n_paths(self) -> int:
+        """Number of (input, IR channel, output) paths."""
         return len(self.path_in)
 
     def mix_matrix(self) -> np.ndarray:
-        """(paths × outputs) 0/1 matrix that sums path results into outputs."""
+        """(paths × outputs) 0/1 matrix that sums path results into outputs.
+
+        Examples
+        --------
+        >>> routing_for(2, 4).mix_matrix()
+        array([[1., 0.],
+               [0., 1.],
+               [1., 0.],
+               [0., 1.]])
+        """
         m = np.zeros((self.n_paths, self.n_out))
         m[np.arange(self.n_paths), list(self.path_out)] = 1.0
         return m
 
 
-def routing_for(n_in: int, n_ir: int, *, outputs: int | None = None, shared: bool = False
-                ) -> Routing:
+def routing_for(
+    n_in: int, n_ir: int, *, outputs: int | None = None, shared: bool = False
+) -> Routing:
     """Choose the routing for ``n_in`` input channels and an IR with ``n_ir`` channels.
 
     - 1 in, 1 IR: mono → mono.
@@ -51,27 +94,58 @@ def routing_for(n_in: int, n_ir: int, *, outputs: int | None = None, shared: boo
       left input → left output, left → right, right → left, right → right).
     - N in, N·M IRs with ``outputs=M``: a general matrix, IR channel i·M + o feeds input i to
       output o.
+
+    Parameters
+    ----------
+    n_in : int
+        Input channels of the dry signal.
+    n_ir : int
+        Channels of the impulse response.
+    outputs : int, optional
+        Output channels of a general matrix (IR channels input-major).
+    shared : bool
+        Use IR channel 0 for every input.
+
+    Returns
+    -------
+    Routing
+
+    Examples
+    --------
+    >>> routing_for(1, 2).name
+    'mono to 2'
+    >>> routing_for(2, 6, outputs=3).path_ir
+    (0, 1, 2, 3, 4, 5)
     """
     if outputs is not None:
         if n_ir != n_in * outputs:
-            raise InputError(f"a {n_in}-input, {outputs}-output matrix needs {n_in * outputs} IR "
-                             f"channels (input-major), but the IR has {n_ir}")
-        pin, pout = zip(*[(i, o) for i in range(n_in) for o in range(outputs)])
+            raise InputError(
+                f"a {n_in}-input, {outputs}-output matrix needs {n_in * outputs} IR "
+                f"channels (input-major), but the IR has {n_ir}"
+            )
+        pin, pout = zip(*[(i, o) for i in range(n_in) for o in range(outputs)], strict=True)
         return Routing(n_in, outputs, pin, pout, tuple(range(n_ir)), "matrix")
     if n_in == 1:
-        return Routing(1, n_ir, (0,) * n_ir, tuple(range(n_ir)), tuple(range(n_ir)),
-                       "mono" if n_ir == 1 else f"mono to {n_ir}")
+        return Routing(
+            1,
+            n_ir,
+            (0,) * n_ir,
+            tuple(range(n_ir)),
+            tuple(range(n_ir)),
+            "mono" if n_ir == 1 else f"mono to {n_ir}",
+        )
     if n_ir == 1 or shared:
-        return Routing(n_in, n_in, tuple(range(n_in)), tuple(range(n_in)), (0,) * n_in,
-                       "shared")
+        return Routing(n_in, n_in, tuple(range(n_in)), tuple(range(n_in)), (0,) * n_in, "shared")
     if n_ir == n_in:
         r = tuple(range(n_in))
         return Routing(n_in, n_in, r, r, r, "per-channel")
     if n_in == 2 and n_ir == 4:
         return Routing(2, 2, (0, 0, 1, 1), (0, 1, 0, 1), (0, 1, 2, 3), "true stereo")
-    raise InputError(f"cannot route {n_in} input channel(s) through an IR with {n_ir} "
-                     "channel(s): use 1 IR channel (shared), one per input, 4 for true stereo "
-                     "with 2 inputs, or a matrix with --outputs")
+    raise InputError(
+        f"cannot route {n_in} input channel(s) through an IR with {n_ir} "
+        "channel(s): use 1 IR channel (shared), one per input, 4 for true stereo "
+        "with 2 inputs, or a matrix with --outputs"
+    )
 
 
 def _as_paths(ir: np.ndarray, routing: Routing) -> np.ndarray:
@@ -101,7 +175,7 @@ class _ChannelThreads:
 
     def __init__(self, threads: int):
         self.threads = max(1, int(threads))
-        self._pool = None
+        self._pool: ThreadPoolExecutor | None = None
 
     def run(self, fn, count: int, *args) -> None:
         if self.threads == 1 or count == 1:
@@ -109,7 +183,6 @@ class _ChannelThreads:
                 fn(k, *args)
             return
         if self._pool is None:
-            from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
             self._pool = ThreadPoolExecutor(self.threads, thread_name_prefix="roomconv-fft")
         for f in [self._pool.submit(fn, k, *args) for k in range(count)]:
             f.result()
@@ -128,8 +201,15 @@ class _Stage:
     arithmetic, is most of the cost.
     """
 
-    def __init__(self, h_paths: np.ndarray, b: int, offset: int, routing: Routing, cdtype,
-                 workers: int | None):
+    def __init__(
+        self,
+        h_paths: np.ndarray,
+        b: int,
+        offset: int,
+        routing: Routing,
+        cdtype,
+        workers: int | None,
+    ):
         self.b, self.offset = b, offset
         self.n = 2 * b
         taps = h_paths.shape[0]
@@ -140,20 +220,22 @@ class _Stage:
         # Each partition zero-padded to 2b, built in place (no padding copy inside rfft).
         parts = np.zeros((self.P, self.n, h_paths.shape[1]), dtype=np.float64)
         for q in range(self.P):
-            seg = h_paths[q * b:(q + 1) * b]
-            parts[q, :seg.shape[0]] = seg
+            seg = h_paths[q * b : (q + 1) * b]
+            parts[q, : seg.shape[0]] = seg
         # Spectra stored newest-partition-last, so that a contiguous window of the doubled
         # delay line lines up with them without copying.
         H = sfft.rfft(parts, axis=1, workers=workers)  # (P, K, paths)
         del parts
         self.H = np.ascontiguousarray(H[::-1], dtype=cdtype)
         self.path_in = np.array(routing.path_in)
-        self.mix = routing.mix_matrix().astype(rdtype)
+        self.mix: np.ndarray = routing.mix_matrix().astype(rdtype)
         # Shortcuts for the common routings (one path per input, one per output): no gather
         # of inputs and no mixing product per block.
         self.gather = list(routing.path_in) != list(range(routing.n_in))
-        self.mixes = not (routing.n_paths == routing.n_out
-                          and list(routing.path_out) == list(range(routing.n_out)))
+        self.mixes = not (
+            routing.n_paths == routing.n_out
+            and list(routing.path_out) == list(range(routing.n_out))
+        )
         # Small FFTs spend more time in dispatch than in arithmetic: numpy's is lighter.
         # Large ones go channel by channel on their own threads (see OverlapSaveConvolver).
         self.small = self.n <= 4096 and workers in (None, 1)
@@ -198,7 +280,7 @@ class _Stage:
         # Row r of the window (the spectrum r blocks newer than the oldest in use) lines up
         # with row r of the reversed self.H: partition P-1-r.
         base = self.pos + 1
-        Xs = self.fdl[base + first: base + last]
+        Xs = self.fdl[base + first : base + last]
         if self.gather:
             Xs = Xs[:, :, self.path_in]
         if self._prod.shape[0] < n:
@@ -217,14 +299,14 @@ class _Stage:
         X[:, c] = sfft.rfft(self.inbuf[:, c])
 
     def _inverse(self, p: int, y: np.ndarray) -> None:
-        y[:, p] = sfft.irfft(self._acc[:, p], self.n)[self.b:]
+        y[:, p] = sfft.irfft(self._acc[:, p], self.n)[self.b :]
 
     def finish(self) -> np.ndarray:
         """Inverse transform the accumulated spectrum: ``b`` output samples × outputs."""
         if self._fresh:
             self.accumulate()
         if self.small:
-            y = np.fft.irfft(self._acc, self.n, axis=0)[self.b:]
+            y = np.fft.irfft(self._acc, self.n, axis=0)[self.b :]
         else:
             y = np.empty((self.b, self._acc.shape[1]), dtype=self.rdtype)
             self._threads.run(self._inverse, self._acc.shape[1], y)
@@ -259,8 +341,15 @@ class UniformPartitionedConvolver:
     Verlag (uniformly partitioned overlap-save with a frequency-domain delay line).
     """
 
-    def __init__(self, ir, routing: Routing, block: int, *, precision: str = "float64",
-                 workers: int | None = None):
+    def __init__(
+        self,
+        ir,
+        routing: Routing,
+        block: int,
+        *,
+        precision: str = "float64",
+        workers: int | None = None,
+    ):
         if block < 1:
             raise InputError(f"block size {block} must be positive")
         self.routing = routing
@@ -274,15 +363,37 @@ class UniformPartitionedConvolver:
 
     @property
     def partitions(self) -> int:
+        """Number of partitions of length ``block`` the response is cut into."""
         return self._stage.P
 
     def process(self, block: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """Take up to ``block`` new samples (a short last block is zero-padded) and return
-        the next ``block`` output samples, written into ``out`` when given."""
+        """Convolve the next block.
+
+        Parameters
+        ----------
+        block : ndarray, shape (n,) or (n, inputs), n ≤ ``self.block``
+            New input samples; a short last block is zero-padded.
+        out : ndarray, optional
+            Written with the result (its first ``len(out)`` samples) when given.
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution.
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(0).standard_normal((2, 300))
+        >>> eng = UniformPartitionedConvolver(h, routing_for(1, 1), 64)
+        >>> y = np.concatenate([eng.process(x[i:i + 64]) for i in range(0, 640, 64)])
+        >>> bool(np.allclose(y[:599, 0], fftconvolve(x, h)))
+        True
+        """
         x = _input_block(block, self.block, self.routing.n_in)
         cur = self._stage.current
         cur[: x.shape[0]] = x
-        cur[x.shape[0]:] = 0.0
+        cur[x.shape[0] :] = 0.0
         self._stage.push()
         y = self._stage.finish()
         if out is None:
@@ -299,6 +410,17 @@ class OverlapSaveConvolver:
     """Single-partition overlap-save for offline work: one FFT of size N per hop of
     N − taps + 1 samples, paths combined into outputs before the inverse transform.
 
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+        From :func:`routing_for`.
+    fft_size : int, optional
+        N; by default :func:`overlap_save_size`.
+    precision : 'float64' or 'float32'
+    workers : int, optional
+        Threads sharing the channels' transforms.
+
     Each :meth:`process` call takes ``block`` (= the hop) samples and returns y[iB:(i+1)B].
 
     Every channel is transformed as its own contiguous 1-D array, the channels spread over
@@ -312,8 +434,15 @@ class OverlapSaveConvolver:
     (overlap-save).
     """
 
-    def __init__(self, ir, routing: Routing, *, fft_size: int | None = None,
-                 precision: str = "float64", workers: int | None = None):
+    def __init__(
+        self,
+        ir,
+        routing: Routing,
+        *,
+        fft_size: int | None = None,
+        precision: str = "float64",
+        workers: int | None = None,
+    ):
         h = _as_paths(ir, routing)
         self.routing, self.taps = routing, h.shape[0]
         rdtype = np.float32 if precision == "float32" else np.float64
@@ -325,9 +454,10 @@ class OverlapSaveConvolver:
         cdtype = self.H.dtype
         K = n // 2 + 1
         self._inputs = np.zeros((routing.n_in, n), dtype=rdtype)  # one row per input channel
-        self._paths_of = [[(p, i) for p, (i, o) in enumerate(zip(routing.path_in,
-                                                                 routing.path_out)) if o == out]
-                          for out in range(routing.n_out)]
+        pairs = list(zip(routing.path_in, routing.path_out, strict=True))
+        self._paths_of = [
+            [(p, i) for p, (i, o) in enumerate(pairs) if o == out] for out in range(routing.n_out)
+        ]
         self._Y = np.zeros((routing.n_out, K), dtype=cdtype)
         self._scratch = np.zeros((routing.n_out, K), dtype=cdtype)
         self._X: list = [None] * routing.n_in
@@ -339,10 +469,10 @@ class OverlapSaveConvolver:
         # Slide the overlap and take the new samples, in this channel's own thread.
         m1, n_new, row = self.taps - 1, block.shape[0], self._inputs[i]
         if m1:
-            row[:m1] = row[self.block:]
-        row[m1:m1 + n_new] = block[:, i]
+            row[:m1] = row[self.block :]
+        row[m1 : m1 + n_new] = block[:, i]
         if n_new < self.block:
-            row[m1 + n_new:] = 0.0
+            row[m1 + n_new :] = 0.0
         self._X[i] = sfft.rfft(row)
 
     def _inverse(self, o: int, out: np.ndarray) -> None:
@@ -357,12 +487,32 @@ class OverlapSaveConvolver:
             np.multiply(self._X[i], self.H[p], out=S)
             Y += S
         m1 = self.taps - 1
-        out[:, o] = sfft.irfft(Y, self.n)[m1:m1 + out.shape[0]]
+        out[:, o] = sfft.irfft(Y, self.n)[m1 : m1 + out.shape[0]]
 
     def process(self, block: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """Take up to ``block`` new samples (samples × inputs; a short last block is
-        zero-padded) and return the next ``block`` output samples, written into ``out``
-        (at most ``block`` × outputs) when given."""
+        """Convolve the next hop.
+
+        Parameters
+        ----------
+        block : ndarray, shape (n,) or (n, inputs), n ≤ ``self.block``
+            New input samples; a short last block is zero-padded.
+        out : ndarray, optional
+            At most ``block`` × outputs, written with the result when given.
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution (``out`` when given).
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(1).standard_normal((2, 1000))
+        >>> eng = OverlapSaveConvolver(h, routing_for(1, 1), fft_size=4096)
+        >>> y = np.concatenate([eng.process(x), eng.process(np.zeros(0))])
+        >>> bool(np.allclose(y[:1999, 0], fftconvolve(x, h)))
+        True
+        """
         x = _input_block(block, self.block, self.routing.n_in)
         if out is None:
             out = np.empty((self.block, self.routing.n_out), dtype=self._inputs.dtype)
@@ -384,6 +534,22 @@ def overlap_save_size(taps: int, precision: str = "float64") -> int:
     interleaved): for stereo through a 4 s IR, 3·2^18 ran 12 % ahead of 2^19 while the
     machine was quiet but 15 % behind it while it was busy, so the smaller, steadier size
     is used; true stereo through 6 s IRs was fastest at 5·2^17; float32 at 2^20 for both.
+
+    Parameters
+    ----------
+    taps : int
+        Length of the response, samples.
+    precision : 'float64' or 'float32'
+
+    Returns
+    -------
+    int
+        FFT size N, samples.
+
+    Examples
+    --------
+    >>> overlap_save_size(48000), overlap_save_size(48000, "float32")  # 2^17 ≥ 2.2·48000
+    (131072, 262144)
     """
     if precision == "float32":
         return max(1 << 14, 1 << int(np.ceil(np.log2(3.0 * taps))))
@@ -395,34 +561,76 @@ def overlap_save_size(taps: int, precision: str = "float64") -> int:
 MAX_OVERLAP_SAVE = 1 << 21
 
 
-def offline_convolver(ir, routing: Routing, *, precision: str = "float64",
-                      workers: int | None = None):
+def offline_convolver(
+    ir, routing: Routing, *, precision: str = "float64", workers: int | None = None
+):
     """The fastest exact engine for a whole-file render: single-block overlap-save while the
     response fits a 2^21-point FFT with a hop of at least a third of it (about 29 s of
     response at 48 kHz), uniformly partitioned overlap-save beyond that. ``workers``
-    threads (default: every core) share the channels' transforms."""
+    threads (default: every core) share the channels' transforms.
+
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+    precision : 'float64' or 'float32'
+    workers : int, optional
+
+    Returns
+    -------
+    OverlapSaveConvolver or UniformPartitionedConvolver
+        Either has ``process(block, out=None)``, ``block`` and ``latency_samples``.
+
+    Examples
+    --------
+    >>> type(offline_convolver(np.ones(100), routing_for(1, 1))).__name__
+    'OverlapSaveConvolver'
+    """
     taps = np.asarray(ir).shape[0]
     workers = workers or os.cpu_count() or 1
     n = overlap_save_size(taps, precision)
     if n > MAX_OVERLAP_SAVE and 1.5 * taps <= MAX_OVERLAP_SAVE:
         n = MAX_OVERLAP_SAVE
     if n <= MAX_OVERLAP_SAVE:
-        return OverlapSaveConvolver(ir, routing, fft_size=n, precision=precision,
-                                    workers=workers)
+        return OverlapSaveConvolver(ir, routing, fft_size=n, precision=precision, workers=workers)
     # Few, long partitions: the multiply-accumulate over partitions is what costs here
     # (a 35 s response: 2^18 ran 20 % ahead of 2^17 and level with 2^19).
-    return UniformPartitionedConvolver(ir, routing, 1 << 18, precision=precision,
-                                       workers=workers)
+    return UniformPartitionedConvolver(ir, routing, 1 << 18, precision=precision, workers=workers)
 
 
-def plan_partition(taps: int, block: int, *, ratio: int = 4, max_block: int = 16384
-                   ) -> list[tuple[int, int, int]]:
+def plan_partition(
+    taps: int, block: int, *, ratio: int = 4, max_block: int = 16384
+) -> list[tuple[int, int, int]]:
     """Non-uniform partition: (block, offset, length) per stage.
 
     Stage s uses block b_s = block·ratio^s. Its work is spread over the b_s/block callbacks
     after its input is complete, so its segment may start no earlier than 2·b_s − block; each
     stage therefore covers exactly up to where the next may start, and the largest block
     takes the rest.
+
+    Parameters
+    ----------
+    taps : int
+        Length of the response, samples.
+    block : int
+        Callback block size, samples (the first stage's block).
+    ratio : int
+        Growth factor of the block from one stage to the next.
+    max_block : int
+        Largest block; the last stage takes the rest of the response.
+
+    Returns
+    -------
+    list of (block, offset, length)
+        Per stage, in samples; the offsets and lengths tile ``[0, taps)``.
+
+    Examples
+    --------
+    >>> plan = plan_partition(10000, 128)
+    >>> plan
+    [(128, 0, 896), (512, 896, 3072), (2048, 3968, 6032)]
+    >>> sum(length for _, _, length in plan)
+    10000
 
     References
     ----------
@@ -457,13 +665,31 @@ class NonUniformConvolver:
     its input is complete, spreads its multiply-accumulate over the next b/block calls and
     adds its inverse FFT's output into a delay line, so no call does a whole stage's work.
 
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, ir_channels)
+    routing : Routing
+    block : int
+        Callback block size, 1–65536 samples.
+    precision : 'float64' or 'float32'
+    ratio, max_block : int
+        Passed to :func:`plan_partition`.
+
     References
     ----------
     Gardner, W. G. (1995), J. Audio Eng. Soc. 43(3), 127–136; Wefers, F. (2015).
     """
 
-    def __init__(self, ir, routing: Routing, block: int, *, precision: str = "float64",
-                 ratio: int = 4, max_block: int = 16384):
+    def __init__(
+        self,
+        ir,
+        routing: Routing,
+        block: int,
+        *,
+        precision: str = "float64",
+        ratio: int = 4,
+        max_block: int = 16384,
+    ):
         if not 1 <= block <= 65536:
             raise InputError(f"block size {block} is outside 1..65536")
         self.routing = routing
@@ -472,23 +698,56 @@ class NonUniformConvolver:
         h = _as_paths(ir, routing)
         self.taps = h.shape[0]
         self.plan = plan_partition(self.taps, B, ratio=ratio, max_block=max_block)
-        self.stages = [_Stage(h[off:off + ln], b, off, routing, cdtype, None)
-                       for b, off, ln in self.plan]
+        self.stages = [
+            _Stage(h[off : off + ln], b, off, routing, cdtype, None) for b, off, ln in self.plan
+        ]
         # The first stage has the callback's block and starts at tap 0: its output belongs
         # to the block being returned.
         assert self.plan[0][:2] == (B, 0)
         # For each spread stage: the partitions to multiply in each of its b/B calls.
-        self._spread = [(s, st, [(d * st.P // (st.b // B), (d + 1) * st.P // (st.b // B))
-                                 for d in range(st.b // B)])
-                        for s, st in enumerate(self.stages) if s > 0]
+        self._spread = [
+            (
+                s,
+                st,
+                [
+                    (d * st.P // (st.b // B), (d + 1) * st.P // (st.b // B))
+                    for d in range(st.b // B)
+                ],
+            )
+            for s, st in enumerate(self.stages)
+            if s > 0
+        ]
         horizon = max(off + 3 * b for b, off, _ in self.plan) + B
         # A whole number of callback blocks, so the block read out never wraps.
         self._ring = np.zeros((-(-horizon // B) * B, routing.n_out))
         self._t = 0  # samples consumed so far
-        self._pending = [None] * len(self.stages)  # (output start, slices done)
+        self._pending: list[tuple[int, int] | None] = [None] * len(
+            self.stages
+        )  # (output start, slices done)
         self.latency_samples = B
 
     def process(self, block: np.ndarray) -> np.ndarray:
+        """Convolve the next callback block.
+
+        Parameters
+        ----------
+        block : ndarray, exactly ``self.block`` samples (× inputs)
+
+        Returns
+        -------
+        ndarray, shape (block, outputs)
+            The next ``block`` samples of the linear convolution.
+
+        Examples
+        --------
+        >>> from scipy.signal import fftconvolve
+        >>> h, x = np.random.default_rng(2).standard_normal((2, 4096))
+        >>> eng = NonUniformConvolver(h, routing_for(1, 1), 64)
+        >>> xs = np.concatenate([x, np.zeros(4096)])
+        >>> y = np.concatenate([eng.process(xs[i:i + 64]) for i in range(0, 8192, 64)])
+        >>> bool(np.allclose(y[:8191, 0], fftconvolve(x, h)))
+        True
+        """
         B = self.block
         x = np.asarray(block, dtype=np.float64).reshape(B, self.routing.n_in)
         t0 = self._t
@@ -508,7 +767,7 @@ class NonUniformConvolver:
                     pending[s] = None
                 else:
                     pending[s] = (start, done)
-            st.current[st.fill:st.fill + B] = x
+            st.current[st.fill : st.fill + B] = x
             st.fill += B
             if st.fill == st.b:
                 # Input block complete: transform now, multiply over the next b/B calls.
@@ -517,8 +776,8 @@ class NonUniformConvolver:
                 pending[s] = (t0 + B - st.b + st.offset, 0)
         ring = self._ring
         s0 = t0 % ring.shape[0]
-        out = ring[s0:s0 + B] + y0
-        ring[s0:s0 + B] = 0.0
+        out = ring[s0 : s0 + B] + y0
+        ring[s0 : s0 + B] = 0.0
         self._t = t0 + B
         return out
 
@@ -529,15 +788,30 @@ class NonUniformConvolver:
             raise RuntimeError("partition plan violated: a stage finished too late")
         s0, n = start % H, y.shape[0]
         if s0 + n <= H:
-            ring[s0:s0 + n] += y
+            ring[s0 : s0 + n] += y
         else:
-            ring[s0:] += y[:H - s0]
-            ring[:n - (H - s0)] += y[H - s0:]
+            ring[s0:] += y[: H - s0]
+            ring[: n - (H - s0)] += y[H - s0 :]
 
 
 def live_block_size(requested: int = 256) -> int:
     """Callback block size for live use: the requested latency, 32–1024 samples, rounded to
-    a power of two (offline renders choose their own size in :func:`offline_convolver`)."""
+    a power of two (offline renders choose their own size in :func:`offline_convolver`).
+
+    Parameters
+    ----------
+    requested : int
+        Wanted block size, samples.
+
+    Returns
+    -------
+    int
+
+    Examples
+    --------
+    >>> live_block_size(200)
+    256
+    """
     if not 32 <= requested <= 1024:
         raise InputError(f"live block size {requested} is outside 32..1024")
     return 1 << int(np.round(np.log2(requested)))

@@ -4,11 +4,14 @@ early/late balance and resampling. Each function takes and returns (samples × c
 from __future__ import annotations
 
 import numpy as np
-from scipy.signal import resample_poly
 
 from ..errors import InputError
+from ..signal import cosine_step, db_to_gain, raised_cosine
+from ..signal import resample as _resample
 from .image_source import band_weights
 from .materials import OCTAVES
+
+__all__ = ["trim", "fade", "normalize", "reverse", "scale_decay", "early_late_balance", "resample"]
 
 _LN10 = np.log(10)
 
@@ -18,55 +21,118 @@ def _2d(x):
     return x[:, None] if x.ndim == 1 else x
 
 
-def trim(ir: np.ndarray, rate: int, *, threshold_db: float = -60.0,
-         lead_s: float = 0.001) -> tuple[np.ndarray, int, int]:
+def trim(
+    ir: np.ndarray, rate: int, *, threshold_db: float = -60.0, lead_s: float = 0.001
+) -> tuple[np.ndarray, int, int]:
     """Cut silence before the first and after the last sample above ``threshold_db`` re peak.
 
-    Keeps ``lead_s`` before the start. Returns (trimmed, samples cut at start, at end).
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    rate : int
+        Sample rate, Hz.
+    threshold_db : float
+        Level re the peak below which samples count as silence, dB.
+    lead_s : float
+        Time kept before the first sample above the threshold, s.
+
+    Returns
+    -------
+    trimmed : ndarray, shape (samples, channels)
+    cut_start_samples, cut_end_samples : int
+
+    Examples
+    --------
+    >>> y, a, b = trim(np.r_[np.zeros(100), 1.0, 0.5, np.zeros(50)], 48000, lead_s=0.0)
+    >>> y[:, 0].tolist(), a, b
+    ([1.0, 0.5], 100, 50)
     """
     x = _2d(ir)
     e = np.max(np.abs(x), axis=1)
     if e.max() == 0:
         raise InputError("the response is silent; nothing to trim")
-    live = np.flatnonzero(e >= e.max() * 10 ** (threshold_db / 20))
+    live = np.flatnonzero(e >= e.max() * db_to_gain(threshold_db))
     start = max(0, live[0] - int(lead_s * rate))
     end = live[-1] + 1
     return x[start:end], int(start), int(x.shape[0] - end)
 
 
 def fade(ir: np.ndarray, rate: int, *, fade_in_s: float = 0.0, fade_out_s: float = 0.0):
-    """Raised-cosine fade-in and fade-out."""
+    """Raised-cosine fade-in and fade-out (:func:`roomconv.signal.raised_cosine`).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    rate : int
+        Sample rate, Hz.
+    fade_in_s, fade_out_s : float
+        Fade lengths, s (0 for none).
+
+    Returns
+    -------
+    ndarray, shape (samples, channels)
+
+    Examples
+    --------
+    >>> fade(np.ones(6), 6, fade_out_s=0.5)[:, 0].round(2).tolist()
+    [1.0, 1.0, 1.0, 0.75, 0.25, 0.0]
+    """
     x = _2d(ir).copy()
     for dur, head in ((fade_in_s, True), (fade_out_s, False)):
         n = min(int(round(dur * rate)), x.shape[0])
         if n <= 0:
             continue
-        w = 0.5 - 0.5 * np.cos(np.pi * (np.arange(n) + 1) / (n + 1))
         if head:
-            x[:n] *= w[:, None]
+            x[:n] *= raised_cosine(n, rising=True)[:, None]
         else:
-            x[-n:] *= w[::-1, None]
+            x[-n:] *= raised_cosine(n, rising=False)[:, None]
     return x
 
 
-def normalize(ir: np.ndarray, *, peak_dbfs: float | None = None,
-              energy_db: float | None = None) -> np.ndarray:
-    """Scale to a peak level (dBFS) or to a total energy 10·log10(Σh²) (dB)."""
+def normalize(
+    ir: np.ndarray, *, peak_dbfs: float | None = None, energy_db: float | None = None
+) -> np.ndarray:
+    """Scale to a peak level (dBFS) or to a total energy 10·log10(Σh²) (dB).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    peak_dbfs : float, optional
+        Wanted sample peak, dBFS (wins over ``energy_db``).
+    energy_db : float, optional
+        Wanted total energy, dB re 1.
+
+    Returns
+    -------
+    ndarray, shape (samples, channels)
+
+    Examples
+    --------
+    >>> float(np.max(np.abs(normalize(np.array([0.1, -0.2]), peak_dbfs=-6.0206))))
+    0.5
+    """
     x = _2d(ir)
     if peak_dbfs is not None:
         pk = np.max(np.abs(x))
         if pk == 0:
             raise InputError("cannot normalize a silent response")
-        return x * (10 ** (peak_dbfs / 20) / pk)
+        return x * (db_to_gain(peak_dbfs) / pk)
     if energy_db is not None:
         en = np.sum(x * x)
         if en == 0:
             raise InputError("cannot normalize a silent response")
-        return x * np.sqrt(10 ** (energy_db / 10) / en)
+        return x * (db_to_gain(energy_db) / np.sqrt(en))
     return x
 
 
 def reverse(ir: np.ndarray) -> np.ndarray:
+    """Time-reversed copy, (samples × channels).
+
+    Examples
+    --------
+    >>> reverse(np.array([1.0, 2.0, 3.0]))[:, 0].tolist()
+    [3.0, 2.0, 1.0]
+    """
     return _2d(ir)[::-1].copy()
 
 
@@ -76,8 +142,27 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     A decay of time T becomes factor·T: each band is multiplied by
     exp(3·ln10·t/T·(1 − 1/factor)), where T is that band's own decay time. ``factor`` is a
     number or {band_hz: factor}; T per band is read from the response (T30, else T20).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    rate : int
+        Sample rate, Hz.
+    factor : float or dict
+        New T / old T, for every band or per octave band {band_hz: factor}.
+    onset : int, optional
+        Sample where the decay starts (default: each channel's peak).
+
+    Returns
+    -------
+    ndarray, shape (samples, channels)
+
+    References
+    ----------
+    ISO 3382-1:2009, 3.10 and 5.3 (the decay times read from the response).
     """
     from ..analysis.parameters import room_parameters
+
     x = _2d(ir)
     factors = factor if isinstance(factor, dict) else {b: float(factor) for b in OCTAVES}
     for b, f in factors.items():
@@ -92,7 +177,9 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
         t0 = onset if onset is not None else int(np.argmax(np.abs(x[:, ch])))
         t = np.maximum(np.arange(n) - t0, 0) / rate
         X = np.fft.rfft(x[:, ch], nfft)
-        by_band = {int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res}
+        by_band = {
+            int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res if r.band_hz is not None
+        }
         for i, b in enumerate(OCTAVES):
             T = by_band.get(b) or wide.t30_s or wide.t20_s
             if T is None:
@@ -103,24 +190,62 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     return out
 
 
-def early_late_balance(ir: np.ndarray, rate: int, gain_db: float, *, split_s: float = 0.08,
-                       crossfade_s: float = 0.01) -> np.ndarray:
-    """Raise (or lower) the late part after ``split_s`` from the peak by ``gain_db``."""
+def early_late_balance(
+    ir: np.ndarray, rate: int, gain_db: float, *, split_s: float = 0.08, crossfade_s: float = 0.01
+) -> np.ndarray:
+    """Raise (or lower) the late part after ``split_s`` from the peak by ``gain_db``.
+
+    The change fades in over ``crossfade_s`` centred on the split (a raised-cosine step).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    rate : int
+        Sample rate, Hz.
+    gain_db : float
+        Gain of the late part, dB.
+    split_s : float
+        Start of the late part after the peak, s (80 ms, the C80 split of ISO 3382-1).
+    crossfade_s : float
+        Width of the transition, s.
+
+    Returns
+    -------
+    ndarray, shape (samples, channels)
+
+    Examples
+    --------
+    >>> y = early_late_balance(np.ones(48000), 48000, -20.0)
+    >>> float(y[0, 0]), round(float(y[-1, 0]), 6)
+    (1.0, 0.1)
+    """
     x = _2d(ir)
     t0 = int(np.argmax(np.max(np.abs(x), axis=1)))
     t = (np.arange(x.shape[0]) - t0) / rate
     u = np.clip((t - split_s) / crossfade_s + 0.5, 0, 1)
-    g = 1 + (10 ** (gain_db / 20) - 1) * (0.5 - 0.5 * np.cos(np.pi * u))
+    g = 1 + (db_to_gain(gain_db) - 1) * cosine_step(u)
     return x * g[:, None]
 
 
 def resample(ir: np.ndarray, rate: int, new_rate: int) -> np.ndarray:
-    """Polyphase resampling with a long Kaiser-windowed filter (β = 8.6, steep near Nyquist)."""
+    """Resample to ``new_rate`` with soxr's very-high-quality filter (see
+    :func:`roomconv.signal.resample`), keeping (samples × channels).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (samples,) or (samples, channels)
+    rate, new_rate : int
+        Sample rates, Hz.
+
+    Returns
+    -------
+    ndarray, shape (samples · new_rate / rate, channels)
+
+    Examples
+    --------
+    >>> resample(np.zeros(4800), 48000, 44100).shape
+    (4410, 1)
+    """
     if new_rate <= 0:
         raise InputError(f"sample rate {new_rate} must be positive")
-    if new_rate == rate:
-        return _2d(ir)
-    from math import gcd
-    g = gcd(int(rate), int(new_rate))
-    up, down = int(new_rate) // g, int(rate) // g
-    return resample_poly(_2d(ir), up, down, axis=0, window=("kaiser", 8.6))
+    return _resample(_2d(ir), rate, new_rate)

@@ -14,22 +14,43 @@ from .materials import OCTAVES
 from .room import RoomModel, eyring, max_reverberation, sabine
 from .tail import band_noise, diffuse_tail
 
+__all__ = ["Receivers", "SynthResult", "synthesize"]
+
+#: Mean power of a cardioid ½ + ½·cos θ in a diffuse field relative to an omni:
+#: ∫(½ + ½cos θ)² dΩ / 4π = 1/3 (closed form).
+CARDIOID_DIFFUSE_POWER = 1.0 / 3.0
+#: Default length beyond the longest decay: 1.2·T is 72 dB of decay (our choice, below any
+#: practical noise floor), plus the direct sound's travel time and 0.1 s.
+LENGTH_DECAYS = 1.2
+LENGTH_MARGIN_S = 0.1
+
 
 @dataclass
 class Receivers:
-    """Receiver arrangement: 'mono', 'spaced' (spacing m) or 'coincident' (angle degrees)."""
+    """Receiver arrangement: 'mono', 'spaced' (spacing m) or 'coincident' (angle degrees).
+
+    Examples
+    --------
+    >>> Receivers.parse("coincident:90")
+    Receivers(kind='coincident', value=90.0)
+    >>> Receivers.parse("spaced:0.6").channels
+    2
+    """
 
     kind: str = "mono"
     value: float = 0.0
 
     @classmethod
-    def parse(cls, text: str | None) -> "Receivers":
+    def parse(cls, text: str | None) -> Receivers:
+        """Read ``mono``, ``spaced:METRES`` or ``coincident:DEGREES`` (None means mono)."""
         if text in (None, "", "mono"):
             return cls()
         kind, _, val = text.partition(":")
         if kind not in ("spaced", "coincident"):
-            raise InputError(f"receiver arrangement '{text}' not understood: use mono, "
-                             "spaced:METRES or coincident:DEGREES")
+            raise InputError(
+                f"receiver arrangement '{text}' not understood: use mono, "
+                "spaced:METRES or coincident:DEGREES"
+            )
         try:
             v = float(val)
         except ValueError:
@@ -40,16 +61,34 @@ class Receivers:
 
     @property
     def channels(self) -> int:
+        """1 for mono, 2 for either pair."""
         return 1 if self.kind == "mono" else 2
 
 
 @dataclass
 class SynthResult:
-    ir: np.ndarray                 #: (samples, channels)
+    """What :func:`synthesize` returns.
+
+    Attributes
+    ----------
+    ir : ndarray, shape (samples, channels)
+    rate : int
+        Hz.
+    sabine, eyring : dict
+        Predicted reverberation time per band, {band_hz: s}.
+    used_rt : dict
+        Reverberation time per band given to the tail, s.
+    mixing_time_s : float
+    image_count : int
+        Images rendered (largest over the channels).
+    notes : list of str
+    """
+
+    ir: np.ndarray  #: (samples, channels)
     rate: int
     sabine: dict
     eyring: dict
-    used_rt: dict                  #: reverberation time per band given to the tail
+    used_rt: dict  #: reverberation time per band given to the tail
     mixing_time_s: float
     image_count: int
     notes: list = field(default_factory=list)
@@ -60,15 +99,26 @@ def _check_point(room: RoomModel, p, what: str) -> np.ndarray:
     if a.shape != (3,) or not np.all(np.isfinite(a)):
         raise InputError(f"{what} must be three numbers X,Y,Z in metres")
     if not room.contains(a):
-        raise InputError(f"{what} {tuple(float(x) for x in a)} is outside the room "
-                         f"(0..{room.length:g}, 0..{room.width:g}, 0..{room.height:g} m)")
+        raise InputError(
+            f"{what} {tuple(float(x) for x in a)} is outside the room "
+            f"(0..{room.length:g}, 0..{room.width:g}, 0..{room.height:g} m)"
+        )
     return a
 
 
-def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
-               receivers: Receivers | None = None, rt: dict | None = None,
-               prediction: str = "eyring", seed: int = 0, length_s: float | None = None,
-               air: bool = True) -> SynthResult:
+def synthesize(
+    room: RoomModel,
+    source,
+    receiver,
+    *,
+    rate: int = 48000,
+    receivers: Receivers | None = None,
+    rt: dict | None = None,
+    prediction: str = "eyring",
+    seed: int = 0,
+    length_s: float | None = None,
+    air: bool = True,
+) -> SynthResult:
     """Synthesize a room impulse response.
 
     Sample 0 is the moment of emission; the direct sound arrives at distance / c. Early
@@ -91,6 +141,24 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
         Which formula sets the tail's decay when ``rt`` does not.
     seed : int
         Makes the tail reproducible.
+    length_s : float, optional
+        Length of the response, s (default: 1.2 × the longest T plus the direct path).
+    air : bool
+        Air absorption (ISO 9613-1) on the image sources and as the limit on ``rt``.
+
+    Returns
+    -------
+    SynthResult
+
+    Examples
+    --------
+    >>> from .room import RoomModel
+    >>> res = synthesize(RoomModel(6, 5, 3), (1, 1, 1.5), (4, 3, 1.2), length_s=0.3)
+    >>> res.ir.shape
+    (14400, 1)
+    >>> r = float(np.linalg.norm(np.subtract((1, 1, 1.5), (4, 3, 1.2))))
+    >>> int(np.argmax(np.abs(res.ir[:, 0]))) == round(r / speed_of_sound(20) * 48000)
+    True
 
     References
     ----------
@@ -103,61 +171,98 @@ def synthesize(room: RoomModel, source, receiver, *, rate: int = 48000,
     src = _check_point(room, source, "source")
     rcv = _check_point(room, receiver, "receiver")
     sab, eyr = sabine(room, air=air), eyring(room, air=air)
-    pred = eyr if prediction == "eyring" else sab
-    used = dict(pred)
-    for b, T in (rt or {}).items():
-        b = float(b)
-        if b not in OCTAVES:
-            raise InputError(f"no octave band at {b:g} Hz (use {', '.join(map(str, OCTAVES))})")
-        tmax = max_reverberation(room, b) if air else np.inf
-        if not (0 < T < tmax):
-            raise InputError(f"a reverberation time of {T:g} s at {b:g} Hz is impossible in this "
-                             f"room: it must be positive and below {tmax:.1f} s, the limit set "
-                             "by air absorption alone")
-        used[int(b)] = float(T)
-    if any(not np.isfinite(v) or v <= 0 for v in used.values()):
-        raise InputError("the room absorbs everything in some band (α = 1 everywhere): "
-                         "no reverberation to synthesize")
+    used = _tail_reverberation(room, eyr if prediction == "eyring" else sab, rt, air)
     c = speed_of_sound(room.temperature_c)
     t_mix = np.sqrt(room.volume) / 1000.0
-    fade = 0.5 * t_mix
+    # The crossfade from images to tail spans half the mixing time (our choice).
+    fade_s = 0.5 * t_mix
     if length_s is None:
-        length_s = min(30.0, 1.2 * max(used.values()) + np.linalg.norm(src - rcv) / c + 0.1)
+        direct_s = float(np.linalg.norm(src - rcv)) / c
+        length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")
 
-    positions = _receiver_positions(room, rcv, src, receivers)
-    t = np.arange(n) / rate
-    u = np.clip((t - (t_mix - fade / 2)) / fade, 0, 1)
-    w_early, w_late = np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)
-    rng = np.random.default_rng(seed)
-    base_noise = [band_noise(rate, n, rng) for _ in range(receivers.channels)]
-    if receivers.kind == "coincident":
-        # Diffuse-field correlation of two cardioids at angle φ: (3 + cos φ)/4 (closed form
-        # of ∫(½+½cosθ1)(½+½cosθ2)dΩ/4π normalized by its value at φ = 0).
-        rho = (3 + np.cos(np.radians(receivers.value))) / 4
-        base_noise[1] = rho * base_noise[0] + np.sqrt(1 - rho ** 2) * base_noise[1]
+    w_early, w_late = _early_late_weights(n, rate, t_mix, fade_s)
+    noises = _tail_noises(rate, n, receivers, np.random.default_rng(seed))
     chans = []
     count = 0
-    for ch, (pos, axis) in enumerate(positions):
-        imgs = image_sources(room, src, pos, max_distance=c * (t_mix + fade))
+    for noise, (pos, axis) in zip(
+        noises, _receiver_positions(room, rcv, src, receivers), strict=True
+    ):
+        imgs = image_sources(room, src, pos, max_distance=c * (t_mix + fade_s))
         count = max(count, imgs.positions.shape[0])
-        direct = None
-        tail_gain = 1.0
-        if axis is not None:
-            vec = imgs.positions - pos
-            cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
-            direct = 0.5 + 0.5 * cos_t
-            tail_gain = np.sqrt(1.0 / 3.0)  # mean power of a cardioid in a diffuse field
-        early = render_images(imgs, rate, n, temperature_c=room.temperature_c,
-                              humidity_pct=room.humidity_pct, air=air, directivity=direct)
-        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=base_noise[ch]) * tail_gain
+        directivity, tail_gain = _cardioid(imgs, pos, axis)
+        early = render_images(
+            imgs,
+            rate,
+            n,
+            temperature_c=room.temperature_c,
+            humidity_pct=room.humidity_pct,
+            air=air,
+            directivity=directivity,
+        )
+        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=noise) * tail_gain
         chans.append(early * w_early + late * w_late)
     notes = []
     if receivers.kind == "spaced":
         notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
     return SynthResult(np.stack(chans, axis=1), rate, sab, eyr, used, float(t_mix), count, notes)
+
+
+def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: bool) -> dict:
+    """The decay time per band the tail gets: the prediction, overridden by ``rt`` where the
+    air's own absorption allows it."""
+    used = dict(predicted)
+    for band, T in (rt or {}).items():
+        b = float(band)
+        if b not in OCTAVES:
+            raise InputError(f"no octave band at {b:g} Hz (use {', '.join(map(str, OCTAVES))})")
+        tmax = max_reverberation(room, b) if air else np.inf
+        if not (0 < T < tmax):
+            raise InputError(
+                f"a reverberation time of {T:g} s at {b:g} Hz is impossible in this "
+                f"room: it must be positive and below {tmax:.1f} s, the limit set "
+                "by air absorption alone"
+            )
+        used[int(b)] = float(T)
+    if any(not np.isfinite(v) or v <= 0 for v in used.values()):
+        raise InputError(
+            "the room absorbs everything in some band (α = 1 everywhere): "
+            "no reverberation to synthesize"
+        )
+    return used
+
+
+def _early_late_weights(n: int, rate: int, t_mix: float, fade_s: float):
+    """Crossfade weights from the image sources to the tail, centred on the mixing time."""
+    t = np.arange(n) / rate
+    u = np.clip((t - (t_mix - fade_s / 2)) / fade_s, 0, 1)
+    # Equal-power (cos/sin) rather than the raised-cosine step: images and tail are
+    # uncorrelated, so their powers, not their amplitudes, must sum to one.
+    return np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)
+
+
+def _tail_noises(rate: int, n: int, receivers: Receivers, rng: np.random.Generator) -> list:
+    """One band noise per channel; a coincident pair's two are correlated as cardioids in a
+    diffuse field are."""
+    noises = [band_noise(rate, n, rng) for _ in range(receivers.channels)]
+    if receivers.kind == "coincident":
+        # Diffuse-field correlation of two cardioids at angle φ: (3 + cos φ)/4 (closed form
+        # of ∫(½+½cosθ1)(½+½cosθ2)dΩ/4π normalized by its value at φ = 0).
+        rho = (3 + np.cos(np.radians(receivers.value))) / 4
+        noises[1] = rho * noises[0] + np.sqrt(1 - rho**2) * noises[1]
+    return noises
+
+
+def _cardioid(imgs, pos: np.ndarray, axis: np.ndarray | None):
+    """Per-image gain of a cardioid facing ``axis`` and its diffuse-field amplitude gain; an
+    omni (``axis`` None) has neither."""
+    if axis is None:
+        return None, 1.0
+    vec = imgs.positions - pos
+    cos_t = vec @ axis / np.maximum(np.linalg.norm(vec, axis=1), 1e-9)
+    return 0.5 + 0.5 * cos_t, float(np.sqrt(CARDIOID_DIFFUSE_POWER))
 
 
 def _receiver_positions(room, rcv, src, receivers):
@@ -173,5 +278,7 @@ def _receiver_positions(room, rcv, src, receivers):
     az = np.arctan2(to_src[1], to_src[0])
     half = np.radians(receivers.value) / 2
     # Left channel turned anticlockwise (seen from above), right clockwise.
-    return [(rcv, np.array([np.cos(az + half), np.sin(az + half), 0.0])),
-            (rcv, np.array([np.cos(az - half), np.sin(az - half), 0.0]))]
+    return [
+        (rcv, np.array([np.cos(az + half), np.sin(az + half), 0.0])),
+        (rcv, np.array([np.cos(az - half), np.sin(az - half), 0.0])),
+    ]

@@ -7,32 +7,83 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..signal import cosine_step, db_to_gain
 from .air import air_attenuation, speed_of_sound
 from .materials import OCTAVES
 from .room import SURFACES, RoomModel
 
-#: Half-length (taps each side) of the windowed-sinc fractional delay.
+__all__ = [
+    "SINC_HALF",
+    "ImageSet",
+    "image_sources",
+    "fractional_delay_kernel",
+    "band_weights",
+    "render_images",
+]
+
+#: Half-length (taps each side) of the windowed-sinc fractional delay (our choice). The 65
+#: Hann-windowed taps are flat to within 0.003 dB up to 0.4·fs and 0.02 dB up to 0.45·fs
+#: for any fraction (evaluated from the kernel's DTFT); tests/synth/test_image_source.py
+#: checks the delays to 0.1 sample.
 SINC_HALF = 32
 
 
 @dataclass
 class ImageSet:
-    """All images up to a distance: positions, distances, per-band pressure gains."""
+    """All images up to a distance: positions, distances, per-band pressure gains.
 
-    positions: np.ndarray   #: (n, 3)
-    distance: np.ndarray    #: (n,) metres
-    order: np.ndarray       #: (n,) number of reflections
-    gains: np.ndarray       #: (n, bands) reflection product × 1/r (no air absorption)
+    Sorted by distance, nearest (the direct sound) first.
+    """
+
+    positions: np.ndarray  #: (n, 3)
+    distance: np.ndarray  #: (n,) metres
+    order: np.ndarray  #: (n,) number of reflections
+    gains: np.ndarray  #: (n, bands) reflection product × 1/r (no air absorption)
     bands: tuple
 
 
-def image_sources(room: RoomModel, source, receiver, *, max_distance: float | None = None,
-                  max_order: int | None = None, bands=OCTAVES) -> ImageSet:
+def image_sources(
+    room: RoomModel,
+    source,
+    receiver,
+    *,
+    max_distance: float | None = None,
+    max_order: int | None = None,
+    bands=OCTAVES,
+) -> ImageSet:
     """Enumerate image sources by Allen & Berkley's indices.
 
     Along each axis an image sits at (1 − 2q)·s + 2nL and has met the wall at 0 |n − q| times
     and the wall at L |n| times. Its pressure gain is Π β_w^count × 1/r with β = sqrt(1 − α)
     per surface and band.
+
+    Parameters
+    ----------
+    room : RoomModel
+    source, receiver : sequence of 3 float
+        Positions, m.
+    max_distance : float, optional
+        Keep images up to this distance from the receiver, m.
+    max_order : int, optional
+        Keep images with at most this many reflections.
+    bands : sequence of float
+        Octave bands, Hz.
+
+    Returns
+    -------
+    ImageSet
+
+    Examples
+    --------
+    Direct sound and the six first-order images of a rigid box:
+
+    >>> from .room import RoomModel
+    >>> box = RoomModel(5, 4, 3, {s: "rigid" for s in SURFACES})
+    >>> imgs = image_sources(box, (1, 1, 1), (4, 3, 2), max_order=1)
+    >>> imgs.order.tolist()
+    [0, 1, 1, 1, 1, 1, 1]
+    >>> bool(np.isclose(imgs.gains[0, 0], 1 / imgs.distance[0]))
+    True
 
     References
     ----------
@@ -42,9 +93,12 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
     s = np.asarray(source, float)
     r = np.asarray(receiver, float)
     dims = room.dims
-    if max_distance is None and max_order is None:
+    if max_distance is not None:
+        reach = max_distance
+    elif max_order is not None:
+        reach = (max_order + 1) * dims.max() * 2
+    else:
         raise ValueError("give max_distance or max_order")
-    reach = max_distance if max_distance is not None else (max_order + 1) * dims.max() * 2
     nmax = np.ceil(reach / (2 * dims)).astype(int) + 1
     grids = []
     for axis in range(3):
@@ -57,9 +111,8 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
     cx, lx0, lx1 = grids[0]
     cy, ly0, ly1 = grids[1]
     cz, lz0, lz1 = grids[2]
-    X, Y, Z = np.meshgrid(np.arange(cx.size), np.arange(cy.size), np.arange(cz.size),
-                          indexing="ij")
-    X, Y, Z = X.ravel(), Y.ravel(), Z.ravel()
+    grid = np.meshgrid(np.arange(cx.size), np.arange(cy.size), np.arange(cz.size), indexing="ij")
+    X, Y, Z = (g.ravel() for g in grid)
     pos = np.stack([cx[X], cy[Y], cz[Z]], axis=1)
     counts = np.stack([lx0[X], lx1[X], ly0[Y], ly1[Y], lz0[Z], lz1[Z]], axis=1)
     order = counts.sum(axis=1)
@@ -84,7 +137,28 @@ def image_sources(room: RoomModel, source, receiver, *, max_distance: float | No
 def fractional_delay_kernel(frac: np.ndarray, half: int = SINC_HALF) -> np.ndarray:
     """Hann-windowed sinc kernels placing a unit impulse at ``frac`` ∈ [0, 1) past tap ``half``.
 
-    Returns shape (len(frac), 2·half + 1); tap k sits at offset k − half.
+    Parameters
+    ----------
+    frac : ndarray
+        Fractional delays, samples, in [0, 1).
+    half : int
+        Taps on each side of the centre.
+
+    Returns
+    -------
+    ndarray, shape (len(frac), 2·half + 1)
+        Tap k sits at offset k − half.
+
+    References
+    ----------
+    Laakso, T. I., Välimäki, V., Karjalainen, M., Laine, U. K. (1996). Splitting the unit
+    delay. IEEE Signal Processing Magazine 13(1), 30–60 (windowed-sinc fractional delay).
+
+    Examples
+    --------
+    >>> k = fractional_delay_kernel(np.array([0.0, 0.5]))
+    >>> k.shape, float(k[0, SINC_HALF])
+    ((2, 65), 1.0)
     """
     k = np.arange(-half, half + 1)[None, :] - frac[:, None]
     w = 0.5 + 0.5 * np.cos(np.pi * k / (half + 1))
@@ -95,14 +169,32 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     """Zero-phase octave weights that sum to exactly one at every frequency.
 
     Crossovers lie at the geometric mean of neighbouring centres; each crossover fades with
-    cos²/sin² over ``transition_oct`` octaves (a partition of unity). Shape (bands, freqs).
+    cos²/sin² over ``transition_oct`` octaves (a partition of unity).
+
+    Parameters
+    ----------
+    freqs : ndarray
+        Frequencies, Hz.
+    bands : sequence of float
+        Octave mid-band frequencies, Hz.
+    transition_oct : float
+        Width of each crossover, octaves.
+
+    Returns
+    -------
+    ndarray, shape (bands, freqs)
+
+    Examples
+    --------
+    >>> w = band_weights(np.array([50.0, 700.0, 1414.2, 20000.0]))
+    >>> w.sum(axis=0)
+    array([1., 1., 1., 1.])
     """
     f = np.maximum(np.asarray(freqs, float), 1e-6)
     lf = np.log2(f)
-    cross = [0.5 * (np.log2(a) + np.log2(b)) for a, b in zip(bands[:-1], bands[1:])]
+    cross = [0.5 * (np.log2(a) + np.log2(b)) for a, b in zip(bands[:-1], bands[1:], strict=True)]
     # up[k] = weight of "above crossover k"
-    up = [np.clip((lf - c) / transition_oct + 0.5, 0, 1) for c in cross]
-    up = [np.sin(0.5 * np.pi * u) ** 2 for u in up]
+    up = [cosine_step((lf - c) / transition_oct + 0.5) for c in cross]
     w = []
     for i in range(len(bands)):
         lo = up[i - 1] if i > 0 else np.ones_like(f)
@@ -111,13 +203,46 @@ def band_weights(freqs: np.ndarray, bands=OCTAVES, transition_oct: float = 0.25)
     return np.array(w)
 
 
-def render_images(images: ImageSet, rate: int, n_samples: int, *, temperature_c: float = 20.0,
-                  humidity_pct: float = 50.0, air: bool = True,
-                  directivity: np.ndarray | None = None) -> np.ndarray:
+def render_images(
+    images: ImageSet,
+    rate: int,
+    n_samples: int,
+    *,
+    temperature_c: float = 20.0,
+    humidity_pct: float = 50.0,
+    air: bool = True,
+    directivity: np.ndarray | None = None,
+) -> np.ndarray:
     """Place every image at its exact arrival time per band and combine the bands.
 
     Sample 0 is the moment of emission: an image at distance r arrives at r/c seconds.
-    ``directivity`` (n,) multiplies each image's gain (receiver pattern).
+
+    Parameters
+    ----------
+    images : ImageSet
+    rate : int
+        Sample rate, Hz.
+    n_samples : int
+        Length of the result, samples.
+    temperature_c, humidity_pct : float
+        Air, for the speed of sound and (when ``air``) ISO 9613-1 absorption.
+    air : bool
+        Apply air absorption along each image's path.
+    directivity : ndarray, optional
+        (n,) factor on each image's gain (the receiver's pattern).
+
+    Returns
+    -------
+    ndarray, shape (n_samples,)
+
+    Examples
+    --------
+    >>> from .room import RoomModel
+    >>> free = RoomModel(5, 4, 3, {s: "anechoic" for s in SURFACES})
+    >>> imgs = image_sources(free, (1, 1, 1), (4, 3, 2), max_order=0)
+    >>> h = render_images(imgs, 48000, 2048, air=False)
+    >>> bool(np.isclose(h.sum(), 1 / imgs.distance[0], rtol=1e-3))  # DC gain 1/r
+    True
     """
     c = speed_of_sound(temperature_c)
     t = images.distance / c * rate
@@ -126,7 +251,7 @@ def render_images(images: ImageSet, rate: int, n_samples: int, *, temperature_c:
     gains = images.gains[keep]
     if air:
         att = air_attenuation(np.array(images.bands, float), temperature_c, humidity_pct)
-        gains = gains * 10 ** (-np.outer(images.distance[keep], att) / 20)
+        gains = gains * db_to_gain(-np.outer(images.distance[keep], att))
     if directivity is not None:
         gains = gains * directivity[keep][:, None]
     base = np.floor(t).astype(int)

@@ -6,9 +6,13 @@ import pytest
 from scipy.signal import fftconvolve
 
 from roomconv.errors import InputError
-from roomconv.render.partitioned import (NonUniformConvolver, OverlapSaveConvolver,
-                                         UniformPartitionedConvolver, plan_partition,
-                                         routing_for)
+from roomconv.render.partitioned import (
+    NonUniformConvolver,
+    OverlapSaveConvolver,
+    UniformPartitionedConvolver,
+    plan_partition,
+    routing_for,
+)
 
 
 def reference(x, h, routing):
@@ -97,7 +101,7 @@ def test_float32_precision_is_stated():
 def test_non_uniform_plan_respects_its_timing_rule(ratio, max_block):
     plan = plan_partition(240000, 128, ratio=ratio, max_block=max_block)
     assert plan[0][0] == 128 and plan[0][1] == 0
-    for (b, off, ln), (b2, off2, _) in zip(plan, plan[1:]):
+    for (_, off, ln), (b2, off2, _) in zip(plan[:-1], plan[1:], strict=True):
         assert off + ln == off2           # contiguous cover of the response
         assert off2 >= 2 * b2 - 128       # room to spread the next stage's work
     assert plan[-1][1] + plan[-1][2] == 240000

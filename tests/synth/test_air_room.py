@@ -5,8 +5,8 @@ import pytest
 
 from roomconv.errors import InputError
 from roomconv.synth.air import air_attenuation, power_attenuation, speed_of_sound
-from roomconv.synth.materials import MATERIALS, load_materials
-from roomconv.synth.room import Absorber, Patch, RoomModel, eyring, sabine
+from roomconv.synth.materials import MATERIALS, Material, load_materials
+from roomconv.synth.room import SURFACES, Absorber, Patch, RoomModel, eyring, sabine
 
 # Exact octave mid-band frequencies 1000·10^(3x/10), 63 Hz … 8 kHz.
 EXACT = 1000 * 10 ** (0.3 * np.arange(-4, 4))
@@ -26,7 +26,7 @@ ISO_TABLE = {
 def test_air_attenuation_matches_iso_table(cond):
     T, rh = cond
     got = air_attenuation(EXACT, T, rh) * 1000
-    for g, ref in zip(got, ISO_TABLE[cond]):
+    for g, ref in zip(got, ISO_TABLE[cond], strict=True):
         # The table's rounding (0.05 dB/km, 0.5 dB/km above 100) plus 0.05 dB/km because the
         # remembered values may be off in the last digit.
         tol = 0.5 + 0.005 * ref if ref >= 100 else 0.1 + 0.002 * ref
@@ -46,16 +46,26 @@ def _handbook_room():
     # 340 ft² of acoustical tile counted on top of those. Their totals: 370.4, 214.8, 328.8,
     # 339.5, 336.8, 329.4 sabins; T = 0.49, 0.85, 0.56, 0.54, 0.54, 0.55 s (125 Hz–4 kHz).
     ft = 0.3048
-    room = RoomModel(23.3 * ft, 16 * ft, 10 * ft,
-                     {"floor": "concrete", "ceiling": "gypsum-board", "left": "gypsum-board",
-                      "right": "gypsum-board", "front": "gypsum-board", "back": "gypsum-board"},
-                     absorbers=(Absorber("acoustic-tile", 340 * ft * ft),))
+    room = RoomModel(
+        23.3 * ft,
+        16 * ft,
+        10 * ft,
+        {
+            "floor": "concrete",
+            "ceiling": "gypsum-board",
+            "left": "gypsum-board",
+            "right": "gypsum-board",
+            "front": "gypsum-board",
+            "back": "gypsum-board",
+        },
+        absorbers=(Absorber("acoustic-tile", 340 * ft * ft),),
+    )
     return room
 
 
 def test_sabine_matches_handbook_worked_example():
     room = _handbook_room()
-    ft2 = 0.3048 ** 2
+    ft2 = 0.3048**2
     sabins = {125: 370.4, 250: 214.8, 500: 328.8, 1000: 339.5, 2000: 336.8, 4000: 329.4}
     for b, A in sabins.items():
         assert room.absorption_area(b) / ft2 == pytest.approx(A, abs=0.2), b
@@ -65,23 +75,30 @@ def test_sabine_matches_handbook_worked_example():
         assert got[b] == pytest.approx(T, abs=0.006), b  # the book rounds to 0.01 s
 
 
-def test_eyring_closed_form_and_sabine_limit():
-    # IEC 60050-801, 801-31-09: T = 24·ln10·V / (−c·S·ln(1 − ᾱ)).
-    room = RoomModel(10, 8, 4, {s: "carpet" for s in
-                                ("left", "right", "front", "back", "floor", "ceiling")})
-    c = speed_of_sound(20)
+def test_eyring_and_sabine_against_the_textbook_constant():
+    # With ᾱ = 1 − 1/e on every surface, −ln(1 − ᾱ) = 1 exactly, so Eyring's formula
+    # (Eyring 1930; IEC 60050-801, 801-31-09) reduces to T = 0.161·V/S and Sabine's to
+    # T = 0.161·V/(S·ᾱ); 0.161 s/m is the textbook constant 24·ln10/c for c ≈ 343 m/s
+    # (Kuttruff, Room Acoustics, ch. 5; from memory).
+    a = 1 - np.exp(-1)
+    mat = Material("e-fold", (a,) * 8, "closed-form test value")
+    room = RoomModel(10, 8, 4, {s: "e-fold" for s in SURFACES}, extra_materials={"e-fold": mat})
     V, S = 320.0, 2 * (80 + 40 + 32)
-    for b in (500, 2000):
-        a = MATERIALS["carpet"].at(b)
-        assert eyring(room, air=False)[b] == pytest.approx(
-            24 * np.log(10) * V / (-c * S * np.log(1 - a)), rel=1e-9)
-    # As ᾱ → 0, −ln(1−ᾱ) → ᾱ and Eyring → Sabine.
-    hard = RoomModel(10, 8, 4, {s: "marble" for s in
-                                ("left", "right", "front", "back", "floor", "ceiling")})
-    s, e = sabine(hard, air=False), eyring(hard, air=False)
+    for b in (125, 1000, 4000):
+        assert eyring(room, air=False)[b] == pytest.approx(0.161 * V / S, rel=1e-3)
+        assert sabine(room, air=False)[b] == pytest.approx(0.161 * V / (S * a), rel=1e-3)
+    # A room that absorbs everything has no reverberation by Eyring (the limit ᾱ → 1),
+    # while Sabine's formula still gives 0.161·V/S: the known failing of Sabine in dead
+    # rooms that Eyring's paper was written to fix.
+    dead = RoomModel(10, 8, 4, {s: "anechoic" for s in SURFACES})
+    assert eyring(dead, air=False)[1000] == 0.0
+    assert sabine(dead, air=False)[1000] == pytest.approx(0.161 * V / S, rel=1e-3)
+    # As ᾱ → 0, −ln(1−ᾱ) → ᾱ and Eyring → Sabine from below (series of the logarithm).
+    hard = RoomModel(10, 8, 4, {s: "marble" for s in SURFACES})
+    s_, e_ = sabine(hard, air=False), eyring(hard, air=False)
     for b in (125, 1000):
-        assert e[b] == pytest.approx(s[b], rel=0.01)
-        assert e[b] < s[b]
+        assert e_[b] == pytest.approx(s_[b], rel=0.01)
+        assert e_[b] < s_[b]
 
 
 def test_air_term_shortens_high_bands():
@@ -91,12 +108,15 @@ def test_air_term_shortens_high_bands():
     assert with_air[125] == pytest.approx(without[125], rel=0.01)
 
 
-@pytest.mark.parametrize("kwargs, text", [
-    (dict(length=-3, width=4, height=3), "positive"),
-    (dict(length=5, width=4, height=3, surfaces={"floor": "moon-dust"}), "unknown material"),
-    (dict(length=5, width=4, height=3, surfaces={"roof": "plaster"}), "unknown surface"),
-    (dict(length=5, width=4, height=3, patches=(Patch("floor", "carpet", 50.0),)), "cover"),
-])
+@pytest.mark.parametrize(
+    "kwargs, text",
+    [
+        (dict(length=-3, width=4, height=3), "positive"),
+        (dict(length=5, width=4, height=3, surfaces={"floor": "moon-dust"}), "unknown material"),
+        (dict(length=5, width=4, height=3, surfaces={"roof": "plaster"}), "unknown surface"),
+        (dict(length=5, width=4, height=3, patches=(Patch("floor", "carpet", 50.0),)), "cover"),
+    ],
+)
 def test_bad_rooms_are_explained(kwargs, text):
     with pytest.raises(InputError, match=text):
         RoomModel(**kwargs)
@@ -104,8 +124,7 @@ def test_bad_rooms_are_explained(kwargs, text):
 
 def test_user_materials_are_checked(tmp_path):
     good = tmp_path / "m.toml"
-    good.write_text('[studio-foam]\nalpha = [0.1, 0.3, 0.6, 0.9, 0.95, 0.95]\n'
-                    'source = "our lab"\n')
+    good.write_text('[studio-foam]\nalpha = [0.1, 0.3, 0.6, 0.9, 0.95, 0.95]\nsource = "our lab"\n')
     m = load_materials(good)["studio-foam"]
     assert m.alpha[0] == 0.1 and m.alpha[-1] == 0.95 and len(m.alpha) == 8
     bad = tmp_path / "b.json"

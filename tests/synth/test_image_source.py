@@ -77,8 +77,9 @@ def test_band_weights_are_a_partition_of_unity():
 
 def test_reflection_gain_is_sqrt_one_minus_alpha():
     # Pressure reflection factor β = sqrt(1 − α) per band (energy balance at the wall).
-    room = RoomModel(7.0, 5.0, 3.0, {s: ("carpet" if s == "floor" else "anechoic")
-                                     for s in SURFACES})
+    room = RoomModel(
+        7.0, 5.0, 3.0, {s: ("carpet" if s == "floor" else "anechoic") for s in SURFACES}
+    )
     src, rcv = (2, 2, 1.5), (5, 3, 1.2)
     imgs = image_sources(room, src, rcv, max_order=1)
     refl = imgs.order == 1
