@@ -65,6 +65,12 @@ def settings_from_args(a):
     elif normalize == "none" and a.target is not None:
         from .errors import InputError
         raise InputError("--target: given with --normalize none; drop one of the two")
+    if normalize == "loudness" and a.target is not None:
+        from . import validate
+        from .cli import budget
+        from .render.offline import LOUDNESS_TARGET_MIN
+        budget("--target", validate.in_range, a.target, "loudness target",
+               LOUDNESS_TARGET_MIN, 0.0, unit="LUFS")
     return RenderSettings(mix=a.mix, predelay_ms=a.predelay, gain_db=a.gain,
                           normalize=normalize, target=a.target, subtype=a.subtype.upper(),
                           precision=a.precision, outputs=a.outputs, shared=a.shared,

@@ -108,7 +108,7 @@ def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
     if ir_rate != rate:
         ir = resample_ir(ir, ir_rate, rate)
         resampled = ir_rate
-    d = int(round(predelay_ms * rate / 1000.0))
+    d = validate.seconds_budget(predelay_ms / 1000.0, rate, "pre-delay", channels=ir.shape[1])
     if d:
         ir = np.concatenate([np.zeros((d, ir.shape[1])), ir])
     return ir, resampled
@@ -212,6 +212,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     final_tmp = _temp(folder, out_path.name, ".part")
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
+        stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
         stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
                                      n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4))
         with sf.SoundFile(str(dry_path)) as src, \
@@ -222,13 +223,21 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 x = src.read(B, dtype="float64", always_2d=True)
                 if x.size and not np.all(np.isfinite(x)):
                     raise InputError(describe(dry_path, "holds NaN or infinite samples"))
-                y = _wet_dry(conv, x, s.mix, routing.n_out)
+                # Overflow shows up as inf/NaN and is refused just below with the file's
+                # name; numpy's own warning would only add a line pointing at our source.
+                with np.errstate(over="ignore", invalid="ignore"):
+                    y = _wet_dry(conv, x, s.mix, routing.n_out)
                 n = min(B, n_out - written)
                 y = y[:n]
                 if s.gain_db:
                     y = y * 10 ** (s.gain_db / 20)
                 _check_finite(y, out_path)
                 peak.feed(y)
+                if peak.peak > stage_max:
+                    raise InputError(describe(out_path.name, f"the rendered signal reaches "
+                                              f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
+                                              f"what a {stage_sub} file holds (lower --gain); "
+                                              "nothing written"))
                 if tpk is not None:
                     tpk.feed(y)
                 if loud is not None:
@@ -266,7 +275,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                         "the measurement's −70 LUFS gate)")
             with np.errstate(over="ignore"):
                 scaled_peak = peak.peak * 10 ** (extra_db / 20)
-            if not (np.isfinite(extra_db) and np.isfinite(scaled_peak)):
+            if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
                 raise InputError(f"{out_path.name}: normalization would need a gain of "
                                  f"{extra_db:g} dB, which overflows; nothing written")
         report.gain_db = s.gain_db + extra_db
