@@ -125,6 +125,9 @@ def _sweep_budget(a, channels: int = 1) -> None:
     if a.repeat * (a.duration + a.silence) > 0.5 * total and a.repeat > 1:
         worst = f"{worst} (with --repeat {a.repeat})"
     budget(worst, validate.memory_budget, total * a.rate, "the sweep file", channels=channels)
+    if a.fade_in + a.fade_out > a.duration:
+        raise InputError(f"--fade-in/--fade-out: fades of {a.fade_in:g} s and {a.fade_out:g} s "
+                         f"do not fit in a {a.duration:g} s sweep (shorten them)")
 
 
 def _sweep_from_args(a):

@@ -150,8 +150,10 @@ def cmd_synth(a):
                unit="m")
     rt = parse_band_values(a.rt60, "--rt60")
     if a.length is not None:
+        # Synthesis holds one noise signal per octave band (8) plus a few working copies for
+        # each receiver channel at once.
         budget("--length", validate.seconds_budget, a.length, a.rate, "this response length",
-               channels=receivers.channels)
+               channels=12 * receivers.channels)
     room = room_from_args(a)
     check_output(a.output, force=a.force)
     L, W, H = room.length, room.width, room.height

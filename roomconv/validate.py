@@ -120,6 +120,8 @@ def channel_list(text, what: str, *, hi: int = MAX_CHANNEL) -> tuple[int, ...]:
 
 
 def human_bytes(n: float) -> str:
+    if n >= 1024 ** 5:
+        return f"{n / 1024 ** 4:.3g} TiB"
     for unit, size in (("TiB", 1024 ** 4), ("GiB", 1024 ** 3), ("MiB", 1024 ** 2),
                        ("KiB", 1024)):
         if n >= size:
