@@ -136,18 +136,20 @@ def memory_budget(samples: float, what: str, *, channels: int = 1, bytes_per_sam
     Returns the sample count as an int. The message gives the size it would need, so a
     typo of a few orders of magnitude is recognised at once.
     """
-    if not math.isfinite(samples) or samples < 0:
-        raise InputError(f"{what} gives an impossible size ({_fmt(float(samples))} samples)")
-    need = float(samples) * max(1, channels) * bytes_per_sample
+    samples = float(samples)
+    if math.isnan(samples) or samples < 0:
+        raise InputError(f"{what} gives an impossible size ({_fmt(samples)} samples)")
+    need = samples * max(1, channels) * bytes_per_sample
     if need > budget:
-        raise InputError(f"{what} would need {human_bytes(need)} of memory "
-                         f"(at most {human_bytes(budget)} per signal)")
-    return int(samples)
+        size = (f"{human_bytes(need)} of memory" if math.isfinite(need)
+                else "more memory than any machine has")
+        raise InputError(f"{what} would need {size} (at most {human_bytes(budget)} per signal)")
+    return int(round(samples))
 
 
 def seconds_budget(seconds: float, rate: float, what: str, *, channels: int = 1) -> int:
     """Samples for ``seconds`` at ``rate``, within :func:`memory_budget`."""
-    return memory_budget(round(finite(seconds, what) * rate), what, channels=channels)
+    return memory_budget(finite(seconds, what) * rate, what, channels=channels)
 
 
 def all_finite(values: Iterable[float], what: str) -> None:
