@@ -14,6 +14,16 @@ from .errors import InputError
 #: Largest room side accepted, m: beyond any enclosed hall (common practice), and the image
 #: source and tail sizes stay within memory.
 ROOM_SIDE_MAX_M = 1000.0
+#: Decay-time factors accepted by ``edit --decay-scale``: beyond these the exponential
+#: reshaping either leaves only the direct sound or grows the tail without bound.
+DECAY_SCALE_MIN, DECAY_SCALE_MAX = 0.05, 20.0
+
+
+def refuse_non_finite(ir, path) -> None:
+    """Never write a response holding NaN or ±inf."""
+    if not np.all(np.isfinite(ir)):
+        raise InputError(f"{path}: the result holds NaN or infinite samples (the settings "
+                         "push it beyond what numbers can hold); nothing written")
 
 
 def parse_triple(text: str, what: str, sep: str = ",") -> tuple[float, float, float]:
@@ -165,7 +175,11 @@ def cmd_synth(a):
                      seed=a.seed, length_s=a.length)
     ir = res.ir
     if a.peak is not None:
+        if not np.any(ir):
+            raise InputError(f"--peak: the synthesized response is silent; nothing to "
+                             "normalize")
         ir = ir * (10 ** (a.peak / 20) / np.max(np.abs(ir)))
+    refuse_non_finite(ir, a.output)
     write_audio(a.output, ir, a.rate, force=a.force)
     settings = {"room": [L, W, H], "surfaces": room.surfaces,
                 "patches": [p.__dict__ for p in room.patches], "source": list(src),
@@ -265,8 +279,11 @@ cmd_rooms.configure = _cfg_rooms
 @command("edit", "trim, fade, normalize, reverse, re-time or resample an impulse response")
 def cmd_edit(a):
     from .synth import edit
-    scales = (parse_band_values(a.decay_scale, "--decay-scale", hi=100.0) if a.decay_scale
-              else None)
+    scales = (parse_band_values(a.decay_scale, "--decay-scale", hi=DECAY_SCALE_MAX)
+              if a.decay_scale else None)
+    if scales and min(scales.values()) < DECAY_SCALE_MIN:
+        raise InputError(f"--decay-scale: factor {min(scales.values()):g} is out of range "
+                         f"(accepted: {DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g})")
     check_output(a.output, force=a.force, inputs=[a.input])
     ir, rate = read_audio(a.input, what="impulse response")
     steps = []
@@ -294,6 +311,7 @@ def cmd_edit(a):
         steps.append(f"peak normalized to {a.normalize:g} dBFS")
     if not steps:
         raise InputError("no edit asked for (see roomconv edit --help)")
+    refuse_non_finite(ir, a.output)
     write_audio(a.output, ir, rate, force=a.force, inputs=[a.input])
     write_provenance(a.output, [a.input], {"steps": steps})
     for s in steps:
@@ -318,7 +336,8 @@ def _cfg_edit(p):
                    default=None, metavar="DBFS", help="peak level after editing, -100 to 0")
     p.add_argument("--reverse", action="store_true", help="reverse in time")
     p.add_argument("--decay-scale", default=None, metavar="X|BAND:X,...",
-                   help="multiply decay times (all bands, or per octave band)")
+                   help="multiply decay times (all bands, or per octave band), "
+                        f"{DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g}")
     p.add_argument("--early-late", type=opt(validate.in_range, "late-part level change",
                                             -60.0, 60.0, unit="dB"),
                    default=None, metavar="DB",

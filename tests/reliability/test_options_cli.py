@@ -81,6 +81,8 @@ CORPUS = [
     ("edit", ["--rate", "1"], "--rate"),
     ("edit", ["--decay-scale", "0"], "--decay-scale"),
     ("edit", ["--decay-scale", "500:inf"], "--decay-scale"),
+    ("edit", ["--decay-scale", "1e-300"], "--decay-scale"),
+    ("edit", ["--decay-scale", "1500:2"], "--decay-scale"),
     # render
     ("render", ["--gain", "20000"], "--gain"),
     ("render", ["--gain", "nan"], "--gain"),
