@@ -251,6 +251,10 @@ def cmd_measure(a):
         if ir_rate != s.rate:
             raise InputError(f"{a.simulate}: the simulated room is at {ir_rate} Hz but the sweep "
                              f"at {s.rate} Hz (pass --rate {ir_rate})")
+        n_rec = (ir.shape[1] if ir.ndim == 2 else 1) + (a.reference_channel is not None)
+        if a.reference_channel is not None and a.reference_channel >= n_rec:
+            raise InputError(f"--reference-channel {a.reference_channel}: the simulated "
+                             f"recording has {n_rec} channel(s), 0 to {n_rec - 1}")
         device = SimulatedDevice(ir, latency_samples=a.sim_latency, noise_dbfs=a.sim_noise,
                                  loopback=a.reference_channel is not None, seed=a.seed)
         _note("simulated device: no sound will be played")

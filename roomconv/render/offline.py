@@ -261,7 +261,9 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
                      "loudness": report.loudness_lufs}[s.normalize]
             if not np.isfinite(level):
-                raise InputError(f"{out_path.name}: the rendered signal is silent; nothing to "
+                why = ("stays below the −70 LUFS gate of the loudness measurement (use "
+                       "--normalize peak)" if s.normalize == "loudness" else "is silent")
+                raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to "
                                  "normalize")
             extra_db = target - level
             if s.normalize == "loudness":

@@ -48,6 +48,7 @@ CORPUS = [
     ("measure", ["--input-channels", "a,b"], "--input-channels"),
     ("measure", ["--input-channels", "1,,2"], "--input-channels"),
     ("measure", ["--reference-channel", "-1"], "--reference-channel"),
+    ("measure", ["--reference-channel", "5"], "--reference-channel"),
     ("measure", ["--length", "1e6"], "--length"),
     ("measure", ["--seed", "-1"], "--seed"),
     ("measure", ["--duration", "nan"], "--duration"),
