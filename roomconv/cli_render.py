@@ -32,8 +32,9 @@ def render_options(p):
     g.add_argument("--target", type=opt(v.in_range, "normalization target", -100.0, 0.0),
                    default=None, metavar="VALUE",
                    help="normalization target: dBFS (peak, -1), dBTP (truepeak, -1) or LUFS "
-                        "(loudness, -23); -100 to 0. Given without --normalize it implies "
-                        "--normalize loudness (and says so)")
+                        "(loudness, -23); -100 to 0, loudness -60 to 0. Loudness is measured "
+                        "again after the gain and corrected until within ±0.05 LU. Given "
+                        "without --normalize it implies --normalize loudness (and says so)")
     g.add_argument("--subtype", default="FLOAT",
                    help="output sample format: FLOAT (default), DOUBLE, PCM_24, PCM_16 …; "
                         "integer formats get TPDF dither")
