@@ -95,7 +95,7 @@ def check_predelay(a, paths) -> None:
 
 
 def describe_report(r) -> str:
-    from .render.mixing import describe_balance
+    from .render.mix import describe_balance
     parts = [f"wrote {r.output}: {r.channels} channel(s), {r.frames / r.rate:.2f} s at "
              f"{r.rate} Hz, routing {r.routing}, peak {r.peak_dbfs:+.1f} dBFS"]
     if r.true_peak_dbtp is not None:
@@ -254,7 +254,7 @@ def cmd_live(a):
     from .cli import confirm_caution
     from .errors import InputError
     from .render.offline import resample_ir
-    from .render.mixing import describe_balance
+    from .render.mix import describe_balance
     from .render.stream import LiveProcessor, run_live
     from .measure.capture import load_sounddevice
     ir, ir_rate = read_audio(a.ir, what="impulse response")

@@ -17,7 +17,7 @@ from ..audio import audio_format_for, audio_info, check_output, read_audio
 from .. import validate
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
-from .mixing import ir_gain, wet_dry_db
+from .mix import ir_gain, wet_dry_db
 from .partitioned import offline_convolver, routing_for
 
 NORMALIZE = ("none", "peak", "truepeak", "loudness")
@@ -46,7 +46,7 @@ class RenderSettings:
     keep_tail: bool = True
     dither: bool = True
     seed: int = 0
-    #: scale the response to unit energy per output before mixing (see render.mixing)
+    #: scale the response to unit energy per output before mixing (see render.mix)
     match_ir_level: bool = False
 
     def check(self) -> "RenderSettings":
@@ -89,7 +89,7 @@ class RenderReport:
     loudness_lufs: float | None = None
     gain_db: float = 0.0
     ir_resampled_from: int | None = None
-    wet_dry_db: float | None = None  #: wet-to-dry balance for broadband input (render.mixing)
+    wet_dry_db: float | None = None  #: wet-to-dry balance for broadband input (render.mix)
     warnings: list = field(default_factory=list)
 
 

@@ -15,7 +15,7 @@ import numpy as np
 
 from .. import safety, validate
 from ..errors import InputError
-from .mixing import ir_gain, wet_dry_db
+from .mix import ir_gain, wet_dry_db
 from .partitioned import NonUniformConvolver, live_block_size, routing_for
 
 
@@ -84,7 +84,7 @@ class LiveProcessor:
     ``stats.nonfinite``, so it never reaches the sound card, and the limiter keeps every
     sample at or below the ceiling, itself at most :data:`safety.OUTPUT_CAP_DBFS`.
     With ``match_ir_level`` the response is scaled to unit energy per output first, as for
-    offline renders (:mod:`roomconv.render.mixing`).
+    offline renders (:mod:`roomconv.render.mix`).
     """
 
     def __init__(self, ir: np.ndarray, rate: int, *, block: int = 128, n_in: int = 1,
@@ -105,7 +105,7 @@ class LiveProcessor:
         self.block = live_block_size(block)
         self.routing = routing_for(n_in, ir.shape[1])
         ir = ir * ir_gain(ir, self.routing, match_ir_level)
-        #: wet-to-dry balance for broadband input, dB (render.mixing)
+        #: wet-to-dry balance for broadband input, dB (render.mix)
         self.wet_dry_db = wet_dry_db(mix, ir, self.routing, 1.0)
         self.precision = "float32" if precision == "auto" else precision
         # Two stages: the callback's block, then one of about 2048 samples (4-32 callbacks)

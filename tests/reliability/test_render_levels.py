@@ -108,7 +108,7 @@ def test_keep_ir_level_shows_the_files_own_balance(quiet_room, cli):
 
 
 def test_live_and_batch_use_the_same_mix_definition(quiet_room, cli):
-    from roomconv.render.mixing import ir_gain, wet_dry_db
+    from roomconv.render.mix import ir_gain, wet_dry_db
     from roomconv.render.partitioned import routing_for
     from roomconv.render.stream import LiveProcessor
     tmp, dry, h = quiet_room
