@@ -176,7 +176,7 @@ def cmd_synth(a):
     ir = res.ir
     if a.peak is not None:
         if not np.any(ir):
-            raise InputError(f"--peak: the synthesized response is silent; nothing to "
+            raise InputError("--peak: the synthesized response is silent; nothing to "
                              "normalize")
         ir = ir * (10 ** (a.peak / 20) / np.max(np.abs(ir)))
     refuse_non_finite(ir, a.output)

@@ -14,7 +14,7 @@ with the amount it would have needed, before anything is allocated.
 from __future__ import annotations
 
 import math
-from typing import Iterable
+from collections.abc import Iterable
 
 from .errors import InputError
 
@@ -144,7 +144,7 @@ def memory_budget(samples: float, what: str, *, channels: int = 1, bytes_per_sam
         size = (f"{human_bytes(need)} of memory" if math.isfinite(need)
                 else "more memory than any machine has")
         raise InputError(f"{what} would need {size} (at most {human_bytes(budget)} per signal)")
-    return int(round(samples))
+    return round(samples)
 
 
 def seconds_budget(seconds: float, rate: float, what: str, *, channels: int = 1) -> int:

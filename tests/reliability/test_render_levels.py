@@ -57,7 +57,7 @@ def test_target_without_normalize_implies_loudness(tmp_path, cli):
     rng = np.random.default_rng(4)
     sf.write(tmp_path / "dry.wav", 0.05 * rng.standard_normal((3 * FS, 1)), FS, subtype="FLOAT")
     sf.write(tmp_path / "unit.wav", np.array([1.0]), FS, subtype="FLOAT")
-    code, out, err = cli("render", tmp_path / "dry.wav", "--ir", tmp_path / "unit.wav", "-o",
+    code, _, err = cli("render", tmp_path / "dry.wav", "--ir", tmp_path / "unit.wav", "-o",
                          tmp_path / "wet.wav", "--target", -30)
     assert code == 0, err
     assert "without --normalize" in err and "loudness" in err
