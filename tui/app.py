@@ -133,10 +133,10 @@ def terminal_problem(stdin=None, stdout=None, env=None) -> str | None:
 def main(argv: list[str] | None = None) -> int:
     """Entry point of ``roomconv-tui`` (``argv`` None: the process's arguments) and of
     ``roomconv tui`` (``argv`` []). Returns the exit code: 2 when no terminal can be used."""
-    import argparse
     import sys
-    parser = argparse.ArgumentParser(
-        prog="roomconv-tui", description="The roomconv terminal workbench (no options).")
+
+    from roomconv.cli import Parser
+    parser = Parser(prog="roomconv-tui", description="The roomconv terminal workbench (no options).")
     parser.parse_args(sys.argv[1:] if argv is None else argv)  # exit 2 on unknown options
     problem = terminal_problem()
     if problem:

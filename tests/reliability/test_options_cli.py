@@ -206,3 +206,4 @@ def test_tui_without_a_terminal_exits_with_a_message(how):
 def test_tui_entry_refuses_unknown_options():
     r = _run(["-m", "tui.app", "--bogus"], stdin=subprocess.DEVNULL)
     assert r.returncode == 2 and "--bogus" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1
