@@ -10,7 +10,7 @@ References
 ----------
 The output power of a linear time-invariant system driven by white noise of power σ² is
 σ²·Σ h[n]² (Parseval's theorem; e.g. A. Papoulis, *Probability, Random Variables and
-Stochastic Processes*, 1965, ch. 10 on linear systems with stochastic inputs).
+Stochastic Processes*, 1965, on linear systems with stochastic inputs; cited from memory).
 """
 
 from __future__ import annotations

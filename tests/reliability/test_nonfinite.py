@@ -2,7 +2,8 @@
 
 References used by the checks: IEEE 754 semantics as implemented by numpy (NaN compares
 false, ``np.clip`` and ``max`` let NaN through, which is why the guards are needed); the
-definition of dBFS (full scale = 1.0, so −1 dBFS is a peak of 10^(−1/20) ≈ 0.891, AES17);
+definition of dBFS (full scale = 1.0, so −1 dBFS is a peak of 10^(−1/20) ≈ 0.891; AES17,
+from memory);
 ``numpy.finfo(float32).max`` for what a 32-bit float file can hold.
 """
 

@@ -1,7 +1,7 @@
 """The reusable checks of roomconv.validate, against closed forms and IEEE 754 values.
 
 Sizes: samples × channels × 8 bytes (float64), 1 GiB = 2^30 bytes (IEC 80000-13 binary
-prefixes). Non-finite values are those for which ``math.isfinite`` is false (IEEE 754).
+prefixes, from memory). Non-finite values are those for which ``math.isfinite`` is false (IEEE 754).
 """
 
 from __future__ import annotations

@@ -3,7 +3,7 @@
 JSON allows any value at the top level (RFC 8259, section 2), so a list or a number parses
 without error: the shape of the content must be checked by us. JSON's grammar has no NaN
 (RFC 8259, section 6), but Python's json module accepts it, so finite values are checked
-too. TOML tables (TOML v1.0.0) give the same structure for the materials file.
+too (section numbers from memory). TOML tables (TOML v1.0.0) give the same structure for the materials file.
 """
 
 from __future__ import annotations
