@@ -7,11 +7,12 @@ one-line message and exit code 2 (bad input) or 1 (internal); ``--debug`` shows 
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 import traceback
 from pathlib import Path
 
-from . import __version__, safety
+from . import __version__, safety, validate
 from .errors import InputError, RoomconvError
 
 COMMANDS = {}
@@ -25,23 +26,50 @@ def command(name: str, help: str):
     return deco
 
 
-def _common() -> argparse.ArgumentParser:
+class Parser(argparse.ArgumentParser):
+    """argparse with two changes: a value that starts with ``-`` and a digit, a point,
+    ``inf`` or ``nan`` is a value (so ``--room -5x4x3`` reaches the check that refuses it),
+    and an error is one line that points to ``--help``."""
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        # argparse only takes "-5" and "-.5" as values; "-5x4x3" or "-inf" would be read as
+        # unknown options and the real problem never reported.
+        self._negative_number_matcher = re.compile(r"^-(\d|\.\d|inf|nan)", re.IGNORECASE)
+
+    def error(self, message):
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+def _common(suppress: bool = False) -> argparse.ArgumentParser:
+    # Sub-command parsers must not reset a --debug given before the sub-command, so there
+    # the options have no default of their own.
+    kw = {"default": argparse.SUPPRESS} if suppress else {}
     p = argparse.ArgumentParser(add_help=False)
-    p.add_argument("--debug", action="store_true", help="show tracebacks on errors")
-    p.add_argument("--quiet", action="store_true", help="no progress bars or reports on stdout")
+    p.add_argument("--debug", action="store_true", help="show tracebacks on errors", **kw)
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress bars or reports on stdout", **kw)
     return p
 
 
-def _positive(kind):
+def opt(check, *cargs, **ckw):
+    """An argparse ``type=`` built from a :mod:`roomconv.validate` check; argparse puts the
+    option's name in front of the check's message."""
     def conv(text):
         try:
-            v = kind(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
-        if v <= 0:
-            raise argparse.ArgumentTypeError(f"{text} must be positive")
-        return v
+            return check(text, *cargs, **ckw)
+        except InputError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+    conv.__name__ = getattr(check, "__name__", "value")
     return conv
+
+
+def budget(option: str, check, *cargs, **ckw):
+    """Run a size check at the top of a command; its refusal names ``option``."""
+    try:
+        return check(*cargs, **ckw)
+    except InputError as exc:
+        raise InputError(f"{option}: {exc}") from None
 
 
 def device_spec(text: str) -> int | str:
@@ -61,21 +89,45 @@ def _note(msg: str) -> None:
 
 # --- sweep ---------------------------------------------------------------------------------
 def _sweep_options(p, level_default: float):
+    v = validate
     g = p.add_argument_group("sweep")
-    g.add_argument("--rate", type=int, default=48000, help="sample rate in Hz (default 48000)")
-    g.add_argument("--low", type=_positive(float), default=20.0, help="start frequency, Hz (20)")
-    g.add_argument("--high", type=_positive(float), default=20000.0,
-                   help="stop frequency, Hz (20000; at most half the rate)")
-    g.add_argument("--duration", type=_positive(float), default=5.0,
+    g.add_argument("--rate", type=opt(v.sample_rate), default=48000,
+                   help=f"sample rate in Hz, {v.RATE_MIN}-{v.RATE_MAX} (default 48000)")
+    g.add_argument("--low", type=opt(v.positive, "sweep start frequency", unit="Hz"),
+                   default=20.0, help="start frequency, Hz (20)")
+    g.add_argument("--high", type=opt(v.positive, "sweep stop frequency", unit="Hz"),
+                   default=20000.0, help="stop frequency, Hz (20000; at most half the rate)")
+    g.add_argument("--duration", type=opt(v.positive, "sweep duration", unit="s"), default=5.0,
                    help="sweep length in seconds, without silences (5)")
-    g.add_argument("--level", type=float, default=level_default,
-                   help=f"peak level in dBFS ({level_default:g})")
-    g.add_argument("--pre", type=float, default=0.5, help="silence before the first sweep, s (0.5)")
-    g.add_argument("--silence", type=float, default=2.0,
+    g.add_argument("--level", type=opt(v.in_range, "sweep level", -120.0, 0.0, unit="dBFS"),
+                   default=level_default,
+                   help=f"peak level in dBFS, -120 to 0 ({level_default:g})")
+    g.add_argument("--pre", type=opt(v.non_negative, "silence before the sweep", unit="s"),
+                   default=0.5, help="silence before the first sweep, s (0.5)")
+    g.add_argument("--silence", type=opt(v.non_negative, "silence after the sweep", unit="s"),
+                   default=2.0,
                    help="silence after each sweep, s; longer than the room's decay (2)")
-    g.add_argument("--repeat", type=int, default=1, help="back-to-back sweeps to average (1)")
-    g.add_argument("--fade-in", type=float, default=0.05, help="fade-in, s (0.05)")
-    g.add_argument("--fade-out", type=float, default=0.01, help="fade-out, s (0.01)")
+    g.add_argument("--repeat", type=opt(v.count, "number of sweeps", 1, 100), default=1,
+                   help="back-to-back sweeps to average, 1-100 (1)")
+    g.add_argument("--fade-in", type=opt(v.non_negative, "sweep fade-in", unit="s"),
+                   default=0.05, help="fade-in, s (0.05)")
+    g.add_argument("--fade-out", type=opt(v.non_negative, "sweep fade-out", unit="s"),
+                   default=0.01, help="fade-out, s (0.01)")
+
+
+def _sweep_budget(a, channels: int = 1) -> None:
+    """Refuse, before anything is allocated, a sweep file longer than the memory budget; the
+    refusal names the option that contributes most."""
+    parts = {"--pre": a.pre, "--silence": a.repeat * a.silence,
+             "--duration": a.repeat * a.duration}
+    total = sum(parts.values())
+    worst = max(parts, key=parts.get)
+    if a.repeat * (a.duration + a.silence) > 0.5 * total and a.repeat > 1:
+        worst = f"{worst} (with --repeat {a.repeat})"
+    budget(worst, validate.memory_budget, total * a.rate, "the sweep file", channels=channels)
+    if a.fade_in + a.fade_out > a.duration:
+        raise InputError(f"--fade-in/--fade-out: fades of {a.fade_in:g} s and {a.fade_out:g} s "
+                         f"do not fit in a {a.duration:g} s sweep (shorten them)")
 
 
 def _sweep_from_args(a):
@@ -88,6 +140,7 @@ def _sweep_from_args(a):
 @command("sweep", "write an exponential sine sweep (WAV + .sweep.json sidecar)")
 def cmd_sweep(a):
     from .measure.files import save_sweep
+    _sweep_budget(a)
     s = _sweep_from_args(a)
     save_sweep(a.output, s, subtype=a.subtype, force=a.force)
     _out(f"wrote {a.output} ({s.n_total / s.rate:.2f} s, {s.repeats} sweep(s) "
@@ -135,10 +188,13 @@ def _cfg_extract(p):
 
 
 def _extract_options(p):
-    p.add_argument("--reference-channel", type=int, default=None, metavar="K",
+    p.add_argument("--reference-channel", type=opt(validate.count, "reference channel", 0,
+                                                   validate.MAX_CHANNEL - 1),
+                   default=None, metavar="K",
                    help="0-based index of a loopback channel in the recording")
-    p.add_argument("--length", type=_positive(float), default=None, metavar="S",
-                   help="IR length in seconds (default: the silence after the sweep)")
+    p.add_argument("--length", type=opt(validate.positive, "response length", 600.0, unit="s"),
+                   default=None, metavar="S",
+                   help="IR length in seconds, at most 600 (default: the silence after the sweep)")
     p.add_argument("--harmonics", type=Path, default=None, metavar="DIR",
                    help="also write harmonic IRs (orders 2-5) into DIR")
     p.add_argument("--trim", action="store_true", help="cut leading silence before the onset")
@@ -178,7 +234,13 @@ def cmd_measure(a):
     from .measure.deconvolve import extract_ir
     from .measure.files import format_quality, save_extraction
     from .measure.sweep import sweep_signal
-    safety.check_level(a.level)
+    budget("--level", safety.check_level, a.level)
+    _sweep_budget(a, channels=1 + len(a.input_channels) if a.simulate is None else 2)
+    budget("--sim-latency", validate.memory_budget, a.sim_latency, "this simulated latency")
+    if a.reference_channel is not None and a.simulate is None \
+            and a.reference_channel >= len(a.input_channels):
+        raise InputError(f"--reference-channel {a.reference_channel}: the recording has "
+                         f"{len(a.input_channels)} channel(s) (0-based index expected)")
     s = _sweep_from_args(a)
     for p in (a.output, a.save_recording, a.json):
         if p is not None:
@@ -189,12 +251,16 @@ def cmd_measure(a):
         if ir_rate != s.rate:
             raise InputError(f"{a.simulate}: the simulated room is at {ir_rate} Hz but the sweep "
                              f"at {s.rate} Hz (pass --rate {ir_rate})")
+        n_rec = (ir.shape[1] if ir.ndim == 2 else 1) + (a.reference_channel is not None)
+        if a.reference_channel is not None and a.reference_channel >= n_rec:
+            raise InputError(f"--reference-channel {a.reference_channel}: the simulated "
+                             f"recording has {n_rec} channel(s), 0 to {n_rec - 1}")
         device = SimulatedDevice(ir, latency_samples=a.sim_latency, noise_dbfs=a.sim_noise,
                                  loopback=a.reference_channel is not None, seed=a.seed)
         _note("simulated device: no sound will be played")
         inputs = [a.simulate]
     else:
-        chans = tuple(int(c) for c in a.input_channels.split(","))
+        chans = a.input_channels
         device = SoundCard(device=a.device, output_channel=a.output_channel, input_channels=chans)
         confirm_caution(a)
     rec = run_measurement(device, sweep_signal(s), s.rate, tail_s=0.5)
@@ -216,8 +282,11 @@ def _cfg_measure(p):
     g = p.add_argument_group("device")
     g.add_argument("--device", type=device_spec, default=None,
                    help="PortAudio device: its index, or part of its name")
-    g.add_argument("--output-channel", type=int, default=1, help="1-based output channel (1)")
-    g.add_argument("--input-channels", default="1",
+    g.add_argument("--output-channel", type=opt(validate.count, "output channel", 1,
+                                                 validate.MAX_CHANNEL),
+                   default=1, help="1-based output channel (1)")
+    g.add_argument("--input-channels", type=opt(validate.channel_list, "input channels"),
+                   default=(1,),
                    help="1-based input channels, comma-separated (1); include the loopback")
     g.add_argument("--yes", action="store_true",
                    help="confirm you have read the hearing and equipment caution")
@@ -226,9 +295,13 @@ def _cfg_measure(p):
     g = p.add_argument_group("rehearsal without a sound card")
     g.add_argument("--simulate", type=Path, default=None, metavar="IR.wav",
                    help="measure a simulated room with this response instead of a sound card")
-    g.add_argument("--sim-noise", type=float, default=-90.0, help="simulated noise, dBFS (-90)")
-    g.add_argument("--sim-latency", type=int, default=0, help="simulated latency, samples (0)")
-    g.add_argument("--seed", type=int, default=0, help="noise seed for --simulate (0)")
+    g.add_argument("--sim-noise", type=opt(validate.in_range, "simulated noise level", -300.0,
+                                           0.0, unit="dBFS"),
+                   default=-90.0, help="simulated noise, dBFS, -300 to 0 (-90)")
+    g.add_argument("--sim-latency", type=opt(validate.count, "simulated latency", 0),
+                   default=0, help="simulated latency, samples (0)")
+    g.add_argument("--seed", type=opt(validate.count, "noise seed", 0, 2 ** 32 - 1), default=0,
+                   help="noise seed for --simulate (0)")
     _extract_options(p)
 
 
@@ -239,8 +312,7 @@ cmd_measure.configure = _cfg_measure
 @command("tui", "the terminal workbench (Textual)")
 def cmd_tui(a):
     from tui.app import main as tui_main
-    tui_main()
-    return 0
+    return tui_main([])
 
 
 cmd_tui.configure = lambda p: None
@@ -248,13 +320,13 @@ cmd_tui.configure = lambda p: None
 
 # --- entry point ---------------------------------------------------------------------------
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="roomconv", parents=[_common()],
         description="Measure, analyse, synthesize and render through room impulse responses.")
     parser.add_argument("--version", action="version", version=f"roomconv {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (func, help_) in COMMANDS.items():
-        p = sub.add_parser(name, help=help_, description=help_, parents=[_common()])
+        p = sub.add_parser(name, help=help_, description=help_, parents=[_common(True)])
         func.configure(p)
         p.set_defaults(func=func)
     return parser
@@ -263,7 +335,10 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     _load_plugins()
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version or a refused option: already printed
+        return exc.code if isinstance(exc.code, int) else 2
     if not getattr(args, "func", None):
         parser.print_help()
         return 2

@@ -10,23 +10,39 @@ from .progress import Progress
 
 
 def render_options(p):
+    from . import validate as v
+    from .cli import opt
     g = p.add_argument_group("rendering")
-    g.add_argument("--mix", type=float, default=1.0, help="wet/dry: 0 dry only … 1 wet only (1)")
-    g.add_argument("--predelay", type=float, default=0.0, metavar="MS",
-                   help="delay of the wet signal, ms (0)")
-    g.add_argument("--gain", type=float, default=0.0, metavar="DB", help="output gain, dB (0)")
+    g.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
+                   help="wet/dry: 0 dry only … 1 wet only (1). The response is first scaled "
+                        "to unit energy per output, so wet and dry are level-matched for "
+                        "broadband sound and the mix alone sets their balance "
+                        "(20·log10(mix/(1−mix)) dB, printed); see --keep-ir-level")
+    g.add_argument("--keep-ir-level", action="store_true",
+                   help="use the response at its own level (no unit-energy scaling); the "
+                        "wet/dry balance then also depends on the file's level")
+    g.add_argument("--predelay", type=opt(v.non_negative, "pre-delay", unit="ms"), default=0.0,
+                   metavar="MS",
+                   help="delay of the wet signal, ms (0; limited by a 2 GiB memory budget)")
+    g.add_argument("--gain", type=opt(v.in_range, "output gain", -100.0, 60.0, unit="dB"),
+                   default=0.0, metavar="DB", help="output gain, -100 to +60 dB (0)")
     g.add_argument("--normalize", choices=("none", "peak", "truepeak", "loudness"),
-                   default="none", help="normalize the output (none)")
-    g.add_argument("--target", type=float, default=None, metavar="VALUE",
+                   default=None,
+                   help="normalize the output (none; --target alone implies loudness)")
+    g.add_argument("--target", type=opt(v.in_range, "normalization target", -100.0, 0.0),
+                   default=None, metavar="VALUE",
                    help="normalization target: dBFS (peak, -1), dBTP (truepeak, -1) or LUFS "
-                        "(loudness, -23)")
+                        "(loudness, -23); -100 to 0, loudness -60 to 0. Loudness is measured "
+                        "again after the gain and corrected until within ±0.05 LU. Given "
+                        "without --normalize it implies --normalize loudness (and says so)")
     g.add_argument("--subtype", default="FLOAT",
                    help="output sample format: FLOAT (default), DOUBLE, PCM_24, PCM_16 …; "
                         "integer formats get TPDF dither")
     g.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
                    help="engine precision: auto = float32 (about -130 dB error, faster) "
                         "unless --subtype DOUBLE, which computes in float64")
-    g.add_argument("--outputs", type=int, default=None, metavar="M",
+    g.add_argument("--outputs", type=opt(v.count, "number of outputs", 1, 64), default=None,
+                   metavar="M",
                    help="general matrix routing: the IR holds inputs×M channels, input-major")
     g.add_argument("--shared", action="store_true",
                    help="use the IR's first channel for every input")
@@ -38,21 +54,58 @@ def render_options(p):
 
 def settings_from_args(a):
     from .render.offline import RenderSettings
+    normalize = a.normalize
+    if normalize is None:
+        normalize = "none"
+        if a.target is not None:
+            # A target nobody acts on would be silently ignored; loudness is what a bare
+            # target most often means, and the note says so.
+            normalize = "loudness"
+            _note(f"--target {a.target:g} without --normalize: normalizing loudness to "
+                  f"{a.target:g} LUFS")
+    elif normalize == "none" and a.target is not None:
+        from .errors import InputError
+        raise InputError("--target: given with --normalize none; drop one of the two")
+    if normalize == "loudness" and a.target is not None:
+        from . import validate
+        from .cli import budget
+        from .render.offline import LOUDNESS_TARGET_MIN
+        budget("--target", validate.in_range, a.target, "loudness target",
+               LOUDNESS_TARGET_MIN, 0.0, unit="LUFS")
     return RenderSettings(mix=a.mix, predelay_ms=a.predelay, gain_db=a.gain,
-                          normalize=a.normalize, target=a.target, subtype=a.subtype.upper(),
+                          normalize=normalize, target=a.target, subtype=a.subtype.upper(),
                           precision=a.precision, outputs=a.outputs, shared=a.shared,
-                          keep_tail=not a.no_tail, dither=not a.no_dither).check()
+                          keep_tail=not a.no_tail, dither=not a.no_dither,
+                          match_ir_level=not a.keep_ir_level).check()
+
+
+def check_predelay(a, paths) -> None:
+    """Refuse a pre-delay whose buffer would not fit, at the rate of the files it applies to,
+    before any work (files that cannot be read are reported later by the render itself)."""
+    from .audio import audio_info
+    from .cli import budget
+    from . import validate
+    for p in paths:
+        try:
+            info = audio_info(p)
+        except Exception:  # noqa: BLE001 - unreadable inputs get their own message later
+            continue
+        budget("--predelay", validate.seconds_budget, a.predelay / 1000.0, info.samplerate,
+               "this pre-delay", channels=info.channels)
 
 
 def describe_report(r) -> str:
+    from .render.mix import describe_balance
     parts = [f"wrote {r.output}: {r.channels} channel(s), {r.frames / r.rate:.2f} s at "
              f"{r.rate} Hz, routing {r.routing}, peak {r.peak_dbfs:+.1f} dBFS"]
     if r.true_peak_dbtp is not None:
         parts.append(f"true peak {r.true_peak_dbtp:+.1f} dBTP")
     if r.loudness_lufs is not None:
-        parts.append(f"loudness {r.loudness_lufs:.1f} LUFS")
+        parts.append(f"loudness {r.loudness_lufs:.2f} LUFS (measured)")
     if r.gain_db:
         parts.append(f"gain {r.gain_db:+.1f} dB")
+    if r.wet_dry_db is not None:
+        parts.append(f"wet/dry balance {describe_balance(r.wet_dry_db)}")
     if r.ir_resampled_from:
         parts.append(f"IR resampled from {r.ir_resampled_from} Hz")
     return ", ".join(parts)
@@ -62,6 +115,7 @@ def describe_report(r) -> str:
 def cmd_render(a):
     from .render.offline import render_file
     s = settings_from_args(a)
+    check_predelay(a, [a.dry])
     with Progress(1.0, "rendering", enabled=False if a.quiet else None) as bar:
         def tick(frac, bar=bar):
             bar.update(frac - bar.done)
@@ -145,6 +199,7 @@ def cmd_batch(a):
     from .render.batch import dask_executor, local_executor, plan_jobs, run_batch
     from .errors import InputError
     s = settings_from_args(a)
+    check_predelay(a, a.dry)
     out_dir = a.out_dir
     if out_dir.exists() and not out_dir.is_dir():
         raise InputError(f"{out_dir}: exists and is not a folder")
@@ -180,7 +235,10 @@ def _cfg_batch(p):
     p.add_argument("dry", nargs="+", type=Path, help="dry files")
     p.add_argument("--ir", nargs="+", type=Path, required=True, help="impulse responses")
     p.add_argument("--out-dir", type=Path, required=True, help="folder for <dry>__<ir>.wav")
-    p.add_argument("--workers", type=int, default=None, help="local processes (all cores)")
+    from . import validate
+    from .cli import opt
+    p.add_argument("--workers", type=opt(validate.count, "number of workers", 1, 256),
+                   default=None, help="local processes, 1-256 (all cores)")
     p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
                    help="run on a Dask distributed cluster instead of local processes")
     render_options(p)
@@ -196,11 +254,11 @@ def cmd_live(a):
     from .cli import confirm_caution
     from .errors import InputError
     from .render.offline import resample_ir
+    from .render.mix import describe_balance
     from .render.stream import LiveProcessor, run_live
     from .measure.capture import load_sounddevice
     ir, ir_rate = read_audio(a.ir, what="impulse response")
-    ins = tuple(int(c) for c in a.input_channels.split(","))
-    outs = tuple(int(c) for c in a.output_channels.split(","))
+    ins, outs = a.input_channels, a.output_channels
     sd = load_sounddevice()
     rate = a.rate
     if rate is None:
@@ -213,11 +271,13 @@ def cmd_live(a):
     if a.ceiling > -1.0:
         raise InputError(f"--ceiling {a.ceiling} dBFS is above the output cap of -1 dBFS")
     proc = LiveProcessor(ir, rate, block=a.block, n_in=len(ins), mix=a.mix, gain_db=a.gain,
-                         ceiling_dbfs=a.ceiling, precision=a.precision)
+                         ceiling_dbfs=a.ceiling, precision=a.precision,
+                         match_ir_level=not a.keep_ir_level)
     confirm_caution(a)
     n_st = len(proc.engine.stages)
     _note(f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
-          f"routing {proc.routing.name}; Ctrl-C stops")
+          f"routing {proc.routing.name}, wet/dry balance {describe_balance(proc.wet_dry_db)}; "
+          "Ctrl-C stops")
 
     def meter(st):
         if a.quiet:
@@ -232,25 +292,40 @@ def cmd_live(a):
     _out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
          f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
          f"{100 * st.compute.mean_s / per_block:.1f} % / p99 "
-         f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block", a)
+         f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block"
+         + (f", {st.nonfinite} non-finite blocks silenced" if st.nonfinite else ""), a)
     return 0
 
 
 def _cfg_live(p):
+    from . import validate as v
+    from .cli import opt
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
-    p.add_argument("--block", type=int, default=128, help="block size, 32-1024 samples (128)")
-    p.add_argument("--rate", type=int, default=None, help="sample rate (the device's default)")
+    p.add_argument("--block", type=opt(v.count, "block size", 32, 1024), default=128,
+                   help="block size, 32-1024 samples (128)")
+    p.add_argument("--rate", type=opt(v.sample_rate), default=None,
+                   help=f"sample rate, {v.RATE_MIN}-{v.RATE_MAX} Hz (the device's default)")
     p.add_argument("--device", type=device_spec, default=None,
                    help="PortAudio device: its index, or part of its name")
-    p.add_argument("--input-channels", default="1", help="1-based inputs, comma-separated (1)")
-    p.add_argument("--output-channels", default="1", help="1-based outputs (1)")
-    p.add_argument("--mix", type=float, default=1.0, help="wet/dry 0..1 (1)")
-    p.add_argument("--gain", type=float, default=-6.0, help="output gain, dB (-6)")
-    p.add_argument("--ceiling", type=float, default=-1.0, help="limiter ceiling, dBFS (-1)")
+    p.add_argument("--input-channels", type=opt(v.channel_list, "input channels"),
+                   default=(1,), help="1-based inputs, comma-separated (1)")
+    p.add_argument("--output-channels", type=opt(v.channel_list, "output channels"),
+                   default=(1,), help="1-based outputs (1)")
+    p.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
+                   help="wet/dry 0..1 (1), on level-matched wet and dry as for render")
+    p.add_argument("--keep-ir-level", action="store_true",
+                   help="use the response at its own level (no unit-energy scaling)")
+    p.add_argument("--gain", type=opt(v.in_range, "output gain", -100.0, 20.0, unit="dB"),
+                   default=-6.0, help="output gain, -100 to +20 dB (-6); the output is "
+                                      "limited to the ceiling anyway")
+    p.add_argument("--ceiling", type=opt(v.in_range, "limiter ceiling", -60.0, -1.0,
+                                         unit="dBFS"),
+                   default=-1.0, help="limiter ceiling, -60 to -1 dBFS (-1)")
     p.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
                    help="engine precision: auto = float32, as the sound card stream is "
                         "float32 (about -135 dB error); float64 is exact to about -300 dB")
-    p.add_argument("--duration", type=float, default=None, help="stop after S seconds")
+    p.add_argument("--duration", type=opt(v.positive, "live duration", 86400.0, unit="s"),
+                   default=None, help="stop after S seconds (at most 86400)")
     p.add_argument("--yes", action="store_true",
                    help="confirm you have read the hearing and equipment caution")
 

@@ -6,9 +6,24 @@ from pathlib import Path
 
 import numpy as np
 
+from . import validate
 from .audio import check_output, read_audio, write_audio, write_json, write_provenance
-from .cli import _out, command
+from .cli import _out, budget, command, opt
 from .errors import InputError
+
+#: Largest room side accepted, m: beyond any enclosed hall (common practice), and the image
+#: source and tail sizes stay within memory.
+ROOM_SIDE_MAX_M = 1000.0
+#: Decay-time factors accepted by ``edit --decay-scale``: beyond these the exponential
+#: reshaping either leaves only the direct sound or grows the tail without bound.
+DECAY_SCALE_MIN, DECAY_SCALE_MAX = 0.05, 20.0
+
+
+def refuse_non_finite(ir, path) -> None:
+    """Never write a response holding NaN or ±inf."""
+    if not np.all(np.isfinite(ir)):
+        raise InputError(f"{path}: the result holds NaN or infinite samples (the settings "
+                         "push it beyond what numbers can hold); nothing written")
 
 
 def parse_triple(text: str, what: str, sep: str = ",") -> tuple[float, float, float]:
@@ -20,26 +35,46 @@ def parse_triple(text: str, what: str, sep: str = ",") -> tuple[float, float, fl
     if len(vals) != 3:
         joiner = "x" if sep == "x" else ","
         raise InputError(f"{what} '{text}' must be three numbers like 12{joiner}8{joiner}3.5")
+    for v in vals:
+        validate.finite(v, f"{what} '{text}':")
     return vals
 
 
-def parse_band_values(text: str | None, what: str) -> dict[int, float]:
+def room_size(text: str) -> tuple[float, float, float]:
+    """``"12x8x3.5"`` → three positive finite sides, each at most :data:`ROOM_SIDE_MAX_M`."""
+    vals = parse_triple(text, "room size", sep="x")
+    for v in vals:
+        if v <= 0:
+            raise InputError(f"room dimensions must be positive (got '{text}')")
+        validate.in_range(v, "room side", 0.0, ROOM_SIDE_MAX_M, unit="m")
+    return vals
+
+
+def position(text: str) -> tuple[float, float, float]:
+    return parse_triple(text, "position")
+
+
+def parse_band_values(text: str | None, what: str, hi: float | None = None) -> dict[int, float]:
     """'500:1.8,1000:1.6' → {500: 1.8, 1000: 1.6}; a bare number applies to every band."""
     from .synth.materials import OCTAVES
     if not text:
         return {}
     try:
-        return {b: float(text) for b in OCTAVES}
+        out = {b: float(text) for b in OCTAVES}
     except ValueError:
-        pass
-    out = {}
-    for item in text.split(","):
-        band, _, val = item.partition(":")
-        try:
-            out[int(float(band))] = float(val)
-        except ValueError:
-            raise InputError(f"{what} item '{item}' must look like BAND:VALUE "
-                             "(e.g. 500:1.8)") from None
+        out = {}
+        for item in text.split(","):
+            band, _, val = item.partition(":")
+            try:
+                out[int(float(band))] = float(val)
+            except (ValueError, OverflowError):
+                raise InputError(f"{what} item '{item}' must look like BAND:VALUE "
+                                 "(e.g. 500:1.8)") from None
+    for band, val in out.items():
+        if band not in OCTAVES:
+            raise InputError(f"{what}: {band} Hz is not an octave band "
+                             f"({', '.join(map(str, OCTAVES))})")
+        validate.positive(val, f"{what} at {band} Hz", hi)
     return out
 
 
@@ -71,12 +106,8 @@ def parse_patches(items) -> tuple:
         parts = item.split(":")
         if len(parts) != 3:
             raise InputError(f"--patch '{item}' must look like SURFACE:MATERIAL:AREA_M2")
-        try:
-            area = float(parts[2])
-        except ValueError:
-            raise InputError(f"--patch '{item}': area must be a number of m²") from None
-        if area <= 0:
-            raise InputError(f"--patch '{item}': area must be positive")
+        area = budget(f"--patch '{item}'", validate.positive, parts[2], "patch area",
+                      unit="m²")
         out.append(Patch(parts[0], parts[1], area))
     return tuple(out)
 
@@ -86,17 +117,17 @@ def parse_absorbers(items) -> tuple:
     out = []
     for item in items or []:
         mat, _, area = item.rpartition(":")
-        try:
-            out.append(Absorber(mat, float(area)))
-        except ValueError:
-            raise InputError(f"--absorber '{item}' must look like MATERIAL:AREA_M2") from None
+        if not mat:
+            raise InputError(f"--absorber '{item}' must look like MATERIAL:AREA_M2")
+        out.append(Absorber(mat, budget(f"--absorber '{item}'", validate.positive, area,
+                                        "absorber area", 1e6, unit="m²")))
     return tuple(out)
 
 
 def room_from_args(a):
     from .synth.materials import load_materials
     from .synth.room import RoomModel
-    L, W, H = parse_triple(a.room, "--room", sep="x")
+    L, W, H = a.room
     extra = load_materials(a.materials_file) if a.materials_file else {}
     return RoomModel(L, W, H, parse_materials(a.materials), parse_patches(a.patch),
                      parse_absorbers(a.absorber), temperature_c=a.temperature,
@@ -123,18 +154,32 @@ def prediction_table(result_or_room) -> str:
 @command("synth", "synthesize a room impulse response from geometry and materials")
 def cmd_synth(a):
     from .synth.generate import Receivers, synthesize
+    receivers = budget("--stereo", Receivers.parse, a.stereo)
+    if receivers.kind == "spaced":
+        budget("--stereo", validate.in_range, receivers.value, "pair spacing", 0.0, 100.0,
+               unit="m")
+    rt = parse_band_values(a.rt60, "--rt60")
+    if a.length is not None:
+        # Synthesis holds one noise signal per octave band (8) plus a few working copies for
+        # each receiver channel at once.
+        budget("--length", validate.seconds_budget, a.length, a.rate, "this response length",
+               channels=12 * receivers.channels)
     room = room_from_args(a)
     check_output(a.output, force=a.force)
     L, W, H = room.length, room.width, room.height
-    src = parse_triple(a.source, "--source") if a.source else (L / 4, W / 3, min(1.5, H / 2))
-    rcv = parse_triple(a.receiver, "--receiver") if a.receiver else (
+    src = a.source if a.source else (L / 4, W / 3, min(1.5, H / 2))
+    rcv = a.receiver if a.receiver else (
         3 * L / 4, 2 * W / 3, min(1.2, H / 2))
-    res = synthesize(room, src, rcv, rate=a.rate, receivers=Receivers.parse(a.stereo),
-                     rt=parse_band_values(a.rt60, "--rt60"), prediction=a.prediction,
+    res = synthesize(room, src, rcv, rate=a.rate, receivers=receivers,
+                     rt=rt, prediction=a.prediction,
                      seed=a.seed, length_s=a.length)
     ir = res.ir
     if a.peak is not None:
+        if not np.any(ir):
+            raise InputError("--peak: the synthesized response is silent; nothing to "
+                             "normalize")
         ir = ir * (10 ** (a.peak / 20) / np.max(np.abs(ir)))
+    refuse_non_finite(ir, a.output)
     write_audio(a.output, ir, a.rate, force=a.force)
     settings = {"room": [L, W, H], "surfaces": room.surfaces,
                 "patches": [p.__dict__ for p in room.patches], "source": list(src),
@@ -154,7 +199,9 @@ def cmd_synth(a):
 
 
 def _room_options(p):
-    p.add_argument("--room", required=True, metavar="LxWxH", help="room size in metres")
+    p.add_argument("--room", type=opt(room_size), required=True, metavar="LxWxH",
+                   help=f"room size in metres, each side above 0 and at most "
+                        f"{ROOM_SIDE_MAX_M:g}")
     p.add_argument("--materials", default=None, metavar="SURFACE=MATERIAL,...",
                    help="surfaces: left right front back floor ceiling (or walls, all); "
                         "default plaster")
@@ -164,8 +211,12 @@ def _room_options(p):
                    help="free-standing absorption added to the room (repeatable)")
     p.add_argument("--materials-file", type=Path, default=None,
                    help="extra materials in JSON or TOML")
-    p.add_argument("--temperature", type=float, default=20.0, help="air temperature, °C (20)")
-    p.add_argument("--humidity", type=float, default=50.0, help="relative humidity, %% (50)")
+    p.add_argument("--temperature", type=opt(validate.in_range, "air temperature", -20.0, 50.0,
+                                             unit="°C"),
+                   default=20.0, help="air temperature, -20 to 50 °C (20)")
+    p.add_argument("--humidity", type=opt(validate.in_range, "relative humidity", 0.0, 100.0,
+                                          unit="%", lo_open=True),
+                   default=50.0, help="relative humidity, above 0 to 100 %% (50)")
 
 
 def _cfg_synth(p):
@@ -173,17 +224,24 @@ def _cfg_synth(p):
     _room_options(p)
     p.add_argument("--rt60", default=None, metavar="BAND:SECONDS,...",
                    help="reverberation time of the tail per octave band (overrides prediction)")
-    p.add_argument("--source", default=None, metavar="X,Y,Z", help="source position, m")
-    p.add_argument("--receiver", default=None, metavar="X,Y,Z", help="receiver position, m")
+    p.add_argument("--source", type=opt(position), default=None, metavar="X,Y,Z",
+                   help="source position, m")
+    p.add_argument("--receiver", type=opt(position), default=None, metavar="X,Y,Z",
+                   help="receiver position, m")
     p.add_argument("--stereo", default=None, metavar="spaced:M|coincident:DEG",
                    help="a stereo pair instead of one receiver")
-    p.add_argument("--rate", type=int, default=48000, help="sample rate (48000)")
-    p.add_argument("--seed", type=int, default=0, help="seed for the tail noise (0)")
-    p.add_argument("--length", type=float, default=None, help="IR length, s (auto)")
+    p.add_argument("--rate", type=opt(validate.sample_rate), default=48000,
+                   help=f"sample rate, {validate.RATE_MIN}-{validate.RATE_MAX} Hz (48000)")
+    p.add_argument("--seed", type=opt(validate.count, "noise seed", 0, 2 ** 32 - 1), default=0,
+                   help="seed for the tail noise (0)")
+    p.add_argument("--length", type=opt(validate.positive, "response length", unit="s"),
+                   default=None, help="IR length, s (auto; within a 2 GiB memory budget)")
     p.add_argument("--prediction", choices=("eyring", "sabine"), default="eyring",
                    help="formula for the tail's decay (eyring)")
-    p.add_argument("--peak", type=float, default=None, metavar="DBFS",
-                   help="normalize the peak to this level")
+    p.add_argument("--peak", type=opt(validate.in_range, "peak level", -100.0, 0.0,
+                                      unit="dBFS"),
+                   default=None, metavar="DBFS", help="normalize the peak to this level, "
+                                                      "-100 to 0")
     p.add_argument("--force", action="store_true", help="replace an existing output")
 
 
@@ -221,6 +279,11 @@ cmd_rooms.configure = _cfg_rooms
 @command("edit", "trim, fade, normalize, reverse, re-time or resample an impulse response")
 def cmd_edit(a):
     from .synth import edit
+    scales = (parse_band_values(a.decay_scale, "--decay-scale", hi=DECAY_SCALE_MAX)
+              if a.decay_scale else None)
+    if scales and min(scales.values()) < DECAY_SCALE_MIN:
+        raise InputError(f"--decay-scale: factor {min(scales.values()):g} is out of range "
+                         f"(accepted: {DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g})")
     check_output(a.output, force=a.force, inputs=[a.input])
     ir, rate = read_audio(a.input, what="impulse response")
     steps = []
@@ -228,7 +291,7 @@ def cmd_edit(a):
         ir, cut0, cut1 = edit.trim(ir, rate, threshold_db=a.trim_db)
         steps.append(f"trimmed {cut0} samples at the start and {cut1} at the end")
     if a.decay_scale is not None:
-        ir = edit.scale_decay(ir, rate, parse_band_values(a.decay_scale, "--decay-scale"))
+        ir = edit.scale_decay(ir, rate, scales)
         steps.append(f"decay times scaled by {a.decay_scale}")
     if a.early_late is not None:
         ir = edit.early_late_balance(ir, rate, a.early_late)
@@ -248,6 +311,7 @@ def cmd_edit(a):
         steps.append(f"peak normalized to {a.normalize:g} dBFS")
     if not steps:
         raise InputError("no edit asked for (see roomconv edit --help)")
+    refuse_non_finite(ir, a.output)
     write_audio(a.output, ir, rate, force=a.force, inputs=[a.input])
     write_provenance(a.output, [a.input], {"steps": steps})
     for s in steps:
@@ -259,18 +323,27 @@ def cmd_edit(a):
 def _cfg_edit(p):
     p.add_argument("input", type=Path, help="IR to edit (never modified)")
     p.add_argument("-o", "--output", type=Path, required=True, help="edited IR to write")
-    p.add_argument("--trim-db", type=float, default=None, metavar="DB",
-                   help="cut what lies below DB re peak at both ends (e.g. -60)")
-    p.add_argument("--fade-in", type=float, default=0.0, metavar="S", help="fade-in, s")
-    p.add_argument("--fade-out", type=float, default=0.0, metavar="S", help="fade-out, s")
-    p.add_argument("--normalize", type=float, default=None, metavar="DBFS",
-                   help="peak level after editing")
+    p.add_argument("--trim-db", type=opt(validate.in_range, "trim threshold", -300.0, 0.0,
+                                         unit="dB re peak", hi_open=True),
+                   default=None, metavar="DB",
+                   help="cut what lies below DB re peak at both ends (negative, e.g. -60)")
+    p.add_argument("--fade-in", type=opt(validate.non_negative, "fade-in", 3600.0, unit="s"),
+                   default=0.0, metavar="S", help="fade-in, s")
+    p.add_argument("--fade-out", type=opt(validate.non_negative, "fade-out", 3600.0, unit="s"),
+                   default=0.0, metavar="S", help="fade-out, s")
+    p.add_argument("--normalize", type=opt(validate.in_range, "peak level", -100.0, 0.0,
+                                           unit="dBFS"),
+                   default=None, metavar="DBFS", help="peak level after editing, -100 to 0")
     p.add_argument("--reverse", action="store_true", help="reverse in time")
     p.add_argument("--decay-scale", default=None, metavar="X|BAND:X,...",
-                   help="multiply decay times (all bands, or per octave band)")
-    p.add_argument("--early-late", type=float, default=None, metavar="DB",
-                   help="change the level of the late part (after 80 ms) by DB")
-    p.add_argument("--rate", type=int, default=None, help="resample to this rate")
+                   help="multiply decay times (all bands, or per octave band), "
+                        f"{DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g}")
+    p.add_argument("--early-late", type=opt(validate.in_range, "late-part level change",
+                                            -60.0, 60.0, unit="dB"),
+                   default=None, metavar="DB",
+                   help="change the level of the late part (after 80 ms) by DB, -60 to +60")
+    p.add_argument("--rate", type=opt(validate.sample_rate), default=None,
+                   help=f"resample to this rate, {validate.RATE_MIN}-{validate.RATE_MAX} Hz")
     p.add_argument("--force", action="store_true", help="replace an existing output")
 
 

@@ -43,7 +43,7 @@ def db_to_gain(db: float) -> float:
 def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
     """Validate a playback level against the hard cap."""
     if not np.isfinite(level_dbfs):
-        raise InputError(f"level {level_dbfs} dBFS is not a number")
+        raise InputError(f"level {level_dbfs} dBFS is not a finite number")
     if level_dbfs > cap_dbfs:
         raise InputError(f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
                          "(lower --level)")
@@ -63,9 +63,10 @@ def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.nda
 
 
 def hard_cap(signal: np.ndarray, cap_dbfs: float = OUTPUT_CAP_DBFS) -> np.ndarray:
-    """Clip anything above the cap (a last line of defence after the limiter)."""
-    g = db_to_gain(cap_dbfs)
-    return np.clip(signal, -g, g)
+    """Clip anything above the cap (a last line of defence after the limiter); NaN becomes
+    silence and ±inf the cap (``np.clip`` alone would let NaN through)."""
+    g = db_to_gain(min(cap_dbfs, OUTPUT_CAP_DBFS))
+    return np.clip(np.nan_to_num(signal, nan=0.0, posinf=g, neginf=-g), -g, g)
 
 
 class OutputLimiter:
@@ -84,6 +85,7 @@ class OutputLimiter:
         self.max_reduction_db = 0.0
         self._powers: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self.last_peak = 0.0  #: peak of the last block returned, linear
+        self.nonfinite = 0    #: blocks in which NaN/inf samples were replaced by silence
 
     def process(self, block: np.ndarray, *, in_place: bool = False) -> np.ndarray:
         """Limit one block (samples × channels, or samples).
@@ -109,6 +111,19 @@ class OutputLimiter:
         mag = np.abs(block)
         peaks = mag.reshape(-1) if block.ndim == 1 or block.shape[1] == 1 else mag.max(axis=1)
         top = float(peaks.max())
+        if not math.isfinite(top):
+            # NaN would poison the gain state for good and pass the final clip: silence those
+            # samples instead (np.max propagates NaN, so this costs nothing when all is well).
+            self.nonfinite += 1
+            bad = ~np.isfinite(block)
+            if in_place:
+                block[bad] = 0.0
+            else:
+                block = np.where(bad, 0.0, block)
+                in_place = True
+            mag = np.abs(block)
+            peaks = mag.reshape(-1) if block.ndim == 1 or block.shape[1] == 1 else mag.max(axis=1)
+            top = float(peaks.max())
         if self._gain == 1.0 and top <= c:
             # Nothing to limit: the common case, kept cheap.
             self.last_peak = top

@@ -107,9 +107,45 @@ class RoomconvApp(App):
         self.notify(f"{path} sent to {tab}")
 
 
-def main() -> None:
+def terminal_problem(stdin=None, stdout=None, env=None) -> str | None:
+    """Why the workbench cannot run here, or None. Without an interactive terminal Textual
+    would wait for input that never comes."""
+    import os
+    import sys
+    stdin = sys.stdin if stdin is None else stdin
+    stdout = sys.stdout if stdout is None else stdout
+    env = os.environ if env is None else env
+
+    def tty(stream):
+        try:
+            return stream is not None and stream.isatty()
+        except (AttributeError, ValueError):
+            return False
+    if not tty(stdin):
+        return "standard input is not a terminal"
+    if not tty(stdout):
+        return "standard output is not a terminal"
+    if env.get("TERM", "") in ("", "dumb", "unknown"):
+        return f"the terminal type TERM={env.get('TERM', '')!r} cannot draw the workbench"
+    return None
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of ``roomconv-tui`` (``argv`` None: the process's arguments) and of
+    ``roomconv tui`` (``argv`` []). Returns the exit code: 2 when no terminal can be used."""
+    import sys
+
+    from roomconv.cli import Parser
+    parser = Parser(prog="roomconv-tui", description="The roomconv terminal workbench (no options).")
+    parser.parse_args(sys.argv[1:] if argv is None else argv)  # exit 2 on unknown options
+    problem = terminal_problem()
+    if problem:
+        print(f"roomconv-tui: error: {problem}; the workbench needs an interactive terminal "
+              "(use the roomconv sub-commands in scripts and pipes)", file=sys.stderr)
+        return 2
     RoomconvApp().run()
+    return 0
 
 
 if __name__ == "__main__":
-    main()
+    raise SystemExit(main())

@@ -36,7 +36,7 @@ def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
     if not side.exists():
         return sig, rate, None, f"no sidecar {side.name}: using regularized spectral division"
     d = read_json(side, what="sweep sidecar")
-    sweep = Sweep.from_dict(d)
+    sweep = Sweep.from_dict(d, source=side)
     if sweep.rate != rate or sweep.n_total != sig.size:
         return sig, rate, None, (f"sidecar {side.name} does not match the WAV (rate or length "
                                  "differ): using regularized spectral division")

@@ -82,12 +82,36 @@ class Sweep:
         return {"kind": "exponential_sine_sweep", **asdict(self)}
 
     @classmethod
-    def from_dict(cls, d: dict) -> "Sweep":
+    def from_dict(cls, d, source=None) -> "Sweep":
+        """Rebuild a sweep from its sidecar's content, checking every field's type and value.
+
+        ``source`` (the sidecar's path) is put in front of any refusal.
+        """
+        from .. import validate  # noqa: PLC0415
+        where = f"{source}: " if source is not None else ""
+        if not isinstance(d, dict):
+            raise InputError(f"{where}the sweep description must be a JSON object with the "
+                             f"sweep's settings, not a {type(d).__name__} (write it again "
+                             "with 'roomconv sweep')")
         names = {f.name for f in fields(cls)}
+        missing = sorted(names - d.keys())
+        if missing:
+            raise InputError(f"{where}sweep description is incomplete: missing "
+                             f"{', '.join(missing)}")
+        clean = {}
+        for k in names:
+            v = d[k]
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                raise InputError(f"{where}field '{k}' must be a number, not {v!r}")
+            try:
+                clean[k] = (validate.count(v, f"field '{k}'", 0) if k in ("rate", "repeats")
+                            else validate.finite(v, f"field '{k}'"))
+            except InputError as exc:
+                raise InputError(f"{where}{exc}") from None
         try:
-            return cls(**{k: v for k, v in d.items() if k in names})
-        except TypeError as exc:
-            raise InputError(f"sweep description is incomplete: {exc}") from None
+            return cls(**clean)
+        except InputError as exc:
+            raise InputError(f"{where}{exc}") from None
 
 
 def instantaneous_frequency(sweep: Sweep, t: np.ndarray) -> np.ndarray:

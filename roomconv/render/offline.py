@@ -14,13 +14,20 @@ import numpy as np
 import soundfile as sf
 
 from ..audio import audio_format_for, audio_info, check_output, read_audio
+from .. import validate
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
+from .mix import ir_gain, wet_dry_db
 from .partitioned import offline_convolver, routing_for
 
 NORMALIZE = ("none", "peak", "truepeak", "loudness")
 DEFAULT_TARGET = {"peak": -1.0, "truepeak": -1.0, "loudness": -23.0}
 INTEGER_SUBTYPES = {"PCM_16": 16, "PCM_24": 24, "PCM_32": 32, "PCM_S8": 8, "PCM_U8": 8}
+#: Loudness normalization stops when the measured loudness is this close to the target, LU.
+LOUDNESS_TOLERANCE_LU = 0.05
+#: Lowest loudness target: 10 LU above the absolute gate of BS.1770 (−70 LUFS), so that
+#: the gated measurement still has blocks to average.
+LOUDNESS_TARGET_MIN = -60.0
 
 
 @dataclass
@@ -39,12 +46,16 @@ class RenderSettings:
     keep_tail: bool = True
     dither: bool = True
     seed: int = 0
+    #: scale the response to unit energy per output before mixing (see render.mix)
+    match_ir_level: bool = False
 
     def check(self) -> "RenderSettings":
-        if not 0.0 <= self.mix <= 1.0:
-            raise InputError(f"--mix {self.mix} must lie between 0 (dry) and 1 (wet)")
-        if self.predelay_ms < 0:
-            raise InputError(f"--predelay {self.predelay_ms} ms must not be negative")
+        self.mix = validate.in_range(self.mix, "wet/dry mix", 0.0, 1.0)
+        self.predelay_ms = validate.non_negative(self.predelay_ms, "pre-delay", unit="ms")
+        self.gain_db = validate.in_range(self.gain_db, "output gain", -100.0, 60.0, unit="dB")
+        if self.target is not None:
+            lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
+            self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
             raise InputError(f"--normalize must be one of {', '.join(NORMALIZE)}")
         if self.precision not in ("auto", "float64", "float32"):
@@ -78,6 +89,7 @@ class RenderReport:
     loudness_lufs: float | None = None
     gain_db: float = 0.0
     ir_resampled_from: int | None = None
+    wet_dry_db: float | None = None  #: wet-to-dry balance for broadband input (render.mix)
     warnings: list = field(default_factory=list)
 
 
@@ -96,7 +108,7 @@ def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
     if ir_rate != rate:
         ir = resample_ir(ir, ir_rate, rate)
         resampled = ir_rate
-    d = int(round(predelay_ms * rate / 1000.0))
+    d = validate.seconds_budget(predelay_ms / 1000.0, rate, "pre-delay", channels=ir.shape[1])
     if d:
         ir = np.concatenate([np.zeros((d, ir.shape[1])), ir])
     return ir, resampled
@@ -129,6 +141,7 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     dry = dry[:, None] if dry.ndim == 1 else dry
     ir, _ = prepare_ir(ir, ir_rate or rate, rate, s.predelay_ms)
     routing = routing_for(dry.shape[1], ir.shape[1], outputs=s.outputs, shared=s.shared)
+    ir = ir * ir_gain(ir, routing, s.match_ir_level)
     n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
     # In memory the result stays float64, so "auto" computes in float64 here.
     conv = offline_convolver(ir, routing,
@@ -177,6 +190,13 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         raise InputError(f"{dry_path.name} through {ir_path.name}: {exc}") from None
     if s.mix < 1.0:
         dry_routed(np.zeros((1, n_in)), routing.n_out)  # refuse early if it cannot be mixed
+    try:
+        ir_scale = ir_gain(ir, routing, s.match_ir_level)
+    except InputError as exc:
+        raise InputError(describe(ir_path, str(exc))) from None
+    if ir_scale != 1.0:
+        ir = ir * ir_scale
+    balance_db = wet_dry_db(s.mix, ir, routing, 1.0)
     n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
     conv = offline_convolver(ir, routing, precision=s.engine_precision(), workers=workers)
     B = conv.block
@@ -192,6 +212,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     final_tmp = _temp(folder, out_path.name, ".part")
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
+        stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
         stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
                                      n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4))
         with sf.SoundFile(str(dry_path)) as src, \
@@ -202,12 +223,21 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 x = src.read(B, dtype="float64", always_2d=True)
                 if x.size and not np.all(np.isfinite(x)):
                     raise InputError(describe(dry_path, "holds NaN or infinite samples"))
-                y = _wet_dry(conv, x, s.mix, routing.n_out)
+                # Overflow shows up as inf/NaN and is refused just below with the file's
+                # name; numpy's own warning would only add a line pointing at our source.
+                with np.errstate(over="ignore", invalid="ignore"):
+                    y = _wet_dry(conv, x, s.mix, routing.n_out)
                 n = min(B, n_out - written)
                 y = y[:n]
                 if s.gain_db:
                     y = y * 10 ** (s.gain_db / 20)
+                _check_finite(y, out_path)
                 peak.feed(y)
+                if peak.peak > stage_max:
+                    raise InputError(describe(out_path.name, f"the rendered signal reaches "
+                                              f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
+                                              f"what a {stage_sub} file holds (lower --gain); "
+                                              "nothing written"))
                 if tpk is not None:
                     tpk.feed(y)
                 if loud is not None:
@@ -218,7 +248,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                     progress(0.8 * written / n_out if integer or s.normalize != "none"
                              else written / n_out)
         report = RenderReport(out_path, n_out, routing.n_out, rate, routing.name, peak.dbfs,
-                              gain_db=s.gain_db, ir_resampled_from=resampled)
+                              gain_db=s.gain_db, ir_resampled_from=resampled,
+                              wet_dry_db=balance_db)
         extra_db = 0.0
         if tpk is not None:
             tpk.finish()
@@ -230,9 +261,25 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
                      "loudness": report.loudness_lufs}[s.normalize]
             if not np.isfinite(level):
-                raise InputError(f"{out_path.name}: the rendered signal is silent; nothing to "
+                why = ("stays below the −70 LUFS gate of the loudness measurement (use "
+                       "--normalize peak)" if s.normalize == "loudness" else "is silent")
+                raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to "
                                  "normalize")
             extra_db = target - level
+            if s.normalize == "loudness":
+                extra_db, measured = _loudness_to_target(stage1, target, extra_db, rate,
+                                                         routing.n_out)
+                report.loudness_lufs = measured - extra_db  # shifted back by += below
+                if abs(measured - target) > LOUDNESS_TOLERANCE_LU:
+                    report.warnings.append(
+                        f"loudness {measured:.2f} LUFS misses the target {target:g} LUFS by "
+                        f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
+                        "the measurement's −70 LUFS gate)")
+            with np.errstate(over="ignore"):
+                scaled_peak = peak.peak * 10 ** (extra_db / 20)
+            if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
+                raise InputError(f"{out_path.name}: normalization would need a gain of "
+                                 f"{extra_db:g} dB, which overflows; nothing written")
         report.gain_db = s.gain_db + extra_db
         report.peak_dbfs = peak.dbfs + extra_db
         if report.true_peak_dbtp is not None:
@@ -286,6 +333,52 @@ def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int
             done += y.shape[0]
             if progress:
                 progress(0.8 + 0.2 * done / total)
+
+
+def _check_finite(y: np.ndarray, out_path) -> None:
+    """Refuse to write a block holding NaN or ±inf (a file of them plays as silence or as
+    a full-scale burst, and is never what was asked for)."""
+    if not np.all(np.isfinite(y)):
+        raise InputError(describe(Path(out_path).name,
+                                  "the rendered signal holds NaN or infinite samples (check "
+                                  "the gain and the normalization target); nothing written"))
+
+
+def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
+    """Integrated loudness of the staged file scaled by ``gain_db``, block by block."""
+    meter = LoudnessMeter(rate, channels)
+    g = 10 ** (gain_db / 20)
+    with sf.SoundFile(str(path)) as src:
+        while True:
+            y = src.read(1 << 16, dtype="float64", always_2d=True)
+            if not y.size:
+                break
+            meter.feed(y * g)
+    return meter.integrated()
+
+
+def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels: int,
+                        tries: int = 4) -> tuple[float, float]:
+    """Gain (dB) that brings the staged file to ``target`` LUFS, and the loudness measured
+    with it.
+
+    Integrated loudness is not scale-invariant: the absolute gate (−70 LUFS) admits more or
+    fewer 400 ms blocks as the gain changes, so the one-step gain ``target − measured`` can
+    miss. The scaled signal is measured again and the gain corrected until the measurement
+    lies within :data:`LOUDNESS_TOLERANCE_LU`.
+
+    References
+    ----------
+    ITU-R BS.1770-4 (2015), eqs. (4)–(7): gating of 400 ms blocks at −70 LKFS (absolute) and
+    −10 LU below the ungated mean (relative).
+    """
+    measured = _measure_loudness(path, gain_db, rate, channels)
+    for _ in range(tries):
+        if not np.isfinite(measured) or abs(measured - target) <= LOUDNESS_TOLERANCE_LU:
+            break
+        gain_db += target - measured
+        measured = _measure_loudness(path, gain_db, rate, channels)
+    return gain_db, measured
 
 
 def _temp(folder: Path, name: str, suffix: str) -> Path:

@@ -13,7 +13,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .. import safety
+from .. import safety, validate
+from ..errors import InputError
+from .mix import ir_gain, wet_dry_db
 from .partitioned import NonUniformConvolver, live_block_size, routing_for
 
 
@@ -56,6 +58,7 @@ class LiveStats:
     in_peak: float = 0.0                #: linear sample peaks since the start
     out_peak: float = 0.0
     limiter_db: float = 0.0
+    nonfinite: int = 0                  #: blocks in which NaN/inf were replaced by silence
     compute: ComputeLog = field(default_factory=ComputeLog)
 
     @property
@@ -74,14 +77,36 @@ class LiveProcessor:
     the engine's error (about −135 dB relative to the signal for a 5 s response in
     128-sample blocks) lies below what a 24-bit converter resolves. Ask for 'float64' to
     get the exact (about −300 dB) engine.
+
+    Every number is checked before a stream can open (the response finite and not silent,
+    mix, gain and ceiling finite and in range), and the output is guarded: NaN or ±inf in
+    a block (from the input or the arithmetic) is replaced by silence and counted in
+    ``stats.nonfinite``, so it never reaches the sound card, and the limiter keeps every
+    sample at or below the ceiling, itself at most :data:`safety.OUTPUT_CAP_DBFS`.
+    With ``match_ir_level`` the response is scaled to unit energy per output first, as for
+    offline renders (:mod:`roomconv.render.mix`).
     """
 
     def __init__(self, ir: np.ndarray, rate: int, *, block: int = 128, n_in: int = 1,
                  mix: float = 1.0, gain_db: float = 0.0, ceiling_dbfs: float = -1.0,
-                 fade_in_s: float = 0.5, precision: str = "auto"):
+                 fade_in_s: float = 0.5, precision: str = "auto", match_ir_level: bool = False):
+        ir = np.asarray(ir, dtype=np.float64)
         ir = ir[:, None] if ir.ndim == 1 else ir
+        rate = validate.sample_rate(rate)
+        mix = validate.in_range(mix, "wet/dry mix", 0.0, 1.0)
+        gain_db = validate.in_range(gain_db, "output gain", -100.0, 20.0, unit="dB")
+        ceiling_dbfs = validate.in_range(ceiling_dbfs, "limiter ceiling", -60.0,
+                                         safety.OUTPUT_CAP_DBFS, unit="dBFS")
+        fade_in_s = validate.in_range(fade_in_s, "fade-in", 0.0, 60.0, unit="s")
+        if ir.size == 0 or not np.all(np.isfinite(ir)):
+            raise InputError("the impulse response is empty or holds NaN or infinite samples")
+        if not np.any(ir):
+            raise InputError("the impulse response is silent")
         self.block = live_block_size(block)
         self.routing = routing_for(n_in, ir.shape[1])
+        ir = ir * ir_gain(ir, self.routing, match_ir_level)
+        #: wet-to-dry balance for broadband input, dB (render.mix)
+        self.wet_dry_db = wet_dry_db(mix, ir, self.routing, 1.0)
         self.precision = "float32" if precision == "auto" else precision
         # Two stages: the callback's block, then one of about 2048 samples (4-32 callbacks)
         # for the rest. Each extra stage costs a fixed dozen numpy calls per callback, which
@@ -91,7 +116,8 @@ class LiveProcessor:
                                           ratio=ratio, max_block=ratio * self.block)
         self.mix = float(mix)
         self.gain = 10 ** (gain_db / 20)
-        self.limiter = safety.OutputLimiter(rate, min(ceiling_dbfs, safety.OUTPUT_CAP_DBFS))
+        self.limiter_ceiling_dbfs = min(ceiling_dbfs, safety.OUTPUT_CAP_DBFS)
+        self.limiter = safety.OutputLimiter(rate, self.limiter_ceiling_dbfs)
         self.fade_len = max(1, int(fade_in_s * rate))
         self.fade_pos = 0
         self.stats = LiveStats()
@@ -102,6 +128,11 @@ class LiveProcessor:
 
     def process(self, x: np.ndarray) -> np.ndarray:
         t0 = time.perf_counter()
+        if not np.isfinite(x).all():
+            # Keep the engine's history clean: one bad input block would otherwise turn
+            # every later output block into NaN.
+            x = np.where(np.isfinite(x), x, 0.0)
+            self.stats.nonfinite += 1
         y = self.engine.process(x)
         if self.mix < 1.0:
             dry = x if x.shape[1] == self.n_out else np.repeat(x[:, :1], self.n_out, axis=1)
@@ -120,6 +151,9 @@ class LiveProcessor:
             y *= g[:, None]
         elif self.gain != 1.0:
             y *= self.gain
+        if not np.isfinite(y).all():
+            y = np.zeros_like(y)
+            self.stats.nonfinite += 1
         # y is this call's own array (the engine returns a new one), so limit it in place.
         y = self.limiter.process(y, in_place=True)
         st = self.stats
@@ -148,6 +182,8 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
     from ..errors import DeviceError
     sd = load_sounddevice()
     stop_event = stop_event or threading.Event()
+    if duration_s is not None:
+        duration_s = validate.positive(duration_s, "live duration", unit="s")
     limit = None if duration_s is None else int(duration_s * rate)
     n_out = len(output_channels)
     if proc.n_out != n_out:
@@ -162,7 +198,9 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
             proc.stats.dropouts += 1
         x = np.asarray(indata, dtype=np.float64)
         y = proc.process(x)
-        outdata[:] = y.astype(np.float32)
+        # process() has replaced NaN/inf and limited; the cap is applied once more here so
+        # that nothing above it can reach the device whatever happened upstream.
+        outdata[:] = safety.hard_cap(y, proc.limiter_ceiling_dbfs).astype(np.float32)
         if proc._stopping == 0 and proc._stop_requested:
             raise sd.CallbackStop
         if (limit is not None and proc.stats.frames >= limit) or stop_event.is_set():

@@ -137,19 +137,41 @@ def load_materials(path) -> dict[str, Material]:
     p = Path(path)
     if not p.exists():
         raise InputError(describe(p, "materials file not found"))
+    if not p.is_file():
+        raise InputError(describe(p, "is not a file", "give a JSON or TOML materials file"))
     try:
         text = p.read_text(encoding="utf-8")
         data = tomllib.loads(text) if p.suffix.lower() == ".toml" else json.loads(text)
     except (json.JSONDecodeError, tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise InputError(describe(p, f"cannot be parsed: {exc}")) from None
+    except OSError as exc:
+        raise InputError(describe(p, f"cannot be read: {exc.strerror or exc}")) from None
+    if not isinstance(data, dict):
+        raise InputError(describe(p, f"holds a {type(data).__name__}, not a table of materials",
+                                  'expected {"name": {"alpha": [...], "source": "..."}}'))
     out = {}
     for name, row in data.items():
         if not isinstance(row, dict) or "alpha" not in row:
             raise InputError(describe(p, f"material '{name}' needs an 'alpha' list"))
-        vals = [float(v) for v in row["alpha"]]
+        alpha = row["alpha"]
+        if not isinstance(alpha, list):
+            raise InputError(describe(p, f"material '{name}': field 'alpha' must be a list of "
+                                         f"6 or {len(OCTAVES)} numbers, not {alpha!r}"))
+        bad = [v for v in alpha if isinstance(v, bool) or not isinstance(v, (int, float))]
+        if bad:
+            raise InputError(describe(p, f"material '{name}': field 'alpha' holds {bad[0]!r}, "
+                                         "which is not a number"))
+        vals = [float(v) for v in alpha]
+        if len(vals) not in (6, len(OCTAVES)):
+            raise InputError(describe(p, f"material '{name}': field 'alpha' needs 6 (125 Hz-"
+                                         f"4 kHz) or {len(OCTAVES)} (63 Hz-8 kHz) values, got "
+                                         f"{len(vals)}"))
         src = str(row.get("source", f"user file {p.name}"))
         m = _six(name, vals, src) if len(vals) == 6 else Material(name, tuple(vals), src)
-        out[name] = check_material(m)
+        try:
+            out[name] = check_material(m)
+        except InputError as exc:
+            raise InputError(describe(p, f"field 'alpha': {exc}")) from None
     return out
 
 

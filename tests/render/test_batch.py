@@ -29,7 +29,8 @@ def inputs(tmp_path):
 def test_batch_renders_every_pair_with_provenance_and_resumes(inputs, cli):
     out = inputs / "wet"
     args = ["batch", inputs / "take0.wav", inputs / "take1.wav", "--ir", inputs / "room0.wav",
-            inputs / "room1.wav", "--out-dir", out, "--workers", 2, "--subtype", "DOUBLE"]
+            inputs / "room1.wav", "--out-dir", out, "--workers", 2, "--subtype", "DOUBLE",
+            "--keep-ir-level"]
     code, text, err = cli(*args)
     assert code == 0, err
     assert "4 rendered" in text
@@ -70,7 +71,8 @@ def test_dask_local_cluster_runs_the_same_code_path(inputs, cli):
                                   host="127.0.0.1", dashboard_address=None) as cluster:
         code, text, err = cli("batch", inputs / "take0.wav", inputs / "take1.wav", "--ir",
                               inputs / "room1.wav", "--out-dir", inputs / "dask",
-                              "--scheduler", cluster.scheduler_address, "--subtype", "DOUBLE")
+                              "--scheduler", cluster.scheduler_address, "--subtype", "DOUBLE",
+                              "--keep-ir-level")
     assert code == 0, err
     assert "2 rendered" in text
     y, _ = sf.read(inputs / "dask" / "take0__room1.wav")

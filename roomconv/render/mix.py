@@ -1,0 +1,63 @@
+"""What ``mix`` means, for offline, batch and live rendering alike.
+
+A response file's absolute level is arbitrary (a measured response may hold −19 dB of
+energy, a synthesized one 0 dB), so a mix defined on the raw response would make the wet/dry
+balance depend on the file. Here the response is first scaled to unit energy per output
+channel; then, for broadband input, the wet signal has the dry signal's power, and
+``mix`` alone sets the balance: wet/dry = 20·log10(mix / (1 − mix)) dB.
+
+References
+----------
+The output power of a linear time-invariant system driven by white noise of power σ² is
+σ²·Σ h[n]² (Parseval's theorem; e.g. A. Papoulis, *Probability, Random Variables and
+Stochastic Processes*, 1965, on linear systems with stochastic inputs; cited from memory).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..errors import InputError
+
+
+def energy_per_output(ir: np.ndarray, routing) -> float:
+    """Mean over the outputs of the summed energy Σh² of the response channels that feed
+    each output (for uncorrelated inputs the powers of the paths add)."""
+    ir = ir[:, None] if ir.ndim == 1 else ir
+    per_channel = np.sum(np.square(ir, dtype=np.float64), axis=0)
+    per_out = np.zeros(routing.n_out)
+    for k_ir, k_out in zip(routing.path_ir, routing.path_out):
+        per_out[k_out] += per_channel[k_ir]
+    return float(per_out.mean())
+
+
+def ir_gain(ir: np.ndarray, routing, match_level: bool = True) -> float:
+    """The factor applied to the response before mixing: 1/√E with level matching, else 1."""
+    if not match_level:
+        return 1.0
+    e = energy_per_output(ir, routing)
+    if not (math.isfinite(e) and e > 0):
+        raise InputError("the impulse response is silent or not finite, so its level cannot "
+                         "be matched to the dry signal")
+    return 1.0 / math.sqrt(e)
+
+
+def wet_dry_db(mix: float, ir: np.ndarray, routing, gain: float) -> float:
+    """Wet-to-dry power ratio in dB for broadband input, after the response is multiplied by
+    ``gain``: 10·log10(mix²·gain²·E / (1 − mix)²). +inf for wet only, −inf for dry only."""
+    if mix >= 1.0:
+        return math.inf
+    if mix <= 0.0:
+        return -math.inf
+    e = energy_per_output(ir, routing) * gain * gain
+    return 10 * math.log10(mix * mix * e / ((1 - mix) ** 2))
+
+
+def describe_balance(db: float) -> str:
+    if db == math.inf:
+        return "wet only"
+    if db == -math.inf:
+        return "dry only"
+    return f"{db:+.1f} dB"

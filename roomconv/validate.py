@@ -1,0 +1,158 @@
+"""Checks for numbers a user typed or a side file held, before any work is done.
+
+Pure functions: each takes a value (or its text) and a plain description of what the value
+means ("sweep duration", "output gain"), returns the cleaned value, or raises
+:class:`~roomconv.errors.InputError` with a message that says what is wrong and what is
+accepted. The messages never name command-line options: the command line adds the option's
+name in front, a library caller sees the value's meaning.
+
+Memory budgets: a value that sets a buffer size (a duration, a delay, a latency) is turned
+into samples × channels × bytes and refused when that exceeds :data:`MEMORY_BUDGET_BYTES`,
+with the amount it would have needed, before anything is allocated.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+
+from .errors import InputError
+
+#: Largest single buffer roomconv agrees to allocate for one signal (float64), bytes.
+MEMORY_BUDGET_BYTES = 2 * 1024 ** 3
+#: Sample rates accepted for anything roomconv writes or plays, Hz. 8 kHz is telephone band,
+#: 384 kHz the highest rate common audio interfaces offer (common practice).
+RATE_MIN, RATE_MAX = 8000, 384000
+#: Highest 1-based channel number accepted on a sound card.
+MAX_CHANNEL = 256
+
+
+def _fmt(v) -> str:
+    return f"{v:g}" if isinstance(v, float) else str(v)
+
+
+def parse_number(text, what: str) -> float:
+    """A number from text (or a number), without judging it yet."""
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        return float(text)
+    try:
+        return float(str(text).strip())
+    except ValueError:
+        raise InputError(f"{what} '{text}' is not a number") from None
+
+
+def finite(value, what: str) -> float:
+    """``value`` as a float, refused when NaN or infinite."""
+    v = parse_number(value, what)
+    if not math.isfinite(v):
+        raise InputError(f"{what} {_fmt(v)} is not a finite number")
+    return v
+
+
+def in_range(value, what: str, lo: float | None = None, hi: float | None = None, *,
+             unit: str = "", lo_open: bool = False, hi_open: bool = False) -> float:
+    """A finite number within ``lo``..``hi`` (closed unless ``lo_open``/``hi_open``)."""
+    v = finite(value, what)
+    u = f" {unit}" if unit else ""
+    below = lo is not None and (v <= lo if lo_open else v < lo)
+    above = hi is not None and (v >= hi if hi_open else v > hi)
+    if below or above:
+        if lo is not None and hi is not None:
+            rng = (f"{'above' if lo_open else 'from'} {_fmt(lo)} "
+                   f"{'and below' if hi_open else 'to'} {_fmt(hi)}{u}")
+        elif lo is not None:
+            rng = f"{'above' if lo_open else 'at least'} {_fmt(lo)}{u}"
+        else:
+            rng = f"{'below' if hi_open else 'at most'} {_fmt(hi)}{u}"
+        raise InputError(f"{what} {_fmt(v)}{u} is out of range (accepted: {rng})")
+    return v
+
+
+def positive(value, what: str, hi: float | None = None, *, unit: str = "") -> float:
+    """A finite number above zero (and at most ``hi``)."""
+    v = finite(value, what)
+    if v <= 0:
+        raise InputError(f"{what} {_fmt(v)}{' ' + unit if unit else ''} must be positive")
+    return in_range(v, what, None, hi, unit=unit)
+
+
+def non_negative(value, what: str, hi: float | None = None, *, unit: str = "") -> float:
+    """A finite number of zero or more (and at most ``hi``)."""
+    v = finite(value, what)
+    if v < 0:
+        raise InputError(f"{what} {_fmt(v)}{' ' + unit if unit else ''} must not be negative")
+    return in_range(v, what, None, hi, unit=unit)
+
+
+def count(value, what: str, lo: int = 1, hi: int | None = None) -> int:
+    """A whole number within ``lo``..``hi``; ``"1e3"`` is accepted as 1000."""
+    v = finite(value, what)
+    if v != int(v):
+        raise InputError(f"{what} {_fmt(v)} is not a whole number")
+    n = int(v)
+    if n < lo or (hi is not None and n > hi):
+        rng = f"{lo} to {hi}" if hi is not None else f"at least {lo}"
+        raise InputError(f"{what} {n} is out of range (accepted: {rng})")
+    return n
+
+
+def sample_rate(value, what: str = "sample rate") -> int:
+    """A sample rate in Hz within :data:`RATE_MIN`..:data:`RATE_MAX`."""
+    return count(value, what, RATE_MIN, RATE_MAX)
+
+
+def channel_list(text, what: str, *, hi: int = MAX_CHANNEL) -> tuple[int, ...]:
+    """``"1,2"`` → ``(1, 2)``: 1-based channel numbers, each once."""
+    items = [t.strip() for t in str(text).split(",")]
+    if not items or any(t == "" for t in items):
+        raise InputError(f"{what} '{text}' must be channel numbers separated by commas, "
+                         "like 1,2")
+    out = []
+    for t in items:
+        try:
+            out.append(count(t, what, 1, hi))
+        except InputError:
+            raise InputError(f"{what} '{text}': '{t}' is not a channel number from 1 to "
+                             f"{hi}") from None
+    if len(set(out)) != len(out):
+        raise InputError(f"{what} '{text}' names a channel twice")
+    return tuple(out)
+
+
+def human_bytes(n: float) -> str:
+    if n >= 1024 ** 5:
+        return f"{n / 1024 ** 4:.3g} TiB"
+    for unit, size in (("TiB", 1024 ** 4), ("GiB", 1024 ** 3), ("MiB", 1024 ** 2),
+                       ("KiB", 1024)):
+        if n >= size:
+            return f"{n / size:.0f} {unit}"
+    return f"{n:.0f} bytes"
+
+
+def memory_budget(samples: float, what: str, *, channels: int = 1, bytes_per_sample: int = 8,
+                  budget: int = MEMORY_BUDGET_BYTES) -> int:
+    """Refuse a buffer of ``samples`` × ``channels`` that would exceed ``budget`` bytes.
+
+    Returns the sample count as an int. The message gives the size it would need, so a
+    typo of a few orders of magnitude is recognised at once.
+    """
+    samples = float(samples)
+    if math.isnan(samples) or samples < 0:
+        raise InputError(f"{what} gives an impossible size ({_fmt(samples)} samples)")
+    need = samples * max(1, channels) * bytes_per_sample
+    if need > budget:
+        size = (f"{human_bytes(need)} of memory" if math.isfinite(need)
+                else "more memory than any machine has")
+        raise InputError(f"{what} would need {size} (at most {human_bytes(budget)} per signal)")
+    return round(samples)
+
+
+def seconds_budget(seconds: float, rate: float, what: str, *, channels: int = 1) -> int:
+    """Samples for ``seconds`` at ``rate``, within :func:`memory_budget`."""
+    return memory_budget(finite(seconds, what) * rate, what, channels=channels)
+
+
+def all_finite(values: Iterable[float], what: str) -> None:
+    """Refuse when any value is NaN or infinite."""
+    for v in values:
+        finite(v, what)
