@@ -37,6 +37,7 @@ def test_shared_uses_the_first_ir_channel_for_every_input(signals, cli):
         tmp / "ir2.wav",
         "-o",
         tmp / "s.wav",
+        "--keep-ir-level",  # compare with the raw convolution
         "--shared",
         "--subtype",
         "DOUBLE",
@@ -57,6 +58,7 @@ def test_outputs_routes_a_general_matrix_input_major(signals, cli):
         tmp / "ir6.wav",
         "-o",
         tmp / "m.wav",
+        "--keep-ir-level",  # compare with the raw convolution
         "--outputs",
         3,
         "--subtype",
@@ -81,6 +83,7 @@ def test_no_tail_cuts_at_the_dry_length(signals, cli):
         tmp / "ir2.wav",
         "-o",
         tmp / "n.wav",
+        "--keep-ir-level",  # compare with the raw convolution
         "--no-tail",
         "--subtype",
         "DOUBLE",
@@ -206,7 +209,7 @@ def test_live_ceiling_above_the_cap_is_refused_before_any_sound(signals, cli, mo
         "live", "--ir", tmp / "ir2.wav", "--ceiling", "0", "--yes", "--duration", "0.1"
     )
     assert code == 2
-    assert "ceiling" in err and "cap" in err and "Traceback" not in err
+    assert "ceiling" in err and "-1 dBFS" in err and "Traceback" not in err
 
 
 def test_internal_error_is_exit_1_and_debug_shows_the_traceback(signals, cli, monkeypatch):

@@ -751,14 +751,15 @@ def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
     check_impulse_response(h, rate)
     onset = onset_index(h)
 
-    def ref(band_hz):
+    def ref(band):
         if strength_reference is None:
             return None, None
-        return strength_reference.lookup(band_hz, rate)
+        # The Band carries its set: an octave reference must not serve third-octaves.
+        return strength_reference.lookup(band, rate, band_set=bands)
 
     results = []
     for b in band_list:
-        level, why = ref(b.nominal)
+        level, why = ref(b)
         results.append(analyse_response(h, rate, band=b, onset=onset, filtering=filtering,
                                         strength_reference_db=level, strength_missing=why))
     level, why = ref(None)
