@@ -190,7 +190,8 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         save_audio(out / "irs" / "predicted_pair_S1.wav", twin.ir,
                    extra={"what": "synthetic prediction, spaced pair 0.6 m at R1"})
         bar.update()
-        rs = RenderSettings(mix=0.85, normalize="truepeak", target=-1.0, subtype="PCM_24")
+        rs = RenderSettings(mix=0.85, normalize="truepeak", target=-1.0, subtype="PCM_24",
+                            match_ir_level=True)
         renders = []
         for clip in sc.clips:
             dry = demo_clip(clip)

@@ -15,7 +15,7 @@ from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import (Button, Checkbox, DataTable, Input, Label, ProgressBar, Select,
                              Static)
 
-from roomconv.errors import RoomconvError
+from roomconv.errors import InputError, RoomconvError
 from roomconv.safety import caution_text
 
 
@@ -95,6 +95,8 @@ class MeasurePane(VerticalScroll):
         try:
             return Sweep(f_low=v("#ms-low"), f_high=v("#ms-high"), duration=v("#ms-duration"),
                          level_dbfs=v("#ms-level"), silence_post=v("#ms-silence"))
+        except InputError:
+            raise  # the library's own refusal says what is wrong already
         except ValueError:
             raise RoomconvError("sweep settings must be numbers") from None
 

@@ -12,7 +12,7 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, Checkbox, Input, Label, ProgressBar, Select, Static
 
-from roomconv.errors import RoomconvError
+from roomconv.errors import InputError, RoomconvError
 from roomconv.safety import caution_text
 
 
@@ -61,7 +61,10 @@ class RenderPane(VerticalScroll):
             return RenderSettings(mix=float(self.query_one("#rn-mix", Input).value),
                                   predelay_ms=float(self.query_one("#rn-predelay", Input).value),
                                   gain_db=float(self.query_one("#rn-gain", Input).value),
-                                  normalize=self.query_one("#rn-normalize", Select).value).check()
+                                  normalize=self.query_one("#rn-normalize", Select).value,
+                                  match_ir_level=True).check()
+        except InputError:
+            raise  # the library's own refusal says what is wrong already
         except ValueError as exc:
             raise RoomconvError(f"wet/dry, pre-delay and gain must be numbers ({exc})") from None
 
