@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .audio import check_output, read_audio, write_audio, write_json, write_provenance
+from .audio import WriteGuard, read_audio, sidecar_path, write_provenance
 from .cli import _out, command
 from .errors import InputError
 
@@ -123,8 +123,10 @@ def prediction_table(result_or_room) -> str:
 @command("synth", "synthesize a room impulse response from geometry and materials")
 def cmd_synth(a):
     from .synth.generate import Receivers, synthesize
+    guard = WriteGuard([a.materials_file], force=a.force)
+    guard.file(a.output)
+    guard.file(sidecar_path(a.output, "provenance"))
     room = room_from_args(a)
-    check_output(a.output, force=a.force)
     L, W, H = room.length, room.width, room.height
     src = parse_triple(a.source, "--source") if a.source else (L / 4, W / 3, min(1.5, H / 2))
     rcv = parse_triple(a.receiver, "--receiver") if a.receiver else (
@@ -135,14 +137,14 @@ def cmd_synth(a):
     ir = res.ir
     if a.peak is not None:
         ir = ir * (10 ** (a.peak / 20) / np.max(np.abs(ir)))
-    write_audio(a.output, ir, a.rate, force=a.force)
+    guard.write_audio(a.output, ir, a.rate)
     settings = {"room": [L, W, H], "surfaces": room.surfaces,
                 "patches": [p.__dict__ for p in room.patches], "source": list(src),
                 "receiver": list(rcv), "stereo": a.stereo, "rt60": a.rt60, "seed": a.seed,
                 "rate": a.rate, "prediction": a.prediction,
                 "predicted_sabine_s": res.sabine, "predicted_eyring_s": res.eyring,
                 "tail_rt_s": res.used_rt, "mixing_time_s": res.mixing_time_s}
-    write_provenance(a.output, [], settings)
+    write_provenance(a.output, [], settings, guard=guard)
     _out(f"room {L:g} x {W:g} x {H:g} m, V = {room.volume:.0f} m³, S = {room.total_area:.0f} m²",
          a)
     _out(prediction_table(res), a)
@@ -194,12 +196,14 @@ cmd_synth.configure = _cfg_synth
 def cmd_rooms(a):
     from .synth.materials import MATERIALS, OCTAVES, load_materials
     table = dict(MATERIALS)
+    guard = WriteGuard([a.materials_file], force=a.force)
+    if a.json is not None:
+        guard.file(a.json)
     if a.materials_file:
         table.update(load_materials(a.materials_file))
     if a.json is not None:
-        write_json(a.json, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
-                                "source": m.source, "note": m.note} for k, m in table.items()},
-                   force=a.force)
+        guard.write_json(a.json, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
+                                "source": m.source, "note": m.note} for k, m in table.items()})
     head = f"{'material':<28}" + "".join(f"{b:>7}" for b in OCTAVES) + "  source"
     lines = [head, "-" * len(head)]
     for name, m in sorted(table.items()):
@@ -221,7 +225,9 @@ cmd_rooms.configure = _cfg_rooms
 @command("edit", "trim, fade, normalize, reverse, re-time or resample an impulse response")
 def cmd_edit(a):
     from .synth import edit
-    check_output(a.output, force=a.force, inputs=[a.input])
+    guard = WriteGuard([a.input], force=a.force)
+    guard.file(a.output)
+    guard.file(sidecar_path(a.output, "provenance"))
     ir, rate = read_audio(a.input, what="impulse response")
     steps = []
     if a.trim_db is not None:
@@ -248,8 +254,8 @@ def cmd_edit(a):
         steps.append(f"peak normalized to {a.normalize:g} dBFS")
     if not steps:
         raise InputError("no edit asked for (see roomconv edit --help)")
-    write_audio(a.output, ir, rate, force=a.force, inputs=[a.input])
-    write_provenance(a.output, [a.input], {"steps": steps})
+    guard.write_audio(a.output, ir, rate)
+    write_provenance(a.output, [a.input], {"steps": steps}, guard=guard)
     for s in steps:
         _out(s, a)
     _out(f"wrote {a.output}", a)

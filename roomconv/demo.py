@@ -99,7 +99,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
 
     def save_audio(path, data, inputs=(), extra=None):
         write_audio(path, data, RATE, force=True)
-        write_provenance(path, inputs, {**settings, **(extra or {})})
+        write_provenance(path, inputs, {**settings, **(extra or {})}, force=True)
         written.append(path)
 
     with Progress(steps, "demo", enabled=False if quiet else None) as bar:
@@ -154,9 +154,9 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                                    "deviation_pct": 100 * (m / pred_e[b] - 1)})
         doc["measured_vs_predicted"] = comparison
         write_json(out / "results.json", doc, force=True)
-        write_provenance(out / "results.json", [], settings)
+        write_provenance(out / "results.json", [], settings, force=True)
         write_text(out / "results.csv", csv_text(doc), force=True)
-        write_provenance(out / "results.csv", [], settings)
+        write_provenance(out / "results.csv", [], settings, force=True)
         written += [out / "results.json", out / "results.csv"]
         bar.update()
         # 4. Renders: a measured stereo pair (two mics of source 1) and the synthetic twin.
@@ -182,7 +182,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                     continue
                 target = out / "renders" / f"{dry.stem}__{label}.wav"
                 rep = render_file(dry, ir_path, target, rs, force=True)
-                write_provenance(target, [dry, ir_path], rs.as_dict())
+                write_provenance(target, [dry, ir_path], rs.as_dict(), force=True)
                 written.append(target)
                 renders.append((target, rep))
             bar.update()
@@ -193,7 +193,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         page = html_report(study, title="Linden Hall — room acoustic study (demo)",
                            sections=sections, extra_series=extra)
         write_text(out / "report.html", page, force=True)
-        write_provenance(out / "report.html", [], settings)
+        write_provenance(out / "report.html", [], settings, force=True)
         written.append(out / "report.html")
         bar.update()
 
