@@ -151,9 +151,21 @@ def _jsonable(obj):
 
 
 def sidecar_path(path, kind: str) -> Path:
-    """``hall.wav`` → ``hall.<kind>.json``."""
+    """``hall.wav`` → ``hall.<kind>.json``.
+
+    When that name would pass the file-name limit (a legal long output name plus the
+    sidecar's longer suffix), the stem is shortened and a hash of the full stem keeps the name
+    unique and the same from run to run.
+    """
     p = Path(path)
-    return p.with_name(f"{p.stem}.{kind}.json")
+    name = f"{p.stem}.{kind}.json"
+    limit = _name_max(p.parent if str(p.parent) else Path("."))
+    if len(name.encode()) > limit:
+        tag = hashlib.sha256(p.stem.encode()).hexdigest()[:12]
+        keep = limit - len(f"~{tag}.{kind}.json".encode())
+        stem = p.stem.encode()[:keep].decode(errors="ignore")
+        name = f"{stem}~{tag}.{kind}.json"
+    return p.with_name(name)
 
 
 def file_sha256(path, chunk: int = 1 << 20) -> str:
@@ -265,10 +277,10 @@ def check_input_file(path, what: str = "file") -> Path:
                                       "check the path"))
         raise InputError(describe(_short(p), f"{what} not found", "check the path"))
     if stat.S_ISDIR(st.st_mode):
-        raise InputError(describe(_short(p), f"is a directory, expected a {what}"))
+        raise InputError(describe(_short(p), f"is a directory, not a file ({what} expected)"))
     if not stat.S_ISREG(st.st_mode):
-        raise InputError(describe(_short(p), f"is not a regular file (a pipe, socket or "
-                                  f"device), expected a {what}", "copy it to a file first"))
+        raise InputError(describe(_short(p), "is not a regular file but a pipe, socket or "
+                                  f"device ({what} expected)", "copy it to a file first"))
     return p
 
 
@@ -456,14 +468,15 @@ class WriteGuard:
     def _check_against(self, p: Path, ident) -> None:
         for src, sid in self._inputs:
             if _same(ident, sid):
-                raise InputError(describe(_short(p), f"is also an input ({_short(src)}); "
-                                          "roomconv never writes over an input",
+                alias = "" if str(src) == str(p) else f" (as {_short(src)})"
+                raise InputError(describe(_short(p), f"is also an input{alias}; roomconv "
+                                          "never writes over an input",
                                           "choose another output name"))
         for other, oid in self._outputs:
             if _same(ident, oid):
-                raise InputError(describe(_short(p), f"would be written twice by this command "
-                                          f"(also as {_short(other)})",
-                                          "choose distinct output names"))
+                alias = "" if str(other) == str(p) else f" (also as {_short(other)})"
+                raise InputError(describe(_short(p), f"would be written twice by this "
+                                          f"command{alias}", "choose distinct output names"))
 
     def _folder_ok(self, p: Path, folder: Path) -> None:
         if any(_same(_identity(folder), _identity(f)) for f in self._folders):
@@ -481,8 +494,6 @@ class WriteGuard:
         """Plan an output file; returns it as a Path. ``exists_ok`` leaves the decision about
         an existing file to the caller (a batch resume)."""
         p = Path(path)
-        if any(str(p) == str(o) for o, _ in self._outputs):
-            return p  # planned already (e.g. by the caller of a library function)
         self._check_name(p)
         folder = p.parent if str(p.parent) else Path(".")
         self._folder_ok(p, folder)
@@ -548,8 +559,9 @@ class WriteGuard:
         return p
 
     # -- writing -------------------------------------------------------------------------
-    def _planned(self, p: Path) -> bool:
-        ident = _identity(p)
+    def planned(self, path) -> bool:
+        """Whether ``path`` is one of the outputs planned already."""
+        ident = _identity(Path(path))
         return any(_same(ident, oid) for _, oid in self._outputs)
 
     @contextlib.contextmanager
@@ -562,7 +574,7 @@ class WriteGuard:
         folder = out.parent if str(out.parent) else Path(".")
         if any(_same(_identity(folder), _identity(f)) for f in self._folders):
             self.make_folder(folder)
-        if not self._planned(out):
+        if not self.planned(out):
             self.file(out)
         tmp = new_temp(folder)
         try:

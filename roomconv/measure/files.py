@@ -89,8 +89,10 @@ def save_extraction(ex: Extraction, out, *, harmonics_dir=None, json_path=None,
     (every target planned before the first is written); returns the written paths."""
     inputs = [Path(p) for p in inputs if Path(p).is_file()]
     out = Path(out)
-    g = guard or WriteGuard(inputs, force=force)
-    plan_extraction(g, out, harmonics_dir=harmonics_dir, json_path=json_path)
+    g = guard
+    if g is None:  # a caller with its own guard has planned these already
+        g = WriteGuard(inputs, force=force)
+        plan_extraction(g, out, harmonics_dir=harmonics_dir, json_path=json_path)
     written = [g.write_audio(out, ex.ir, ex.rate)]
     if harmonics_dir is not None:
         for k in sorted(ex.harmonics):

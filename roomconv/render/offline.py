@@ -165,7 +165,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     s = settings.check()
     dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
     guard = guard or WriteGuard([dry_path, ir_path], force=force)
-    guard.file(out_path)
+    if not guard.planned(out_path):
+        guard.file(out_path)
     info = audio_info(dry_path)
     if info.frames == 0:
         raise InputError(describe(dry_path, "the dry file holds no samples"))
