@@ -14,8 +14,9 @@ import hashlib
 import json
 import os
 import re
+import secrets
+import socket
 import stat
-import tempfile
 import time
 from pathlib import Path
 from typing import Iterable, Iterator
@@ -212,12 +213,14 @@ def write_provenance(output, inputs: Iterable, settings: dict, *, force: bool = 
 
 # --- one guard for every write ------------------------------------------------------------
 #
-# Temporary files are named ``.rc-<pid>-<random>.tmp``: short, so that a final name of the
-# longest legal length still fits, and distinctive, so that a later run can recognise (and
-# only ever remove) leftovers of a run that was killed before it could clean up.
+# Temporary files are named ``.rc-<host>-<pid>-<random>.tmp``: short, so that a final name
+# of the longest legal length still fits, and distinctive, so that a later run can recognise
+# (and only ever remove) leftovers of a run that was killed before it could clean up. The
+# host tag keeps a run from judging process ids of another machine on a shared folder.
 TEMP_PREFIX = ".rc-"
 TEMP_SUFFIX = ".tmp"
-_TEMP_RE = re.compile(r"^\.rc-(\d+)-[A-Za-z0-9_]{4,16}\.tmp$")
+_HOST = hashlib.sha256(socket.gethostname().encode()).hexdigest()[:4]
+_TEMP_RE = re.compile(r"^\.rc-([0-9a-f]{4})-(\d+)-[A-Za-z0-9_]{4,16}\.tmp$")
 _PROCESS_START = time.time()
 _LIVE_TEMPS: set[Path] = set()
 _LIVE_GUARDS: list["WriteGuard"] = []
@@ -308,8 +311,9 @@ def _pid_alive(pid: int) -> bool:
 def sweep_stale_temps(folder) -> list[Path]:
     """Remove temporary files of our own pattern left in ``folder`` by a run that was killed.
 
-    Only names matching ``.rc-<pid>-<random>.tmp`` whose process no longer exists and which
-    are older than this process are removed; anything else is left alone.
+    Only names matching ``.rc-<host>-<pid>-<random>.tmp`` made on this machine by a process
+    that no longer exists, and older than this process, are removed; anything else is left
+    alone.
     """
     folder = Path(folder) if str(folder) else Path(".")
     removed = []
@@ -319,7 +323,10 @@ def sweep_stale_temps(folder) -> list[Path]:
         return removed
     for e in entries:
         m = _TEMP_RE.match(e.name)
-        if not m or int(m.group(1)) == os.getpid() or _pid_alive(int(m.group(1))):
+        if not m or m.group(1) != _HOST:
+            continue
+        pid = int(m.group(2))
+        if pid == os.getpid() or _pid_alive(pid):
             continue
         try:
             st = e.stat(follow_symlinks=False)
@@ -334,15 +341,21 @@ def sweep_stale_temps(folder) -> list[Path]:
 def new_temp(folder) -> Path:
     """A fresh temporary file of our pattern in ``folder`` (registered for clean-up)."""
     folder = Path(folder) if str(folder) else Path(".")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{os.getpid()}-", suffix=TEMP_SUFFIX,
-                                   dir=folder)
-    except OSError as exc:
-        raise write_error(exc, folder) from None
-    os.close(fd)
-    p = Path(tmp)
-    _LIVE_TEMPS.add(p)
-    return p
+    for _ in range(100):
+        p = folder / f"{TEMP_PREFIX}{_HOST}-{os.getpid()}-{secrets.token_hex(4)}{TEMP_SUFFIX}"
+        # Registered before it exists, so an interrupt at any point cannot orphan it.
+        _LIVE_TEMPS.add(p)
+        try:
+            fd = os.open(p, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        except FileExistsError:
+            _LIVE_TEMPS.discard(p)
+            continue
+        except OSError as exc:
+            _LIVE_TEMPS.discard(p)
+            raise write_error(exc, folder / "(temporary file)", folder) or exc from None
+        os.close(fd)
+        return p
+    raise RoomconvError(describe(folder, "cannot find a free temporary file name"))
 
 
 def drop_temp(p: Path) -> None:
@@ -413,8 +426,11 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
             raise OutputExistsError(describe(_short(final), "appeared while this run was "
                                              "working (another process wrote it)",
                                              "pass --force to replace it")) from None
+        # Until the rename, the reserved (empty) name counts as ours to remove on interrupt.
+        _LIVE_TEMPS.add(final)
         os.close(fd)
         os.replace(tmp, final)
+        _LIVE_TEMPS.discard(final)
     else:
         os.unlink(tmp)
     _LIVE_TEMPS.discard(tmp)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from .audio import WriteGuard
-from .cli import _out, command
+from .cli import _note, _out, command
 from .progress import Progress
 
 
@@ -45,6 +45,8 @@ def cmd_analyze(a):
     if report_file is not None:
         guard.write_text(report_file, html_report(study))
         _out(f"wrote {report_file}", a)
+    for e in study.errors:  # the outputs above hold the readable files; say which were not
+        _note(f"skipped: {e}")
     return 2 if study.errors else 0
 
 

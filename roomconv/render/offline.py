@@ -164,6 +164,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     """
     s = settings.check()
     dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
+    own_guard = guard is None
     guard = guard or WriteGuard([dry_path, ir_path], force=force)
     if not guard.planned(out_path):
         guard.file(out_path)
@@ -265,6 +266,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         conv.close()
         for p in (stage1, final_tmp):
             drop_temp(p)
+        if own_guard:
+            guard.close()
 
 
 def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int, progress):

@@ -47,10 +47,12 @@ def test_sigkill_leftovers_are_removed_by_the_next_run_and_nothing_else(long_job
     p.wait(timeout=30)
     left = temps(folder)
     assert left, "a SIGKILL cannot be caught, so its temp files stay until the next run"
-    assert all(t.name.startswith(f".rc-{p.pid}-") for t in left)
+    assert all(t.name.startswith(f".rc-{audio._HOST}-{p.pid}-") for t in left)
     # Files that merely look similar, and a temp file of a live process, must survive.
+    other_host = "0000" if audio._HOST != "0000" else "ffff"
     bystanders = [folder / ".rc-notapid.tmp", folder / ".first.wav.abc.part",
-                  folder / f".rc-{os.getpid()}-keepme01.tmp", folder / "notes.tmp"]
+                  folder / f".rc-{audio._HOST}-{os.getpid()}-keepme01.tmp",
+                  folder / f".rc-{other_host}-{p.pid}-otherhost.tmp", folder / "notes.tmp"]
     for b in bystanders:
         b.write_text("x")
     old = time.time() - 3600
@@ -65,8 +67,8 @@ def test_sigkill_leftovers_are_removed_by_the_next_run_and_nothing_else(long_job
 
 
 def test_stale_sweep_keeps_files_of_live_processes(tmp_path):
-    mine = tmp_path / f".rc-{os.getpid()}-abcdef12.tmp"
-    parent = tmp_path / f".rc-{os.getppid()}-abcdef12.tmp"
+    mine = tmp_path / f".rc-{audio._HOST}-{os.getpid()}-abcdef12.tmp"
+    parent = tmp_path / f".rc-{audio._HOST}-{os.getppid()}-abcdef12.tmp"
     mine.write_text("x")
     parent.write_text("x")
     assert audio.sweep_stale_temps(tmp_path) == []
