@@ -469,9 +469,10 @@ class WriteGuard:
         p = Path(path)
         self._inputs.append((p, _identity(p)))
 
-    def _check_name(self, p: Path) -> None:
-        if str(p) in ("", "."):
-            raise InputError("an output name is empty (give a file name)")
+    def _check_name(self, p: Path, *, folder: bool = False) -> None:
+        if str(p) in ("", ".") and not folder:
+            # argparse turns '' into Path('.'), so both read the same here.
+            raise InputError("an output file name is empty or '.' (give a file name)")
         if len(str(p)) >= _path_max():
             raise InputError(describe(_short(p), f"the path is too long ({len(str(p))} "
                                       f"characters; the limit here is {_path_max() - 1})"))
@@ -514,10 +515,14 @@ class WriteGuard:
         folder = p.parent if str(p.parent) else Path(".")
         self._folder_ok(p, folder)
         st = _stat(p)
+        if st is None and os.path.lexists(p):
+            # A dangling symbolic link: the name is taken, and the final step would either
+            # fail on it or replace it, so it counts as an existing output.
+            st = os.lstat(p)
         if st is not None and stat.S_ISDIR(st.st_mode):
             raise InputError(describe(_short(p), "is a directory, expected a file name",
                                       "give a file name inside it"))
-        if st is not None and not stat.S_ISREG(st.st_mode):
+        if st is not None and not (stat.S_ISREG(st.st_mode) or stat.S_ISLNK(st.st_mode)):
             raise InputError(describe(_short(p), "exists and is not a regular file",
                                       "choose another output name"))
         ident = _identity(p)
@@ -534,7 +539,7 @@ class WriteGuard:
     def folder(self, path) -> Path:
         """Plan an output folder (created on first use by :meth:`make_folder`)."""
         p = Path(path)
-        self._check_name(p)
+        self._check_name(p, folder=True)
         st = _stat(p)
         if st is not None and not stat.S_ISDIR(st.st_mode):
             raise InputError(describe(_short(p), "exists and is not a folder",

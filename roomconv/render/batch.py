@@ -13,6 +13,7 @@ outright (SIGKILL) notices within a fraction of a second and exits the same way.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import queue as queue_mod
 import signal
@@ -38,6 +39,7 @@ class Job:
     settings: dict
     provenance: dict  #: the sidecar this job writes (and a finished job must match)
     problem: str = ""  #: why an input cannot be used (the job then fails with this message)
+    replace: bool = False  #: the output exists and this run has decided to render it again
 
     @property
     def name(self) -> str:
@@ -184,8 +186,8 @@ def run_job(job: Job, progress=None) -> dict:
             raise InputError(job.problem)
         settings = RenderSettings(**job.settings)
         # The parent has planned this output against every input of the batch and decided
-        # that it may be (re)written. One FFT thread per job: jobs already run side by side.
-        guard = WriteGuard([job.dry, job.ir], force=True)
+        # whether an existing one is replaced. One FFT thread per job: jobs run side by side.
+        guard = WriteGuard([job.dry, job.ir], force=job.replace)
         rep = render_file(job.dry, job.ir, job.output, settings, force=True, progress=tick,
                           workers=1, guard=guard)
         # The sidecar comes last: it vouches for the output's frames and hash.
@@ -242,6 +244,11 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
             if before_first is not None:
                 before_first()
                 before_first = None
+            # A new output is written no-clobber: should another run create it meanwhile,
+            # this job fails instead of replacing it.
+            # (A sidecar left without its output is this batch's own, and is replaced.)
+            stale_side = sidecar_path(job.output, "provenance").exists()
+            job = dataclasses.replace(job, replace=state != "new" or stale_side)
             futures[executor.submit(run_job, job, job_progress)] = job
             emit("start", job)
             if state in ("damaged", "orphan"):
