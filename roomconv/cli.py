@@ -275,18 +275,32 @@ class Interrupted(KeyboardInterrupt):
         self.signum = signum
 
 
+_STOP_SIGNALS = ("SIGINT", "SIGTERM", "SIGHUP")
+
+
+def _ignore_stop_signals() -> None:
+    import signal
+    for name in _STOP_SIGNALS:
+        sig = getattr(signal, name, None)
+        if sig is not None:
+            signal.signal(sig, signal.SIG_IGN)
+
+
 def _raise_interrupted(signum, _frame):
+    # One interrupt is enough: a second one must not cut the clean-up short.
+    _ignore_stop_signals()
     raise Interrupted(signum)
 
 
 def _install_signal_handlers() -> dict:
-    """SIGTERM and SIGHUP end a run like Ctrl-C: temporary files removed, exit 128+n."""
+    """Ctrl-C, SIGTERM and SIGHUP end a run the same way: temporary files removed, exit
+    128+n."""
     import signal
     import threading
     if threading.current_thread() is not threading.main_thread():
         return {}
     old = {}
-    for name in ("SIGTERM", "SIGHUP"):
+    for name in _STOP_SIGNALS:
         sig = getattr(signal, name, None)
         if sig is not None:
             old[sig] = signal.signal(sig, _raise_interrupted)
@@ -308,12 +322,16 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     from . import audio
     audio.reset_run_state()
-    old = _install_signal_handlers()
+    # The terminal workbench keeps its own key and signal handling.
+    old = _install_signal_handlers() if args.command != "tui" else {}
     try:
         return _run(args)
     finally:
         # After a failure this removes what the run left unfinished; after success there
-        # is nothing of that kind, and only folders created but left empty go.
+        # is nothing of that kind, and only folders created but left empty go. A signal
+        # now would only interrupt the clean-up.
+        if old:
+            _ignore_stop_signals()
         audio.end_run()
         _restore_signal_handlers(old)
 

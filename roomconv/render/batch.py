@@ -287,7 +287,10 @@ def stop_executor(executor: Executor, futures=()) -> None:
         f.cancel()
     procs = list((getattr(executor, "_processes", None) or {}).values())
     try:
-        executor.shutdown(wait=False, cancel_futures=True)
+        try:
+            executor.shutdown(wait=False, cancel_futures=True)
+        except TypeError:  # Dask's executor has no cancel_futures; its futures are cancelled
+            executor.shutdown(wait=False)
     except Exception:  # noqa: BLE001 - stopping must go on whatever the executor says
         pass
     for p in procs:
