@@ -338,8 +338,9 @@ def sweep_stale_temps(folder) -> list[Path]:
     return removed
 
 
-def new_temp(folder) -> Path:
-    """A fresh temporary file of our pattern in ``folder`` (registered for clean-up)."""
+def new_temp(folder, target=None) -> Path:
+    """A fresh temporary file of our pattern in ``folder`` (registered for clean-up);
+    ``target``, the file it will become, is named in error messages."""
     folder = Path(folder) if str(folder) else Path(".")
     for _ in range(100):
         p = folder / f"{TEMP_PREFIX}{_HOST}-{os.getpid()}-{secrets.token_hex(4)}{TEMP_SUFFIX}"
@@ -352,7 +353,7 @@ def new_temp(folder) -> Path:
             continue
         except OSError as exc:
             _LIVE_TEMPS.discard(p)
-            raise write_error(exc, folder / "(temporary file)", folder) or exc from None
+            raise write_error(exc, target or folder, folder) or exc from None
         os.close(fd)
         return p
     raise RoomconvError(describe(folder, "cannot find a free temporary file name"))
@@ -370,23 +371,24 @@ def _umask() -> int:
     return m
 
 
-def _free_bytes(folder: Path) -> int | None:
+def _nearly_full(folder: Path) -> bool:
     try:
         st = os.statvfs(folder)
     except OSError:
-        return None
-    return st.f_bavail * st.f_frsize
+        return False
+    return st.f_blocks > 0 and st.f_bavail * st.f_frsize < 1 << 20
 
 
 def write_error(exc: BaseException, target, folder: Path | None = None) -> RoomconvError | None:
     """Translate a failed write into one line; ``None`` when it is not ours to explain."""
     folder = folder or Path(target).parent
     err = getattr(exc, "errno", None)
-    full = err in _FULL
-    if not full and isinstance(exc, (sf.LibsndfileError, OSError)):
-        # libsndfile reports a full disk only as "System error": look at the disk itself.
-        free = _free_bytes(folder)
-        full = free is not None and free < 1 << 20
+    if isinstance(exc, OSError) and err is not None:
+        full = err in _FULL
+    else:
+        # libsndfile reports a full disk only as "System error": look at the disk itself
+        # (a pseudo file system reports no blocks at all, and is not "full").
+        full = _nearly_full(folder)
     if full:
         return InputError(f"no space left on device while writing {_short(target)} (free some "
                           "space or write elsewhere; nothing was left behind)")
@@ -460,7 +462,6 @@ class WriteGuard:
         self._created: list[Path] = []
         for p in inputs:
             self.add_input(p)
-        _LIVE_GUARDS.append(self)
 
     # -- planning ------------------------------------------------------------------------
     def add_input(self, path) -> None:
@@ -577,6 +578,8 @@ class WriteGuard:
             except OSError as exc:
                 raise write_error(exc, q, q.parent) or exc from None
             self._created.append(q)
+            if self not in _LIVE_GUARDS:  # so that end_run() can tidy after a failure
+                _LIVE_GUARDS.append(self)
         return p
 
     # -- writing -------------------------------------------------------------------------
@@ -597,7 +600,7 @@ class WriteGuard:
             self.make_folder(folder)
         if not self.planned(out):
             self.file(out)
-        tmp = new_temp(folder)
+        tmp = new_temp(folder, out)
         try:
             try:
                 yield tmp

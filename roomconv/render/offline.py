@@ -193,8 +193,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     peak, tpk = PeakMeter(), TruePeakMeter(routing.n_out) if s.normalize == "truepeak" else None
     loud = LoudnessMeter(rate, routing.n_out) if s.normalize == "loudness" else None
     folder = out_path.parent if str(out_path.parent) else Path(".")
-    stage1 = new_temp(folder)
-    final_tmp = new_temp(folder)
+    stage1 = new_temp(folder, out_path)
+    final_tmp = new_temp(folder, out_path)
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
         stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
