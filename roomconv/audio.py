@@ -251,11 +251,11 @@ def _stat(p: Path, *, follow: bool = True):
     except FileNotFoundError:
         return None
     except NotADirectoryError:
-        raise InputError(describe(p, "a part of this path is a file, not a folder",
+        raise InputError(describe(_short(p), "a part of this path is a file, not a folder",
                                   "check the path")) from None
     except OSError as exc:
         if exc.errno == errno.ELOOP:
-            raise InputError(describe(p, "is a loop of symbolic links",
+            raise InputError(describe(_short(p), "is a loop of symbolic links",
                                       "fix or remove the link")) from None
         if exc.errno == errno.ENAMETOOLONG:
             raise InputError(describe(_short(p), f"the path is too long ({len(str(p))} "

@@ -13,7 +13,15 @@ import pytest
 import soundfile as sf
 from scipy.signal import fftconvolve
 
-from .conftest import children, run_cli, running, start_cli, temps, wait_for, write_noise
+from .conftest import (
+    children,
+    run_cli,
+    running,
+    start_cli,
+    temps,
+    wait_for,
+    write_noise,
+)
 
 
 def _outputs(folder):
@@ -59,7 +67,7 @@ def test_sigkill_of_the_parent_stops_workers_and_resume_finishes_cleanly(long_ba
     p.wait(timeout=30)
     assert wait_for(lambda: not any(running(w) for w in workers), timeout=15), \
         "workers went on after their parent was killed"
-    code, text, err = run_cli(*args, "--normalize", "loudness", timeout=120)
+    code, _, err = run_cli(*args, "--normalize", "loudness", timeout=120)
     assert code == 0, err
     assert temps(out) == []
     assert len(_outputs(out)) == len(drys)
@@ -83,7 +91,7 @@ def test_resume_verifies_outputs_and_redoes_damaged_or_unvouched_ones(tmp_path):
         fh.write(b"\x00" * 8)
     (out / "t2__room.provenance.json").unlink()
     (out / "t3__room.wav").rename(out / "t3__room.wav.moved")  # output gone, sidecar stays
-    code, text, err = run_cli(*args, "--quiet")
+    code, _, err = run_cli(*args, "--quiet")
     assert code == 0, err
     stamp = (out / "t3__room.wav").stat().st_mtime_ns
     code, text, err = run_cli(*[a for a in args if a != "--quiet"])

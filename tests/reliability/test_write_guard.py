@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import hashlib
 import os
-import threading
 
 import numpy as np
 import pytest
