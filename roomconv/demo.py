@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .audio import write_audio, write_json, write_provenance, write_text
+from .audio import WriteGuard, write_audio, write_json, write_provenance, write_text
 from .cli import command
 from .errors import InputError
 from .progress import Progress
@@ -83,9 +83,12 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     if out.exists() and any(out.iterdir()) and not force:
         raise InputError(f"{out}: folder is not empty (pass --force to overwrite the demo's "
                          "files in it)")
-    out.mkdir(parents=True, exist_ok=True)
+    # Folders go through a guard so that a run that fails or is interrupted removes the
+    # ones it created and left empty.
+    folders = WriteGuard(force=True)
+    folders.make_folder(folders.folder(out))
     for sub in ("irs", "harmonics", "renders", "recordings"):
-        (out / sub).mkdir(exist_ok=True)
+        folders.make_folder(folders.folder(out / sub))
     room = linden_hall()
     pred_e, pred_s = eyring(room), sabine(room)
     sweep = Sweep(rate=RATE, f_low=20, f_high=20000, duration=sc.sweep_s, level_dbfs=-12,

@@ -107,28 +107,28 @@ def check_finished(job: Job) -> tuple[str, str]:
     if not out.exists():
         return "new", ""
     if not side.exists():
-        return "orphan", "its sidecar is missing"
+        return "orphan", "the output had no sidecar"
     try:
         old = read_json(side)
     except InputError:
-        return "orphan", "its sidecar is unreadable"
+        return "orphan", "the output's sidecar was unreadable"
     if not isinstance(old, dict):
-        return "orphan", "its sidecar is malformed"
+        return "orphan", "the output's sidecar was malformed"
     if (old.get("inputs") != job.provenance["inputs"]
             or old.get("settings") != job.provenance["settings"]):
-        return "foreign", "with other inputs or settings"
+        return "foreign", "the output was made with other inputs or settings"
     rec = old.get("output")
     if not isinstance(rec, dict) or "sha256" not in rec:
-        return "damaged", "its sidecar records no output hash"
+        return "damaged", "the output's sidecar recorded no hash"
     try:
         now = output_record(out)
     except OSError as exc:
-        return "damaged", f"cannot be read ({exc.strerror})"
+        return "damaged", f"the output could not be read ({exc.strerror})"
     if now.get("frames") != rec.get("frames"):
-        return "damaged", (f"holds {now.get('frames')} frames, its sidecar says "
-                           f"{rec.get('frames')}")
+        return "damaged", (f"the output held {now.get('frames')} frames, its sidecar "
+                           f"says {rec.get('frames')}")
     if now["sha256"] != rec["sha256"]:
-        return "damaged", "its content differs from what its sidecar records"
+        return "damaged", "the output differed from the hash in its sidecar"
     return "finished", ""
 
 
@@ -224,6 +224,7 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
     outcomes: list[Outcome] = []
     futures: dict[Future, Job] = {}
     job_progress = None if getattr(executor, "_roomconv_local", False) else progress
+    redo: dict[str, str] = {}
     try:
         for job in jobs:
             state, why = check_finished(job)
@@ -233,8 +234,8 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
                 emit("skip", outcomes[-1])
                 continue
             if state == "foreign" and not force:
-                outcomes.append(Outcome(job, "failed", f"{job.output} exists {why} (pass "
-                                        "--force to replace it)", 2))
+                outcomes.append(Outcome(job, "failed", f"{job.output} exists with other "
+                                        "inputs or settings (pass --force to replace it)", 2))
                 emit("done", outcomes[-1])
                 continue
             if job.problem:
@@ -250,9 +251,9 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
             stale_side = sidecar_path(job.output, "provenance").exists()
             job = dataclasses.replace(job, replace=state != "new" or stale_side)
             futures[executor.submit(run_job, job, job_progress)] = job
+            if state in ("damaged", "orphan", "foreign"):
+                redo[job.output] = f"rendered again ({why})"
             emit("start", job)
-            if state in ("damaged", "orphan"):
-                emit("progress", (job.name, 0.0))
         pending = set(futures)
         while pending:
             _drain(progress, emit)
@@ -264,7 +265,7 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
                 except Exception as exc:  # noqa: BLE001 - a worker died or the cluster failed
                     res = {"ok": False, "error": f"worker failed: {exc}", "exit_code": 1}
                 if res.get("ok"):
-                    o = Outcome(job, "done", "", 0, res)
+                    o = Outcome(job, "done", redo.get(job.output, ""), 0, res)
                 else:
                     o = Outcome(job, "failed", res.get("error", "unknown error"),
                                 res.get("exit_code", 1), res)

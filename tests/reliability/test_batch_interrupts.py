@@ -91,8 +91,11 @@ def test_resume_verifies_outputs_and_redoes_damaged_or_unvouched_ones(tmp_path):
         fh.write(b"\x00" * 8)
     (out / "t2__room.provenance.json").unlink()
     (out / "t3__room.wav").rename(out / "t3__room.wav.moved")  # output gone, sidecar stays
-    code, _, err = run_cli(*args, "--quiet")
+    code, _, err = run_cli(*[a for a in args if a != "--quiet"])
     assert code == 0, err
+    assert "t0__room.wav: rendered again (the output held 1" in err
+    assert "t1__room.wav: rendered again (the output differed from the hash" in err
+    assert "t2__room.wav: rendered again (the output had no sidecar)" in err
     stamp = (out / "t3__room.wav").stat().st_mtime_ns
     code, text, err = run_cli(*[a for a in args if a != "--quiet"])
     assert code == 0 and "0 rendered, 4 already finished" in text, text + err
