@@ -460,6 +460,7 @@ class WriteGuard:
         self._outputs: list[tuple[Path, tuple]] = []
         self._folders: list[Path] = []
         self._created: list[Path] = []
+        self._new_files: list[tuple[Path, tuple[int, int]]] = []
         for p in inputs:
             self.add_input(p)
 
@@ -609,9 +610,21 @@ class WriteGuard:
                 if translated is None:
                     raise
                 raise translated from None
-            commit(tmp, out, force=self.force)
+            self.commit(tmp, out)
         finally:
             drop_temp(tmp)
+
+    def commit(self, tmp: Path, final) -> None:
+        """:func:`commit` with this guard's ``force``, remembering files that are new, so
+        that :meth:`rollback` can remove them if the command fails later."""
+        final = Path(final)
+        existed = os.path.lexists(final)
+        commit(tmp, final, force=self.force)
+        if not existed:
+            st = os.stat(final)
+            self._new_files.append((final, (st.st_dev, st.st_ino)))
+            if self not in _LIVE_GUARDS:
+                _LIVE_GUARDS.append(self)
 
     def write_audio(self, path, data: np.ndarray, rate: int, *, subtype: str = "FLOAT") -> Path:
         arr = np.asarray(data)
@@ -648,8 +661,16 @@ class WriteGuard:
                 q.rmdir()
         self._created = [q for q in self._created if q.exists()]
 
-    def abort(self) -> None:
-        """After a failure: this guard's empty folders go (temporary files go by themselves)."""
+    def rollback(self) -> None:
+        """After a failed command: remove the files it created new (still the very files it
+        wrote), then the folders it created that are now empty. Files replaced with
+        ``force`` cannot be restored and stay, complete."""
+        for path, ident in reversed(self._new_files):
+            with contextlib.suppress(OSError):
+                st = os.stat(path)
+                if (st.st_dev, st.st_ino) == ident:
+                    os.unlink(path)
+        self._new_files = []
         self.tidy()
 
     def close(self) -> None:
@@ -670,10 +691,14 @@ def drop_live_temps() -> None:
         drop_temp(p)
 
 
-def end_run() -> None:
+def end_run(*, failed: bool = False) -> None:
     """Remove every temporary file of this process and the folders its guards created that
-    are empty; the CLI calls it when a command ends, however it ends."""
+    are empty; with ``failed``, also the files its guards created new, so that a command that
+    fails half-way leaves nothing of its own behind. The CLI calls it when a command ends."""
     drop_live_temps()
+    if failed:
+        for g in list(_LIVE_GUARDS):
+            g.rollback()
     for g in list(_LIVE_GUARDS):
         g.close()
 

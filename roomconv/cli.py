@@ -336,6 +336,12 @@ def main(argv: list[str] | None = None) -> int:
         _restore_signal_handlers(old)
 
 
+def _roll_back() -> None:
+    """A command that fails half-way leaves none of its own files: what it wrote new goes."""
+    from . import audio
+    audio.end_run(failed=True)
+
+
 def _run(args) -> int:
     import signal
     try:
@@ -343,6 +349,7 @@ def _run(args) -> int:
     except RoomconvError as exc:
         if args.debug:
             traceback.print_exc()
+        _roll_back()
         print(f"roomconv: error: {exc}", file=sys.stderr)
         return exc.exit_code
     except KeyboardInterrupt as exc:
@@ -355,6 +362,7 @@ def _run(args) -> int:
     except Exception as exc:  # noqa: BLE001 - the last line of defence for users
         if args.debug:
             traceback.print_exc()
+        _roll_back()
         print(f"roomconv: internal error: {type(exc).__name__}: {exc} "
               "(run again with --debug for details and report it)", file=sys.stderr)
         return 1

@@ -11,8 +11,8 @@ from typing import Callable
 import numpy as np
 import soundfile as sf
 
-from ..audio import (WriteGuard, audio_format_for, audio_info, commit, drop_temp, new_temp,
-                     read_audio, write_error)
+from ..audio import (WriteGuard, audio_format_for, audio_info, drop_temp, new_temp, read_audio,
+                     write_error)
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .partitioned import offline_convolver, routing_for
@@ -253,7 +253,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             stage1.replace(final_tmp)
         else:
             _second_pass(stage1, final_tmp, fmt, s, 10 ** (extra_db / 20), B, progress)
-        commit(final_tmp, out_path, force=guard.force)
+        guard.commit(final_tmp, out_path)
         if progress:
             progress(1.0)
         return report

@@ -46,3 +46,22 @@ def test_sweep_and_its_sidecar_onto_a_full_disk(small_disk, cli):
     assert code == 2, err
     assert "no space left on device while writing" in err
     assert list(small_disk.iterdir()) == []
+
+
+def test_extract_whose_later_output_hits_a_full_disk_leaves_none(small_disk, tmp_path, cli):
+    ir = write_noise(tmp_path / "room.wav", 0.3, seed=1, decay=15.0)
+    sweep = ["--rate", 16000, "--duration", 1, "--silence", 0.6, "--high", 7000]
+    assert cli("sweep", tmp_path / "sw.wav", *sweep)[0] == 0
+    assert cli("measure", tmp_path / "ref.wav", "--simulate", ir, *sweep,
+               "--save-recording", tmp_path / "rec.wav")[0] == 0
+    # Leave room for the response (9600 float samples, about 38 kB) but not for the rest.
+    st = os.statvfs(small_disk)
+    filler = small_disk / "filler.bin"
+    filler.write_bytes(b"\0" * (st.f_bavail * st.f_frsize - 56 * 1024))
+    code, _, err = cli("extract", tmp_path / "rec.wav", "--sweep", tmp_path / "sw.wav",
+                       "-o", small_disk / "x.wav", "--harmonics", small_disk / "harm",
+                       "--json", small_disk / "x.quality.json")
+    assert code == 2, err
+    assert "no space left on device while writing" in err
+    # The response was written before the disk filled up; the failed run removed it again.
+    assert sorted(p.name for p in small_disk.iterdir()) == ["filler.bin"]
