@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .audio import WriteGuard, read_audio, sidecar_path, write_provenance
+from .audio import WriteGuard, check_input_file, read_audio, sidecar_path, write_provenance
 from .cli import _out, command
 from .errors import InputError
 
@@ -97,7 +97,9 @@ def room_from_args(a):
     from .synth.materials import load_materials
     from .synth.room import RoomModel
     L, W, H = parse_triple(a.room, "--room", sep="x")
-    extra = load_materials(a.materials_file) if a.materials_file else {}
+    # Refuse a folder, pipe or device before the loader opens it (a pipe would block).
+    extra = (load_materials(check_input_file(a.materials_file, "materials file"))
+             if a.materials_file else {})
     return RoomModel(L, W, H, parse_materials(a.materials), parse_patches(a.patch),
                      parse_absorbers(a.absorber), temperature_c=a.temperature,
                      humidity_pct=a.humidity, extra_materials=extra)
@@ -200,7 +202,7 @@ def cmd_rooms(a):
     if a.json is not None:
         guard.file(a.json)
     if a.materials_file:
-        table.update(load_materials(a.materials_file))
+        table.update(load_materials(check_input_file(a.materials_file, "materials file")))
     if a.json is not None:
         guard.write_json(a.json, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
                                 "source": m.source, "note": m.note} for k, m in table.items()})

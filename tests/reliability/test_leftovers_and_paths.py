@@ -106,3 +106,17 @@ def test_bad_inputs_are_refused_before_opening(files, case):
     expect = {"fifo": "not a regular file", "directory": "is a directory",
               "loop": "loop of symbolic links", "missing": "not found"}[case]
     assert expect in err
+
+
+@pytest.mark.parametrize("case", ["fifo", "directory"])
+def test_side_input_that_is_not_a_file_is_refused_without_hanging(tmp_path, case):
+    side = tmp_path / "extra_materials.json"
+    if case == "fifo":
+        os.mkfifo(side)
+    else:
+        side.mkdir()
+    p = start_cli("synth", tmp_path / "room.wav", "--room", "5x4x3", "--rate", RATE,
+                  "--materials-file", side)
+    _, err = p.communicate(timeout=60)
+    assert p.returncode == 2 and one_line(err) and "extra_materials.json" in err
+    assert not (tmp_path / "room.wav").exists()
