@@ -161,17 +161,20 @@ cmd_sweep.configure = _cfg_sweep
 # --- extract -------------------------------------------------------------------------------
 @command("extract", "deconvolve a recorded sweep into an impulse response")
 def cmd_extract(a):
-    from .measure.files import extract_files, format_quality, save_extraction
-    inputs = [a.recording, a.sweep]
-    from .audio import check_output
-    check_output(a.output, force=a.force, inputs=inputs)
+    from .audio import WriteGuard
+    from .measure.files import (extract_files, format_quality, plan_extraction,
+                                save_extraction, sweep_inputs)
+    # The sweep's sidecar is read too, so it is an input no output may replace.
+    inputs = [a.recording, *sweep_inputs(a.sweep)]
+    guard = WriteGuard(inputs, force=a.force)
+    plan_extraction(guard, a.output, harmonics_dir=a.harmonics, json_path=a.json)
     ex, notes = extract_files(a.recording, a.sweep, reference_channel=a.reference_channel,
                               length_s=a.length, trim=a.trim, harmonics=a.harmonics is not None,
                               allow_clipped=a.allow_clipped)
     for n in notes:
         _note(n)
     save_extraction(ex, a.output, harmonics_dir=a.harmonics, json_path=a.json, force=a.force,
-                    inputs=inputs, settings=_settings(a))
+                    inputs=[a.recording, a.sweep], settings=_settings(a), guard=guard)
     _out(format_quality(ex.quality), a)
     if ex.trimmed_samples:
         _out(f"trimmed {ex.trimmed_samples} samples ({1000 * ex.trimmed_samples / ex.rate:.1f} ms)"
@@ -229,10 +232,10 @@ def confirm_caution(a) -> None:
 
 @command("measure", "play a sweep through a sound card, record and extract the IR")
 def cmd_measure(a):
-    from .audio import check_output, read_audio, write_audio
+    from .audio import WriteGuard, read_audio
     from .measure.capture import SimulatedDevice, SoundCard, run_measurement
     from .measure.deconvolve import extract_ir
-    from .measure.files import format_quality, save_extraction
+    from .measure.files import format_quality, plan_extraction, save_extraction
     from .measure.sweep import sweep_signal
     budget("--level", safety.check_level, a.level)
     _sweep_budget(a, channels=1 + len(a.input_channels) if a.simulate is None else 2)
@@ -242,9 +245,11 @@ def cmd_measure(a):
         raise InputError(f"--reference-channel {a.reference_channel}: the recording has "
                          f"{len(a.input_channels)} channel(s) (0-based index expected)")
     s = _sweep_from_args(a)
-    for p in (a.output, a.save_recording, a.json):
-        if p is not None:
-            check_output(p, force=a.force)
+    # Every output is planned against the simulated room (the one input) before any sound.
+    guard = WriteGuard([a.simulate], force=a.force)
+    plan_extraction(guard, a.output, harmonics_dir=a.harmonics, json_path=a.json)
+    if a.save_recording is not None:
+        guard.file(a.save_recording)
     inputs = []
     if a.simulate is not None:
         ir, ir_rate = read_audio(a.simulate, what="simulated room IR")
@@ -264,13 +269,14 @@ def cmd_measure(a):
         device = SoundCard(device=a.device, output_channel=a.output_channel, input_channels=chans)
         confirm_caution(a)
     rec = run_measurement(device, sweep_signal(s), s.rate, tail_s=0.5)
-    if a.save_recording is not None:
-        write_audio(a.save_recording, rec, s.rate, force=a.force)
+    # Extract before writing anything, so a failed extraction leaves no recording behind.
     ex = extract_ir(rec, s.rate, sweep=s, reference_channel=a.reference_channel,
                     length_s=a.length, harmonics=a.harmonics is not None, trim=a.trim,
                     allow_clipped=a.allow_clipped)
+    if a.save_recording is not None:
+        guard.write_audio(a.save_recording, rec, s.rate)
     save_extraction(ex, a.output, harmonics_dir=a.harmonics, json_path=a.json, force=a.force,
-                    inputs=inputs, settings={**_settings(a), "sweep": s.to_dict()})
+                    inputs=inputs, settings={**_settings(a), "sweep": s.to_dict()}, guard=guard)
     _out(format_quality(ex.quality), a)
     _out(f"wrote {a.output}", a)
     return 0
@@ -332,6 +338,53 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class Interrupted(KeyboardInterrupt):
+    """SIGTERM or SIGHUP, raised where the program is so that clean-up code runs as on
+    Ctrl-C."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+_STOP_SIGNALS = ("SIGINT", "SIGTERM", "SIGHUP")
+
+
+def _ignore_stop_signals() -> None:
+    import signal
+    for name in _STOP_SIGNALS:
+        sig = getattr(signal, name, None)
+        if sig is not None:
+            signal.signal(sig, signal.SIG_IGN)
+
+
+def _raise_interrupted(signum, _frame):
+    # One interrupt is enough: a second one must not cut the clean-up short.
+    _ignore_stop_signals()
+    raise Interrupted(signum)
+
+
+def _install_signal_handlers() -> dict:
+    """Ctrl-C, SIGTERM and SIGHUP end a run the same way: temporary files removed, exit
+    128+n."""
+    import signal
+    import threading
+    if threading.current_thread() is not threading.main_thread():
+        return {}
+    old = {}
+    for name in _STOP_SIGNALS:
+        sig = getattr(signal, name, None)
+        if sig is not None:
+            old[sig] = signal.signal(sig, _raise_interrupted)
+    return old
+
+
+def _restore_signal_handlers(old: dict) -> None:
+    import signal
+    for sig, handler in old.items():
+        signal.signal(sig, handler)
+
+
 def main(argv: list[str] | None = None) -> int:
     _load_plugins()
     parser = build_parser()
@@ -342,19 +395,49 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
+    from . import audio
+    audio.reset_run_state()
+    # The terminal workbench keeps its own key and signal handling.
+    old = _install_signal_handlers() if args.command != "tui" else {}
+    try:
+        return _run(args)
+    finally:
+        # After a failure this removes what the run left unfinished; after success there
+        # is nothing of that kind, and only folders created but left empty go. A signal
+        # now would only interrupt the clean-up.
+        if old:
+            _ignore_stop_signals()
+        audio.end_run()
+        _restore_signal_handlers(old)
+
+
+def _roll_back() -> None:
+    """A command that fails half-way leaves none of its own files: what it wrote new goes."""
+    from . import audio
+    audio.end_run(failed=True)
+
+
+def _run(args) -> int:
+    import signal
     try:
         return int(args.func(args) or 0)
     except RoomconvError as exc:
         if args.debug:
             traceback.print_exc()
+        _roll_back()
         print(f"roomconv: error: {exc}", file=sys.stderr)
         return exc.exit_code
-    except KeyboardInterrupt:
-        print("roomconv: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        signum = getattr(exc, "signum", signal.SIGINT)
+        from . import audio
+        audio.end_run()
+        print(f"roomconv: interrupted by {signal.Signals(signum).name}; unfinished files "
+              "removed, finished outputs kept", file=sys.stderr)
+        return 128 + int(signum)
     except Exception as exc:  # noqa: BLE001 - the last line of defence for users
         if args.debug:
             traceback.print_exc()
+        _roll_back()
         print(f"roomconv: internal error: {type(exc).__name__}: {exc} "
               "(run again with --debug for details and report it)", file=sys.stderr)
         return 1

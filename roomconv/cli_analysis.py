@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .audio import check_output, write_json, write_text
-from .cli import _out, command
+from .audio import WriteGuard
+from .cli import _note, _out, command
 from .progress import Progress
 
 
@@ -15,13 +15,15 @@ def cmd_analyze(a):
     from .analysis.study import analyse_files, parse_calibration
     from .audio import audio_info
     inputs = list(a.irs)
-    report_file = a.report / "report.html" if a.report is not None else None
+    # Plan every output (the report folder is created only when its page is written) against
+    # every input, a calibration file included, before any analysis.
+    guard = WriteGuard(inputs, force=a.force)
+    if a.calibration is not None and Path(a.calibration).is_file():
+        guard.add_input(a.calibration)
+    report_file = guard.folder(a.report) / "report.html" if a.report is not None else None
     for p in (a.json, a.csv, report_file):
-        if p is not None and p != report_file:
-            check_output(p, force=a.force, inputs=inputs)
-    if a.report is not None:
-        a.report.mkdir(parents=True, exist_ok=True)
-        check_output(report_file, force=a.force, inputs=inputs)
+        if p is not None:
+            guard.file(p)
     cal = parse_calibration(a.calibration)
     total = 0
     for p in inputs:
@@ -35,14 +37,16 @@ def cmd_analyze(a):
     doc = study.document
     _out(terminal_report(doc), a)
     if a.json is not None:
-        write_json(a.json, doc, force=a.force, inputs=inputs)
+        guard.write_json(a.json, doc)
         _out(f"wrote {a.json}", a)
     if a.csv is not None:
-        write_text(a.csv, csv_text(doc), force=a.force, inputs=inputs)
+        guard.write_text(a.csv, csv_text(doc))
         _out(f"wrote {a.csv}", a)
     if report_file is not None:
-        write_text(report_file, html_report(study), force=a.force, inputs=inputs)
+        guard.write_text(report_file, html_report(study))
         _out(f"wrote {report_file}", a)
+    for e in study.errors:  # the outputs above hold the readable files; say which were not
+        _note(f"skipped: {e}")
     return 2 if study.errors else 0
 
 

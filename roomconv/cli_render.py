@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .audio import write_provenance
+from .audio import WriteGuard, sidecar_path, write_provenance
 from .cli import _note, _out, command, device_spec
 from .progress import Progress
 
@@ -116,11 +116,15 @@ def cmd_render(a):
     from .render.offline import render_file
     s = settings_from_args(a)
     check_predelay(a, [a.dry])
+    # Plan the output and its provenance sidecar before any work, against both inputs.
+    guard = WriteGuard([a.dry, a.ir], force=a.force)
+    guard.file(a.output)
+    guard.file(sidecar_path(a.output, "provenance"))
     with Progress(1.0, "rendering", enabled=False if a.quiet else None) as bar:
         def tick(frac, bar=bar):
             bar.update(frac - bar.done)
-        rep = render_file(a.dry, a.ir, a.output, s, force=a.force, progress=tick)
-    write_provenance(a.output, [a.dry, a.ir], s.as_dict())
+        rep = render_file(a.dry, a.ir, a.output, s, force=a.force, progress=tick, guard=guard)
+    write_provenance(a.output, [a.dry, a.ir], s.as_dict(), guard=guard)
     for w in rep.warnings:
         _note(f"warning: {w}")
     _out(describe_report(rep), a)
@@ -197,14 +201,13 @@ class BatchDisplay:
 @command("batch", "render many dry files through many IRs (local pool or Dask cluster)")
 def cmd_batch(a):
     from .render.batch import dask_executor, local_executor, plan_jobs, run_batch
-    from .errors import InputError
     s = settings_from_args(a)
     check_predelay(a, a.dry)
-    out_dir = a.out_dir
-    if out_dir.exists() and not out_dir.is_dir():
-        raise InputError(f"{out_dir}: exists and is not a folder")
-    out_dir.mkdir(parents=True, exist_ok=True)
-    jobs = plan_jobs(a.dry, a.ir, out_dir, s)
+    # One guard knows every dry file and response of the batch: no output or sidecar may land
+    # on any of them. The folder is created only when the first job starts.
+    guard = WriteGuard([*a.dry, *a.ir], force=a.force)
+    out_dir = guard.folder(a.out_dir)
+    jobs = plan_jobs(a.dry, a.ir, out_dir, s, guard=guard)
     display = BatchDisplay(len(jobs), enabled=False if a.quiet else None)
     if a.scheduler:
         executor, progress, owner = dask_executor(a.scheduler)
@@ -213,9 +216,11 @@ def cmd_batch(a):
     try:
         with executor:
             outcomes = run_batch(jobs, executor, force=a.force, progress=progress,
-                                 on_event=display)
+                                 on_event=display,
+                                 before_first=lambda: guard.make_folder(out_dir))
     finally:
         display.close()
+        guard.close()
         owner_close = getattr(owner, "close", None) or getattr(owner, "shutdown", None)
         if owner_close:
             owner_close()

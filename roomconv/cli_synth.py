@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from . import validate
-from .audio import check_output, read_audio, write_audio, write_json, write_provenance
+from .audio import WriteGuard, check_input_file, read_audio, sidecar_path, write_provenance
 from .cli import _out, budget, command, opt
 from .errors import InputError
 
@@ -128,7 +128,9 @@ def room_from_args(a):
     from .synth.materials import load_materials
     from .synth.room import RoomModel
     L, W, H = a.room
-    extra = load_materials(a.materials_file) if a.materials_file else {}
+    # Refuse a folder, pipe or device before the loader opens it (a pipe would block).
+    extra = (load_materials(check_input_file(a.materials_file, "materials file"))
+             if a.materials_file else {})
     return RoomModel(L, W, H, parse_materials(a.materials), parse_patches(a.patch),
                      parse_absorbers(a.absorber), temperature_c=a.temperature,
                      humidity_pct=a.humidity, extra_materials=extra)
@@ -164,8 +166,10 @@ def cmd_synth(a):
         # each receiver channel at once.
         budget("--length", validate.seconds_budget, a.length, a.rate, "this response length",
                channels=12 * receivers.channels)
+    guard = WriteGuard([a.materials_file], force=a.force)
+    guard.file(a.output)
+    guard.file(sidecar_path(a.output, "provenance"))
     room = room_from_args(a)
-    check_output(a.output, force=a.force)
     L, W, H = room.length, room.width, room.height
     src = a.source if a.source else (L / 4, W / 3, min(1.5, H / 2))
     rcv = a.receiver if a.receiver else (
@@ -180,14 +184,14 @@ def cmd_synth(a):
                              "normalize")
         ir = ir * (10 ** (a.peak / 20) / np.max(np.abs(ir)))
     refuse_non_finite(ir, a.output)
-    write_audio(a.output, ir, a.rate, force=a.force)
+    guard.write_audio(a.output, ir, a.rate)
     settings = {"room": [L, W, H], "surfaces": room.surfaces,
                 "patches": [p.__dict__ for p in room.patches], "source": list(src),
                 "receiver": list(rcv), "stereo": a.stereo, "rt60": a.rt60, "seed": a.seed,
                 "rate": a.rate, "prediction": a.prediction,
                 "predicted_sabine_s": res.sabine, "predicted_eyring_s": res.eyring,
                 "tail_rt_s": res.used_rt, "mixing_time_s": res.mixing_time_s}
-    write_provenance(a.output, [], settings)
+    write_provenance(a.output, [], settings, guard=guard)
     _out(f"room {L:g} x {W:g} x {H:g} m, V = {room.volume:.0f} m³, S = {room.total_area:.0f} m²",
          a)
     _out(prediction_table(res), a)
@@ -252,12 +256,14 @@ cmd_synth.configure = _cfg_synth
 def cmd_rooms(a):
     from .synth.materials import MATERIALS, OCTAVES, load_materials
     table = dict(MATERIALS)
-    if a.materials_file:
-        table.update(load_materials(a.materials_file))
+    guard = WriteGuard([a.materials_file], force=a.force)
     if a.json is not None:
-        write_json(a.json, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
-                                "source": m.source, "note": m.note} for k, m in table.items()},
-                   force=a.force)
+        guard.file(a.json)
+    if a.materials_file:
+        table.update(load_materials(check_input_file(a.materials_file, "materials file")))
+    if a.json is not None:
+        guard.write_json(a.json, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
+                                "source": m.source, "note": m.note} for k, m in table.items()})
     head = f"{'material':<28}" + "".join(f"{b:>7}" for b in OCTAVES) + "  source"
     lines = [head, "-" * len(head)]
     for name, m in sorted(table.items()):
@@ -284,7 +290,9 @@ def cmd_edit(a):
     if scales and min(scales.values()) < DECAY_SCALE_MIN:
         raise InputError(f"--decay-scale: factor {min(scales.values()):g} is out of range "
                          f"(accepted: {DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g})")
-    check_output(a.output, force=a.force, inputs=[a.input])
+    guard = WriteGuard([a.input], force=a.force)
+    guard.file(a.output)
+    guard.file(sidecar_path(a.output, "provenance"))
     ir, rate = read_audio(a.input, what="impulse response")
     steps = []
     if a.trim_db is not None:
@@ -312,8 +320,8 @@ def cmd_edit(a):
     if not steps:
         raise InputError("no edit asked for (see roomconv edit --help)")
     refuse_non_finite(ir, a.output)
-    write_audio(a.output, ir, rate, force=a.force, inputs=[a.input])
-    write_provenance(a.output, [a.input], {"steps": steps})
+    guard.write_audio(a.output, ir, rate)
+    write_provenance(a.output, [a.input], {"steps": steps}, guard=guard)
     for s in steps:
         _out(s, a)
     _out(f"wrote {a.output}", a)

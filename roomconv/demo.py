@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .audio import write_audio, write_json, write_provenance, write_text
+from .audio import WriteGuard, write_audio, write_json, write_provenance, write_text
 from .cli import command
 from .errors import InputError
 from .progress import Progress
@@ -105,9 +105,12 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     if out.exists() and any(out.iterdir()) and not force:
         raise InputError(f"{out}: folder is not empty (pass --force to overwrite the demo's "
                          "files in it)")
-    out.mkdir(parents=True, exist_ok=True)
+    # Folders go through a guard so that a run that fails or is interrupted removes the
+    # ones it created and left empty.
+    folders = WriteGuard(force=True)
+    folders.make_folder(folders.folder(out))
     for sub in ("irs", "harmonics", "renders", "recordings"):
-        (out / sub).mkdir(exist_ok=True)
+        folders.make_folder(folders.folder(out / sub))
     room = linden_hall()
     pred_e, pred_s = eyring(room), sabine(room)
     sweep = Sweep(rate=RATE, f_low=20, f_high=20000, duration=sc.sweep_s, level_dbfs=-12,
@@ -121,7 +124,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
 
     def save_audio(path, data, inputs=(), extra=None):
         write_audio(path, data, RATE, force=True)
-        write_provenance(path, inputs, {**settings, **(extra or {})})
+        write_provenance(path, inputs, {**settings, **(extra or {})}, force=True)
         written.append(path)
 
     with Progress(steps, "demo", enabled=False if quiet else None) as bar:
@@ -176,9 +179,9 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                                    "deviation_pct": 100 * (m / pred_e[b] - 1)})
         doc["measured_vs_predicted"] = comparison
         write_json(out / "results.json", doc, force=True)
-        write_provenance(out / "results.json", [], settings)
+        write_provenance(out / "results.json", [], settings, force=True)
         write_text(out / "results.csv", csv_text(doc), force=True)
-        write_provenance(out / "results.csv", [], settings)
+        write_provenance(out / "results.csv", [], settings, force=True)
         written += [out / "results.json", out / "results.csv"]
         bar.update()
         # 4. Renders: a measured stereo pair (two mics of source 1) and the synthetic twin.
@@ -205,7 +208,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
                     continue
                 target = out / "renders" / f"{dry.stem}__{label}.wav"
                 rep = render_file(dry, ir_path, target, rs, force=True)
-                write_provenance(target, [dry, ir_path], rs.as_dict())
+                write_provenance(target, [dry, ir_path], rs.as_dict(), force=True)
                 written.append(target)
                 renders.append((target, rep))
             bar.update()
@@ -216,7 +219,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         page = html_report(study, title="Linden Hall — room acoustic study (demo)",
                            sections=sections, extra_series=extra)
         write_text(out / "report.html", page, force=True)
-        write_provenance(out / "report.html", [], settings)
+        write_provenance(out / "report.html", [], settings, force=True)
         written.append(out / "report.html")
         bar.update()
 

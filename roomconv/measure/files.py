@@ -8,21 +8,41 @@ from pathlib import Path
 
 import numpy as np
 
-from ..audio import (check_output, read_audio, read_json, sidecar_path,
-                     write_audio, write_json, write_provenance)
+from ..audio import WriteGuard, read_audio, read_json, sidecar_path, write_provenance
 from ..errors import InputError, describe
-from .deconvolve import Extraction, extract_ir
+from .deconvolve import HARMONIC_ORDERS, Extraction, extract_ir
 from .sweep import Sweep, sweep_signal
 
 
-def save_sweep(path, sweep: Sweep, *, subtype: str = "FLOAT", force: bool = False) -> Path:
-    """Write the playback WAV and its ``.sweep.json`` sidecar."""
+def save_sweep(path, sweep: Sweep, *, subtype: str = "FLOAT", force: bool = False,
+               guard: WriteGuard | None = None) -> Path:
+    """Write the playback WAV and its ``.sweep.json`` sidecar (both planned before either is
+    written)."""
+    g = guard or WriteGuard(force=force)
     side = sidecar_path(path, "sweep")
-    check_output(path, force=force)
-    check_output(side, force=force)
-    write_audio(path, sweep_signal(sweep), sweep.rate, subtype=subtype, force=force)
-    write_json(side, sweep.to_dict(), force=force)
+    g.file(path)
+    g.file(side)
+    g.write_audio(path, sweep_signal(sweep), sweep.rate, subtype=subtype)
+    g.write_json(side, sweep.to_dict())
     return Path(path)
+
+
+def sweep_inputs(sweep_path) -> list[Path]:
+    """The files a job reading ``sweep_path`` reads: the WAV and, when present, its sidecar."""
+    return [Path(sweep_path), sidecar_path(sweep_path, "sweep")]
+
+
+def plan_extraction(guard: WriteGuard, out, *, harmonics_dir=None, json_path=None) -> None:
+    """Plan every file :func:`save_extraction` writes, before the work starts."""
+    out = Path(out)
+    guard.file(out)
+    guard.file(sidecar_path(out, "provenance"))
+    if json_path is not None:
+        guard.file(json_path)
+    if harmonics_dir is not None:
+        hdir = guard.folder(harmonics_dir)
+        for k in HARMONIC_ORDERS:
+            guard.file(hdir / f"{out.stem}_h{k}.wav")
 
 
 def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
@@ -63,28 +83,24 @@ def extract_files(recording_path, sweep_path, *, reference_channel=None, length_
 
 
 def save_extraction(ex: Extraction, out, *, harmonics_dir=None, json_path=None,
-                    force: bool = False, inputs=(), settings: dict | None = None) -> list[Path]:
-    """Write the IR, optional harmonic IRs and quality JSON; returns the written paths."""
-    inputs = [Path(p) for p in inputs]
+                    force: bool = False, inputs=(), settings: dict | None = None,
+                    guard: WriteGuard | None = None) -> list[Path]:
+    """Write the IR, optional harmonic IRs, quality JSON and provenance through one guard
+    (every target planned before the first is written); returns the written paths."""
+    inputs = [Path(p) for p in inputs if Path(p).is_file()]
     out = Path(out)
-    targets = [out]
-    harm_paths = {}
+    g = guard
+    if g is None:  # a caller with its own guard has planned these already
+        g = WriteGuard(inputs, force=force)
+        plan_extraction(g, out, harmonics_dir=harmonics_dir, json_path=json_path)
+    written = [g.write_audio(out, ex.ir, ex.rate)]
     if harmonics_dir is not None:
-        hdir = Path(harmonics_dir)
-        hdir.mkdir(parents=True, exist_ok=True)
-        for k in ex.harmonics:
-            harm_paths[k] = hdir / f"{out.stem}_h{k}.wav"
-        targets += list(harm_paths.values())
+        for k in sorted(ex.harmonics):
+            written.append(g.write_audio(Path(harmonics_dir) / f"{out.stem}_h{k}.wav",
+                                         ex.harmonics[k], ex.rate))
     if json_path is not None:
-        targets.append(Path(json_path))
-    for t in targets:  # refuse before writing anything
-        check_output(t, force=force, inputs=inputs)
-    written = [write_audio(out, ex.ir, ex.rate, force=force, inputs=inputs)]
-    for k, p in harm_paths.items():
-        written.append(write_audio(p, ex.harmonics[k], ex.rate, force=force, inputs=inputs))
-    if json_path is not None:
-        written.append(write_json(json_path, ex.quality, force=force, inputs=inputs))
-    write_provenance(out, inputs, settings or {})
+        written.append(g.write_json(json_path, ex.quality))
+    write_provenance(out, inputs, settings or {}, guard=g)
     return written
 
 

@@ -4,8 +4,6 @@ progressively to a temporary file, then scale/dither into the final file and ren
 
 from __future__ import annotations
 
-import os
-import tempfile
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -13,8 +11,9 @@ from typing import Callable
 import numpy as np
 import soundfile as sf
 
-from ..audio import audio_format_for, audio_info, check_output, read_audio
 from .. import validate
+from ..audio import (WriteGuard, audio_format_for, audio_info, drop_temp, new_temp, read_audio,
+                     write_error)
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
@@ -160,7 +159,7 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
 
 def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
                 progress: Callable[[float], None] | None = None,
-                workers: int | None = None) -> RenderReport:
+                workers: int | None = None, guard: WriteGuard | None = None) -> RenderReport:
     """Render ``dry_path`` through ``ir_path`` into ``out_path`` in bounded memory.
 
     Parameters
@@ -172,10 +171,16 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         Called with the fraction done (0–1) as blocks are written.
     workers : int, optional
         FFT threads (default every core; a batch gives each job one).
+    guard : WriteGuard, optional
+        The command's write guard (it knows all the command's inputs); by default one that
+        knows the dry file and the response, with ``force``.
     """
     s = settings.check()
     dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
-    check_output(out_path, force=force, inputs=[dry_path, ir_path])
+    own_guard = guard is None
+    guard = guard or WriteGuard([dry_path, ir_path], force=force)
+    if not guard.planned(out_path):
+        guard.file(out_path)
     info = audio_info(dry_path)
     if info.frames == 0:
         raise InputError(describe(dry_path, "the dry file holds no samples"))
@@ -208,8 +213,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     peak, tpk = PeakMeter(), TruePeakMeter(routing.n_out) if s.normalize == "truepeak" else None
     loud = LoudnessMeter(rate, routing.n_out) if s.normalize == "loudness" else None
     folder = out_path.parent if str(out_path.parent) else Path(".")
-    stage1 = _temp(folder, out_path.name, ".pass1")
-    final_tmp = _temp(folder, out_path.name, ".part")
+    stage1 = new_temp(folder, out_path)
+    final_tmp = new_temp(folder, out_path)
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
         stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
@@ -292,19 +297,24 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                     if integer else "; a later conversion to integer would clip")
             report.warnings.append(msg)
         if extra_db == 0.0 and not integer:
-            os.replace(stage1, final_tmp)
+            stage1.replace(final_tmp)
         else:
             _second_pass(stage1, final_tmp, fmt, s, 10 ** (extra_db / 20), B, progress)
-        os.chmod(final_tmp, 0o666 & ~_umask())
-        os.replace(final_tmp, out_path)
+        guard.commit(final_tmp, out_path)
         if progress:
             progress(1.0)
         return report
+    except (OSError, sf.LibsndfileError) as exc:
+        translated = write_error(exc, out_path, folder)
+        if translated is None:
+            raise
+        raise translated from None
     finally:
         conv.close()
         for p in (stage1, final_tmp):
-            if p.exists():
-                p.unlink()
+            drop_temp(p)
+        if own_guard:
+            guard.close()
 
 
 def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int, progress):
@@ -380,14 +390,3 @@ def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels
         measured = _measure_loudness(path, gain_db, rate, channels)
     return gain_db, measured
 
-
-def _temp(folder: Path, name: str, suffix: str) -> Path:
-    fd, p = tempfile.mkstemp(prefix=f".{name}.", suffix=suffix, dir=folder)
-    os.close(fd)
-    return Path(p)
-
-
-def _umask() -> int:
-    m = os.umask(0)
-    os.umask(m)
-    return m

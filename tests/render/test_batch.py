@@ -61,7 +61,34 @@ def test_one_bad_input_is_reported_and_the_rest_finish(inputs, cli):
     assert "broken.wav" in err and "NaN" in err
     assert (out / "take0__room0.wav").exists()
     assert not (out / "take0__broken.wav").exists()
-    assert not list(out.glob(".*part")) and not list(out.glob(".*pass1"))
+    assert not list(out.glob(".rc-*.tmp"))
+
+
+def test_local_pool_progress_arrives_and_an_interrupt_stops_the_pool(inputs):
+    # Library level: the first per-job progress event from a worker raises KeyboardInterrupt
+    # in the parent; run_batch must cancel the queue and stop the worker processes.
+    from roomconv.render.batch import local_executor, plan_jobs, run_batch
+    from roomconv.render.offline import RenderSettings
+    rng = np.random.default_rng(3)
+    for k in range(3):
+        sf.write(inputs / f"long{k}.wav", 0.1 * rng.standard_normal(30 * FS), FS)
+    out = inputs / "stopped"
+    out.mkdir()
+    jobs = plan_jobs([inputs / f"long{k}.wav" for k in range(3)], [inputs / "room0.wav"], out,
+                     RenderSettings(normalize="loudness"))
+    executor, progress, owner = local_executor(1)
+    procs = []
+
+    def on_event(kind, payload):
+        if kind == "progress":
+            procs.extend(executor._processes.values())
+            raise KeyboardInterrupt
+    with pytest.raises(KeyboardInterrupt):
+        run_batch(jobs, executor, progress=progress, on_event=on_event, poll_s=0.01)
+    owner.close()
+    assert procs and not any(p.is_alive() for p in procs)
+    assert len(list(out.glob("*.wav"))) < 3
+    assert not list(out.glob(".rc-*.tmp"))
 
 
 @pytest.mark.timeout(180)

@@ -222,9 +222,9 @@ class MeasurePane(VerticalScroll):
         folder.mkdir(parents=True, exist_ok=True)
         name = self.query_one("#ms-name", Input).value.strip() or f"P{len(app.session) + 1}"
         out = folder / f"{name}.wav"
-        write_audio(out, ex.ir, ex.rate, force=True)
-        write_json(folder / f"{name}.quality.json", ex.quality, force=True)
-        write_provenance(out, inputs, {"quality": ex.quality})
+        write_audio(out, ex.ir, ex.rate, force=True, inputs=inputs)
+        write_json(folder / f"{name}.quality.json", ex.quality, force=True, inputs=inputs)
+        write_provenance(out, inputs, {"quality": ex.quality}, force=True)
         q = ex.quality
         app.session.append({"name": name, "file": out, "quality": q})
         row = (name, str(out), f"{min(q['ir']['inr_db']):.1f}",

@@ -110,7 +110,7 @@ class RenderPane(VerticalScroll):
                 app.call_from_thread(all_bar.update, progress=(k + frac) / len(drys))
             try:
                 rep = render_file(dry, ir, out, s, force=True, progress=tick)
-                write_provenance(out, [dry, ir], s.as_dict())
+                write_provenance(out, [dry, ir], s.as_dict(), force=True)
                 done += 1
                 for w in rep.warnings:
                     app.call_from_thread(app.notify, w, severity="warning", title=out.name)

@@ -96,7 +96,8 @@ class RoomPane(VerticalScroll):
             write_audio(out, res.ir, res.rate, force=True)
             write_provenance(out, [], {"room": [room.length, room.width, room.height],
                                        "surfaces": room.surfaces, "source": list(src),
-                                       "receiver": list(rcv), "stereo": stereo})
+                                       "receiver": list(rcv), "stereo": stereo},
+                             force=True)
         except (ValueError, RoomconvError) as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Room")
             return
