@@ -40,6 +40,7 @@ __all__ = ["RANGES", "METRICS", "JND", "BandResult", "analyse_response", "room_p
            "check_impulse_response", "OK", "CAUTION", "NOT_EVALUABLE", "FILTERINGS"]
 
 OK, CAUTION, NOT_EVALUABLE = "ok", "caution", "not evaluable"
+_LN10 = float(np.log(10.0))
 _RANK = {OK: 0, CAUTION: 1, NOT_EVALUABLE: 2}
 FILTERINGS = ("auto", "forward", "reverse")
 
@@ -162,18 +163,32 @@ def _label(band: Band | None) -> str:
     return f"{band.label} Hz" if band else "wideband"
 
 
+def _lead(band: Band | None, rate: int) -> int:
+    """Samples of zero padding put before the response for band filtering: three over the
+    bandwidth, which holds the energy a band filter spreads before the direct sound
+    (a band-pass's impulse response holds nearly all its energy within 1/B of its peak —
+    common practice)."""
+    return 0 if band is None else int(np.ceil(3.0 * rate / band.bandwidth))
+
+
 def _band_signals(h: np.ndarray, rate: int, band: Band | None, filtering: str):
-    """(decay signal, energy-ratio signal) for one band."""
+    """(decay signal, energy-ratio signal, lead) for one band.
+
+    Both signals start ``lead`` samples before ``h`` does, so that the energy a filter run
+    backwards (or both ways) moves before a direct sound near the start of ``h`` is kept.
+    """
     h = np.asarray(h, dtype=np.float64)
     if band is None:
-        return h, h
+        return h, h, 0
+    lead = _lead(band, rate)
+    hp = np.concatenate([np.zeros(lead), h])
     if filtering == "forward":
-        x = filter_band(h, rate, band)
-        return x, x
-    decay = filter_band(h, rate, band, reverse=True)
+        x = filter_band(hp, rate, band)
+        return x, x, lead
+    decay = filter_band(hp, rate, band, reverse=True)
     if filtering == "reverse":
-        return decay, decay
-    return decay, zero_phase_band(h, rate, band)
+        return decay, decay, lead
+    return decay, zero_phase_band(hp, rate, band), lead
 
 
 def zero_phase_band(h: np.ndarray, rate: int, band: Band) -> np.ndarray:
@@ -190,15 +205,6 @@ def zero_phase_band(h: np.ndarray, rate: int, band: Band) -> np.ndarray:
     y = sosfilt(sos, x)
     y = sosfilt(sos, y[::-1])[::-1]
     return y[pad: pad + len(h)]
-
-
-def _pre_onset(band: Band | None, rate: int, onset: int) -> int:
-    """Samples before the onset that still belong to the direct sound once a band filter has
-    spread it: two over the bandwidth (most of a band-pass's impulse-response energy lies
-    within 1/B of its peak — common practice)."""
-    if band is None:
-        return 0
-    return int(min(onset, round(2.0 * rate / band.bandwidth)))
 
 
 def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
@@ -262,7 +268,8 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     with_g = strength_reference_db is not None or strength_missing is not None
     if onset is None:
         onset = onset_index(h)
-    xd, xr = _band_signals(h, rate, band, filtering)
+    xd, xr, lead = _band_signals(h, rate, band, filtering)
+    onset += lead  # the band signals start ``lead`` samples before h
     if not np.any(xd[onset:]):
         res.flag(JUDGED, NOT_EVALUABLE, "no_energy", f"{label}: no energy in this band")
         res.finish(with_g)
@@ -291,10 +298,17 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
                  f"{label}: the noise-floor search did not settle ({tr.reason or 'no reason'});"
                  " values that depend on the late decay may be off")
 
-    _decay_times(res, x, rate, tr, band, filtering, label)
-    _energy_ratios(res, xr, rate, onset, tr, band, label)
+    pre_energy = 0.0
+    if band is not None and filtering != "forward":
+        pre_energy = _direct_energy_before_onset(h, onset - lead, lead, band, rate)
+    _decay_times(res, x, rate, tr, band, filtering, label, pre_energy)
+    # The early window reaches back over the direct sound's spread only: most of a band
+    # filter's impulse-response energy lies within 1/B of its peak (common practice), and
+    # more would add only noise.
+    spread = 0 if band is None else min(lead, int(np.ceil(1.5 * rate / band.bandwidth)))
+    _energy_ratios(res, xr, rate, onset, tr, band, label, spread)
     if strength_reference_db is not None:
-        _strength(res, xd, rate, onset, tr, band, strength_reference_db)
+        _strength(res, xd, rate, onset, tr, band, strength_reference_db, lead)
     elif strength_missing is not None:
         res.flag(("g_db",), NOT_EVALUABLE, "g_no_reference", f"{label}: G not evaluated: "
                  f"{strength_missing}")
@@ -302,12 +316,40 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     return res
 
 
+#: The direct sound: the first 2.5 ms from the onset (common practice for a loudspeaker's
+#: impulse and the first reflections that arrive with it).
+DIRECT_SOUND_S = 0.0025
+
+
+def _direct_energy_before_onset(h: np.ndarray, onset: int, lead: int, band: Band,
+                                rate: int) -> float:
+    """The band energy of the direct sound that a filter run backwards puts before the onset.
+
+    The direct sound (``DIRECT_SOUND_S`` of the broadband response from its onset) is filtered
+    alone, backwards, and its energy before the onset summed: a forward filter would have put
+    that energy at the start of the decay curve. The decay's own backwards ringing is not
+    counted, so a response with no direct sound keeps its curve from 0 dB.
+    """
+    w = max(1, int(round(DIRECT_SOUND_S * rate)))
+    snippet = np.zeros(lead + w)
+    part = np.asarray(h[onset: onset + w], dtype=np.float64)
+    snippet[lead: lead + part.size] = part
+    y = filter_band(snippet, rate, band, reverse=True)
+    return float(np.sum(np.square(y[:lead])))
+
+
 def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band: Band | None,
-                 filtering: str, label: str) -> None:
-    """EDT, T20, T30 from the compensated Schroeder curve; ξ and curvature; validity."""
+                 filtering: str, label: str, pre_energy: float = 0.0) -> None:
+    """EDT, T20, T30 from the compensated Schroeder curve; ξ and curvature; validity.
+
+    ``pre_energy`` (the direct sound's band energy a backwards filter put before the onset)
+    counts in the total the curve is normalized to, so the curve starts below 0 dB by the
+    share of the direct sound, as with a forward filter a few samples later.
+    """
     sch = schroeder_integral(x, truncation=tr.index, compensation=tr.compensation,
                              noise_energy=tr.noise_energy if tr.noise_limited else 0.0)
-    curve = decay_db(sch)
+    with np.errstate(divide="ignore"):
+        curve = 10 * np.log10(np.maximum(sch, 1e-300) / (sch[0] + pre_energy))
     res.curve_db = curve
     reach = available_range_db(curve)
     limit = "the noise" if tr.noise_limited else "the end of the response"
@@ -363,6 +405,12 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
             res.flag(DECAY_METRICS, CAUTION, "low_bt",
                      f"{label}: B·T = {bt:.1f} is below {limit_bt:.0f}: the band filter's own "
                      "decay may lengthen the decay times")
+        elif bt < MIN_BT and res.edt_s is not None:
+            # Backwards filtering keeps T20/T30 down to B·T = 4, but EDT's first 10 dB still
+            # hold the filter's treatment of the onset (what counts as direct sound).
+            res.flag(("edt_s",), CAUTION, "low_bt",
+                     f"{label}: B·T = {bt:.1f} is below {MIN_BT:.0f}: EDT's first 10 dB depend "
+                     "on how the band filter treats the onset")
 
 
 #: ISO 3382-2:2008, A.2 (from memory): σ(T) = k·T·sqrt((1 + c/n)/(N·B·T)) for N positions and
@@ -533,7 +581,7 @@ def _ratio_noise_uncertainty(res: BandResult, e: np.ndarray, t: np.ndarray, pre:
 
 
 def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: Truncation,
-                   band: Band | None, label: str) -> None:
+                   band: Band | None, label: str, pre: int = 0) -> None:
     """C50, C80, D50 and Ts from the broadband onset, noise subtracted, the late decay
     beyond the truncation point added (Lundeby's compensation), and their noise bias.
 
@@ -541,7 +589,6 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
     ----------
     ISO 3382-1:2009, A.2.3 (C50/C80), A.2.4 (D50), A.2.5 (Ts).
     """
-    pre = _pre_onset(band, rate, onset)
     start = onset - pre
     stop = onset + tr.index
     e = np.square(xr[start:stop])
@@ -624,7 +671,7 @@ def _ratios(e: np.ndarray, t: np.ndarray, comp: float, k: float, t_c: float, pre
 
 
 def _strength(res: BandResult, xd: np.ndarray, rate: int, onset: int, tr: Truncation,
-              band: Band | None, reference_db: float) -> None:
+              band: Band | None, reference_db: float, pre: int = 0) -> None:
     """G = 10·lg(∫p² dt) − L_ref, the band energy from the single-pass filter (any direction
     gives the same total), noise removed and the late decay added.
 
@@ -632,7 +679,6 @@ def _strength(res: BandResult, xd: np.ndarray, rate: int, onset: int, tr: Trunca
     ----------
     ISO 3382-1:2009, A.2.2 (sound strength G) — from memory.
     """
-    pre = _pre_onset(band, rate, onset)
     e = np.square(xd[onset - pre: onset + tr.index])
     noise = tr.noise_energy if tr.noise_limited else 0.0
     total = float(e.sum()) - noise * e.size + tr.compensation

@@ -52,6 +52,10 @@ def ideal_band(x, rate, b):
 
 def truth(x, rate, onset, b=None):
     """ISO 3382-1 definitions on the noise-free response (A.2; 5.3.3 ranges)."""
+    if b is not None:  # room before the start for the energy the filter spreads before it
+        lead = int(20 * rate / (b.upper - b.lower))
+        x = np.concatenate([np.zeros(lead), x])
+        onset += lead
     y = ideal_band(x, rate, b) if b is not None else x
     e = np.square(y[onset:])
     sch = np.cumsum(e[::-1])[::-1]
@@ -69,7 +73,11 @@ def truth(x, rate, onset, b=None):
         early = pre + e[: int(round(ms / 1000 * rate))].sum()
         out[key] = 10 * np.log10(early / (tot - early))
     out["d50"] = (pre + e[: int(round(0.05 * rate))].sum()) / tot
-    out["ts_ms"] = 1000 * np.sum(t * e) / tot
+    # The filter's symmetric spread of the direct sound before the onset counts at its own
+    # (negative) time, as the spread after it counts at positive times.
+    t_pre = (np.arange(onset) - onset) / rate
+    pre_moment = np.sum(t_pre * np.square(y[:onset])) if b is not None else 0.0
+    out["ts_ms"] = 1000 * (np.sum(t * e) + pre_moment) / tot
     return out
 
 
