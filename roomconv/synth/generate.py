@@ -269,8 +269,9 @@ def synthesize(
     notes = [mix_note] if mix_note else []
     if fade_start > t_mix - fade_s / 2 + 1e-12:
         notes.append(
-            f"the direct sound arrives at {1000 * direct_s:.1f} ms, after the mixing time "
-            f"{1000 * t_mix:.0f} ms: the tail fades in from {1000 * fade_start:.1f} ms instead")
+            f"the direct sound arrives at {1000 * direct_s:.1f} ms, too late for the usual "
+            f"cross-fade around the mixing time {1000 * t_mix:.0f} ms: the tail fades in "
+            f"from {1000 * fade_start:.1f} ms instead")
     nodes, reading = fit_decay_nodes(used, rate)
     for b in sorted(used):
         if abs(reading[b] / used[b] - 1) > READING_REPORT:
