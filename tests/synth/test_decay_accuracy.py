@@ -88,14 +88,15 @@ def test_unreachable_octave_readings_are_reported_not_hidden():
 
 
 @pytest.mark.parametrize("dims", [(4, 3, 2.5), (8, 6, 3), (5, 4, 3), (20, 14, 8)])
-def test_nothing_before_the_direct_sound_and_direct_follows_1_over_r(dims):
+@pytest.mark.parametrize("materials", [{}, {"floor": "carpet", "ceiling": "acoustic-tile"}])
+def test_nothing_before_the_direct_sound_and_direct_follows_1_over_r(dims, materials):
     # Causality (nothing can arrive before the shortest path) and the point-source law
     # p ∝ 1/r (Kuttruff, Room Acoustics, 5th ed. 2009, 1.4). The direct sound is a
     # band-limited impulse whose interpolation kernel spans ±32 samples; "before" starts
     # beyond that kernel.
     L, W, H = dims
     src, rcv = _default_positions(L, W, H)
-    res = synthesize(RoomModel(L, W, H), src, rcv, length_s=0.3, seed=5)
+    res = synthesize(RoomModel(L, W, H, materials), src, rcv, length_s=0.3, seed=5)
     h = res.ir[:, 0]
     r = np.linalg.norm(np.subtract(src, rcv))
     n0 = r / speed_of_sound(20) * FS
