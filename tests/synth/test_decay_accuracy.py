@@ -103,6 +103,11 @@ def test_nothing_before_the_direct_sound_and_direct_follows_1_over_r(dims, mater
     before = h[: int(n0) - 33]
     direct = np.max(np.abs(h[int(n0) - 33 : int(n0) + 34]))
     assert 20 * np.log10(np.max(np.abs(before)) / direct) < -40
+    if materials:
+        # Walls that absorb unevenly across bands spread each reflection's low-frequency
+        # part over tens of ms (the zero-phase band split), so the window below would hold
+        # more than the direct sound; the 1/r check is made with the plain room.
+        return
     # The kernel's taps sum to the arrival's DC gain, 1/r (the air's attenuation over a
     # few metres is below 0.1 dB at low frequencies, ISO 9613-1).
     seg = h[int(n0) - 33 : int(n0) + 34]
