@@ -47,6 +47,9 @@ FIT_TOLERANCE = 0.005
 #: How far a node may move from its asked value while fitting (our choice): beyond this the
 #: curve would need implausible swings, and the band is reported as not reachable instead.
 _NODE_RANGE = 4.0
+#: Exponent of each update (our choice): a full step overshoots where neighbouring bands
+#: pull on each other's readings.
+_STEP = 0.5
 #: A band still this far from its target after fitting is left at its asked value (our
 #: choice, twice the ISO 3382-1 JND of 5 %).
 _GIVE_UP = 0.10
@@ -287,7 +290,7 @@ def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int):
         if best[0] < np.log1p(FIT_TOLERANCE):
             break
         for b in free:
-            nodes[b] = float(np.clip(nodes[b] * target[b] / reading[b],
+            nodes[b] = float(np.clip(nodes[b] * (target[b] / reading[b]) ** _STEP,
                                      target[b] / _NODE_RANGE, target[b] * _NODE_RANGE))
         reading = octave_reading(nodes, rate, bands)
         if cost(reading) < best[0]:
