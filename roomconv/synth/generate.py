@@ -12,10 +12,9 @@ from .air import speed_of_sound
 from .image_source import image_sources, render_images
 from .materials import OCTAVES
 from .room import RoomModel, eyring, max_reverberation, sabine
-from .tail import FIT_TOLERANCE, band_noise, diffuse_tail, fit_decay_nodes
+from .tail import band_noise, diffuse_tail, fit_decay_nodes
 
-__all__ = ["Receivers", "SynthResult", "synthesize", "mixing_time", "fill_bands",
-           "MIN_DISTANCE_M"]
+__all__ = ["Receivers", "SynthResult", "synthesize", "mixing_time", "fill_bands", "MIN_DISTANCE_M"]
 
 #: Mean power of a cardioid ½ + ½·cos θ in a diffuse field relative to an omni:
 #: ∫(½ + ½cos θ)² dΩ / 4π = 1/3 (closed form).
@@ -171,11 +170,15 @@ def mixing_time(room: RoomModel) -> tuple[float, str | None]:
     if not (small or flat):
         return float(rule), None
     used = (20.0 * V / S + 12.0) / 1000.0
-    why = (f"the room is very small ({V:.0f} m³)" if small else
-           f"the room is very flat (sides {dims.min():g} to {dims.max():g} m)")
+    why = (
+        f"the room is very small ({V:.0f} m³)"
+        if small
+        else f"the room is very flat (sides {dims.min():g} to {dims.max():g} m)"
+    )
     return float(used), (
         f"{why}: the sqrt(V) rule for the mixing time ({1000 * rule:.0f} ms) does not "
-        f"apply; used 20·V/S + 12 ms = {1000 * used:.0f} ms (mean-free-path predictor)")
+        f"apply; used 20·V/S + 12 ms = {1000 * used:.0f} ms (mean-free-path predictor)"
+    )
 
 
 def synthesize(
@@ -251,10 +254,12 @@ def synthesize(
         raise InputError(
             f"source and receiver are {distance:.3f} m apart: closer than "
             f"{MIN_DISTANCE_M:g} m the direct sound's 1/r level has no meaning; move "
-            "--source or --receiver apart")
+            "--source or --receiver apart"
+        )
     sab, eyr = sabine(room, air=air), eyring(room, air=air)
-    used, origin = _tail_reverberation(room, eyr if prediction == "eyring" else sab, rt, air,
-                                       prediction)
+    used, origin = _tail_reverberation(
+        room, eyr if prediction == "eyring" else sab, rt, air, prediction
+    )
     c = speed_of_sound(room.temperature_c)
     t_mix, mix_note = mixing_time(room)
     # The crossfade from images to tail spans half the mixing time (our choice).
@@ -271,14 +276,16 @@ def synthesize(
         notes.append(
             f"the direct sound arrives at {1000 * direct_s:.1f} ms, too late for the usual "
             f"cross-fade around the mixing time {1000 * t_mix:.0f} ms: the tail fades in "
-            f"from {1000 * fade_start:.1f} ms instead")
+            f"from {1000 * fade_start:.1f} ms instead"
+        )
     nodes, reading = fit_decay_nodes(used, rate)
     for b in sorted(used):
         if abs(reading[b] / used[b] - 1) > READING_REPORT:
             notes.append(
                 f"{b} Hz: the decay asked for differs so much from the neighbouring bands' "
                 f"that an octave filter will read about {reading[b]:.2f} s, not "
-                f"{used[b]:.2f} s (the neighbours' slower decay leaks through its skirts)")
+                f"{used[b]:.2f} s (the neighbours' slower decay leaks through its skirts)"
+            )
 
     w_early, w_late = _early_late_weights(n, rate, fade_start, fade_s)
     noises = _tail_noises(rate, n, receivers, np.random.default_rng(seed))
@@ -303,8 +310,19 @@ def synthesize(
         chans.append(early * w_early + late * (w_late * tail_gain))
     if receivers.kind == "spaced":
         notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
-    return SynthResult(np.stack(chans, axis=1), rate, sab, eyr, used, float(t_mix), count, notes,
-                       origin, reading, float(fade_start))
+    return SynthResult(
+        np.stack(chans, axis=1),
+        rate,
+        sab,
+        eyr,
+        used,
+        float(t_mix),
+        count,
+        notes,
+        origin,
+        reading,
+        float(fade_start),
+    )
 
 
 def fill_bands(given: dict, bands=OCTAVES) -> tuple[dict, dict]:
@@ -344,8 +362,9 @@ def fill_bands(given: dict, bands=OCTAVES) -> tuple[dict, dict]:
     return values, origin
 
 
-def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: bool,
-                        prediction: str = "eyring") -> tuple[dict, dict]:
+def _tail_reverberation(
+    room: RoomModel, predicted: dict, rt: dict | None, air: bool, prediction: str = "eyring"
+) -> tuple[dict, dict]:
     """The decay time per band the tail gets, and where each comes from: the prediction,
     or ``rt`` (completed by :func:`fill_bands`) where the air's own absorption allows it."""
     used = dict(predicted)
@@ -371,7 +390,8 @@ def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: 
                 raise InputError(
                     f"--rt60: the {b} Hz band, {origin[b]} from the given bands, would be "
                     f"{used[b]:.2f} s, beyond the {tmax:.1f} s the air alone allows there; "
-                    f"give a value for {b} Hz")
+                    f"give a value for {b} Hz"
+                )
     if any(not np.isfinite(v) or v <= 0 for v in used.values()):
         raise InputError(
             "the room absorbs everything in some band (α = 1 everywhere): "

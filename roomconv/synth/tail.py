@@ -290,8 +290,13 @@ def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int):
         if best[0] < np.log1p(FIT_TOLERANCE):
             break
         for b in free:
-            nodes[b] = float(np.clip(nodes[b] * (target[b] / reading[b]) ** _STEP,
-                                     target[b] / _NODE_RANGE, target[b] * _NODE_RANGE))
+            nodes[b] = float(
+                np.clip(
+                    nodes[b] * (target[b] / reading[b]) ** _STEP,
+                    target[b] / _NODE_RANGE,
+                    target[b] * _NODE_RANGE,
+                )
+            )
         reading = octave_reading(nodes, rate, bands)
         if cost(reading) < best[0]:
             best = (cost(reading), dict(nodes), reading)

@@ -16,8 +16,14 @@ from roomconv.synth.room import SURFACES, RoomModel
 
 FS = 48000
 # A 6 × 4 × 3 m room, a different material on every surface so each wall's β shows.
-MATS = {"left": "concrete", "right": "brick", "front": "glass-heavy", "back": "wood-panel",
-        "floor": "carpet", "ceiling": "acoustic-tile"}
+MATS = {
+    "left": "concrete",
+    "right": "brick",
+    "front": "glass-heavy",
+    "back": "wood-panel",
+    "floor": "carpet",
+    "ceiling": "acoustic-tile",
+}
 ROOM = RoomModel(6, 4, 3, MATS)
 SRC, RCV = (1.0, 1.0, 1.0), (5.0, 3.0, 2.0)
 
@@ -28,15 +34,15 @@ def beta(surface, band=1000):
 
 # (image position worked by hand, walls met, distance to (5, 3, 2) worked by hand)
 HAND = [
-    ((1, 1, 1), (), np.sqrt(16 + 4 + 1)),                           # direct
-    ((-1, 1, 1), ("left",), np.sqrt(36 + 4 + 1)),                  # x' mirrored in x = 0
-    ((11, 1, 1), ("right",), np.sqrt(36 + 4 + 1)),                 # mirrored in x = 6
-    ((1, -1, 1), ("front",), np.sqrt(16 + 16 + 1)),                # mirrored in y = 0
-    ((1, 1, -1), ("floor",), np.sqrt(16 + 4 + 9)),                 # mirrored in z = 0
-    ((1, 1, 5), ("ceiling",), np.sqrt(16 + 4 + 9)),                # mirrored in z = 3
-    ((13, 1, 1), ("left", "right"), np.sqrt(64 + 4 + 1)),          # n = 1, q = 0 along x
+    ((1, 1, 1), (), np.sqrt(16 + 4 + 1)),  # direct
+    ((-1, 1, 1), ("left",), np.sqrt(36 + 4 + 1)),  # x' mirrored in x = 0
+    ((11, 1, 1), ("right",), np.sqrt(36 + 4 + 1)),  # mirrored in x = 6
+    ((1, -1, 1), ("front",), np.sqrt(16 + 16 + 1)),  # mirrored in y = 0
+    ((1, 1, -1), ("floor",), np.sqrt(16 + 4 + 9)),  # mirrored in z = 0
+    ((1, 1, 5), ("ceiling",), np.sqrt(16 + 4 + 9)),  # mirrored in z = 3
+    ((13, 1, 1), ("left", "right"), np.sqrt(64 + 4 + 1)),  # n = 1, q = 0 along x
     ((-1, -1, -1), ("left", "front", "floor"), np.sqrt(36 + 16 + 9)),  # the corner, q = 1
-    ((1, 9, 1), ("front", "back"), np.sqrt(16 + 36 + 1)),          # l = 1, q = 0 along y
+    ((1, 9, 1), ("front", "back"), np.sqrt(16 + 36 + 1)),  # l = 1, q = 0 along y
 ]
 
 

@@ -24,8 +24,16 @@ def test_partial_rt60_end_to_end_through_analyze(tmp_path, cli):
     # printed (the ISO 3382-1 JND of 5 %, Annex A, from memory; wider in the outer octaves
     # where ISO 3382-2's statistical uncertainty per position is larger).
     ir = tmp_path / "partial.wav"
-    code, out, err = cli("synth", ir, "--room", "12x9x5", "--stereo", "spaced:2",
-                         "--rt60", "250:1.5,500:1.4,1000:1.3,2000:1.15,4000:0.95")
+    code, out, err = cli(
+        "synth",
+        ir,
+        "--room",
+        "12x9x5",
+        "--stereo",
+        "spaced:2",
+        "--rt60",
+        "250:1.5,500:1.4,1000:1.3,2000:1.15,4000:0.95",
+    )
     assert code == 0, err
     table = _printed_tail(out)
     assert [b for b, (_, o) in table.items() if o == "given"] == [250, 500, 1000, 2000, 4000]
@@ -45,8 +53,16 @@ def test_partial_rt60_end_to_end_through_analyze(tmp_path, cli):
 def test_interpolated_band_is_printed_as_used(tmp_path, cli):
     # log T linear in log f: 500 Hz half-way (in octaves) between 250 and 1000 Hz gets the
     # geometric mean of their values (closed form).
-    code, out, err = cli("synth", tmp_path / "i.wav", "--room", "10x8x4", "--length", "0.5",
-                         "--rt60", "250:2.0,1000:0.5")
+    code, out, err = cli(
+        "synth",
+        tmp_path / "i.wav",
+        "--room",
+        "10x8x4",
+        "--length",
+        "0.5",
+        "--rt60",
+        "250:2.0,1000:0.5",
+    )
     assert code == 0, err
     table = _printed_tail(out)
     assert table[500] == (pytest.approx(np.sqrt(2.0 * 0.5), abs=0.005), "interpolated")
@@ -56,8 +72,9 @@ def test_interpolated_band_is_printed_as_used(tmp_path, cli):
 
 def test_coinciding_source_and_receiver_refused_in_one_line(tmp_path, cli):
     out_wav = tmp_path / "x.wav"
-    code, _, err = cli("synth", out_wav, "--room", "8x6x3", "--source", "2,2,1.5",
-                       "--receiver", "2,2,1.5")
+    code, _, err = cli(
+        "synth", out_wav, "--room", "8x6x3", "--source", "2,2,1.5", "--receiver", "2,2,1.5"
+    )
     assert code == 2 and "apart" in err and "--source" in err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
     assert not out_wav.exists()
