@@ -160,3 +160,21 @@ def test_mixing_time_rule_and_its_replacement():
     t, note = mixing_time(RoomModel(30, 30, 3))
     V, S = 2700.0, 2 * 900 + 4 * 90
     assert t == pytest.approx((20 * V / S + 12) / 1000) and "flat" in note
+
+
+def test_late_energy_follows_barrons_revised_theory():
+    # Barron and Lee (1988), J. Acoust. Soc. Am. 84, 618–628 (constants from memory): the
+    # reflected energy arriving after time t (from emission) is (31200·T/V)·e^(−13.82·t/T)
+    # relative to a direct sound of 100/r², i.e. 312·T/V·e^(−13.82·t/T) relative to the
+    # direct sound's own 1/r² energy. Read from the end of the cross-fade on, where only the
+    # tail plays; within 0.5 dB, half the ISO 3382-1 JND of strength G (1 dB, Annex A, from
+    # memory).
+    room = RoomModel(20, 14, 8)
+    T = 1.2
+    rt = dict.fromkeys((63, 125, 250, 500, 1000, 2000, 4000, 8000), T)
+    for seed in (0, 1):
+        res = synthesize(room, (5, 7, 4), (14, 9, 1.2), rt=rt, seed=seed, air=False)
+        t1 = res.tail_start_s + 0.5 * res.mixing_time_s
+        late = np.sum(res.ir[int(t1 * FS) :, 0] ** 2)
+        expected = 312.0 * T / room.volume * np.exp(-13.82 * t1 / T)
+        assert 10 * np.log10(late / expected) == pytest.approx(0.0, abs=0.5)
