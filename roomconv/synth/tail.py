@@ -376,11 +376,19 @@ def diffuse_tail(
     nfft = 1 << int(np.ceil(np.log2(n_samples)))
     Z = np.fft.rfft(white, nfft)
     centres = narrow_centres(rate)
-    W = band_weights(np.fft.rfftfreq(nfft, 1.0 / rate), centres, 1.0 / NARROW_PER_OCTAVE)
+    freqs = np.fft.rfftfreq(nfft, 1.0 / rate)
     T = decay_curve(centres, nodes)
     t = np.arange(n_samples) / rate
     out = np.zeros(n_samples)
+    spec = np.zeros_like(Z)
     for i in range(centres.size):
-        sub = np.fft.irfft(Z * W[i], nfft)[:n_samples]
-        out += sub * np.exp(-3 * _LN10 * t / T[i])
+        # A narrow band's weight is zero outside its neighbours' centres: evaluate it on
+        # that slice only, so memory stays one spectrum however many bands there are.
+        lo = np.searchsorted(freqs, centres[i - 1]) if i > 0 else 0
+        hi = np.searchsorted(freqs, centres[i + 1], "right") if i + 1 < centres.size else None
+        sl = slice(lo, hi)
+        w = band_weights(freqs[sl], centres, 1.0 / NARROW_PER_OCTAVE)[i]
+        spec[:] = 0
+        spec[sl] = Z[sl] * w
+        out += np.fft.irfft(spec, nfft)[:n_samples] * np.exp(-3 * _LN10 * t / T[i])
     return out * np.sqrt(4 * np.pi * c / (volume * rate))
