@@ -15,8 +15,9 @@ from __future__ import annotations
 import functools
 
 import numpy as np
-from scipy.signal import butter, sosfreqz
+from scipy.signal import butter, fftconvolve, sosfreqz
 
+from ..signal import cosine_step
 from .air import speed_of_sound
 from .image_source import band_weights
 from .materials import OCTAVES
@@ -57,7 +58,8 @@ _GIVE_UP = 0.10
 
 def _moving_rms(x: np.ndarray, n: int) -> np.ndarray:
     k = np.ones(max(1, n)) / max(1, n)
-    return np.sqrt(np.maximum(np.convolve(x * x, k, mode="same"), 1e-30))
+    # FFT convolution: a direct one costs samples × window, minutes for long low bands.
+    return np.sqrt(np.maximum(fftconvolve(x * x, k, mode="same"), 1e-30))
 
 
 def band_noise(rate: int, n_samples: int, rng: np.random.Generator, bands=OCTAVES) -> np.ndarray:
@@ -141,6 +143,19 @@ def narrow_centres(rate: int) -> np.ndarray:
     below Nyquist."""
     n = int(np.floor(np.log2(0.5 * rate / _NARROW_LOW_HZ) * NARROW_PER_OCTAVE))
     return _NARROW_LOW_HZ * 2.0 ** (np.arange(n + 1) / NARROW_PER_OCTAVE)
+
+
+def _narrow_weight(freqs: np.ndarray, centres: np.ndarray, i: int) -> np.ndarray:
+    """Row ``i`` of ``band_weights(freqs, centres, 1 / NARROW_PER_OCTAVE)``, computed from its
+    own two crossovers only."""
+    lf = np.log2(np.maximum(freqs, 1e-6))
+    tr = 1.0 / NARROW_PER_OCTAVE
+    w = np.ones_like(lf)
+    if i > 0:
+        w *= cosine_step((lf - 0.5 * np.log2(centres[i - 1] * centres[i])) / tr + 0.5)
+    if i + 1 < centres.size:
+        w *= 1 - cosine_step((lf - 0.5 * np.log2(centres[i] * centres[i + 1])) / tr + 0.5)
+    return w
 
 
 @functools.lru_cache(maxsize=64)
@@ -387,7 +402,7 @@ def diffuse_tail(
         lo = np.searchsorted(freqs, centres[i - 1]) if i > 0 else 0
         hi = np.searchsorted(freqs, centres[i + 1], "right") if i + 1 < centres.size else None
         sl = slice(lo, hi)
-        w = band_weights(freqs[sl], centres, 1.0 / NARROW_PER_OCTAVE)[i]
+        w = _narrow_weight(freqs[sl], centres, i)
         spec[:] = 0
         spec[sl] = Z[sl] * w
         out += np.fft.irfft(spec, nfft)[:n_samples] * np.exp(-3 * _LN10 * t / T[i])
