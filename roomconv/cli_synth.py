@@ -137,18 +137,29 @@ def room_from_args(a):
 
 
 def prediction_table(result_or_room) -> str:
+    """Sabine and Eyring per band; for a synthesized result also the tail's T actually used,
+    where it comes from, and what an octave filter is expected to read from it."""
     from .synth.materials import OCTAVES
     from .synth.room import eyring, sabine
     if hasattr(result_or_room, "sabine"):
         sab, eyr = result_or_room.sabine, result_or_room.eyring
         used = result_or_room.used_rt
+        origin = getattr(result_or_room, "rt_origin", {}) or {}
+        reading = getattr(result_or_room, "expected_reading", {}) or {}
     else:
-        sab, eyr, used = sabine(result_or_room), eyring(result_or_room), None
-    lines = ["band Hz   Sabine s   Eyring s" + ("   tail s" if used else "")]
+        sab, eyr, used, origin, reading = sabine(result_or_room), eyring(result_or_room), \
+            None, {}, {}
+    head = "band Hz   Sabine s   Eyring s"
+    if used:
+        head += "   tail s  from            octave reading s"
+    lines = [head]
     for b in OCTAVES:
         row = f"{b:>7}   {sab[b]:8.2f}   {eyr[b]:8.2f}"
         if used:
-            row += f"   {used[b]:6.2f}"
+            row += f"   {used[b]:6.2f}  {origin.get(b, ''):<14}"
+            if b in reading:
+                off = abs(reading[b] / used[b] - 1) > 0.02
+                row += f"  {reading[b]:6.2f}" + ("  (see note)" if off else "")
         lines.append(row)
     return "\n".join(lines)
 
@@ -190,12 +201,15 @@ def cmd_synth(a):
                 "receiver": list(rcv), "stereo": a.stereo, "rt60": a.rt60, "seed": a.seed,
                 "rate": a.rate, "prediction": a.prediction,
                 "predicted_sabine_s": res.sabine, "predicted_eyring_s": res.eyring,
-                "tail_rt_s": res.used_rt, "mixing_time_s": res.mixing_time_s}
+                "tail_rt_s": res.used_rt, "tail_rt_origin": res.rt_origin,
+                "expected_octave_reading_s": res.expected_reading,
+                "mixing_time_s": res.mixing_time_s, "tail_start_s": res.tail_start_s}
     write_provenance(a.output, [], settings, guard=guard)
     _out(f"room {L:g} x {W:g} x {H:g} m, V = {room.volume:.0f} m³, S = {room.total_area:.0f} m²",
          a)
     _out(prediction_table(res), a)
-    _out(f"{res.image_count} image sources up to the mixing time {1000 * res.mixing_time_s:.0f} ms; "
+    _out(f"{res.image_count} image sources up to the tail (mixing time "
+         f"{1000 * res.mixing_time_s:.0f} ms, cross-fade from {1000 * res.tail_start_s:.1f} ms); "
          f"wrote {a.output} ({ir.shape[1]} channel(s), {ir.shape[0] / a.rate:.2f} s)", a)
     for n in res.notes:
         _out(f"note: {n}", a)
@@ -227,7 +241,9 @@ def _cfg_synth(p):
     p.add_argument("output", type=Path, help="IR WAV to write")
     _room_options(p)
     p.add_argument("--rt60", default=None, metavar="BAND:SECONDS,...",
-                   help="reverberation time of the tail per octave band (overrides prediction)")
+                   help="reverberation time of the tail per octave band (overrides the "
+                        "prediction; bands left out are interpolated between the given ones "
+                        "and held flat beyond them)")
     p.add_argument("--source", type=opt(position), default=None, metavar="X,Y,Z",
                    help="source position, m")
     p.add_argument("--receiver", type=opt(position), default=None, metavar="X,Y,Z",

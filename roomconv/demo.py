@@ -1,4 +1,4 @@
-"""``roomconv demo``: a complete room study of Linden Hall, a multi-purpose hall of our own
+"""``roomconv demo``: a complete room study of Quillmere Hall, a multi-purpose hall of our own
 invention, measured in simulation the way a consultant would measure a real one.
 
 The hall is synthesized (image sources + per-band tail); each of 2 sources × 3 microphones is
@@ -66,7 +66,7 @@ def demo_clip(name: str) -> Path | None:
     return Path(str(clip)) if clip.is_file() else None
 
 
-def linden_hall():
+def quillmere_hall():
     """26 × 15 × 6 m (2,340 m³): plastered walls, a glazed side wall, a timber-panelled stage
     wall and timber floor, 220 m² of upholstered seating (empty), plaster ceiling."""
     from .synth.room import Patch, RoomModel
@@ -111,12 +111,12 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     folders.make_folder(folders.folder(out))
     for sub in ("irs", "harmonics", "renders", "recordings"):
         folders.make_folder(folders.folder(out / sub))
-    room = linden_hall()
+    room = quillmere_hall()
     pred_e, pred_s = eyring(room), sabine(room)
     sweep = Sweep(rate=RATE, f_low=20, f_high=20000, duration=sc.sweep_s, level_dbfs=-12,
                   silence_pre=0.5, silence_post=2.5)
     playback = sweep_signal(sweep)
-    settings = {"scenario": "Linden Hall (fictional)", "quick": quick, "seed": SEED,
+    settings = {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED,
                 "sweep": sweep.to_dict()}
     n_pos = len(sc.sources) * len(sc.receivers)
     steps = n_pos * 2 + 3 + len(sc.clips) + 1
@@ -216,7 +216,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         sections = _report_sections(room, sweep, doc["quality"], comparison, renders, out)
         extra = {"Eyring prediction": {float(b): v for b, v in pred_e.items()},
                  "Sabine prediction": {float(b): v for b, v in pred_s.items()}}
-        page = html_report(study, title="Linden Hall — room acoustic study (demo)",
+        page = html_report(study, title="Quillmere Hall — room acoustic study (demo)",
                            sections=sections, extra_series=extra)
         write_text(out / "report.html", page, force=True)
         write_provenance(out / "report.html", [], settings, force=True)
@@ -256,10 +256,12 @@ def _report_sections(room, sweep, verdicts, comparison, renders, out):
     from .analysis.report import _html_table
     surf = [[s, room.surfaces[s], f"{room.surface_area(s):.0f}"] for s in room.surfaces]
     surf += [[f"{p.surface} (part)", p.material, f"{p.area_m2:.0f}"] for p in room.patches]
-    desc = (f"<p>Linden Hall is a fictional multi-purpose hall invented for this demo: "
+    desc = (f"<p>Quillmere Hall is a fictional multi-purpose hall invented for this demo: "
             f"{room.length:g} × {room.width:g} × {room.height:g} m, V = {room.volume:.0f} m³, "
             f"S = {room.total_area:.0f} m², 20 °C, 50 % RH. It is synthesized by roomconv's "
-            "image-source model with a per-band diffuse tail.</p>"
+            "image-source model with a diffuse tail whose decay time varies smoothly with "
+            "frequency and is fitted so that octave-band filters read the Eyring "
+            "prediction.</p>"
             + _html_table(["surface", "material", "area m²"], surf))
     chain = (f"<p>Exponential sweep {sweep.f_low:g} Hz–{sweep.f_high / 1000:g} kHz, "
              f"{sweep.duration:g} s at {sweep.level_dbfs:g} dBFS, {sweep.silence_post:g} s of "
@@ -272,10 +274,14 @@ def _report_sections(room, sweep, verdicts, comparison, renders, out):
              str(v["latency_samples"])] for n, v in verdicts.items()]
     quality = _html_table(["position", "verdict", "INR dB", "clipped", "latency removed"],
                           rows)
-    comp = _html_table(["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
-                       [[f"{c['band_hz']:g}", f"{c['measured_t30_s']:.2f}",
-                         f"{c['eyring_s']:.2f}", f"{c['sabine_s']:.2f}",
-                         f"{c['deviation_pct']:+.1f}"] for c in comparison])
+    comp = ("<p>T30 averaged over the measured positions against Eyring's formula per octave "
+            "band (deviation relative to Eyring). The synthetic hall decays at that prediction "
+            "as an octave filter reads it, so the deviation shows what the measuring chain "
+            "(sweep, distortion, noise, deconvolution) and the few positions add; the ISO "
+            "3382-1 just-noticeable difference of T is 5 %.</p>") + _html_table(
+        ["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
+        [[f"{c['band_hz']:g}", f"{c['measured_t30_s']:.2f}", f"{c['eyring_s']:.2f}",
+          f"{c['sabine_s']:.2f}", f"{c['deviation_pct']:+.1f}"] for c in comparison])
     rend = "<ul>" + "".join(
         f"<li>{html.escape(str(p.relative_to(out)))}: peak {r.peak_dbfs:+.1f} dBFS, true peak "
         f"{r.true_peak_dbtp:+.1f} dBTP</li>" for p, r in renders) + "</ul>"
@@ -299,7 +305,7 @@ def _summary(doc, seconds, out) -> dict:
 
 
 def _summary_lines(summary, doc):
-    lines = ["", "Linden Hall (demo) — headline figures, mid-frequency (500 Hz / 1 kHz)",
+    lines = ["", "Quillmere Hall (demo) — headline figures, mid-frequency (500 Hz / 1 kHz)",
              f"{'position':<10}{'T30 s':>8}{'EDT s':>8}{'C80 dB':>8}{'D50':>7}  quality"]
     fmt = lambda v, f: "—" if v is None else f.format(v)  # noqa: E731
     for name, v in summary["positions"].items():
