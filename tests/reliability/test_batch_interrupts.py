@@ -78,7 +78,7 @@ def test_resume_verifies_outputs_and_redoes_damaged_or_unvouched_ones(tmp_path):
     ir = write_noise(tmp_path / "room.wav", 0.2, seed=7, decay=20.0)
     out = tmp_path / "wet"
     args = ["batch", *drys, "--ir", ir, "--out-dir", out, "--workers", 1, "--subtype",
-            "DOUBLE", "--quiet"]
+            "DOUBLE", "--keep-ir-level", "--quiet"]  # compared with the raw convolution
     code, _, err = run_cli(*args)
     assert code == 0, err
     prov = json.loads((out / "t0__room.provenance.json").read_text())
