@@ -14,6 +14,11 @@ def cmd_analyze(a):
     from .analysis.report import csv_text, html_report, terminal_report
     from .analysis.study import analyse_files, parse_calibration
     from .audio import audio_info
+    if a.study is not None:
+        return _analyze_study(a)
+    if not a.irs:
+        from .errors import InputError
+        raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
     inputs = list(a.irs)
     report_file = a.report / "report.html" if a.report is not None else None
     for p in (a.json, a.csv, report_file):
@@ -46,9 +51,55 @@ def cmd_analyze(a):
     return 2 if study.errors else 0
 
 
+def _analyze_study(a):
+    """``analyze --study``: the responses a study file names; the report as HTML and PDF."""
+    from .analysis.report import csv_text, terminal_report
+    from .analysis.study import parse_calibration
+    from .errors import InputError
+    from .report import analyse_study, write_report
+    from .report.pdf import pdf_engine_problem
+    from .study import load_study
+    if a.irs:
+        raise InputError("analyze: give either IR.wav files or --study, not both (the study "
+                         "file lists its responses)")
+    st = load_study(a.study)
+    inputs = [a.study] + [r.file for r in st.responses]
+    for p in (a.json, a.csv):
+        if p is not None:
+            check_output(p, force=a.force, inputs=inputs)
+    if a.report is not None:
+        problem = pdf_engine_problem()
+        if problem is not None:
+            raise InputError(f"--report: cannot write the PDF: {problem}")
+        a.report.mkdir(parents=True, exist_ok=True)
+        for name in ("report.html", "report.pdf"):
+            check_output(a.report / name, force=a.force, inputs=inputs)
+    cal = parse_calibration(a.calibration)
+    with Progress(len(st.responses), "analysing", enabled=None if not a.quiet else False) as bar:
+        res = analyse_study(st, bands=a.bands, filtering=a.filtering, calibration=cal,
+                            progress=bar)
+    doc = res.analysis.document
+    _out(terminal_report(doc), a)
+    g = doc["grade"]
+    _out(f"measurement grade (ISO 3382-2): {g['name'] or 'below survey'}", a)
+    if a.json is not None:
+        write_json(a.json, doc, force=a.force, inputs=inputs)
+        _out(f"wrote {a.json}", a)
+    if a.csv is not None:
+        write_text(a.csv, csv_text(doc), force=a.force, inputs=inputs)
+        _out(f"wrote {a.csv}", a)
+    if a.report is not None:
+        for p in write_report(res, a.report, force=a.force, inputs=inputs):
+            _out(f"wrote {p}", a)
+    return 2 if res.analysis.errors else 0
+
+
 def _cfg(p):
-    p.add_argument("irs", nargs="+", type=Path, metavar="IR.wav",
-                   help="impulse responses; every channel is its own position")
+    p.add_argument("irs", nargs="*", type=Path, metavar="IR.wav",
+                   help="impulse responses; every channel is its own position (or --study)")
+    p.add_argument("--study", type=Path, default=None, metavar="STUDY.toml",
+                   help="a study file (see 'roomconv study init'): its responses, positions "
+                        "and details; with --report, DIR/report.html and DIR/report.pdf")
     p.add_argument("--bands", choices=("octave", "third"), default="octave",
                    help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands")
     p.add_argument("--json", type=Path, default=None, metavar="OUT.json",
