@@ -191,9 +191,8 @@ class _Reader:
         elif kind is dict:
             if not isinstance(v, dict):
                 self.fail(k, "is not a table", todo or "see 'roomconv study init'")
-        elif kind is list:
-            if not isinstance(v, list):
-                self.fail(k, f"{v!r} is not a list", todo or "write [..., ...]")
+        elif kind is list and not isinstance(v, list):
+            self.fail(k, f"{v!r} is not a list", todo or "write [..., ...]")
         if check is not None:
             problem = check(v)
             if problem:
@@ -355,7 +354,8 @@ def parse_study(text: str, path) -> StudyFile:
         if (s, c, f, ch) in combos:
             r.fail("file", "the same response is listed twice", "remove one of them")
         combos.add((s, c, f, ch))
-        responses.append(Response(s, c, f, ch, None if q is None else _path(base, q, r, "quality_file")))
+        qf = None if q is None else _path(base, q, r, "quality_file")
+        responses.append(Response(s, c, f, ch, qf))
 
     targets = None
     if "targets" in doc:

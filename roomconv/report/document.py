@@ -8,8 +8,15 @@ import math
 
 import numpy as np
 
-from ..analysis.report import (HEADERS, SINGLE_NUMBER_NAMES, _html_table, _metrics, _pm,
-                               band_label, table_rows)
+from ..analysis.report import (
+    HEADERS,
+    SINGLE_NUMBER_NAMES,
+    _html_table,
+    _metrics,
+    _pm,
+    band_label,
+    table_rows,
+)
 from ..analysis.spatial import SINGLE_NUMBERS
 from . import figures as F
 from .inputs import StudyResults
