@@ -355,7 +355,7 @@ def report_html(res: StudyResults) -> str:
                "INR (common practice, after ISO 3382-1 evaluation ranges): EDT 20 dB, "
                "T20 35 dB, T30 45 dB.</p>")
     for p in doc["positions"]:
-        ws = [f"{band_label(r['band_hz'])}: {w}" for r in p["bands"] + [p["wideband"]]
+        ws = [w for r in p["bands"] + [p["wideband"]]
               for w in r["warnings"]]
         ws += [f"measurement: {w}" for w in doc["quality"].get(p["position"], {}).get(
             "warnings", [])]

@@ -187,7 +187,8 @@ def frequency_response_figure(irs: dict):
         ax.semilogx(f, db - top, lw=1.0, color=POSITION_COLOURS[n % len(POSITION_COLOURS)],
                     label=label)
     ax.set_xlim(20, 20000)
-    ax.set_ylim(-60, 3)
+    low = min(float(np.min(db[(f >= 31.5) & (f <= 16000)])) for f, db in curves.values())
+    ax.set_ylim(max(-60.0, np.floor((low - top) / 10) * 10 - 5), 3)
     ax.set_xticks([31.5, 63, 125, 250, 500, 1000, 2000, 4000, 8000, 16000])
     ax.set_xticklabels(["31.5", "63", "125", "250", "500", "1k", "2k", "4k", "8k", "16k"],
                        fontsize=7)
