@@ -283,9 +283,16 @@ rate_hz = {sweep.rate}
 {pts}{resp}
 [targets]
 basis = "t30"
-reverberation_s = {{ "125" = 1.6, "250" = 1.5, "500" = 1.4, "1000" = 1.4, "2000" = 1.4, "4000" = 1.3 }}
 tolerance_pct = [-15, 15]
 source = "the (fictional) client's brief"
+
+[targets.reverberation_s]
+"125" = 1.6
+"250" = 1.5
+"500" = 1.4
+"1000" = 1.4
+"2000" = 1.4
+"4000" = 1.3
 """
     write_text(out / "study.toml", text, force=True)
     problem = pdf_engine_problem()
