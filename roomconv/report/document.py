@@ -326,7 +326,8 @@ def report_html(res: StudyResults) -> str:
                    f"{e(p['source'])}, receiver {e(p['receiver'])} ({e(p['file'])}, channel "
                    f"{p['channel']})</h3>")
         out.append(_html_table(header, table_rows(p, metrics)) + "</div>")
-        band_res, _wide, rate = res.analysis.curves[p["position"]]  # type: ignore[attr-defined]
+        band_res, _wide, rate = res.analysis.curves[  # type: ignore[attr-defined]
+            (p["file"], p["channel"])]
         h, _ = res.irs[p["position"]]
         out.append(_figure(F.position_figure(h, rate, band_res, p["position"]),
                            f"energy-time and decay curves {p['position']}",

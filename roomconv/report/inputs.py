@@ -86,9 +86,10 @@ def analyse_study(study: StudyFile, *, bands: str = "octave", filtering: str = "
     for p in doc["positions"]:
         label = p["file"]
         r = by_label[label]
-        curves[label] = result.curves[(label, 1)]
         p.update({"position": label, "source": r.source, "receiver": r.receiver,
                   "file": study.display_path(r.file), "channel": r.channel})
+        # Keyed as everywhere else, by the document's (file, channel).
+        curves[(p["file"], p["channel"])] = result.curves[(label, 1)]
     result.curves = curves
     doc["study"] = study.as_dict()
     g = measurement_grade(used_combinations(doc))

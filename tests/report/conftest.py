@@ -86,7 +86,7 @@ def write_study(folder, text: str = STUDY):
     """The study file and its three responses in ``folder``; returns the study path."""
     rng = np.random.default_rng(7)
     (folder / "irs").mkdir(exist_ok=True)
-    t = np.arange(int(1.3 * RATE)) / RATE
+    t = np.arange(int(1.1 * RATE)) / RATE
     for i, rt in enumerate(TIMES, 1):
         h = rng.standard_normal(t.size) * np.exp(-6.9078 * t / rt)
         h[0] = 4.0

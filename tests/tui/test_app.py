@@ -177,3 +177,29 @@ async def test_measure_tab_against_a_simulated_room(tmp_path):
         await settle(app, pilot)
         assert any("caution" in n.message for n in app._notifications)
         assert "CAUTION" in screen_text(app)
+
+
+@pytest.mark.slow
+async def test_analyze_tab_writes_the_study_report(tmp_path):
+    # The same study and report as `roomconv analyze --study`; the PDF's file header is
+    # "%PDF-" (ISO 32000-1:2008, 7.5.2).
+    from roomconv.report.pdf import pdf_engine_problem
+    from tests.report.conftest import write_study
+    if pdf_engine_problem() is not None:
+        pytest.skip(f"no PDF engine here: {pdf_engine_problem()}")
+    study = write_study(tmp_path)
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 70)) as pilot:
+        await pilot.press("a")
+        app.query_one("#an-study").value = str(study)
+        app.query_one("#an-export-dir").value = str(tmp_path / "out")
+        await press(app, pilot, "#an-study-report")
+        await settle(app, pilot)
+        assert (tmp_path / "out" / "report.pdf").read_bytes().startswith(b"%PDF-")
+        assert "Harbour Room" in (tmp_path / "out" / "report.html").read_text()
+        assert app.query_one("#an-table").row_count > 0
+        before = (tmp_path / "out" / "report.pdf").read_bytes()
+        await press(app, pilot, "#an-study-report")         # never over an earlier report
+        await settle(app, pilot)
+        assert any("exists already" in n.message for n in app._notifications)
+        assert (tmp_path / "out" / "report.pdf").read_bytes() == before
