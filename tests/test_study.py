@@ -81,3 +81,17 @@ def test_relative_paths_follow_the_study_file_not_the_working_folder(tmp_path, m
 def test_missing_study_file_is_refused(tmp_path):
     with pytest.raises(InputError, match="study file not found"):
         load_study(tmp_path / "nope.toml")
+
+
+def test_check_finds_the_responses_and_refuses_missing_ones(tmp_path, cli):
+    path = write_study(tmp_path)
+    code, out, _ = cli("study", "check", path)
+    assert code == 0 and "3 response(s)" in out
+    (tmp_path / "irs" / "S1R2.wav").unlink()
+    code, _, err = cli("study", "check", path)
+    assert code == 2 and "irs/S1R2.wav" in err
+
+
+def test_init_wants_a_toml_name(tmp_path, cli):
+    code, _, err = cli("study", "init", tmp_path / "study.txt")
+    assert code == 2 and ".toml" in err and not (tmp_path / "study.txt").exists()
