@@ -192,7 +192,7 @@ def _figure(fig, alt: str, caption: str) -> str:
 
 def report_html(res: StudyResults) -> str:
     """The whole report as one self-contained HTML page (no external requests)."""
-    st, doc = res.study, res.analysis.document  # type: ignore[attr-defined]
+    st, doc = res.study, res.analysis.document
     room = st.room
     mids = _mid_text(doc)
     g = doc["grade"]
@@ -326,8 +326,7 @@ def report_html(res: StudyResults) -> str:
                    f"{e(p['source'])}, receiver {e(p['receiver'])} ({e(p['file'])}, channel "
                    f"{p['channel']})</h3>")
         out.append(_html_table(header, table_rows(p, metrics)) + "</div>")
-        band_res, _wide, rate = res.analysis.curves[  # type: ignore[attr-defined]
-            (p["file"], p["channel"])]
+        band_res, _wide, rate = res.analysis.curves[(p["file"], p["channel"])]
         h, _ = res.irs[p["position"]]
         out.append(_figure(F.position_figure(h, rate, band_res, p["position"]),
                            f"energy-time and decay curves {p['position']}",

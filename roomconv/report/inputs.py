@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..analysis.study import Study, analyse_arrays
 from ..audio import audio_info, read_audio, read_json
 from ..errors import InputError
 from ..study import StudyFile
@@ -18,8 +19,8 @@ class StudyResults:
     """A study file, its analysis and the raw responses (for the energy–time curves)."""
 
     study: StudyFile
-    #: :class:`roomconv.analysis.study.Study`, its document annotated (see :func:`analyse_study`)
-    analysis: object
+    #: The analysis, its document annotated (see :func:`analyse_study`)
+    analysis: Study
     #: position label → (response samples, rate)
     irs: dict[str, tuple[np.ndarray, int]] = field(default_factory=dict)
     #: position label → the quality JSON of the measurement, when the study names one
@@ -67,7 +68,6 @@ def analyse_study(study: StudyFile, *, bands: str = "octave", filtering: str = "
     the file and channel as the study gives them; the document gains ``study`` (the study
     file's data), ``grade`` and ``quality``.
     """
-    from ..analysis.study import analyse_arrays
     check_study_inputs(study)
     items, irs, quality, by_label = [], {}, {}, {}
     for r in study.responses:
