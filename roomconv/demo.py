@@ -219,7 +219,7 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         write_provenance(out / "report.html", [], settings)
         written.append(out / "report.html")
         # 6. The client report (HTML and PDF) from a study file, as a consultant sends it.
-        written += _client_report(out, room, sc, sweep, qualities)
+        written += _client_report(out, room, sc, sweep, qualities, log)
         bar.update()
 
     summary = _summary(doc, time.monotonic() - t_start, out)
@@ -233,9 +233,10 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     return summary
 
 
-def _client_report(out: Path, room, sc: Scenario, sweep, qualities: dict) -> list[Path]:
-    """Write the demo's study file and quality files, then report/report.html and .pdf."""
-    from .report import analyse_study, write_report
+def _client_report(out: Path, room, sc: Scenario, sweep, qualities: dict, log) -> list[Path]:
+    """Write the demo's study file and quality files, then report/report.html and .pdf (the
+    HTML alone, saying why, where no PDF engine is installed)."""
+    from .report import analyse_study, report_html, write_report
     from .report.pdf import pdf_engine_problem
     from .study import load_study
     for name, q in qualities.items():
@@ -295,11 +296,13 @@ source = "the (fictional) client's brief"
 "4000" = 1.3
 """
     write_text(out / "study.toml", text, force=True)
-    problem = pdf_engine_problem()
-    if problem is not None:
-        raise InputError(f"demo: cannot write the PDF report: {problem}")
     res = analyse_study(load_study(out / "study.toml"))
     (out / "report").mkdir(exist_ok=True)
+    problem = pdf_engine_problem()
+    if problem is not None:
+        log(f"note: report/report.pdf not written: {problem}")
+        page = write_text(out / "report" / "report.html", report_html(res), force=True)
+        return [out / "study.toml", page]
     return [out / "study.toml"] + write_report(res, out / "report", force=True)
 
 

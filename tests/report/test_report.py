@@ -186,3 +186,13 @@ def test_report_in_a_headless_browser(study_run, tmp_path):
                     (folder / "report" / "report.html").as_uri()],
                    capture_output=True, timeout=120, check=True)
     assert _png_size(shot.read_bytes()) == (1280, 900)
+
+
+def test_without_a_pdf_engine_the_report_is_refused_before_any_work(tmp_path, cli, monkeypatch):
+    import roomconv.report.pdf as pdf
+    monkeypatch.setattr(pdf, "pdf_engine_problem", lambda: "WeasyPrint is not installed")
+    path = write_study(tmp_path)
+    code, _, err = cli("analyze", "--study", path, "--report", tmp_path / "rep",
+                       "--json", tmp_path / "r.json")
+    assert code == 2 and "--report" in err and "WeasyPrint" in err
+    assert not (tmp_path / "r.json").exists() and not (tmp_path / "rep").exists()
