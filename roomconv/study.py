@@ -9,6 +9,8 @@ relative to the study file. No numerics here: the result is a tree of frozen dat
 from __future__ import annotations
 
 import datetime as _dt
+import json
+import os
 import tomllib
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -16,7 +18,8 @@ from pathlib import Path
 from .errors import InputError
 
 __all__ = ["StudyFile", "Room", "Equipment", "SweepSettings", "Point", "Response",
-           "Targets", "load_study", "parse_study", "template_text", "STATES"]
+           "Targets", "load_study", "parse_study", "template_text", "session_study_text",
+           "STATES"]
 
 STATES = ("unoccupied", "occupied")
 TARGET_BASES = ("t20", "t30", "edt")
@@ -242,7 +245,7 @@ def _path(base: Path, text: str, r: _Reader, k: str) -> Path:
     if not text.strip():
         r.fail(k, "is empty", "give the response file's path, relative to the study file")
     p = Path(text).expanduser()
-    return p if p.is_absolute() else (base / p)
+    return Path(os.path.normpath(p if p.is_absolute() else base / p))
 
 
 def _points(doc: dict, name: str, src: str) -> tuple[Point, ...]:
@@ -410,14 +413,48 @@ def load_study(path) -> StudyFile:
     return parse_study(text, p)
 
 
+_POSITIONS_NOTE = ("# Positions: plan coordinates in metres from a corner you name in the "
+                   "notes,\n# and the height above the floor.")
+
+
 def template_text(title: str = "Acoustic measurements") -> str:
     """A commented study file to fill in; it loads as it stands once its files exist."""
+    return _head(title) + _TEMPLATE_POSITIONS.format(_POSITIONS_NOTE=_POSITIONS_NOTE)
+
+
+def _toml_str(text: str) -> str:
+    # JSON's string escapes are all valid in a TOML basic string.
+    return json.dumps(str(text), ensure_ascii=False)
+
+
+def session_study_text(title: str, positions, folder) -> str:
+    """A study file for responses measured in one session: each (name, file, quality file
+    or None) becomes a receiver of one source S1, with paths relative to ``folder`` (where
+    the study file goes). Coordinates are left for the user to fill in."""
+    folder = Path(folder)
+    parts = [_head(title).rstrip("\n"), "", _POSITIONS_NOTE,
+             "# Written from a workbench session: every response is assigned to source S1;",
+             "# correct the source ids where the source was moved.",
+             "[[sources]]", 'id = "S1"', ""]
+    for name, _file, _q in positions:
+        parts += ["[[receivers]]", f"id = {_toml_str(name)}", ""]
+    for name, file, quality in positions:
+        parts += ["[[responses]]", 'source = "S1"', f"receiver = {_toml_str(name)}",
+                  f"file = {_toml_str(os.path.relpath(Path(file).resolve(), folder.resolve()))}"]
+        if quality is not None:
+            rel = os.path.relpath(Path(quality).resolve(), folder.resolve())
+            parts.append(f"quality_file = {_toml_str(rel)}")
+        parts.append("")
+    return "\n".join(parts)
+
+
+def _head(title: str) -> str:
     today = _dt.date.today().isoformat()
     return f'''# Room acoustic measurement study, read by `roomconv analyze --study FILE`.
 # Paths are relative to this file. Keys not listed here are refused, so a typo is caught.
 
 [study]
-title = "{title}"
+title = {_toml_str(title)}
 client = ""                 # who the report is for
 project_number = ""
 author = ""                 # who measured and wrote the report
@@ -452,9 +489,11 @@ level_dbfs = -12.0
 repeats = 2
 silence_s = 3.0
 rate_hz = 48000
+'''
 
-# Positions: plan coordinates in metres from a corner you name in the notes, and the
-# height above the floor.
+
+_TEMPLATE_POSITIONS = '''
+{_POSITIONS_NOTE}
 [[sources]]
 id = "S1"
 xy_m = [2.0, 4.0]

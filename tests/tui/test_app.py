@@ -203,3 +203,26 @@ async def test_analyze_tab_writes_the_study_report(tmp_path):
         await settle(app, pilot)
         assert any("exists already" in n.message for n in app._notifications)
         assert (tmp_path / "out" / "report.pdf").read_bytes() == before
+
+
+async def test_session_saved_as_a_study_file_loads_back(tmp_path):
+    from roomconv.study import load_study
+    a = decaying_ir(tmp_path / "P1.wav", seed=1)
+    b = decaying_ir(tmp_path / "P2.wav", seed=2)
+    (tmp_path / "P1.quality.json").write_text("{}")
+    app = RoomconvApp()
+    async with app.run_test(size=(160, 70)) as pilot:
+        await pilot.press("a")
+        app.session += [{"name": "P1", "file": a, "quality": {}},
+                        {"name": "P2", "file": b, "quality": {}}]
+        app.query_one("#an-export-dir").value = str(tmp_path / "out")
+        await press(app, pilot, "#an-save-study")
+        path = tmp_path / "out" / "study.toml"
+        assert app.query_one("#an-study").value == str(path)
+        study = load_study(path)          # paths relative to the study file
+        assert [(r.receiver, r.file) for r in study.responses] == [("P1", a), ("P2", b)]
+        assert study.responses[0].quality_file == tmp_path / "P1.quality.json"
+        before = path.read_text()
+        await press(app, pilot, "#an-save-study")          # never over an earlier file
+        assert any("exists already" in n.message for n in app._notifications)
+        assert path.read_text() == before

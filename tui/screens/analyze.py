@@ -41,6 +41,7 @@ class AnalyzePane(VerticalScroll):
             yield Label("Study file")
             yield Input(placeholder="study.toml (roomconv study init)", id="an-study")
             yield Button("Study report HTML+PDF", id="an-study-report")
+            yield Button("Save session as study", id="an-save-study")
         yield Static("", id="an-status", classes="status")
         yield DataTable(id="an-table")
         yield Static("", id="an-warnings", classes="status")
@@ -82,6 +83,32 @@ class AnalyzePane(VerticalScroll):
             return
         self.study = study
         app.call_from_thread(self.show, study)
+
+    @on(Button.Pressed, "#an-save-study")
+    def save_session_study(self) -> None:
+        """The session's positions as a study file (the Study file path, else study.toml in
+        the export folder); an existing file is never replaced."""
+        from roomconv.audio import write_text
+        from roomconv.study import session_study_text
+        if not self.app.session:
+            self.app.notify("no positions measured yet in this session", severity="warning")
+            return
+        box = self.query_one("#an-study", Input)
+        path = Path(box.value.strip() or
+                    Path(self.query_one("#an-export-dir", Input).value) / "study.toml")
+        positions = []
+        for p in self.app.session:
+            q = Path(p["file"]).with_name(f"{p['name']}.quality.json")
+            positions.append((p["name"], p["file"], q if q.is_file() else None))
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            write_text(path, session_study_text("Workbench session", positions, path.parent))
+        except (OSError, RoomconvError) as exc:
+            self.app.notify(str(exc), severity="error", title="Save session")
+            return
+        box.value = str(path)
+        self.app.notify(f"wrote {path}: fill in the room and positions, then make the report",
+                        title="Save session")
 
     @on(Button.Pressed, "#an-study-report")
     def study_report_pressed(self) -> None:
