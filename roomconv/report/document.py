@@ -74,8 +74,8 @@ def single_number_rows(doc: dict) -> list[dict]:
 
     The uncertainty of a mean of band values is the root-sum-square of the bands'
     uncertainties divided by their count, the bands' decays being independent (JCGM 100:2008,
-    5.1.2, propagation for uncorrelated inputs). The spread is the standard deviation of the
-    positions' own mid-frequency values.
+    5.1.2, propagation for uncorrelated inputs; from memory). The spread is the standard
+    deviation of the positions' own mid-frequency values.
     """
     mids = _mids(doc)
     avg = {r["band_hz"]: r for r in doc["average"]["bands"]}
@@ -251,6 +251,7 @@ def report_html(res: StudyResults) -> str:
                "ISO 3382-2)" + (f": {e(', '.join(sweep_bits))}" if sweep_bits else "") + ".</li>")
     out.append(f"<li>{e(s['bands'].capitalize())} band filters per IEC 61260-1; "
                f"{e(s['band_filtering'])}.</li>")
+    # Evaluation ranges and time limits: ISO 3382-1:2009, A.2 and A.3 (from memory).
     out.append(f"<li>Decay curves: {e(s['decay_method'])}. Evaluation ranges (ISO 3382-1): "
                "EDT 0 to −10 dB, T20 −5 to −25 dB, T30 −5 to −35 dB; C50, C80 and D50 at 50 ms "
                "and 80 ms; onset: " + e(s["onset"]) + ".</li>")

@@ -72,7 +72,7 @@ def test_demo_writes_the_study_report_as_html_and_pdf(demo):
     from roomconv.study import load_study
     study = load_study(demo / "study.toml")
     assert len(study.responses) == len(QUICK.sources) * len(QUICK.receivers)
-    # ISO 32000-1:2008, 7.5.2: a PDF file begins with "%PDF-".
+    # ISO 32000-1:2008, 7.5.2 (from memory): a PDF file begins with "%PDF-".
     assert (demo / "report" / "report.pdf").read_bytes().startswith(b"%PDF-")
     page = (demo / "report" / "report.html").read_text()
     assert "Linden Hall" in page and "Measurement grade (ISO 3382-2)" in page

@@ -35,7 +35,8 @@ def _doc(t500=(1.0, 1.2), t1k=(1.1, 1.3), u=(0.03, 0.04)):
 def test_single_number_uncertainty_and_spread():
     (row,) = single_number_rows(_doc())
     assert row["value"] == pytest.approx(1.15)
-    # Mean of two uncorrelated band values: u = sqrt(u1² + u2²)/2 (JCGM 100:2008, 5.1.2).
+    # Mean of two uncorrelated band values: u = sqrt(u1² + u2²)/2 (JCGM 100:2008, 5.1.2,
+    # from memory).
     assert row["uncertainty"] == pytest.approx(math.sqrt(0.03**2 + 0.04**2) / 2)
     # Positions' own mid values 1.05 and 1.25: sample standard deviation 0.1414 (numpy's
     # std with ddof=1 of the same two numbers).

@@ -17,12 +17,13 @@ from roomconv.safety import caution_text
 
 from .conftest import TIMES, write_study
 
-#: PNG signature, ISO/IEC 15948:2004 (PNG), 5.2.
+#: PNG signature, ISO/IEC 15948:2004 (PNG), 5.2 (from memory).
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
 
 def _png_size(data: bytes) -> tuple[int, int]:
-    # IHDR is the first chunk: width and height as big-endian 32-bit integers (PNG, 11.2.2).
+    # IHDR is the first chunk: width and height as big-endian 32-bit integers (PNG, 11.2.2,
+    # from memory).
     assert data[:8] == PNG_SIGNATURE
     return struct.unpack(">II", data[16:24])
 
@@ -44,7 +45,7 @@ def test_report_files_and_numbers(study_run):
     assert doc["study"]["room"]["name"] == "Harbour Room"
     assert {p["position"] for p in doc["positions"]} == {"S1-R1", "S1-R2", "S1-R3"}
     pdf = (folder / "report" / "report.pdf").read_bytes()
-    assert pdf.startswith(b"%PDF-")           # ISO 32000-1:2008, 7.5.2 (file header)
+    assert pdf.startswith(b"%PDF-")           # ISO 32000-1:2008, 7.5.2, from memory
 
 
 def test_html_is_self_contained_and_ends_with_the_limits_not_a_caution(study_run):
@@ -131,9 +132,9 @@ needs_browser = pytest.mark.skipif(CHROMIUM is None, reason="no headless browser
                                    "chromium); .ci/run installs it where it can")
 
 # Observes the page from inside: errors reported to the console or the window, every image
-# decoded (complete with a natural width, HTML Living Standard, the img element), and the
-# resources the page fetched (data: URIs are not fetched, so none is expected; W3C Resource
-# Timing lists every fetched URL).
+# decoded (complete with a natural width: HTML Living Standard, the img element, from
+# memory), and the resources the page fetched (data: URIs are not fetched, so none is
+# expected; W3C Resource Timing lists every fetched URL, from memory).
 _PROBE = """<script>
 window.__errs=[];window.addEventListener('error',e=>__errs.push(String(e.message||
 (e.target&&e.target.src)||'error')),true);

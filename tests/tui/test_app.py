@@ -182,7 +182,7 @@ async def test_measure_tab_against_a_simulated_room(tmp_path):
 @pytest.mark.slow
 async def test_analyze_tab_writes_the_study_report(tmp_path):
     # The same study and report as `roomconv analyze --study`; the PDF's file header is
-    # "%PDF-" (ISO 32000-1:2008, 7.5.2).
+    # "%PDF-" (ISO 32000-1:2008, 7.5.2, from memory).
     from roomconv.report.pdf import pdf_engine_problem
     from tests.report.conftest import write_study
     if pdf_engine_problem() is not None:
