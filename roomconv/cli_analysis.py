@@ -46,7 +46,7 @@ def cmd_analyze(a):
         write_text(a.csv, csv_text(doc), force=a.force, inputs=inputs)
         _out(f"wrote {a.csv}", a)
     if report_file is not None:
-        write_text(report_file, html_report(study), force=a.force, inputs=inputs)
+        write_text(report_file, html_report(study, cautions=False), force=a.force, inputs=inputs)
         _out(f"wrote {report_file}", a)
     return 2 if study.errors else 0
 

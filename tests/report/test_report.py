@@ -197,3 +197,13 @@ def test_without_a_pdf_engine_the_report_is_refused_before_any_work(tmp_path, cl
                        "--json", tmp_path / "r.json")
     assert code == 2 and "--report" in err and "WeasyPrint" in err
     assert not (tmp_path / "r.json").exists() and not (tmp_path / "rep").exists()
+
+
+def test_plain_report_of_results_does_not_end_with_the_playback_caution(tmp_path, cli):
+    write_study(tmp_path)
+    code, _, _ = cli("analyze", tmp_path / "irs" / "S1R1.wav", tmp_path / "irs" / "S1R2.wav",
+                     "--report", tmp_path / "rep", "--quiet")
+    assert code == 0
+    page = (tmp_path / "rep" / "report.html").read_text()
+    assert "Reverberation time T30, mean of 500 Hz and 1 kHz" in page
+    assert caution_text().strip()[:60] not in page and page.rstrip().endswith("</html>")
