@@ -47,6 +47,8 @@ td.na { color: #8a97a3; }
 .flagtext { color: #8a3a0f; }
 figure { margin: 0.6em 0; page-break-inside: avoid; }
 figure img { width: 100%; } figcaption { font-size: 8.5pt; color: #556; }
+figure.narrow img { width: 62%; }
+.words td { text-align: left; }
 ul.numbers li { margin: 0.2em 0; }
 .note { font-size: 9pt; color: #445; }
 .grade { font-size: 13pt; font-weight: 700; }
@@ -185,8 +187,9 @@ def _dl(pairs) -> str:
     return "<dl>" + "".join(f"<dt>{e(k)}</dt><dd>{e(v)}</dd>" for k, v in pairs if v) + "</dl>"
 
 
-def _figure(fig, alt: str, caption: str) -> str:
-    return (f"<figure><img alt='{e(alt)}' src='{F.png_uri(fig)}'>"
+def _figure(fig, alt: str, caption: str, narrow: bool = False) -> str:
+    cls = " class='narrow'" if narrow else ""
+    return (f"<figure{cls}><img alt='{e(alt)}' src='{F.png_uri(fig)}'>"
             f"<figcaption>{e(caption)}</figcaption></figure>")
 
 
@@ -267,7 +270,8 @@ def report_html(res: StudyResults) -> str:
         ("source", eq.source, eq.source_serial), ("microphone", eq.microphone,
                                                   eq.microphone_serial),
         ("interface", eq.interface, eq.interface_serial))]
-    out.append("<h3>Equipment</h3>" + _html_table(["item", "type", "serial"], eq_rows))
+    out.append("<h3>Equipment</h3><div class='words'>"
+               + _html_table(["item", "type", "serial"], eq_rows) + "</div>")
     cond = [("Room", room.name), ("Use", room.use),
             ("Volume", _fmt(room.volume, "{:.0f} m³", "")),
             ("Surface area", _fmt(room.surface, "{:.0f} m²", "")),
@@ -315,7 +319,8 @@ def report_html(res: StudyResults) -> str:
                        "loudest position."))
     plan = F.plan_figure(st)
     if plan is not None:
-        out.append(_figure(plan, "plan of positions", "Source and receiver positions."))
+        out.append(_figure(plan, "plan of positions", "Source and receiver positions.",
+                           narrow=True))
     pos_rows = [[p.id, "source", _fmt(p.x_m, "{:.2f}"), _fmt(p.y_m, "{:.2f}"),
                  _fmt(p.height_m, "{:.2f}"), p.note] for p in st.sources]
     pos_rows += [[p.id, "receiver", _fmt(p.x_m, "{:.2f}"), _fmt(p.y_m, "{:.2f}"),
