@@ -447,7 +447,7 @@ def _load_plugins() -> None:
     """Import the modules that register further sub-commands."""
     import importlib
     for mod in ("roomconv.cli_analysis", "roomconv.cli_synth", "roomconv.cli_render",
-                "roomconv.cli_calibrate", "roomconv.demo"):
+                "roomconv.cli_calibrate", "roomconv.cli_study", "roomconv.demo"):
         try:
             importlib.import_module(mod)
         except ModuleNotFoundError as exc:

@@ -221,6 +221,8 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
         write_text(out / "report.html", page, force=True)
         write_provenance(out / "report.html", [], settings, force=True)
         written.append(out / "report.html")
+        # 6. The client report (HTML and PDF) from a study file, as a consultant sends it.
+        written += _client_report(out, room, sc, sweep, qualities, log)
         bar.update()
 
     summary = _summary(doc, time.monotonic() - t_start, out)
@@ -228,10 +230,83 @@ def run_demo(out: Path, *, quick: bool = False, force: bool = False, quiet: bool
     for line in _summary_lines(summary, doc):
         log(line)
     log("files:")
-    for p in [out / "report.html", out / "results.json", out / "results.csv",
-              out / "irs", out / "harmonics", out / "renders"]:
+    for p in [out / "report" / "report.pdf", out / "report.html", out / "results.json",
+              out / "results.csv", out / "irs", out / "harmonics", out / "renders"]:
         log(f"  {p}")
     return summary
+
+
+def _client_report(out: Path, room, sc: Scenario, sweep, qualities: dict, log) -> list[Path]:
+    """Write the demo's study file and quality files, then report/report.html and .pdf (the
+    HTML alone, saying why, where no PDF engine is installed)."""
+    from .report import analyse_study, report_html, write_report
+    from .report.pdf import pdf_engine_problem
+    from .study import load_study
+    for name, q in qualities.items():
+        write_json(out / "irs" / f"{name}.quality.json", q, force=True)
+    pts = "".join(f'\n[[sources]]\nid = "S{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+                  for i, (x, y, z) in enumerate(sc.sources, 1))
+    pts += "".join(f'\n[[receivers]]\nid = "R{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+                   for i, (x, y, z) in enumerate(sc.receivers, 1))
+    resp = "".join(f'\n[[responses]]\nsource = "S{si}"\nreceiver = "R{ri}"\n'
+                   f'file = "irs/S{si}R{ri}.wav"\nquality_file = "irs/S{si}R{ri}.quality.json"\n'
+                   for si in range(1, len(sc.sources) + 1)
+                   for ri in range(1, len(sc.receivers) + 1))
+    # Everything below is the demo's own invented scenario, including the client's target.
+    text = f"""# Linden Hall: a fictional hall, measured in simulation by `roomconv demo`.
+[study]
+title = "Linden Hall: room acoustic survey (demo)"
+client = "Linden Hall Community Trust (fictional)"
+project_number = "DEMO-001"
+author = "roomconv demo"
+dates = [2026-01-15]
+notes = "A scenario of our own: the hall, its responses and the measurement chain are synthesized."
+
+[room]
+name = "Linden Hall"
+use = "multi-purpose: concerts, talks, community events"
+dimensions_m = [{room.length:g}, {room.width:g}, {room.height:g}]
+state = "unoccupied"
+furnished = true
+temperature_c = 20.0
+humidity_pct = 50.0
+
+[equipment]
+source = "simulated omnidirectional loudspeaker (mild 2nd/3rd-order distortion)"
+microphone = "simulated omnidirectional measurement microphone"
+interface = "simulated sound card, loopback reference on input 1"
+
+[sweep]
+f_low_hz = {sweep.f_low:g}
+f_high_hz = {sweep.f_high:g}
+duration_s = {sweep.duration:g}
+level_dbfs = {sweep.level_dbfs:g}
+repeats = {sweep.repeats}
+silence_s = {sweep.silence_post:g}
+rate_hz = {sweep.rate}
+{pts}{resp}
+[targets]
+basis = "t30"
+tolerance_pct = [-15, 15]
+source = "the (fictional) client's brief"
+
+[targets.reverberation_s]
+"125" = 1.6
+"250" = 1.5
+"500" = 1.4
+"1000" = 1.4
+"2000" = 1.4
+"4000" = 1.3
+"""
+    write_text(out / "study.toml", text, force=True)
+    res = analyse_study(load_study(out / "study.toml"))
+    (out / "report").mkdir(exist_ok=True)
+    problem = pdf_engine_problem()
+    if problem is not None:
+        log(f"note: report/report.pdf not written: {problem}")
+        page = write_text(out / "report" / "report.html", report_html(res), force=True)
+        return [out / "study.toml", page]
+    return [out / "study.toml"] + write_report(res, out / "report", force=True)
 
 
 def _verdict(q: dict) -> dict:

@@ -71,3 +71,16 @@ def test_demo_refuses_a_non_empty_folder_without_force(tmp_path, cli):
     code, _, err = cli("demo", "--out", tmp_path, "--quick")
     assert code == 2 and "--force" in err
     assert (tmp_path / "keep.txt").read_text() == "mine"
+
+
+def test_demo_writes_the_study_report_as_html_and_pdf(demo):
+    # The demo's study file loads and names every position; the report comes as both files.
+    from roomconv.study import load_study
+    study = load_study(demo / "study.toml")
+    assert len(study.responses) == len(QUICK.sources) * len(QUICK.receivers)
+    # ISO 32000-1:2008, 7.5.2 (from memory): a PDF file begins with "%PDF-".
+    assert (demo / "report" / "report.pdf").read_bytes().startswith(b"%PDF-")
+    page = (demo / "report" / "report.html").read_text()
+    assert "Linden Hall" in page and "Measurement grade (ISO 3382-2)" in page
+    # 1 source × 2 receivers: survey grade (ISO 3382-2:2008, Table 1, from memory).
+    assert "<p class='grade'>Survey</p>" in page
