@@ -12,9 +12,9 @@ against the truth of its own realization (see :mod:`benchmarks.accuracy_cases`) 
 as: within the just-noticeable difference (JND) of ISO 3382-1:2009 Table A.1 (from memory:
 5 % for decay times, 1 dB for C50/C80, 0.05 for D50, 10 ms for Ts); within the JND but
 flagged; outside it and flagged (verdict not "ok"); null (None, or the case refused with
-``InputError``); or **silently wrong** (outside the JND with verdict "ok"). A result without
-verdicts counts as "ok". This is a benchmark that reports: the exit status is 0 unless
-``--strict`` is given.
+``InputError``; a case on which the analysis crashes is also counted null, and listed); or
+**silently wrong** (outside the JND with verdict "ok"). A result without verdicts counts as
+"ok". This is a benchmark that reports: the exit status is 0 unless ``--strict`` is given.
 """
 
 from __future__ import annotations
@@ -70,16 +70,19 @@ def evaluate_case(case: Case) -> dict:
 
     t_start = time.perf_counter()
     built = build(case)
-    refused = None
+    refused = crashed = None
     try:
         bands, wide, _notes = room_parameters(built.measured, case.rate, bands=case.bands)
         results = list(bands) + [wide]
     except InputError as exc:
         refused = str(exc)
         results = []
+    except Exception as exc:  # noqa: BLE001 - a crash is reported, not allowed to stop the run
+        crashed = f"{type(exc).__name__}: {exc}"
+        results = []
     t_analysis = time.perf_counter() - t_start
 
-    if refused is not None:
+    if refused is not None or crashed is not None:
         from roomconv.analysis.bands import bands_for_rate
         keys = [b.nominal for b in bands_for_rate(case.bands, case.rate)[0]] + ["wideband"]
         rows = [(k, None) for k in keys]
@@ -99,7 +102,7 @@ def evaluate_case(case: Case) -> dict:
             if not math.isfinite(tv):
                 continue
             value = None if res is None else getattr(res, m, None)
-            verdict = "refused" if res is None else verdict_of(res, m)
+            verdict = ("refused" if refused else "crashed") if res is None else verdict_of(res, m)
             status = classify(m, value, tv, verdict)
             rec = {"case": case.index, "band": nom, "metric": m, "truth": tv,
                    "value": value, "verdict": verdict, "status": status,
@@ -110,10 +113,12 @@ def evaluate_case(case: Case) -> dict:
                 rec["warning_codes"] = list(getattr(res, "warning_codes", []) or [])
                 if value is None:
                     rec["reason"] = "; ".join(res.warnings)[:300] or "no reason given"
-            else:
+            elif refused is not None:
                 rec["reason"] = "refused: " + refused
+            else:
+                rec["reason"] = "crashed: " + crashed
             records.append(rec)
-    return {"case": case.as_dict(), "records": records, "refused": refused,
+    return {"case": case.as_dict(), "records": records, "refused": refused, "crashed": crashed,
             "seconds": time.perf_counter() - t_start, "analysis_seconds": t_analysis}
 
 
@@ -161,6 +166,45 @@ def table_text(counts, markdown: bool = False) -> str:
     fmt = lambda r: "  ".join(x.rjust(w) if i else x.ljust(w)  # noqa: E731
                               for i, (x, w) in enumerate(zip(r, widths)))
     return "\n".join([fmt(cols)] + [fmt(r) for r in rows])
+
+
+def _bucket(value, edges, fmt):
+    """(position, label) of the interval [lo, hi) of ``edges`` that holds ``value``."""
+    for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
+        if lo <= value < hi:
+            return i, fmt(lo, hi)
+    return len(edges), "other"
+
+
+def breakdown_text(records, cases, markdown: bool = False) -> str:
+    """Silently wrong values against the conditions they came from (share of the values)."""
+    by_case = {c.index: c for c in cases}
+    inf = float("inf")
+    axes = {
+        "band INR, dB": lambda r, c: _bucket(r["band_inr_db"], [-inf, 35, 50, 65, inf],
+                                              lambda a, b: f"<{b:g}" if a == -inf else
+                                              (f"≥{a:g}" if b == inf else f"{a:g}–{b:g}")),
+        "B·T": lambda r, c: (99, "wideband") if r["bt"] is None else _bucket(
+            r["bt"], [0, 16, 50, 200, inf],
+            lambda a, b: f"≥{a:g}" if b == inf else f"{a:g}–{b:g}"),
+        "window/T": lambda r, c: _bucket(c.window_factor, [0, 2, 3.5, inf],
+                                         lambda a, b: f"≥{a:g}" if b == inf else
+                                         f"{a:g}–{b:g}"),
+        "rate": lambda r, c: (c.rate, f"{c.rate / 1000:g} kHz"),
+        "slope": lambda r, c: (c.slope, c.slope),
+        "noise": lambda r, c: (c.noise, c.noise),
+    }
+    lines = []
+    for name, key in axes.items():
+        tot: dict[tuple, list[int]] = {}
+        for r in records:
+            k = key(r, by_case[r["case"]])
+            t = tot.setdefault(k, [0, 0])
+            t[0] += 1
+            t[1] += r["status"] == "silent"
+        parts = [f"{k[1]} {v[1]}/{v[0]}" for k, v in sorted(tot.items())]
+        lines.append(("- " if markdown else "  ") + f"{name}: " + ", ".join(parts))
+    return "\n".join(lines)
 
 
 def worst_text(records, cases, n: int, markdown: bool = False) -> str:
@@ -257,7 +301,16 @@ def main(argv=None) -> int:
     print()
     refused = [r for r in results if r["refused"]]
     if refused:
-        print(f"refused responses (all their values null): {len(refused)}")
+        print(f"Refused responses (InputError; all their values counted null): {len(refused)}")
+    crashed = [r for r in results if r["crashed"]]
+    if crashed:
+        print(f"Responses on which the analysis crashed (values counted null): {len(crashed)}")
+        for r in crashed[: a.worst]:
+            print(("- " if md else "  ") + Case(**r["case"]).describe() + " — " + r["crashed"])
+    print(("**" if md else "") + "Silently wrong values by condition (silent/values)"
+          + ("**" if md else "") + ":")
+    print(breakdown_text(records, cases, md))
+    print()
     rerun = f"--seed {a.seed}" + (" --quick" if a.quick else "") + (
         f" --cases {a.cases}" if a.cases is not None else "")
     print(("**" if md else "") + f"Worst silently wrong cases ({counts['all']['silent']} values "

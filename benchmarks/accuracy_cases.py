@@ -191,7 +191,7 @@ def make_grid(n: int = 160, seed: int = 2026, *, t_range=(0.2, 8.0), inr_range=(
         # Rounded down to the stored precision so that the cap holds for the stored value.
         wf = math.floor(1000 * min(wf, max_window_samples / (t * rate))) / 1000
         wf = max(window_range[0], wf)
-        cases.append(Case(i, seed * 1000 + i, int(rate), bands, slope, float(round(t, 4)),
+        cases.append(Case(i, seed * 100_000 + i, int(rate), bands, slope, float(round(t, 4)),
                           float(round(t_early, 4)), float(round(knee, 2)),
                           float(round(inr, 2)), noise, float(wf), float(round(drr, 2)),
                           float(round(predelay, 4))))
@@ -376,8 +376,11 @@ def _fast_len(n: int) -> int:
     return best
 
 
-def schroeder_db(e: np.ndarray) -> np.ndarray:
+def schroeder_db(e: np.ndarray, floor_db: float | None = None) -> np.ndarray:
     """Backward-integrated decay curve of the energy ``e``, dB re its value at sample 0.
+
+    With ``floor_db`` the curve stops at the first sample below that level (the rest is
+    never needed and costs a logarithm per sample).
 
     References
     ----------
@@ -385,6 +388,10 @@ def schroeder_db(e: np.ndarray) -> np.ndarray:
     37, 409–412. ISO 3382-1:2009, 5.3.3.
     """
     s = np.cumsum(e[::-1])[::-1]
+    if floor_db is not None:
+        below = np.flatnonzero(s < s[0] * 10 ** (floor_db / 10))
+        if below.size:
+            s = s[: below[0] + 1]
     with np.errstate(divide="ignore"):
         return 10.0 * np.log10(s / s[0])
 
@@ -394,6 +401,7 @@ def fit_range(curve_db: np.ndarray, rate: int, upper: float, lower: float) -> fl
 
     The range starts at the first sample at or below ``upper`` and ends before the first
     sample below ``lower`` (ISO 3382-1:2009, A.2.1–A.2.2: a regression line over the range).
+    The slope is the closed-form least-squares one, Σ(t − t̄)(y − ȳ) / Σ(t − t̄)².
     """
     i_hi = int(np.argmax(curve_db <= upper))
     below = np.flatnonzero(curve_db < lower)
@@ -402,14 +410,16 @@ def fit_range(curve_db: np.ndarray, rate: int, upper: float, lower: float) -> fl
     i_lo = int(below[0])
     y = curve_db[i_hi:i_lo]
     t = np.arange(i_hi, i_lo) / rate
-    slope = np.polyfit(t, y, 1)[0]
-    return float(-60.0 / slope)
+    tc = t - t.mean()
+    slope = float(np.dot(tc, y - y.mean()) / np.dot(tc, tc))
+    return -60.0 / slope
 
 
 def _parameters(x: np.ndarray, rate: int, i0: int) -> dict:
     """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``."""
     e = np.square(x)
-    curve = schroeder_db(e[i0:])
+    lowest = min(lo for _, lo in RANGES.values())
+    curve = schroeder_db(e[i0:], floor_db=lowest - 1.0)
     out = {k: fit_range(curve, rate, hi, lo) for k, (hi, lo) in RANGES.items()}
     n50, n80 = int(round(0.05 * rate)), int(round(0.08 * rate))
     total = float(e.sum())
@@ -417,8 +427,9 @@ def _parameters(x: np.ndarray, rate: int, i0: int) -> dict:
     out["c50_db"] = 10.0 * math.log10(early50 / (total - early50))
     out["c80_db"] = 10.0 * math.log10(early80 / (total - early80))
     out["d50"] = early50 / total
-    tt = (np.arange(e.size) - i0) / rate
-    out["ts_ms"] = 1000.0 * float(np.sum(tt * e)) / total
+    # Σ (n − i0)·e[n] / fs, without an array of times.
+    moment = float(np.dot(np.arange(e.size, dtype=float), e)) - i0 * total
+    out["ts_ms"] = 1000.0 * moment / rate / total
     return out
 
 
@@ -442,8 +453,15 @@ def reference_truth(built: Built, nominals) -> dict:
     buf[pad: pad + built.clean.size] = built.clean
     spec = np.fft.rfft(buf)
     f = np.fft.rfftfreq(nfft, 1 / rate)
+    r = edge_width_ratio(fraction)
+    band_spec = np.zeros_like(spec)
     for nom, (lo, hi) in edges.items():
-        y = np.fft.irfft(spec * reference_band_gain(f, lo, hi, fraction), nfft)
+        # Only the band's support is non-zero: build the filtered spectrum there alone.
+        k0 = int(np.searchsorted(f, lo * (1 - r / 2)))
+        k1 = int(np.searchsorted(f, hi * (1 + r / 2), side="right"))
+        band_spec[:] = 0
+        band_spec[k0:k1] = spec[k0:k1] * reference_band_gain(f[k0:k1], lo, hi, fraction)
+        y = np.fft.irfft(band_spec, nfft)
         truth[nom] = _parameters(y, rate, case.onset + pad)
     return truth
 
