@@ -28,7 +28,7 @@ from concurrent.futures import ProcessPoolExecutor
 
 from benchmarks.accuracy_cases import (JND, METRICS, OCTAVE_NOMINAL, THIRD_NOMINAL, Case,
                                        band_inr_db, build, classify, closed_forms, error_in_jnd,
-                                       make_grid, reference_truth, band_edges)
+                                       make_grid, truth_ranges, band_edges)
 
 STATUSES = ("within", "within_flagged", "flagged", "null", "silent")
 HEAD = {"within": "within JND", "within_flagged": "within JND, flagged",
@@ -89,7 +89,7 @@ def evaluate_case(case: Case) -> dict:
     else:
         rows = [(_band_key(r), r) for r in results]
     wanted = [_nominal(case, k) for k, _ in rows if k != "wideband"]
-    truth = reference_truth(built, [n for n in wanted if n is not None])
+    truth, ranges = truth_ranges(built, [n for n in wanted if n is not None])
 
     records = []
     for key, res in rows:
@@ -99,14 +99,17 @@ def evaluate_case(case: Case) -> dict:
         bw = None if nom == "wideband" else (lambda e: e[2] - e[1])(band_edges(nom, case.bands))
         for m in METRICS:
             tv = truth[nom][m]
-            if not math.isfinite(tv):
+            if not (math.isfinite(tv) and all(map(math.isfinite, ranges[nom][m]))):
                 continue
             value = None if res is None else getattr(res, m, None)
             verdict = ("refused" if refused else "crashed") if res is None else verdict_of(res, m)
-            status = classify(m, value, tv, verdict)
+            span = ranges[nom][m]
+            status = classify(m, value, span, verdict)
             rec = {"case": case.index, "band": nom, "metric": m, "truth": tv,
+                   "truth_low": span[0], "truth_high": span[1],
+                   "truth_spread_jnd": abs(error_in_jnd(m, span[1], span[0])),
                    "value": value, "verdict": verdict, "status": status,
-                   "error_jnd": None if value is None else error_in_jnd(m, value, tv),
+                   "error_jnd": None if value is None else error_in_jnd(m, value, span),
                    "bt": None if bw is None else bw * case.t_s,
                    "band_inr_db": band_inr_db(case, None if nom == "wideband" else nom)}
             if res is not None:
@@ -223,7 +226,9 @@ def worst_text(records, cases, n: int, markdown: bool = False) -> str:
         band = "wideband" if r["band"] == "wideband" else f"{r['band']:g} Hz"
         unit = "s" if r["metric"].endswith("_s") else ("ms" if r["metric"] == "ts_ms" else
                                                        ("dB" if r["metric"].endswith("db") else ""))
-        line = (f"{LABEL[r['metric']]} {band}: {r['value']:.3f} {unit} (truth {r['truth']:.3f}, "
+        truth = (f"{r['truth']:.3f}" if r["truth_low"] == r["truth_high"] else
+                 f"{r['truth_low']:.3f}…{r['truth_high']:.3f}")
+        line = (f"{LABEL[r['metric']]} {band}: {r['value']:.3f} {unit} (truth {truth}, "
                 f"{r['error_jnd']:+.1f} JND; band INR {r['band_inr_db']:.0f} dB"
                 + (f", B·T {r['bt']:.0f}" if r["bt"] else "") + ") — "
                 + by_case[r["case"]].describe()
@@ -299,6 +304,11 @@ def main(argv=None) -> int:
     print()
     print(table_text(counts, md))
     print()
+    spread = [r for r in records if r["truth_spread_jnd"] > 1.0]
+    print(f"Values whose truth depends on the band filter's shape by more than a JND (small "
+          f"B·T; scored against the whole range): {len(spread)}, of which "
+          f"{sum(r['verdict'] == 'ok' and r['value'] is not None for r in spread)} "
+          "came with verdict ok.")
     refused = [r for r in results if r["refused"]]
     if refused:
         print(f"Refused responses (InputError; all their values counted null): {len(refused)}")
