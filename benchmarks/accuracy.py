@@ -20,6 +20,7 @@ flagged; outside it and flagged (verdict not "ok"); null (None, or the case refu
 from __future__ import annotations
 
 import argparse
+import itertools
 import math
 import os
 import sys
@@ -27,8 +28,8 @@ import time
 from concurrent.futures import ProcessPoolExecutor
 
 from benchmarks.accuracy_cases import (JND, METRICS, OCTAVE_NOMINAL, THIRD_NOMINAL, Case,
-                                       band_inr_db, build, classify, closed_forms, error_in_jnd,
-                                       make_grid, truth_ranges, band_edges)
+                                       band_edges, band_inr_db, build, classify, closed_forms,
+                                       error_in_jnd, make_grid, truth_ranges)
 
 STATUSES = ("within", "within_flagged", "flagged", "null", "silent")
 HEAD = {"within": "within JND", "within_flagged": "within JND, flagged",
@@ -96,7 +97,11 @@ def evaluate_case(case: Case) -> dict:
         nom = "wideband" if key == "wideband" else _nominal(case, key)
         if nom is None or nom not in truth:
             continue
-        bw = None if nom == "wideband" else (lambda e: e[2] - e[1])(band_edges(nom, case.bands))
+        if nom == "wideband":
+            bw = None
+        else:
+            _, f1, f2 = band_edges(nom, case.bands)
+            bw = f2 - f1
         for m in METRICS:
             tv = truth[nom][m]
             if not (math.isfinite(tv) and all(map(math.isfinite, ranges[nom][m]))):
@@ -166,14 +171,15 @@ def table_text(counts, markdown: bool = False) -> str:
         lines += ["| " + " | ".join(r) + " |" for r in rows]
         return "\n".join(lines)
     widths = [max(len(cols[i]), *(len(r[i]) for r in rows)) for i in range(len(cols))]
-    fmt = lambda r: "  ".join(x.rjust(w) if i else x.ljust(w)  # noqa: E731
-                              for i, (x, w) in enumerate(zip(r, widths)))
+    def fmt(r):
+        return "  ".join(x.rjust(w) if i else x.ljust(w)
+                         for i, (x, w) in enumerate(zip(r, widths)))
     return "\n".join([fmt(cols)] + [fmt(r) for r in rows])
 
 
 def _bucket(value, edges, fmt):
     """(position, label) of the interval [lo, hi) of ``edges`` that holds ``value``."""
-    for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
+    for i, (lo, hi) in enumerate(itertools.pairwise(edges)):
         if lo <= value < hi:
             return i, fmt(lo, hi)
     return len(edges), "other"
@@ -341,7 +347,7 @@ def main(argv=None) -> int:
             print(Case(**res["case"]).describe())
             for r in res["records"]:
                 v = "None" if r["value"] is None else f"{r['value']:.4g}"
-                print(f"  {str(r['band']):>8} {LABEL[r['metric']]:>4} value {v:>9} truth "
+                print(f"  {r['band']!s:>8} {LABEL[r['metric']]:>4} value {v:>9} truth "
                       f"{r['truth']:.4g}  {r['verdict']:<13} {r['status']}"
                       + (f"  ({r['reason'][:120]})" if r.get("reason") else ""))
     if a.json:

@@ -9,8 +9,9 @@ A clean response is ``h(t) = A·δ(t − t0) + n(t)·a(t − t0)`` for ``t ≥ t
   the reverberant part of this realization;
 * ``n`` is white Gaussian noise of unit variance;
 * ``a(t)² = e^(−k·t)`` with ``k = 6·ln10 / T`` (a single slope: 60 dB of energy decay in T),
-  or ``a(t)² = e^(−k1·t) + K·e^(−k2·t)`` (a double slope: an early decay T1 and a late decay
-  T2 > T1 meeting at a knee where both terms have the level ``knee_db``).
+  or ``a(t)² = (e^(−k1·t) + K·e^(−k2·t)) / (1 + K)`` (a double slope: an early decay T1,
+  1.5–3 times shorter than the late decay T2 = T, meeting at a knee 8–25 dB down where both
+  terms have the level ``knee_db``).
 
 The measured response is the clean one cut ``window_factor · T`` after the onset (``T`` the
 longest decay time of the case), plus background noise (white or pink) over the whole
@@ -29,9 +30,9 @@ truth of *this realization* is computed from its clean, noise-free, untruncated 
 generated until the envelope is ``REF_DECAY_DB`` (135 dB: 100 dB past the bottom of the T30
 range) below its start, by a reference method that shares no code with ``roomconv``:
 
-1. band-limit with a zero-phase FFT band-pass on the exact band edges of IEC 61260-1:2014
-   (``f_m·G^(±1/2b)``, ``G = 10^(3/10)``, ``f_m = 1000·G^(x/b)``), zero-padded on both sides
-   so that nothing wraps round (:func:`reference_band_gain`);
+1. band-limit with a zero-phase FFT band-pass (numpy) on the exact band edges of
+   IEC 61260-1:2014 (``f_m·G^(±1/2b)``, ``G = 10^(3/10)``, ``f_m = 1000·G^(x/b)``),
+   zero-padded on both sides so that nothing wraps round (:func:`reference_band_gain`);
 2. energy ``e = x²`` of the band signal; Schroeder's backward integral from the onset to the
    end (Schroeder 1965); least-squares lines over the ISO 3382-1:2009 ranges (EDT 0…−10 dB,
    T20 −5…−25 dB, T30 −5…−35 dB; A.2.1–A.2.2);
@@ -47,11 +48,21 @@ deliberate:
   late decay of a short-T band. So each edge is a smooth, power-complementary transition
   (``|H|² = 1/2`` exactly at the IEC edge, the −3 dB point of a real band filter; adjacent
   bands' ``|H|²`` sum to one), the two edges together as wide as half the band
-  (:func:`edge_width_ratio`); its ringing dies within a few ``1/B``. For a flat spectrum the band's energy equals the brick-wall band's.
+  (:func:`edge_width_ratio`); its ringing dies within a few ``1/B``. For a flat spectrum
+  the band's energy equals the brick-wall band's.
 * A zero-phase filter moves part of the direct sound's band energy before ``t0``. That
   energy arrived at ``t0``, so the energy ratios count it as early (the sum for C50/C80/D50
-  starts at the first sample of the padded band signal, Ts weighs it by ``t − t0 < 0``); the
-  decay curve starts at ``t0`` as ISO 3382-1 has it.
+  starts at the first sample of the padded band signal, Ts weighs it by ``t − t0 < 0``), and
+  the decay curve, which starts at ``t0`` as ISO 3382-1 has it, gets it at ``t0``. (Dropping
+  it instead would lower the start of the curve by up to 3 dB with a strong direct sound and
+  move EDT by more than a JND even at large B·T.)
+
+* At small B·T one realization's parameters depend on the band filter's *shape*, not only on
+  its −3 dB edges (a narrow band holds few independent spectral components, and edges that
+  weigh them differently give a different decay): below B·T ≈ 50 two such references
+  disagree by more than a JND on most values. So bands with B·T < 200 are also computed
+  with edges 0.4 times as wide, and a value is scored against the range the two span
+  (:func:`truth_ranges`). How many values had a spread above one JND is reported.
 
 The grid's cross-check (:func:`closed_forms` against the reference on single-slope cases of
 large B·T) guards this yardstick: see ``tests/analysis/test_accuracy_grid.py``.
@@ -423,7 +434,10 @@ def _parameters(x: np.ndarray, rate: int, i0: int) -> dict:
     """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``."""
     e = np.square(x)
     lowest = min(lo for _, lo in RANGES.values())
-    curve = schroeder_db(e[i0:], floor_db=lowest - 1.0)
+    # The zero-phase filter's spread before t0 arrived at t0: it joins the decay at t0.
+    e_decay = e[i0:].copy()
+    e_decay[0] += e[:i0].sum()
+    curve = schroeder_db(e_decay, floor_db=lowest - 1.0)
     out = {k: fit_range(curve, rate, hi, lo) for k, (hi, lo) in RANGES.items()}
     n50, n80 = int(round(0.05 * rate)), int(round(0.08 * rate))
     total = float(e.sum())

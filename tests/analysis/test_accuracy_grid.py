@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from benchmarks import accuracy
-from benchmarks.accuracy_cases import (JND, METRICS, RANGES, Case, band_edges, band_inr_db,
+from benchmarks.accuracy_cases import (JND, METRICS, Case, band_edges, band_inr_db,
                                        build, classify, closed_forms, edge_width_ratio,
                                        energy_envelope, error_in_jnd, make_grid,
                                        reference_band_gain, reference_filter, reference_truth,
