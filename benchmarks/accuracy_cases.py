@@ -50,12 +50,17 @@ deliberate:
   bands' ``|H|²`` sum to one), the two edges together as wide as half the band
   (:func:`edge_width_ratio`); its ringing dies within a few ``1/B``. For a flat spectrum
   the band's energy equals the brick-wall band's.
-* A zero-phase filter moves part of the direct sound's band energy before ``t0``. That
-  energy arrived at ``t0``, so the energy ratios count it as early (the sum for C50/C80/D50
-  starts at the first sample of the padded band signal, Ts weighs it by ``t − t0 < 0``), and
-  the decay curve, which starts at ``t0`` as ISO 3382-1 has it, gets it at ``t0``. (Dropping
-  it instead would lower the start of the curve by up to 3 dB with a strong direct sound and
-  move EDT by more than a JND even at large B·T.)
+* The direct sound arrives at ``t0``, but any band filter spreads its band energy over a
+  few ``1/B`` around (zero-phase) or after (causal) ``t0``, and with a strong direct sound
+  EDT depends on that spread far beyond the JND, even at large B·T (one case of ours, B·T
+  108, DRR +4 dB: EDT 0.68 s with the direct sound's energy at ``t0``, 0.57 s with this
+  reference's zero-phase spread, 0.42 s through a causal Butterworth band-pass). So the
+  reference takes the limit of a filter with no time spread of its own: the reverberant
+  part is band-filtered, and the direct sound's band energy together with its interaction
+  with the reverberant part (``Σ yd² + 2·yd·yr``, by Parseval, exact) is placed at ``t0``.
+  The reverberant part's own spread before ``t0`` (its abrupt start) also counts at ``t0``:
+  early for C50/C80/D50, at the start of the decay curve, which starts at ``t0`` as
+  ISO 3382-1 has it; Ts weighs it by ``t − t0 < 0``.
 
 * At small B·T one realization's parameters depend on the band filter's *shape*, not only on
   its −3 dB edges (a narrow band holds few independent spectral components, and edges that
@@ -430,9 +435,11 @@ def fit_range(curve_db: np.ndarray, rate: int, upper: float, lower: float) -> fl
     return -60.0 / slope
 
 
-def _parameters(x: np.ndarray, rate: int, i0: int) -> dict:
-    """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``."""
+def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0) -> dict:
+    """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``, with
+    the energy ``at_onset`` (the direct sound's, see :func:`reference_truth`) added at t0."""
     e = np.square(x)
+    e[i0] += at_onset
     lowest = min(lo for _, lo in RANGES.values())
     # The zero-phase filter's spread before t0 arrived at t0: it joins the decay at t0.
     e_decay = e[i0:].copy()
@@ -470,9 +477,16 @@ def reference_truth(built: Built, nominals, *, edge_scale: float = 1.0,
     pad = max(_pad_for(lo, rate, fraction, edge_scale) for lo, _ in edges.values())
     nfft = _fast_len(built.clean.size + 2 * pad)
     buf = np.zeros(nfft)
-    buf[pad: pad + built.clean.size] = built.clean
+    buf[pad: pad + built.reverb.size] = built.reverb
     spec = np.fft.rfft(buf)
     f = np.fft.rfftfreq(nfft, 1 / rate)
+    # The direct sound's spectrum, and Parseval's weights for a real signal's rfft bins.
+    i0 = pad + case.onset
+    direct = built.direct_amplitude * np.exp(-2j * np.pi * np.arange(f.size) * i0 / nfft)
+    weight = np.full(f.size, 2.0)
+    weight[0] = 1.0
+    if nfft % 2 == 0:
+        weight[-1] = 1.0
     r = edge_width_ratio(fraction) * edge_scale
     band_spec = np.zeros_like(spec)
     for nom, (lo, hi) in edges.items():
@@ -483,7 +497,15 @@ def reference_truth(built: Built, nominals, *, edge_scale: float = 1.0,
         band_spec[k0:k1] = spec[k0:k1] * reference_band_gain(f[k0:k1], lo, hi, fraction,
                                                              edge_scale=edge_scale)
         y = np.fft.irfft(band_spec, nfft)
-        truth[nom] = _parameters(y, rate, case.onset + pad)
+        # The band's energy from the direct sound, Σ(yd² + 2·yd·yr) with yd its band signal
+        # and y = yr its reverberant part, by Parseval; it is placed at t0 (see the module
+        # docstring: the limit of a band filter with no time spread of its own).
+        g = reference_band_gain(f[k0:k1], lo, hi, fraction, edge_scale=edge_scale)
+        yd = direct[k0:k1] * g
+        yr = band_spec[k0:k1]
+        at_onset = float(np.sum(weight[k0:k1] * (np.abs(yd) ** 2 + 2 * np.real(yr * yd.conj())))
+                         / nfft)
+        truth[nom] = _parameters(y, rate, i0, at_onset)
     return truth
 
 

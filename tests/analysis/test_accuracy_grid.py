@@ -211,7 +211,7 @@ def test_reference_reproduces_closed_forms_at_high_bt():
     bands = [1000, 2000, 4000, 8000]
     devs = {m: [] for m in METRICS}
     for seed in range(6):
-        c = _case(seed=100 + seed, t_s=1.0, drr_db=-6.0 + 2.5 * seed)
+        c = _case(seed=100 + seed, t_s=1.0, drr_db=-10.0 + 3.0 * seed)
         truth = reference_truth(build(c), bands)
         cf = closed_forms(c)
         for nom in bands:
@@ -221,7 +221,10 @@ def test_reference_reproduces_closed_forms_at_high_bt():
                 sigma = single_decay_sigma(1.0, hi - lo, m)
                 assert abs(truth[nom][m] - 1.0) < 4 * sigma, (nom, m, truth[nom][m])
             for m in METRICS:
-                devs[m].append(error_in_jnd(m, truth[nom][m], cf[m]))
+                # EDT = T is the ensemble value; below a direct-sound step over 1 dB one
+                # realization's EDT is biased (see benchmarks.accuracy.yardstick_check).
+                if m != "edt_s" or c.drr_db <= -6.0:
+                    devs[m].append(error_in_jnd(m, truth[nom][m], cf[m]))
     # The mean over the band realizations sits on the closed forms: within three standard
     # errors of its own spread (a t-test at about 1 %), and within half a JND.
     for m, v in devs.items():
@@ -260,8 +263,27 @@ def test_grid_truths_sit_on_the_closed_forms():
         results.append({"case": c.as_dict(), "records": recs})
     check = accuracy.yardstick_check(grid, results, min_bt=300.0)
     for m, (mean, count) in check.items():
-        assert count >= 10, m
+        assert count >= (4 if m == "edt_s" else 10), (m, count)
         assert abs(mean) < 0.4, (m, mean)
+
+
+def test_direct_sound_energy_by_parseval_matches_filtering_it():
+    # The reference places the direct sound's band energy (with its cross-term) at t0,
+    # computed by Parseval. Where the filter's spread is a fraction of a millisecond
+    # (4 kHz octave) the energy ratios must equal those of the band-filtered response
+    # itself to a hundredth of a JND (ISO 3382-1 A.2.3-A.2.4 definitions; numpy FFT).
+    from benchmarks.accuracy_cases import _parameters
+    c = _case(t_s=0.8, drr_db=3.0, seed=21)
+    b = build(c)
+    truth = reference_truth(b, [4000])[4000]
+    _, lo, hi = band_edges(4000, "octave")
+    y, pad = reference_filter(b.clean, RATE, lo, hi, 1)
+    direct = _parameters(y, RATE, c.onset + pad)
+    for m in ("c50_db", "c80_db", "d50"):
+        assert abs(error_in_jnd(m, truth[m], direct[m])) < 0.01, (m, truth[m], direct[m])
+    # A strong direct sound is about 2 of the 3 dB step of the decay curve's start: the
+    # total energy agrees too (D50 ≈ 1 − late/total both ways).
+    assert truth["ts_ms"] == pytest.approx(direct["ts_ms"], abs=0.1)
 
 
 def test_truth_range_collapses_at_high_bt_and_opens_at_low():
