@@ -71,6 +71,7 @@ def evaluate_case(case: Case) -> dict:
 
     t_start = time.perf_counter()
     built = build(case)
+    t_built = time.perf_counter()
     refused = crashed = None
     try:
         bands, wide, _notes = room_parameters(built.measured, case.rate, bands=case.bands)
@@ -81,7 +82,7 @@ def evaluate_case(case: Case) -> dict:
     except Exception as exc:  # noqa: BLE001 - a crash is reported, not allowed to stop the run
         crashed = f"{type(exc).__name__}: {exc}"
         results = []
-    t_analysis = time.perf_counter() - t_start
+    t_analysis = time.perf_counter() - t_built
 
     if refused is not None or crashed is not None:
         from roomconv.analysis.bands import bands_for_rate
@@ -107,6 +108,10 @@ def evaluate_case(case: Case) -> dict:
             if not (math.isfinite(tv) and all(map(math.isfinite, ranges[nom][m]))):
                 continue
             value = None if res is None else getattr(res, m, None)
+            if value is not None:
+                value = float(value)
+                if not math.isfinite(value):
+                    value = None
             verdict = ("refused" if refused else "crashed") if res is None else verdict_of(res, m)
             span = ranges[nom][m]
             status = classify(m, value, span, verdict)

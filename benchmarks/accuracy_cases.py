@@ -54,20 +54,20 @@ deliberate:
   few ``1/B`` around (zero-phase) or after (causal) ``t0``, and with a strong direct sound
   EDT depends on that spread far beyond the JND, even at large B·T (one case of ours, B·T
   108, DRR +4 dB: EDT 0.68 s with the direct sound's energy at ``t0``, 0.57 s with this
-  reference's zero-phase spread, 0.42 s through a causal Butterworth band-pass). So the
-  reference takes the limit of a filter with no time spread of its own: the reverberant
-  part is band-filtered, and the direct sound's band energy together with its interaction
-  with the reverberant part (``Σ yd² + 2·yd·yr``, by Parseval, exact) is placed at ``t0``.
-  The reverberant part's own spread before ``t0`` (its abrupt start) also counts at ``t0``:
-  early for C50/C80/D50, at the start of the decay curve, which starts at ``t0`` as
-  ISO 3382-1 has it; Ts weighs it by ``t − t0 < 0``.
+  reference's zero-phase spread, 0.42 s through a causal Butterworth band-pass). The main
+  truth is the band-filtered clean response, its spread before ``t0`` counted at ``t0``
+  (early for C50/C80/D50, at the start of the decay curve, which starts at ``t0`` as
+  ISO 3382-1 has it; Ts weighs it by ``t − t0 < 0``). A second variant moves the direct
+  sound's own band energy ``Σ yd²`` to ``t0`` (the limit of a filter with no time spread;
+  its cross-term with the reverberation stays where it happens), and a value is scored
+  against the range the variants span (:func:`truth_ranges`).
 
 * At small B·T one realization's parameters depend on the band filter's *shape*, not only on
   its −3 dB edges (a narrow band holds few independent spectral components, and edges that
   weigh them differently give a different decay): below B·T ≈ 50 two such references
   disagree by more than a JND on most values. So bands with B·T < 200 are also computed
-  with edges 0.4 times as wide, and a value is scored against the range the two span
-  (:func:`truth_ranges`). How many values had a spread above one JND is reported.
+  with edges 0.4 times as wide, and the range spans these too. How many values had a
+  spread above one JND is reported.
 
 The grid's cross-check (:func:`closed_forms` against the reference on single-slope cases of
 large B·T) guards this yardstick: see ``tests/analysis/test_accuracy_grid.py``.
@@ -435,15 +435,25 @@ def fit_range(curve_db: np.ndarray, rate: int, upper: float, lower: float) -> fl
     return -60.0 / slope
 
 
-def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0) -> dict:
-    """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``, with
-    the energy ``at_onset`` (the direct sound's, see :func:`reference_truth`) added at t0."""
+def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0,
+                remove=None) -> dict:
+    """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``.
+
+    ``remove=(slice, part)`` takes ``part²`` out of the energy over ``slice`` and
+    ``at_onset`` puts an energy at t0 (the step variant of :func:`_band_truths`); a
+    negative energy where a ratio needs a positive one raises ValueError.
+    """
     e = np.square(x)
+    if remove is not None:
+        span, part = remove
+        e[span] -= np.square(part)
     e[i0] += at_onset
     lowest = min(lo for _, lo in RANGES.values())
     # The zero-phase filter's spread before t0 arrived at t0: it joins the decay at t0.
     e_decay = e[i0:].copy()
     e_decay[0] += e[:i0].sum()
+    if remove is not None and np.any(np.cumsum(e_decay[::-1]) < 0):
+        raise ValueError("negative energy in the decay")
     curve = schroeder_db(e_decay, floor_db=lowest - 1.0)
     out = {k: fit_range(curve, rate, hi, lo) for k, (hi, lo) in RANGES.items()}
     n50, n80 = int(round(0.05 * rate)), int(round(0.08 * rate))
@@ -463,50 +473,67 @@ def reference_truth(built: Built, nominals, *, edge_scale: float = 1.0,
     """Per-band truth of this realization: {nominal Hz or "wideband": {metric: value}}.
 
     ``nominals`` lists the bands wanted (nominal Hz of ``built.case.bands``); "wideband" (the
-    clean response unfiltered) is added unless ``wideband`` is False. One transform of the
-    padded clean response serves every band (the same zero-phase filtering as
-    :func:`reference_filter`, edges scaled by ``edge_scale``).
+    clean response unfiltered) is added unless ``wideband`` is False. Each band is the clean
+    response through the zero-phase reference band-pass (:func:`reference_filter`, edges
+    scaled by ``edge_scale``), its spread before t0 counted at t0.
     """
+    both = _band_truths(built, nominals, edge_scale)
+    truth = {"wideband": _parameters(built.clean, built.case.rate, built.case.onset)} \
+        if wideband else {}
+    truth.update({nom: v[0] for nom, v in both.items()})
+    return truth
+
+
+def _band_truths(built: Built, nominals, edge_scale: float) -> dict:
+    """{band: (filtered, step)}: the parameters of the band-filtered clean response, and of
+    the same with the direct sound's own band energy moved to t0 (None where that leaves a
+    negative energy: the direct sound's band response overlaps much of the reverberation)."""
     case = built.case
     rate = case.rate
-    truth = {"wideband": _parameters(built.clean, rate, case.onset)} if wideband else {}
     if not nominals:
-        return truth
+        return {}
     fraction = 1 if case.bands == "octave" else 3
-    edges = {nom: band_edges(nom, case.bands)[1:] for nom in nominals}
-    pad = max(_pad_for(lo, rate, fraction, edge_scale) for lo, _ in edges.values())
-    nfft = _fast_len(built.clean.size + 2 * pad)
-    buf = np.zeros(nfft)
-    buf[pad: pad + built.reverb.size] = built.reverb
-    spec = np.fft.rfft(buf)
-    f = np.fft.rfftfreq(nfft, 1 / rate)
-    # The direct sound's spectrum, and Parseval's weights for a real signal's rfft bins.
-    i0 = pad + case.onset
-    direct = built.direct_amplitude * np.exp(-2j * np.pi * np.arange(f.size) * i0 / nfft)
-    weight = np.full(f.size, 2.0)
-    weight[0] = 1.0
-    if nfft % 2 == 0:
-        weight[-1] = 1.0
     r = edge_width_ratio(fraction) * edge_scale
-    band_spec = np.zeros_like(spec)
-    for nom, (lo, hi) in edges.items():
-        # Only the band's support is non-zero: build the filtered spectrum there alone.
+    out = {}
+    for nom in nominals:
+        _, lo, hi = band_edges(nom, case.bands)
+        # Each band gets the padding its own edges need (the lowest bands need seconds, the
+        # highest milliseconds), so a transform of its own size.
+        pad = _pad_for(lo, rate, fraction, edge_scale)
+        nfft = _fast_len(built.clean.size + 2 * pad)
+        f = np.fft.rfftfreq(nfft, 1 / rate)
+        # Only the band's support is non-zero: transform and filter there alone.
         k0 = int(np.searchsorted(f, lo * (1 - r / 2)))
         k1 = int(np.searchsorted(f, hi * (1 + r / 2), side="right"))
-        band_spec[:] = 0
+        buf = np.zeros(nfft)
+        buf[pad: pad + built.reverb.size] = built.reverb
+        spec = np.fft.rfft(buf)
+        band_spec = np.zeros_like(spec)
         band_spec[k0:k1] = spec[k0:k1] * reference_band_gain(f[k0:k1], lo, hi, fraction,
                                                              edge_scale=edge_scale)
-        y = np.fft.irfft(band_spec, nfft)
-        # The band's energy from the direct sound, Σ(yd² + 2·yd·yr) with yd its band signal
-        # and y = yr its reverberant part, by Parseval; it is placed at t0 (see the module
-        # docstring: the limit of a band filter with no time spread of its own).
-        g = reference_band_gain(f[k0:k1], lo, hi, fraction, edge_scale=edge_scale)
-        yd = direct[k0:k1] * g
-        yr = band_spec[k0:k1]
-        at_onset = float(np.sum(weight[k0:k1] * (np.abs(yd) ** 2 + 2 * np.real(yr * yd.conj())))
-                         / nfft)
-        truth[nom] = _parameters(y, rate, i0, at_onset)
-    return truth
+        yr = np.fft.irfft(band_spec, nfft)
+        i0 = pad + case.onset
+        # The band-pass's impulse response on ±pad samples (its spread beyond is
+        # negligible, see _pad_for), for the direct sound's band signal.
+        n_short = _fast_len(2 * pad)
+        centre = n_short // 2
+        gain = reference_band_gain(np.fft.rfftfreq(n_short, 1 / rate), lo, hi, fraction,
+                                   edge_scale=edge_scale)
+        ir = np.roll(np.fft.irfft(gain, n_short), centre)[centre - pad: centre + pad]
+        yd = built.direct_amplitude * ir          # the direct sound's band signal from i0 − pad
+        span = slice(i0 - pad, i0 + pad)
+        y = yr.copy()
+        y[span] += yd
+        filtered = _parameters(y, rate, i0)
+        # Step: Σ yd² (with its cross-term 2·yd·yr kept where it happens) moved to t0: the
+        # limit of a band filter with no time spread of its own.
+        try:
+            e_shift = float(np.dot(yd, yd))
+            step = _parameters(y, rate, i0, at_onset=e_shift, remove=(span, yd))
+        except (ValueError, ZeroDivisionError):
+            step = None
+        out[nom] = (filtered, step)
+    return out
 
 
 #: A second admissible reference: edges this much narrower (same −3 dB points).
@@ -518,23 +545,31 @@ ALT_BELOW_BT = 200.0
 
 def truth_ranges(built: Built, nominals) -> tuple[dict, dict]:
     """(main, ranges): the truth of :func:`reference_truth`, and {band: {metric: (low, high)}}
-    the range it spans under two admissible reference band-passes.
+    the range spanned by admissible definitions of it.
 
-    At small B·T the parameters of one realization depend on the band filter's shape, not
-    only on its −3 dB edges: a band holds few independent spectral components, and edges
-    that weigh them differently give a different decay. IEC 61260-1 admits a range of
-    shapes around the same edges, so the truth is the range spanned by the reference with
-    its edges as in :func:`reference_band_gain` and with edges ``ALT_EDGE_SCALE`` as wide.
-    Bands with B·T ≥ ``ALT_BELOW_BT`` and the wideband get a single value (low == high).
+    Two things make one realization's band parameters depend on the band filter, not only on
+    its −3 dB edges. At small B·T a band holds few independent spectral components, and edges
+    that weigh them differently give a different decay: IEC 61260-1 admits a range of shapes
+    around the same edges, so bands with B·T < ``ALT_BELOW_BT`` are also computed with edges
+    ``ALT_EDGE_SCALE`` as wide. And every band filter spreads the direct sound over a few 1/B,
+    which with a strong direct sound moves EDT beyond the JND even at large B·T: so each
+    band is also computed with the direct sound's own band energy at t0 (the step variant,
+    the limit of no time spread). The range spans all of these; the wideband has one value.
     """
     case = built.case
-    main = reference_truth(built, nominals)
+    first = _band_truths(built, nominals, 1.0)
+    main = {"wideband": _parameters(built.clean, case.rate, case.onset)}
+    main.update({n: pair[0] for n, pair in first.items()})
     narrow = [n for n in nominals if _bandwidth(n, case.bands) * case.t_s < ALT_BELOW_BT]
-    alt = reference_truth(built, narrow, edge_scale=ALT_EDGE_SCALE, wideband=False)
-    out = {}
-    for band, vals in main.items():
-        other = alt.get(band, vals)
-        out[band] = {m: (min(v, other[m]), max(v, other[m])) for m, v in vals.items()}
+    variants = {n: [v for v in pair if v is not None] for n, pair in first.items()}
+    for n, pair in _band_truths(built, narrow, ALT_EDGE_SCALE).items():
+        variants[n] += [v for v in pair if v is not None]
+    out = {"wideband": {m: (v, v) for m, v in main["wideband"].items()}}
+    for band, vals in variants.items():
+        out[band] = {}
+        for m in main[band]:
+            finite = [v[m] for v in vals if math.isfinite(v[m])]
+            out[band][m] = (min(finite), max(finite)) if finite else (math.nan, math.nan)
     return main, out
 
 
@@ -610,7 +645,7 @@ def classify(metric: str, value, truth, verdict: str) -> str:
     ``truth`` is a value or a (low, high) range (:func:`truth_ranges`): a value within the
     JND of any point of the range is within the JND.
     """
-    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+    if value is None or not math.isfinite(float(value)):
         return "null"
     inside = abs(error_in_jnd(metric, value, truth)) <= 1.0
     if inside:

@@ -292,8 +292,10 @@ def test_truth_range_collapses_at_high_bt_and_opens_at_low():
     c = _case(t_s=0.3, bands="third", seed=3)
     main, ranges = truth_ranges(build(c), [50, 4000])
     assert ranges["wideband"]["t30_s"][0] == ranges["wideband"]["t30_s"][1]
-    lo, hi = ranges[4000]["t30_s"]        # B·T = 0.3 · 922 Hz ≈ 280: above 200
-    assert lo == hi == main[4000]["t30_s"]
+    for m in METRICS:                     # B·T = 0.3 · 922 Hz ≈ 280: one edge shape
+        lo, hi = ranges[4000][m]
+        assert lo <= main[4000][m] <= hi
+        assert abs(error_in_jnd(m, hi, lo)) < 0.1, m   # direct sound's spread: < 1 ms
     for m in METRICS:
         lo, hi = ranges[50][m]
         assert lo <= main[50][m] <= hi
@@ -348,7 +350,8 @@ def test_cli_will_not_overwrite_a_json_file(tmp_path, capsys):
 # --- the regression grid ----------------------------------------------------------------------
 
 def small_grid() -> list[Case]:
-    """The same construction as the full grid, smaller: 12 responses, T 0.2–0.6 s."""
+    """The same construction as the full grid, smaller: 12 responses, T 0.2–0.6 s (about
+    15 s on an idle machine, most of it the reference's low bands)."""
     return make_grid(12, seed=31, t_range=(0.2, 0.6), window_range=(1.2, 6.0),
                      max_window_samples=1 << 17)
 
@@ -358,6 +361,7 @@ def small_grid_records():
     return [accuracy.evaluate_case(c) for c in small_grid()]
 
 
+@pytest.mark.slow
 def test_small_grid_counts_every_value(small_grid_records):
     for res in small_grid_records:
         case = res["case"]
@@ -367,6 +371,7 @@ def test_small_grid_counts_every_value(small_grid_records):
         assert all(r["status"] in accuracy.STATUSES for r in res["records"])
 
 
+@pytest.mark.slow
 @pytest.mark.xfail(strict=False, reason="the analysis rewrite that adds verdicts is landing "
                    "in parallel; remove this marker when it has")
 def test_small_grid_has_no_silently_wrong_value(small_grid_records):
