@@ -18,8 +18,8 @@ import secrets
 import socket
 import stat
 import time
+from collections.abc import Iterable, Iterator
 from pathlib import Path
-from typing import Iterable, Iterator
 
 import numpy as np
 import soundfile as sf
@@ -43,15 +43,21 @@ def read_audio(path, *, what: str = "audio file") -> tuple[np.ndarray, int]:
         info = sf.info(str(p))
         data, rate = sf.read(str(p), dtype="float64", always_2d=True)
     except (sf.LibsndfileError, RuntimeError, ValueError) as exc:
-        raise InputError(describe(p, f"cannot be read as audio: {exc}",
-                                  "is it a complete WAV/FLAC/AIFF file?")) from None
+        raise InputError(
+            describe(p, f"cannot be read as audio: {exc}", "is it a complete WAV/FLAC/AIFF file?")
+        ) from None
     _check_truncation(p, info)
     if data.shape[0] == 0:
         raise InputError(describe(p, f"{what} holds no samples"))
     if not np.all(np.isfinite(data)):
         bad = int(np.count_nonzero(~np.isfinite(data)))
-        raise InputError(describe(p, f"{what} holds {bad} NaN or infinite samples",
-                                  "re-export it from the recording software"))
+        raise InputError(
+            describe(
+                p,
+                f"{what} holds {bad} NaN or infinite samples",
+                "re-export it from the recording software",
+            )
+        )
     return data, int(rate)
 
 
@@ -59,8 +65,13 @@ def _check_truncation(p: Path, info) -> None:
     """libsndfile quietly reads a WAV whose data chunk is cut short; we do not."""
     extra = getattr(info, "extra_info", "") or ""
     if re.search(r"^data\s*:\s*\d+\s*\(should be", extra, flags=re.MULTILINE):
-        raise InputError(describe(p, "the WAV file is truncated (its header promises more data "
-                                     "than the file holds)", "copy it again from the source"))
+        raise InputError(
+            describe(
+                p,
+                "the WAV file is truncated (its header promises more data than the file holds)",
+                "copy it again from the source",
+            )
+        )
 
 
 def audio_info(path) -> sf._SoundFileInfo:
@@ -90,16 +101,26 @@ def audio_format_for(path, n_bytes: int = 0) -> str:
     """Container for ``path``'s extension; RF64 once a WAV would pass the 4 GiB RIFF limit."""
     ext = Path(path).suffix.lower()
     if ext not in _FORMATS:
-        raise InputError(describe(path, f"unsupported output extension '{ext}'",
-                                  "use .wav, .flac, .aiff or .w64"))
+        raise InputError(
+            describe(
+                path, f"unsupported output extension '{ext}'", "use .wav, .flac, .aiff or .w64"
+            )
+        )
     fmt = _FORMATS[ext]
     if fmt == "WAV" and n_bytes > _WAV_LIMIT_BYTES:
         fmt = "RF64"
     return fmt
 
 
-def write_audio(path, data: np.ndarray, rate: int, *, subtype: str = "FLOAT",
-                force: bool = False, inputs: Iterable = ()) -> Path:
+def write_audio(
+    path,
+    data: np.ndarray,
+    rate: int,
+    *,
+    subtype: str = "FLOAT",
+    force: bool = False,
+    inputs: Iterable = (),
+) -> Path:
     """Write ``data`` (samples × channels, or 1-D) through a one-file guard."""
     with WriteGuard(inputs, force=force) as g:
         return g.write_audio(path, data, rate, subtype=subtype)
@@ -107,8 +128,9 @@ def write_audio(path, data: np.ndarray, rate: int, *, subtype: str = "FLOAT",
 
 def _check_subtype(path, fmt: str, subtype: str) -> None:
     if not sf.check_format(fmt, subtype):
-        raise InputError(describe(path, f"the {fmt} format cannot hold subtype {subtype}",
-                                  "try FLOAT or PCM_24"))
+        raise InputError(
+            describe(path, f"the {fmt} format cannot hold subtype {subtype}", "try FLOAT or PCM_24")
+        )
 
 
 def write_json(path, obj, *, force: bool = False, inputs: Iterable = ()) -> Path:
@@ -179,7 +201,7 @@ def file_sha256(path, chunk: int = 1 << 20) -> str:
 
 def output_record(path) -> dict:
     """What a later run checks to trust a finished output: frames and SHA-256."""
-    rec = {"file": str(path), "sha256": file_sha256(path)}
+    rec: dict[str, str | int] = {"file": str(path), "sha256": file_sha256(path)}
     with contextlib.suppress(sf.LibsndfileError, RuntimeError):
         rec["frames"] = int(sf.info(str(path)).frames)
     return rec
@@ -198,8 +220,14 @@ def provenance(inputs: Iterable, settings: dict, output=None) -> dict:
     return rec
 
 
-def write_provenance(output, inputs: Iterable, settings: dict, *, force: bool = False,
-                     guard: "WriteGuard | None" = None) -> Path:
+def write_provenance(
+    output,
+    inputs: Iterable,
+    settings: dict,
+    *,
+    force: bool = False,
+    guard: WriteGuard | None = None,
+) -> Path:
     """Write ``<output stem>.provenance.json`` beside ``output`` through ``guard`` (or a
     one-file guard that knows ``inputs``); like any output it is replaced only with ``force``."""
     inputs = list(inputs)
@@ -223,10 +251,16 @@ _HOST = hashlib.sha256(socket.gethostname().encode()).hexdigest()[:4]
 _TEMP_RE = re.compile(r"^\.rc-([0-9a-f]{4})-(\d+)-[A-Za-z0-9_]{4,16}\.tmp$")
 _PROCESS_START = time.time()
 _LIVE_TEMPS: set[Path] = set()
-_LIVE_GUARDS: list["WriteGuard"] = []
+_LIVE_GUARDS: list[WriteGuard] = []
 _SWEPT: set[str] = set()
-_LINK_UNSUPPORTED = {errno.EPERM, errno.ENOTSUP, errno.EOPNOTSUPP, errno.EXDEV, errno.EMLINK,
-                     errno.ENOSYS}
+_LINK_UNSUPPORTED = {
+    errno.EPERM,
+    errno.ENOTSUP,
+    errno.EOPNOTSUPP,
+    errno.EXDEV,
+    errno.EMLINK,
+    errno.ENOSYS,
+}
 _FULL = {errno.ENOSPC, errno.EDQUOT}
 
 
@@ -251,15 +285,22 @@ def _stat(p: Path, *, follow: bool = True):
     except FileNotFoundError:
         return None
     except NotADirectoryError:
-        raise InputError(describe(_short(p), "a part of this path is a file, not a folder",
-                                  "check the path")) from None
+        raise InputError(
+            describe(_short(p), "a part of this path is a file, not a folder", "check the path")
+        ) from None
     except OSError as exc:
         if exc.errno == errno.ELOOP:
-            raise InputError(describe(_short(p), "is a loop of symbolic links",
-                                      "fix or remove the link")) from None
+            raise InputError(
+                describe(_short(p), "is a loop of symbolic links", "fix or remove the link")
+            ) from None
         if exc.errno == errno.ENAMETOOLONG:
-            raise InputError(describe(_short(p), f"the path is too long ({len(str(p))} "
-                                      "characters)", "use a shorter name or folder")) from None
+            raise InputError(
+                describe(
+                    _short(p),
+                    f"the path is too long ({len(str(p))} characters)",
+                    "use a shorter name or folder",
+                )
+            ) from None
         raise InputError(describe(_short(p), f"cannot be examined: {exc.strerror}")) from None
 
 
@@ -276,14 +317,20 @@ def check_input_file(path, what: str = "file") -> Path:
     st = _stat(p)
     if st is None:
         if os.path.islink(p):
-            raise InputError(describe(_short(p), f"{what} is a broken symbolic link",
-                                      "check the path"))
+            raise InputError(
+                describe(_short(p), f"{what} is a broken symbolic link", "check the path")
+            )
         raise InputError(describe(_short(p), f"{what} not found", "check the path"))
     if stat.S_ISDIR(st.st_mode):
         raise InputError(describe(_short(p), f"is a directory, not a file ({what} expected)"))
     if not stat.S_ISREG(st.st_mode):
-        raise InputError(describe(_short(p), "is not a regular file but a pipe, socket or "
-                                  f"device ({what} expected)", "copy it to a file first"))
+        raise InputError(
+            describe(
+                _short(p),
+                f"is not a regular file but a pipe, socket or device ({what} expected)",
+                "copy it to a file first",
+            )
+        )
     return p
 
 
@@ -316,7 +363,7 @@ def sweep_stale_temps(folder) -> list[Path]:
     alone.
     """
     folder = Path(folder) if str(folder) else Path(".")
-    removed = []
+    removed: list[Path] = []
     try:
         entries = list(os.scandir(folder))
     except OSError:
@@ -390,11 +437,18 @@ def write_error(exc: BaseException, target, folder: Path | None = None) -> Roomc
         # (a pseudo file system reports no blocks at all, and is not "full").
         full = _nearly_full(folder)
     if full:
-        return InputError(f"no space left on device while writing {_short(target)} (free some "
-                          "space or write elsewhere; nothing was left behind)")
+        return InputError(
+            f"no space left on device while writing {_short(target)} (free some "
+            "space or write elsewhere; nothing was left behind)"
+        )
     if err in (errno.EACCES, errno.EROFS, errno.EPERM):
-        return InputError(describe(_short(target), "cannot be written: "
-                                   f"{getattr(exc, 'strerror', exc)}", "check the permissions"))
+        return InputError(
+            describe(
+                _short(target),
+                f"cannot be written: {getattr(exc, 'strerror', exc)}",
+                "check the permissions",
+            )
+        )
     if isinstance(exc, OSError):
         return InputError(describe(_short(target), f"cannot be written: {exc.strerror or exc}"))
     return None
@@ -416,18 +470,26 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
     try:
         os.link(tmp, final)
     except FileExistsError:
-        raise OutputExistsError(describe(_short(final), "appeared while this run was working "
-                                         "(another process wrote it)",
-                                         "nothing was replaced; pass --force to replace it"))
+        raise OutputExistsError(
+            describe(
+                _short(final),
+                "appeared while this run was working (another process wrote it)",
+                "nothing was replaced; pass --force to replace it",
+            )
+        ) from None
     except OSError as exc:
         if exc.errno not in _LINK_UNSUPPORTED:
             raise
         try:
             fd = os.open(final, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
         except FileExistsError:
-            raise OutputExistsError(describe(_short(final), "appeared while this run was "
-                                             "working (another process wrote it)",
-                                             "pass --force to replace it")) from None
+            raise OutputExistsError(
+                describe(
+                    _short(final),
+                    "appeared while this run was working (another process wrote it)",
+                    "pass --force to replace it",
+                )
+            ) from None
         # Until the rename, the reserved (empty) name counts as ours to remove on interrupt.
         _LIVE_TEMPS.add(final)
         os.close(fd)
@@ -476,34 +538,54 @@ class WriteGuard:
             # argparse turns '' into Path('.'), so both read the same here.
             raise InputError("an output file name is empty or '.' (give a file name)")
         if len(str(p)) >= _path_max():
-            raise InputError(describe(_short(p), f"the path is too long ({len(str(p))} "
-                                      f"characters; the limit here is {_path_max() - 1})"))
+            raise InputError(
+                describe(
+                    _short(p),
+                    f"the path is too long ({len(str(p))} "
+                    f"characters; the limit here is {_path_max() - 1})",
+                )
+            )
         limit = _name_max(p.parent if str(p.parent) else Path("."))
         if len(p.name.encode()) > limit:
-            raise InputError(describe(_short(p), f"the file name is {len(p.name.encode())} "
-                                      f"bytes long; the limit here is {limit}",
-                                      "use a shorter name"))
+            raise InputError(
+                describe(
+                    _short(p),
+                    f"the file name is {len(p.name.encode())} "
+                    f"bytes long; the limit here is {limit}",
+                    "use a shorter name",
+                )
+            )
 
     def _check_against(self, p: Path, ident) -> None:
         for src, sid in self._inputs:
             if _same(ident, sid):
                 alias = "" if str(src) == str(p) else f" (as {_short(src)})"
-                raise InputError(describe(_short(p), f"is also an input{alias}; roomconv "
-                                          "never writes over an input",
-                                          "choose another output name"))
+                raise InputError(
+                    describe(
+                        _short(p),
+                        f"is also an input{alias}; roomconv never writes over an input",
+                        "choose another output name",
+                    )
+                )
         for other, oid in self._outputs:
             if _same(ident, oid):
                 alias = "" if str(other) == str(p) else f" (also as {_short(other)})"
-                raise InputError(describe(_short(p), f"would be written twice by this "
-                                          f"command{alias}", "choose distinct output names"))
+                raise InputError(
+                    describe(
+                        _short(p),
+                        f"would be written twice by this command{alias}",
+                        "choose distinct output names",
+                    )
+                )
 
     def _folder_ok(self, p: Path, folder: Path) -> None:
         if any(_same(_identity(folder), _identity(f)) for f in self._folders):
             return
         st = _stat(folder)
         if st is None:
-            raise InputError(describe(_short(p), f"folder {_short(folder)} does not exist",
-                                      "create it first"))
+            raise InputError(
+                describe(_short(p), f"folder {_short(folder)} does not exist", "create it first")
+            )
         if not stat.S_ISDIR(st.st_mode):
             raise InputError(describe(_short(p), f"{_short(folder)} is not a folder"))
         if not os.access(folder, os.W_OK | os.X_OK):
@@ -522,16 +604,23 @@ class WriteGuard:
             # fail on it or replace it, so it counts as an existing output.
             st = os.lstat(p)
         if st is not None and stat.S_ISDIR(st.st_mode):
-            raise InputError(describe(_short(p), "is a directory, expected a file name",
-                                      "give a file name inside it"))
+            raise InputError(
+                describe(
+                    _short(p), "is a directory, expected a file name", "give a file name inside it"
+                )
+            )
         if st is not None and not (stat.S_ISREG(st.st_mode) or stat.S_ISLNK(st.st_mode)):
-            raise InputError(describe(_short(p), "exists and is not a regular file",
-                                      "choose another output name"))
+            raise InputError(
+                describe(
+                    _short(p), "exists and is not a regular file", "choose another output name"
+                )
+            )
         ident = _identity(p)
         self._check_against(p, ident)
         if st is not None and not (self.force or exists_ok):
-            raise OutputExistsError(describe(_short(p), "exists already",
-                                             "pass --force to replace it"))
+            raise OutputExistsError(
+                describe(_short(p), "exists already", "pass --force to replace it")
+            )
         self._outputs.append((p, ident))
         if str(folder) not in _SWEPT and folder.is_dir():
             _SWEPT.add(str(folder))
@@ -544,10 +633,15 @@ class WriteGuard:
         self._check_name(p, folder=True)
         st = _stat(p)
         if st is not None and not stat.S_ISDIR(st.st_mode):
-            raise InputError(describe(_short(p), "exists and is not a folder",
-                                      "give a folder name, or remove the file"))
+            raise InputError(
+                describe(
+                    _short(p),
+                    "exists and is not a folder",
+                    "give a folder name, or remove the file",
+                )
+            )
         ident = _identity(p)
-        for src, sid in self._inputs:
+        for _src, sid in self._inputs:
             if _same(ident, sid):
                 raise InputError(describe(_short(p), "is also an input"))
         if st is None:
@@ -678,7 +772,7 @@ class WriteGuard:
         with contextlib.suppress(ValueError):
             _LIVE_GUARDS.remove(self)
 
-    def __enter__(self) -> "WriteGuard":
+    def __enter__(self) -> WriteGuard:
         return self
 
     def __exit__(self, *exc) -> None:

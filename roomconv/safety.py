@@ -45,8 +45,10 @@ def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
     if not np.isfinite(level_dbfs):
         raise InputError(f"level {level_dbfs} dBFS is not a finite number")
     if level_dbfs > cap_dbfs:
-        raise InputError(f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
-                         "(lower --level)")
+        raise InputError(
+            f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
+            "(lower --level)"
+        )
     return level_dbfs
 
 
@@ -85,7 +87,7 @@ class OutputLimiter:
         self.max_reduction_db = 0.0
         self._powers: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self.last_peak = 0.0  #: peak of the last block returned, linear
-        self.nonfinite = 0    #: blocks in which NaN/inf samples were replaced by silence
+        self.nonfinite = 0  #: blocks in which NaN/inf samples were replaced by silence
 
     def process(self, block: np.ndarray, *, in_place: bool = False) -> np.ndarray:
         """Limit one block (samples × channels, or samples).
@@ -100,7 +102,7 @@ class OutputLimiter:
         if block.shape[0] > self.CHUNK:
             parts, top = [], 0.0
             for i in range(0, block.shape[0], self.CHUNK):
-                parts.append(self.process(block[i:i + self.CHUNK], in_place=in_place))
+                parts.append(self.process(block[i : i + self.CHUNK], in_place=in_place))
                 top = max(top, self.last_peak)
             self.last_peak = top
             return block if in_place else np.concatenate(parts)
@@ -131,7 +133,7 @@ class OutputLimiter:
         n = peaks.size
         if n not in self._powers:
             k = np.arange(1, n + 1)
-            self._powers[n] = (self._release ** k, self._release ** -k)
+            self._powers[n] = (self._release**k, self._release**-k)
         up, down = self._powers[n]
         # 1 − need, where need = min(1, c / peak) is the gain each sample needs on its own.
         v = np.maximum(peaks, c)

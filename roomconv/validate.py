@@ -19,7 +19,7 @@ from collections.abc import Iterable
 from .errors import InputError
 
 #: Largest single buffer roomconv agrees to allocate for one signal (float64), bytes.
-MEMORY_BUDGET_BYTES = 2 * 1024 ** 3
+MEMORY_BUDGET_BYTES = 2 * 1024**3
 #: Sample rates accepted for anything roomconv writes or plays, Hz. 8 kHz is telephone band,
 #: 384 kHz the highest rate common audio interfaces offer (common practice).
 RATE_MIN, RATE_MAX = 8000, 384000
@@ -49,8 +49,16 @@ def finite(value, what: str) -> float:
     return v
 
 
-def in_range(value, what: str, lo: float | None = None, hi: float | None = None, *,
-             unit: str = "", lo_open: bool = False, hi_open: bool = False) -> float:
+def in_range(
+    value,
+    what: str,
+    lo: float | None = None,
+    hi: float | None = None,
+    *,
+    unit: str = "",
+    lo_open: bool = False,
+    hi_open: bool = False,
+) -> float:
     """A finite number within ``lo``..``hi`` (closed unless ``lo_open``/``hi_open``)."""
     v = finite(value, what)
     u = f" {unit}" if unit else ""
@@ -58,8 +66,10 @@ def in_range(value, what: str, lo: float | None = None, hi: float | None = None,
     above = hi is not None and (v >= hi if hi_open else v > hi)
     if below or above:
         if lo is not None and hi is not None:
-            rng = (f"{'above' if lo_open else 'from'} {_fmt(lo)} "
-                   f"{'and below' if hi_open else 'to'} {_fmt(hi)}{u}")
+            rng = (
+                f"{'above' if lo_open else 'from'} {_fmt(lo)} "
+                f"{'and below' if hi_open else 'to'} {_fmt(hi)}{u}"
+            )
         elif lo is not None:
             rng = f"{'above' if lo_open else 'at least'} {_fmt(lo)}{u}"
         else:
@@ -105,32 +115,37 @@ def channel_list(text, what: str, *, hi: int = MAX_CHANNEL) -> tuple[int, ...]:
     """``"1,2"`` → ``(1, 2)``: 1-based channel numbers, each once."""
     items = [t.strip() for t in str(text).split(",")]
     if not items or any(t == "" for t in items):
-        raise InputError(f"{what} '{text}' must be channel numbers separated by commas, "
-                         "like 1,2")
+        raise InputError(f"{what} '{text}' must be channel numbers separated by commas, like 1,2")
     out = []
     for t in items:
         try:
             out.append(count(t, what, 1, hi))
         except InputError:
-            raise InputError(f"{what} '{text}': '{t}' is not a channel number from 1 to "
-                             f"{hi}") from None
+            raise InputError(
+                f"{what} '{text}': '{t}' is not a channel number from 1 to {hi}"
+            ) from None
     if len(set(out)) != len(out):
         raise InputError(f"{what} '{text}' names a channel twice")
     return tuple(out)
 
 
 def human_bytes(n: float) -> str:
-    if n >= 1024 ** 5:
-        return f"{n / 1024 ** 4:.3g} TiB"
-    for unit, size in (("TiB", 1024 ** 4), ("GiB", 1024 ** 3), ("MiB", 1024 ** 2),
-                       ("KiB", 1024)):
+    if n >= 1024**5:
+        return f"{n / 1024**4:.3g} TiB"
+    for unit, size in (("TiB", 1024**4), ("GiB", 1024**3), ("MiB", 1024**2), ("KiB", 1024)):
         if n >= size:
             return f"{n / size:.0f} {unit}"
     return f"{n:.0f} bytes"
 
 
-def memory_budget(samples: float, what: str, *, channels: int = 1, bytes_per_sample: int = 8,
-                  budget: int = MEMORY_BUDGET_BYTES) -> int:
+def memory_budget(
+    samples: float,
+    what: str,
+    *,
+    channels: int = 1,
+    bytes_per_sample: int = 8,
+    budget: int = MEMORY_BUDGET_BYTES,
+) -> int:
     """Refuse a buffer of ``samples`` × ``channels`` that would exceed ``budget`` bytes.
 
     Returns the sample count as an int. The message gives the size it would need, so a
@@ -141,8 +156,11 @@ def memory_budget(samples: float, what: str, *, channels: int = 1, bytes_per_sam
         raise InputError(f"{what} gives an impossible size ({_fmt(samples)} samples)")
     need = samples * max(1, channels) * bytes_per_sample
     if need > budget:
-        size = (f"{human_bytes(need)} of memory" if math.isfinite(need)
-                else "more memory than any machine has")
+        size = (
+            f"{human_bytes(need)} of memory"
+            if math.isfinite(need)
+            else "more memory than any machine has"
+        )
         raise InputError(f"{what} would need {size} (at most {human_bytes(budget)} per signal)")
     return round(samples)
 

@@ -24,8 +24,8 @@ def test_vectorized_limiter_equals_its_recursion(block):
     rng = np.random.default_rng(0)
     x = rng.standard_normal(6000) * np.linspace(0.05, 4, 6000)
     lim = OutputLimiter(48000, -3.0)
-    y = np.concatenate([lim.process(x[i:i + block, None]) for i in range(0, x.size, block)])
-    want = np.clip(x * reference_gain(x, 48000, -3.0), -10 ** (-3 / 20), 10 ** (-3 / 20))
+    y = np.concatenate([lim.process(x[i : i + block, None]) for i in range(0, x.size, block)])
+    want = np.clip(x * reference_gain(x, 48000, -3.0), -(10 ** (-3 / 20)), 10 ** (-3 / 20))
     assert np.max(np.abs(y[:, 0] - want)) < 1e-12
     assert np.max(np.abs(y)) <= 10 ** (-3 / 20)
 

@@ -11,8 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import fftconvolve
 
-from ..errors import DeviceError, InputError
 from .. import safety
+from ..errors import DeviceError, InputError
 
 
 def load_sounddevice():
@@ -20,11 +20,14 @@ def load_sounddevice():
     try:
         import sounddevice as sd  # noqa: PLC0415 - lazy on purpose
     except OSError as exc:
-        raise DeviceError("the PortAudio library is not installed, so no sound card can be used "
-                          f"({exc}); on Debian/Ubuntu: apt-get install libportaudio2") from None
+        raise DeviceError(
+            "the PortAudio library is not installed, so no sound card can be used "
+            f"({exc}); on Debian/Ubuntu: apt-get install libportaudio2"
+        ) from None
     except ImportError as exc:
-        raise DeviceError(f"the sounddevice package is missing ({exc}); "
-                          "pip install sounddevice") from None
+        raise DeviceError(
+            f"the sounddevice package is missing ({exc}); pip install sounddevice"
+        ) from None
     return sd
 
 
@@ -33,9 +36,15 @@ def list_devices() -> list[dict]:
     sd = load_sounddevice()
     out = []
     for i, d in enumerate(sd.query_devices()):
-        out.append({"index": i, "name": d["name"], "inputs": d["max_input_channels"],
-                    "outputs": d["max_output_channels"],
-                    "default_rate": d["default_samplerate"]})
+        out.append(
+            {
+                "index": i,
+                "name": d["name"],
+                "inputs": d["max_input_channels"],
+                "outputs": d["max_output_channels"],
+                "default_rate": d["default_samplerate"],
+            }
+        )
     return out
 
 
@@ -59,17 +68,26 @@ class SoundCard:
         except Exception as exc:  # PortAudio host errors are not a stable type
             raise DeviceError(f"cannot query sound devices: {exc}") from None
         if len(devs) == 0:
-            raise DeviceError("PortAudio found no sound device; connect an interface, or "
-                              "use --simulate IR.wav to rehearse the measurement")
+            raise DeviceError(
+                "PortAudio found no sound device; connect an interface, or "
+                "use --simulate IR.wav to rehearse the measurement"
+            )
         out = safety.hard_cap(np.asarray(signal, dtype=np.float64))
         try:
-            rec = sd.playrec(out.astype(np.float32)[:, None], samplerate=rate,
-                             input_mapping=list(self.input_channels),
-                             output_mapping=[self.output_channel], device=self.device,
-                             dtype="float32", blocking=True)
+            rec = sd.playrec(
+                out.astype(np.float32)[:, None],
+                samplerate=rate,
+                input_mapping=list(self.input_channels),
+                output_mapping=[self.output_channel],
+                device=self.device,
+                dtype="float32",
+                blocking=True,
+            )
         except Exception as exc:
-            raise DeviceError(f"the sound card refused the stream: {exc} (check --device, the "
-                              "channel numbers and the sample rate)") from None
+            raise DeviceError(
+                f"the sound card refused the stream: {exc} (check --device, the "
+                "channel numbers and the sample rate)"
+            ) from None
         return np.asarray(rec, dtype=np.float64)
 
 
@@ -107,6 +125,7 @@ class SimulatedDevice:
             # Apply the polynomial at 4× the rate and filter back down, as the converter's
             # anti-alias filter would: harmonics above Nyquist must not fold into the band.
             from scipy.signal import resample_poly  # noqa: PLC0415
+
             up = resample_poly(x, 4, 1)
             driven = resample_poly(up + a2 * up**2 + a3 * up**3, 1, 4)[: x.size]
         ir = np.asarray(self.ir, dtype=np.float64)
@@ -129,8 +148,14 @@ class SimulatedDevice:
         return rec
 
 
-def run_measurement(device, playback: np.ndarray, rate: int, *, tail_s: float = 0.5,
-                    level_cap_dbfs: float = safety.OUTPUT_CAP_DBFS) -> np.ndarray:
+def run_measurement(
+    device,
+    playback: np.ndarray,
+    rate: int,
+    *,
+    tail_s: float = 0.5,
+    level_cap_dbfs: float = safety.OUTPUT_CAP_DBFS,
+) -> np.ndarray:
     """Play ``playback`` (1-D) plus ``tail_s`` of silence and return the recording.
 
     Refuses a signal above the output cap; the caller must have shown and confirmed the caution.
@@ -138,14 +163,17 @@ def run_measurement(device, playback: np.ndarray, rate: int, *, tail_s: float = 
     x = np.asarray(playback, dtype=np.float64).reshape(-1)
     peak = float(np.max(np.abs(x))) if x.size else 0.0
     if peak > safety.db_to_gain(level_cap_dbfs) + 1e-12:
-        raise InputError(f"playback peak {20 * np.log10(peak):.1f} dBFS is above the output cap "
-                         f"of {level_cap_dbfs:g} dBFS")
+        raise InputError(
+            f"playback peak {20 * np.log10(peak):.1f} dBFS is above the output cap "
+            f"of {level_cap_dbfs:g} dBFS"
+        )
     padded = np.concatenate([x, np.zeros(int(round(tail_s * rate)))])
     return device.playrec(padded, rate)
 
 
-def metered_playrec(device, signal: np.ndarray, rate: int, on_level, interval_s: float = 0.1
-                    ) -> np.ndarray:
+def metered_playrec(
+    device, signal: np.ndarray, rate: int, on_level, interval_s: float = 0.1
+) -> np.ndarray:
     """Play and record like :func:`run_measurement`, calling ``on_level(peak_dbfs, fraction)``
     about every ``interval_s`` with the input peak of the last interval, for a live meter.
 
@@ -160,18 +188,24 @@ def metered_playrec(device, signal: np.ndarray, rate: int, on_level, interval_s:
 
     if isinstance(device, SoundCard):
         import time
+
         sd = load_sounddevice()
         try:
-            rec = sd.playrec(safety.hard_cap(x).astype(np.float32)[:, None], samplerate=rate,
-                             input_mapping=list(device.input_channels),
-                             output_mapping=[device.output_channel], device=device.device,
-                             dtype="float32", blocking=False)
+            rec = sd.playrec(
+                safety.hard_cap(x).astype(np.float32)[:, None],
+                samplerate=rate,
+                input_mapping=list(device.input_channels),
+                output_mapping=[device.output_channel],
+                device=device.device,
+                dtype="float32",
+                blocking=False,
+            )
         except Exception as exc:
             raise DeviceError(f"the sound card refused the stream: {exc}") from None
         t0 = time.monotonic()
         while True:
             n = min(x.size, int((time.monotonic() - t0) * rate))
-            on_level(level(rec[max(0, n - step):n]), n / x.size)
+            on_level(level(rec[max(0, n - step) : n]), n / x.size)
             if n >= x.size:
                 break
             time.sleep(interval_s)
@@ -179,5 +213,5 @@ def metered_playrec(device, signal: np.ndarray, rate: int, on_level, interval_s:
         return np.asarray(rec, dtype=np.float64)
     rec = device.playrec(x, rate)
     for n in range(step, rec.shape[0] + step, step):
-        on_level(level(rec[n - step:n]), min(1.0, n / rec.shape[0]))
+        on_level(level(rec[n - step : n]), min(1.0, n / rec.shape[0]))
     return rec

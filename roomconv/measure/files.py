@@ -14,8 +14,14 @@ from .deconvolve import HARMONIC_ORDERS, Extraction, extract_ir
 from .sweep import Sweep, sweep_signal
 
 
-def save_sweep(path, sweep: Sweep, *, subtype: str = "FLOAT", force: bool = False,
-               guard: WriteGuard | None = None) -> Path:
+def save_sweep(
+    path,
+    sweep: Sweep,
+    *,
+    subtype: str = "FLOAT",
+    force: bool = False,
+    guard: WriteGuard | None = None,
+) -> Path:
     """Write the playback WAV and its ``.sweep.json`` sidecar (both planned before either is
     written)."""
     g = guard or WriteGuard(force=force)
@@ -58,33 +64,68 @@ def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
     d = read_json(side, what="sweep sidecar")
     sweep = Sweep.from_dict(d, source=side)
     if sweep.rate != rate or sweep.n_total != sig.size:
-        return sig, rate, None, (f"sidecar {side.name} does not match the WAV (rate or length "
-                                 "differ): using regularized spectral division")
+        return (
+            sig,
+            rate,
+            None,
+            (
+                f"sidecar {side.name} does not match the WAV (rate or length "
+                "differ): using regularized spectral division"
+            ),
+        )
     return sig, rate, sweep, None
 
 
-def extract_files(recording_path, sweep_path, *, reference_channel=None, length_s=None,
-                  trim=False, harmonics=True, allow_clipped=False) -> tuple[Extraction, list[str]]:
+def extract_files(
+    recording_path,
+    sweep_path,
+    *,
+    reference_channel=None,
+    length_s=None,
+    trim=False,
+    harmonics=True,
+    allow_clipped=False,
+) -> tuple[Extraction, list[str]]:
     """Load a recording and a sweep file and extract the IR(s)."""
     rec, rate = read_audio(recording_path, what="recording")
     sig, s_rate, sweep, note = load_sweep(sweep_path)
     if rate != s_rate:
-        raise InputError(describe(recording_path, f"recorded at {rate} Hz but the sweep "
-                                  f"{Path(sweep_path).name} is at {s_rate} Hz",
-                                  "record at the sweep's sample rate"))
+        raise InputError(
+            describe(
+                recording_path,
+                f"recorded at {rate} Hz but the sweep {Path(sweep_path).name} is at {s_rate} Hz",
+                "record at the sweep's sample rate",
+            )
+        )
     try:
-        ex = extract_ir(rec, rate, sweep=sweep, excitation=None if sweep else sig,
-                        reference_channel=reference_channel, length_s=length_s,
-                        harmonics=harmonics, trim=trim, allow_clipped=allow_clipped)
+        ex = extract_ir(
+            rec,
+            rate,
+            sweep=sweep,
+            excitation=None if sweep else sig,
+            reference_channel=reference_channel,
+            length_s=length_s,
+            harmonics=harmonics,
+            trim=trim,
+            allow_clipped=allow_clipped,
+        )
     except InputError as exc:
         raise InputError(describe(recording_path, str(exc))) from None
     notes = [note] if note else []
     return ex, notes
 
 
-def save_extraction(ex: Extraction, out, *, harmonics_dir=None, json_path=None,
-                    force: bool = False, inputs=(), settings: dict | None = None,
-                    guard: WriteGuard | None = None) -> list[Path]:
+def save_extraction(
+    ex: Extraction,
+    out,
+    *,
+    harmonics_dir=None,
+    json_path=None,
+    force: bool = False,
+    inputs=(),
+    settings: dict | None = None,
+    guard: WriteGuard | None = None,
+) -> list[Path]:
     """Write the IR, optional harmonic IRs, quality JSON and provenance through one guard
     (every target planned before the first is written); returns the written paths."""
     inputs = [Path(p) for p in inputs if Path(p).is_file()]
@@ -96,8 +137,11 @@ def save_extraction(ex: Extraction, out, *, harmonics_dir=None, json_path=None,
     written = [g.write_audio(out, ex.ir, ex.rate)]
     if harmonics_dir is not None:
         for k in sorted(ex.harmonics):
-            written.append(g.write_audio(Path(harmonics_dir) / f"{out.stem}_h{k}.wav",
-                                         ex.harmonics[k], ex.rate))
+            written.append(
+                g.write_audio(
+                    Path(harmonics_dir) / f"{out.stem}_h{k}.wav", ex.harmonics[k], ex.rate
+                )
+            )
     if json_path is not None:
         written.append(g.write_json(json_path, ex.quality))
     write_provenance(out, inputs, settings or {}, guard=g)
@@ -111,19 +155,24 @@ def format_quality(quality: dict) -> str:
     for c, pk in enumerate(rec.get("peak_dbfs", [])):
         nf = rec.get("noise_floor_dbfs")
         nf_txt = f", noise floor {nf[c]:.1f} dBFS" if nf else ""
-        lines.append(f"  input {c}: peak {pk:.1f} dBFS, clipped samples "
-                     f"{rec['clipped_samples'][c]}{nf_txt}")
+        lines.append(
+            f"  input {c}: peak {pk:.1f} dBFS, clipped samples {rec['clipped_samples'][c]}{nf_txt}"
+        )
     ir = quality.get("ir", {})
     for c, inr in enumerate(ir.get("inr_db", [])):
-        lines.append(f"  IR {c}: impulse-to-noise ratio (INR) {inr:.1f} dB, peak at sample "
-                     f"{ir['peak_sample'][c]}")
+        lines.append(
+            f"  IR {c}: impulse-to-noise ratio (INR) {inr:.1f} dB, peak at sample "
+            f"{ir['peak_sample'][c]}"
+        )
     if "reference_latency_samples" in quality:
         lines.append(f"  loopback latency removed: {quality['reference_latency_samples']} samples")
     if "repeats" in quality:
         r = quality["repeats"]
-        lines.append(f"  {r['count']} repeats averaged: noise down {r['snr_gain_db']:.1f} dB "
-                     f"(theory {r['expected_snr_gain_db']:.1f} dB), repeat mismatch "
-                     f"{r['repeat_mismatch_db']:.1f} dB")
+        lines.append(
+            f"  {r['count']} repeats averaged: noise down {r['snr_gain_db']:.1f} dB "
+            f"(theory {r['expected_snr_gain_db']:.1f} dB), repeat mismatch "
+            f"{r['repeat_mismatch_db']:.1f} dB"
+        )
     lines.append(f"  method: {quality.get('method')}, band {quality.get('band_hz')} Hz")
     if quality.get("trimmed_samples"):
         lines.append(f"  trimmed {quality['trimmed_samples']} leading samples")

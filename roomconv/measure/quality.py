@@ -64,15 +64,16 @@ def energy_envelope(h: np.ndarray, rate: int, interval_s: float = 0.01) -> tuple
     return np.mean(np.square(h[: m * n]).reshape(m, n), axis=1), n
 
 
-def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
-                 tail_fraction: float = 0.1) -> tuple[float, float]:
+def envelope_inr(
+    h: np.ndarray, rate: int, interval_s: float = 0.01, tail_fraction: float = 0.1
+) -> tuple[float, float]:
     """Impulse-to-noise ratio (INR, dB) of a 1-D IR from its smoothed energy envelope.
 
     The noise is the mean energy of the last ``tail_fraction`` of the response, the peak the
     largest interval mean. Returns ``(inr_db, noise_db_re_peak_sample)``.
     """
     env, _ = energy_envelope(h, rate, interval_s)
-    tail = env[-max(1, int(round(tail_fraction * env.size))):]
+    tail = env[-max(1, int(round(tail_fraction * env.size))) :]
     noise = float(np.mean(tail))
     peak = float(np.max(env))
     if noise <= 0:
@@ -87,6 +88,8 @@ def inr_warnings(inr_db: float, label: str) -> list[str]:
     for key in ("t30", "t20", "edt"):
         need = REQUIRED_INR_DB[key]
         if inr_db < need:
-            out.append(f"{label}: impulse-to-noise ratio (INR) {inr_db:.1f} dB is below the "
-                       f"{need:.0f} dB that {key.upper()} needs; it will not be evaluated")
+            out.append(
+                f"{label}: impulse-to-noise ratio (INR) {inr_db:.1f} dB is below the "
+                f"{need:.0f} dB that {key.upper()} needs; it will not be evaluated"
+            )
     return out

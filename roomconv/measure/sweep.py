@@ -7,6 +7,7 @@ turn it into samples.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, fields
+from typing import Any
 
 import numpy as np
 
@@ -36,11 +37,15 @@ class Sweep:
         if self.rate < 8000:
             raise InputError(f"sample rate {self.rate} Hz is too low (at least 8000 Hz)")
         if not (0 < self.f_low < self.f_high):
-            raise InputError(f"sweep band {self.f_low:g}-{self.f_high:g} Hz is not increasing "
-                             "and positive (set --low below --high)")
+            raise InputError(
+                f"sweep band {self.f_low:g}-{self.f_high:g} Hz is not increasing "
+                "and positive (set --low below --high)"
+            )
         if self.f_high > self.rate / 2:
-            raise InputError(f"sweep end {self.f_high:g} Hz is above the Nyquist frequency "
-                             f"{self.rate / 2:g} Hz (lower --high or raise --rate)")
+            raise InputError(
+                f"sweep end {self.f_high:g} Hz is above the Nyquist frequency "
+                f"{self.rate / 2:g} Hz (lower --high or raise --rate)"
+            )
         if self.duration <= 0.05:
             raise InputError(f"sweep duration {self.duration:g} s is too short (more than 0.05 s)")
         if self.fade_in < 0 or self.fade_out < 0 or self.fade_in + self.fade_out > self.duration:
@@ -82,30 +87,37 @@ class Sweep:
         return {"kind": "exponential_sine_sweep", **asdict(self)}
 
     @classmethod
-    def from_dict(cls, d, source=None) -> "Sweep":
+    def from_dict(cls, d, source=None) -> Sweep:
         """Rebuild a sweep from its sidecar's content, checking every field's type and value.
 
         ``source`` (the sidecar's path) is put in front of any refusal.
         """
         from .. import validate  # noqa: PLC0415
+
         where = f"{source}: " if source is not None else ""
         if not isinstance(d, dict):
-            raise InputError(f"{where}the sweep description must be a JSON object with the "
-                             f"sweep's settings, not a {type(d).__name__} (write it again "
-                             "with 'roomconv sweep')")
+            raise InputError(
+                f"{where}the sweep description must be a JSON object with the "
+                f"sweep's settings, not a {type(d).__name__} (write it again "
+                "with 'roomconv sweep')"
+            )
         names = {f.name for f in fields(cls)}
         missing = sorted(names - d.keys())
         if missing:
-            raise InputError(f"{where}sweep description is incomplete: missing "
-                             f"{', '.join(missing)}")
-        clean = {}
+            raise InputError(
+                f"{where}sweep description is incomplete: missing {', '.join(missing)}"
+            )
+        clean: dict[str, Any] = {}
         for k in names:
             v = d[k]
             if isinstance(v, bool) or not isinstance(v, (int, float)):
                 raise InputError(f"{where}field '{k}' must be a number, not {v!r}")
             try:
-                clean[k] = (validate.count(v, f"field '{k}'", 0) if k in ("rate", "repeats")
-                            else validate.finite(v, f"field '{k}'"))
+                clean[k] = (
+                    validate.count(v, f"field '{k}'", 0)
+                    if k in ("rate", "repeats")
+                    else validate.finite(v, f"field '{k}'")
+                )
             except InputError as exc:
                 raise InputError(f"{where}{exc}") from None
         try:
@@ -151,8 +163,9 @@ def sweep_only(sweep: Sweep) -> np.ndarray:
     t = np.arange(n) / sweep.rate
     L = sweep.rate_constant
     x = np.sin(2 * np.pi * sweep.f_low * L * np.expm1(t / L))
-    x *= _fade_window(n, int(round(sweep.fade_in * sweep.rate)),
-                      int(round(sweep.fade_out * sweep.rate)))
+    x *= _fade_window(
+        n, int(round(sweep.fade_in * sweep.rate)), int(round(sweep.fade_out * sweep.rate))
+    )
     return x * 10.0 ** (sweep.level_dbfs / 20.0)
 
 
@@ -161,7 +174,7 @@ def _fade_window(n: int, n_in: int, n_out: int) -> np.ndarray:
     if n_in > 0:
         w[:n_in] = 0.5 - 0.5 * np.cos(np.pi * np.arange(n_in) / n_in)
     if n_out > 0:
-        w[n - n_out:] = 0.5 + 0.5 * np.cos(np.pi * (np.arange(n_out) + 1) / n_out)
+        w[n - n_out :] = 0.5 + 0.5 * np.cos(np.pi * (np.arange(n_out) + 1) / n_out)
     return w
 
 
@@ -171,7 +184,7 @@ def sweep_signal(sweep: Sweep) -> np.ndarray:
     out = np.zeros(sweep.n_total)
     for r in range(sweep.repeats):
         start = sweep.n_pre + r * sweep.n_period
-        out[start:start + sweep.n_sweep] = one
+        out[start : start + sweep.n_sweep] = one
     return out
 
 

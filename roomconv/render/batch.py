@@ -13,6 +13,7 @@ outright (SIGKILL) notices within a fraction of a second and exits the same way.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import os
 import queue as queue_mod
@@ -20,13 +21,22 @@ import signal
 import threading
 import time
 import traceback
+import weakref
+from collections.abc import Callable
 from concurrent.futures import Executor, Future
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import Any
 
-from ..audio import (WriteGuard, check_input_file, drop_live_temps, file_sha256, output_record,
-                     read_json, sidecar_path)
+from ..audio import (
+    WriteGuard,
+    check_input_file,
+    drop_live_temps,
+    file_sha256,
+    output_record,
+    read_json,
+    sidecar_path,
+)
 from ..errors import InputError, RoomconvError
 from .offline import RenderSettings, render_file
 
@@ -49,14 +59,15 @@ class Job:
 @dataclass
 class Outcome:
     job: Job
-    status: str                    #: done | skipped | failed
+    status: str  #: done | skipped | failed
     message: str = ""
     exit_code: int = 0
     report: dict = field(default_factory=dict)
 
 
-def plan_jobs(drys, irs, out_dir, settings: RenderSettings,
-              guard: WriteGuard | None = None) -> list[Job]:
+def plan_jobs(
+    drys, irs, out_dir, settings: RenderSettings, guard: WriteGuard | None = None
+) -> list[Job]:
     """One job per (dry, IR) pair; inputs are checked and hashed once here, not once per job.
 
     With ``guard`` (which knows every input of the batch), each output and its sidecar are
@@ -64,7 +75,8 @@ def plan_jobs(drys, irs, out_dir, settings: RenderSettings,
     its own inputs is refused before any work.
     """
     out_dir = Path(out_dir)
-    hashes, problems = {}, {}
+    hashes: dict[Path, str | None] = {}
+    problems: dict[Path, str] = {}
     for p in list(drys) + list(irs):
         p = Path(p)
         if p in hashes:
@@ -77,21 +89,28 @@ def plan_jobs(drys, irs, out_dir, settings: RenderSettings,
             hashes[p], problems[p] = None, str(exc)
     jobs, seen = [], set()
     from .. import __version__
+
     for d in drys:
         for i in irs:
             d, i = Path(d), Path(i)
             out = out_dir / f"{d.stem}__{i.stem}.wav"
             if out in seen:
-                raise InputError(f"two jobs would both write {out.name}: rename one of the "
-                                 f"inputs ({d.name}, {i.name})")
+                raise InputError(
+                    f"two jobs would both write {out.name}: rename one of the "
+                    f"inputs ({d.name}, {i.name})"
+                )
             seen.add(out)
             if guard is not None:
                 guard.file(out, exists_ok=True)
                 guard.file(sidecar_path(out, "provenance"), exists_ok=True)
-            prov = {"roomconv_version": __version__,
-                    "inputs": [{"file": str(d), "sha256": hashes[d]},
-                               {"file": str(i), "sha256": hashes[i]}],
-                    "settings": settings.as_dict()}
+            prov = {
+                "roomconv_version": __version__,
+                "inputs": [
+                    {"file": str(d), "sha256": hashes[d]},
+                    {"file": str(i), "sha256": hashes[i]},
+                ],
+                "settings": settings.as_dict(),
+            }
             problem = problems.get(d) or problems.get(i) or ""
             jobs.append(Job(str(d), str(i), str(out), settings.as_dict(), prov, problem))
     return jobs
@@ -114,8 +133,10 @@ def check_finished(job: Job) -> tuple[str, str]:
         return "orphan", "the output's sidecar was unreadable"
     if not isinstance(old, dict):
         return "orphan", "the output's sidecar was malformed"
-    if (old.get("inputs") != job.provenance["inputs"]
-            or old.get("settings") != job.provenance["settings"]):
+    if (
+        old.get("inputs") != job.provenance["inputs"]
+        or old.get("settings") != job.provenance["settings"]
+    ):
         return "foreign", "the output was made with other inputs or settings"
     rec = old.get("output")
     if not isinstance(rec, dict) or "sha256" not in rec:
@@ -125,8 +146,9 @@ def check_finished(job: Job) -> tuple[str, str]:
     except OSError as exc:
         return "damaged", f"the output could not be read ({exc.strerror})"
     if now.get("frames") != rec.get("frames"):
-        return "damaged", (f"the output held {now.get('frames')} frames, its sidecar "
-                           f"says {rec.get('frames')}")
+        return "damaged", (
+            f"the output held {now.get('frames')} frames, its sidecar says {rec.get('frames')}"
+        )
     if now["sha256"] != rec["sha256"]:
         return "damaged", "the output differed from the hash in its sidecar"
     return "finished", ""
@@ -138,6 +160,8 @@ def is_finished(job: Job) -> bool:
 
 # --- worker side ---------------------------------------------------------------------------
 _WORKER: dict = {"progress": None, "busy": False}
+#: Pools made by :func:`local_executor`: their workers get progress through the initializer.
+_LOCAL_POOLS: weakref.WeakSet = weakref.WeakSet()
 
 
 class _Stop(BaseException):
@@ -176,10 +200,10 @@ def run_job(job: Job, progress=None) -> dict:
 
     def tick(frac):
         if progress is not None:
-            try:
+            # Progress is best effort; the render is not.
+            with contextlib.suppress(Exception):
                 progress.put((job.name, float(frac)))
-            except Exception:  # progress is best effort; the render is not
-                pass
+
     _WORKER["busy"] = True
     try:
         if job.problem:
@@ -188,29 +212,47 @@ def run_job(job: Job, progress=None) -> dict:
         # The parent has planned this output against every input of the batch and decided
         # whether an existing one is replaced. One FFT thread per job: jobs run side by side.
         guard = WriteGuard([job.dry, job.ir], force=job.replace)
-        rep = render_file(job.dry, job.ir, job.output, settings, force=True, progress=tick,
-                          workers=1, guard=guard)
+        rep = render_file(
+            job.dry, job.ir, job.output, settings, force=True, progress=tick, workers=1, guard=guard
+        )
         # The sidecar comes last: it vouches for the output's frames and hash.
-        guard.write_json(sidecar_path(job.output, "provenance"),
-                         {**job.provenance, "output": output_record(job.output)})
-        return {"ok": True, "peak_dbfs": rep.peak_dbfs, "seconds": rep.frames / rep.rate,
-                "warnings": rep.warnings}
+        guard.write_json(
+            sidecar_path(job.output, "provenance"),
+            {**job.provenance, "output": output_record(job.output)},
+        )
+        return {
+            "ok": True,
+            "peak_dbfs": rep.peak_dbfs,
+            "seconds": rep.frames / rep.rate,
+            "warnings": rep.warnings,
+        }
     except _Stop as stop:
         drop_live_temps()
         os._exit(128 + int(stop.args[0]) if stop.args else 143)
     except RoomconvError as exc:
         return {"ok": False, "error": str(exc), "exit_code": exc.exit_code}
     except Exception as exc:  # noqa: BLE001 - isolate one job's failure from the rest
-        return {"ok": False, "error": f"internal error: {type(exc).__name__}: {exc}",
-                "exit_code": 1, "trace": traceback.format_exc()}
+        return {
+            "ok": False,
+            "error": f"internal error: {type(exc).__name__}: {exc}",
+            "exit_code": 1,
+            "trace": traceback.format_exc(),
+        }
     finally:
         _WORKER["busy"] = False
 
 
 # --- parent side ---------------------------------------------------------------------------
-def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progress=None,
-              on_event: Callable[[str, object], None] | None = None,
-              poll_s: float = 0.1, before_first=None) -> list[Outcome]:
+def run_batch(
+    jobs: list[Job],
+    executor: Executor,
+    *,
+    force: bool = False,
+    progress=None,
+    on_event: Callable[[str, object], None] | None = None,
+    poll_s: float = 0.1,
+    before_first=None,
+) -> list[Outcome]:
     """Submit every unfinished job to ``executor`` and collect the outcomes.
 
     ``progress`` is a queue-like object shared with the workers (``put``/``get``) for per-job
@@ -223,19 +265,27 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
     emit = on_event or (lambda *_: None)
     outcomes: list[Outcome] = []
     futures: dict[Future, Job] = {}
-    job_progress = None if getattr(executor, "_roomconv_local", False) else progress
+    job_progress = None if executor in _LOCAL_POOLS else progress
     redo: dict[str, str] = {}
     try:
         for job in jobs:
             state, why = check_finished(job)
             if state == "finished":
-                outcomes.append(Outcome(job, "skipped", "finished earlier (output and sidecar "
-                                        "verified)"))
+                outcomes.append(
+                    Outcome(job, "skipped", "finished earlier (output and sidecar verified)")
+                )
                 emit("skip", outcomes[-1])
                 continue
             if state == "foreign" and not force:
-                outcomes.append(Outcome(job, "failed", f"{job.output} exists with other "
-                                        "inputs or settings (pass --force to replace it)", 2))
+                outcomes.append(
+                    Outcome(
+                        job,
+                        "failed",
+                        f"{job.output} exists with other "
+                        "inputs or settings (pass --force to replace it)",
+                        2,
+                    )
+                )
                 emit("done", outcomes[-1])
                 continue
             if job.problem:
@@ -267,8 +317,13 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
                 if res.get("ok"):
                     o = Outcome(job, "done", redo.get(job.output, ""), 0, res)
                 else:
-                    o = Outcome(job, "failed", res.get("error", "unknown error"),
-                                res.get("exit_code", 1), res)
+                    o = Outcome(
+                        job,
+                        "failed",
+                        res.get("error", "unknown error"),
+                        res.get("exit_code", 1),
+                        res,
+                    )
                 outcomes.append(o)
                 emit("done", o)
             pending -= finished
@@ -295,10 +350,8 @@ def stop_executor(executor: Executor, futures=()) -> None:
     except Exception:  # noqa: BLE001 - stopping must go on whatever the executor says
         pass
     for p in procs:
-        try:
+        with contextlib.suppress(OSError, ValueError, AttributeError):
             p.terminate()
-        except (OSError, ValueError, AttributeError):
-            pass
     deadline = time.monotonic() + 5.0
     for p in procs:
         try:
@@ -329,11 +382,13 @@ def local_executor(workers: int | None):
     """
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
+
     ctx = mp.get_context("spawn")
     q = ctx.Queue()
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
-                               initargs=(os.getpid(), q))
-    pool._roomconv_local = True
+    pool = ProcessPoolExecutor(
+        max_workers=workers, mp_context=ctx, initializer=_worker_init, initargs=(os.getpid(), q)
+    )
+    _LOCAL_POOLS.add(pool)
     return pool, q, q
 
 
@@ -349,9 +404,10 @@ class ClusterProgress:
 
     def __init__(self, client=None, name: str | None = None):
         import uuid  # noqa: PLC0415
+
         self.name = name or f"roomconv-progress-{uuid.uuid4().hex}"
         self._client = client
-        self._queue = None
+        self._queue: Any = None
 
     def __getstate__(self):
         return {"name": self.name}
@@ -362,6 +418,7 @@ class ClusterProgress:
     def _open(self):
         if self._queue is None:
             from distributed import Queue  # noqa: PLC0415 - optional extra
+
             self._queue = Queue(self.name, client=self._client)
         return self._queue
 
@@ -383,8 +440,9 @@ def dask_executor(address: str):
     try:
         from distributed import Client  # noqa: PLC0415 - optional extra
     except ImportError:
-        raise InputError("--scheduler needs the optional Dask extra: pip install "
-                         "'roomconv[cluster]'") from None
+        raise InputError(
+            "--scheduler needs the optional Dask extra: pip install 'roomconv[cluster]'"
+        ) from None
     try:
         client = Client(address, timeout="10s")
     except (OSError, TimeoutError) as exc:

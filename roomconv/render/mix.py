@@ -28,7 +28,7 @@ def energy_per_output(ir: np.ndarray, routing) -> float:
     ir = ir[:, None] if ir.ndim == 1 else ir
     per_channel = np.sum(np.square(ir, dtype=np.float64), axis=0)
     per_out = np.zeros(routing.n_out)
-    for k_ir, k_out in zip(routing.path_ir, routing.path_out):
+    for k_ir, k_out in zip(routing.path_ir, routing.path_out, strict=True):
         per_out[k_out] += per_channel[k_ir]
     return float(per_out.mean())
 
@@ -39,8 +39,10 @@ def ir_gain(ir: np.ndarray, routing, match_level: bool = True) -> float:
         return 1.0
     e = energy_per_output(ir, routing)
     if not (math.isfinite(e) and e > 0):
-        raise InputError("the impulse response is silent or not finite, so its level cannot "
-                         "be matched to the dry signal")
+        raise InputError(
+            "the impulse response is silent or not finite, so its level cannot "
+            "be matched to the dry signal"
+        )
     return 1.0 / math.sqrt(e)
 
 

@@ -4,16 +4,23 @@ progressively to a temporary file, then scale/dither into the final file and ren
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 import soundfile as sf
 
 from .. import validate
-from ..audio import (WriteGuard, audio_format_for, audio_info, drop_temp, new_temp, read_audio,
-                     write_error)
+from ..audio import (
+    WriteGuard,
+    audio_format_for,
+    audio_info,
+    drop_temp,
+    new_temp,
+    read_audio,
+    write_error,
+)
 from ..errors import InputError, describe
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
@@ -33,22 +40,22 @@ LOUDNESS_TARGET_MIN = -60.0
 class RenderSettings:
     """What a render does besides the convolution itself."""
 
-    mix: float = 1.0               #: 0 = dry only, 1 = wet only
+    mix: float = 1.0  #: 0 = dry only, 1 = wet only
     predelay_ms: float = 0.0
     gain_db: float = 0.0
-    normalize: str = "none"        #: none | peak | truepeak | loudness
-    target: float | None = None    #: dBFS, dBTP or LUFS depending on ``normalize``
+    normalize: str = "none"  #: none | peak | truepeak | loudness
+    target: float | None = None  #: dBFS, dBTP or LUFS depending on ``normalize``
     subtype: str = "FLOAT"
-    precision: str = "auto"       #: auto | float64 | float32 (see engine_precision)
-    outputs: int | None = None     #: general matrix routing: outputs per input
-    shared: bool = False           #: one IR channel for every input
+    precision: str = "auto"  #: auto | float64 | float32 (see engine_precision)
+    outputs: int | None = None  #: general matrix routing: outputs per input
+    shared: bool = False  #: one IR channel for every input
     keep_tail: bool = True
     dither: bool = True
     seed: int = 0
     #: scale the response to unit energy per output before mixing (see render.mix)
     match_ir_level: bool = False
 
-    def check(self) -> "RenderSettings":
+    def check(self) -> RenderSettings:
         self.mix = validate.in_range(self.mix, "wet/dry mix", 0.0, 1.0)
         self.predelay_ms = validate.non_negative(self.predelay_ms, "pre-delay", unit="ms")
         self.gain_db = validate.in_range(self.gain_db, "output gain", -100.0, 60.0, unit="dB")
@@ -83,7 +90,7 @@ class RenderReport:
     channels: int
     rate: int
     routing: str
-    peak_dbfs: float               #: after gain/normalization
+    peak_dbfs: float  #: after gain/normalization
     true_peak_dbtp: float | None = None
     loudness_lufs: float | None = None
     gain_db: float = 0.0
@@ -96,12 +103,15 @@ def resample_ir(ir: np.ndarray, rate: int, new_rate: int) -> np.ndarray:
     """Resample an IR with soxr's very-high-quality filter (steep and flat up to near
     Nyquist), keeping its level: gain is preserved for band-limited content."""
     import soxr  # noqa: PLC0415
-    return np.asarray(soxr.resample(np.ascontiguousarray(ir), rate, new_rate, quality="VHQ"),
-                      dtype=np.float64).reshape(-1, ir.shape[1] if ir.ndim == 2 else 1)
+
+    return np.asarray(
+        soxr.resample(np.ascontiguousarray(ir), rate, new_rate, quality="VHQ"), dtype=np.float64
+    ).reshape(-1, ir.shape[1] if ir.ndim == 2 else 1)
 
 
-def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
-               ) -> tuple[np.ndarray, int | None]:
+def prepare_ir(
+    ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
+) -> tuple[np.ndarray, int | None]:
     ir = ir[:, None] if ir.ndim == 1 else ir
     resampled = None
     if ir_rate != rate:
@@ -118,8 +128,9 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
         return x
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
-    raise InputError("the dry signal cannot be mixed in: inputs and outputs differ in count "
-                     "(use --mix 1)")
+    raise InputError(
+        "the dry signal cannot be mixed in: inputs and outputs differ in count (use --mix 1)"
+    )
 
 
 def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
@@ -133,8 +144,9 @@ def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
     return y
 
 
-def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings,
-                  ir_rate: int | None = None) -> np.ndarray:
+def render_arrays(
+    dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings, ir_rate: int | None = None
+) -> np.ndarray:
     """In-memory render (no normalization or dither): the convolution, pre-delay and mix."""
     s = settings.check()
     dry = dry[:, None] if dry.ndim == 1 else dry
@@ -143,23 +155,32 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     ir = ir * ir_gain(ir, routing, s.match_ir_level)
     n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
     # In memory the result stays float64, so "auto" computes in float64 here.
-    conv = offline_convolver(ir, routing,
-                             precision="float64" if s.precision == "auto" else s.precision)
+    conv = offline_convolver(
+        ir, routing, precision="float64" if s.precision == "auto" else s.precision
+    )
     B = conv.block
     out = np.empty((n_out, routing.n_out))
     try:
         for start in range(0, n_out, B):
-            y = _wet_dry(conv, dry[start:start + B], s.mix, routing.n_out)
+            y = _wet_dry(conv, dry[start : start + B], s.mix, routing.n_out)
             n = min(B, n_out - start)
-            out[start:start + n] = y[:n]
+            out[start : start + n] = y[:n]
     finally:
         conv.close()
     return out * 10 ** (s.gain_db / 20)
 
 
-def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
-                progress: Callable[[float], None] | None = None,
-                workers: int | None = None, guard: WriteGuard | None = None) -> RenderReport:
+def render_file(
+    dry_path,
+    ir_path,
+    out_path,
+    settings: RenderSettings,
+    *,
+    force: bool = False,
+    progress: Callable[[float], None] | None = None,
+    workers: int | None = None,
+    guard: WriteGuard | None = None,
+) -> RenderReport:
     """Render ``dry_path`` through ``ir_path`` into ``out_path`` in bounded memory.
 
     Parameters
@@ -218,11 +239,14 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
         stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
-        stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
-                                     n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4))
-        with sf.SoundFile(str(dry_path)) as src, \
-                sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub,
-                             format=stage_fmt) as dst:
+        stage_fmt = audio_format_for(
+            out_path.with_suffix(".wav"),
+            n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4),
+        )
+        with (
+            sf.SoundFile(str(dry_path)) as src,
+            sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub, format=stage_fmt) as dst,
+        ):
             written = 0
             while written < n_out:
                 x = src.read(B, dtype="float64", always_2d=True)
@@ -239,10 +263,15 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 _check_finite(y, out_path)
                 peak.feed(y)
                 if peak.peak > stage_max:
-                    raise InputError(describe(out_path.name, f"the rendered signal reaches "
-                                              f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
-                                              f"what a {stage_sub} file holds (lower --gain); "
-                                              "nothing written"))
+                    raise InputError(
+                        describe(
+                            out_path.name,
+                            f"the rendered signal reaches "
+                            f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
+                            f"what a {stage_sub} file holds (lower --gain); "
+                            "nothing written",
+                        )
+                    )
                 if tpk is not None:
                     tpk.feed(y)
                 if loud is not None:
@@ -250,11 +279,22 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 dst.write(y)
                 written += n
                 if progress:
-                    progress(0.8 * written / n_out if integer or s.normalize != "none"
-                             else written / n_out)
-        report = RenderReport(out_path, n_out, routing.n_out, rate, routing.name, peak.dbfs,
-                              gain_db=s.gain_db, ir_resampled_from=resampled,
-                              wet_dry_db=balance_db)
+                    progress(
+                        0.8 * written / n_out
+                        if integer or s.normalize != "none"
+                        else written / n_out
+                    )
+        report = RenderReport(
+            out_path,
+            n_out,
+            routing.n_out,
+            rate,
+            routing.name,
+            peak.dbfs,
+            gain_db=s.gain_db,
+            ir_resampled_from=resampled,
+            wet_dry_db=balance_db,
+        )
         extra_db = 0.0
         if tpk is not None:
             tpk.finish()
@@ -263,28 +303,40 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             report.loudness_lufs = loud.integrated()
         if s.normalize != "none":
             target = s.target if s.target is not None else DEFAULT_TARGET[s.normalize]
-            level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
-                     "loudness": report.loudness_lufs}[s.normalize]
-            if not np.isfinite(level):
-                why = ("stays below the −70 LUFS gate of the loudness measurement (use "
-                       "--normalize peak)" if s.normalize == "loudness" else "is silent")
-                raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to "
-                                 "normalize")
+            level = {
+                "peak": report.peak_dbfs,
+                "truepeak": report.true_peak_dbtp,
+                "loudness": report.loudness_lufs,
+            }[s.normalize]
+            if level is None or not np.isfinite(level):
+                why = (
+                    "stays below the −70 LUFS gate of the loudness measurement (use "
+                    "--normalize peak)"
+                    if s.normalize == "loudness"
+                    else "is silent"
+                )
+                raise InputError(
+                    f"{out_path.name}: the rendered signal {why}; nothing to normalize"
+                )
             extra_db = target - level
             if s.normalize == "loudness":
-                extra_db, measured = _loudness_to_target(stage1, target, extra_db, rate,
-                                                         routing.n_out)
+                extra_db, measured = _loudness_to_target(
+                    stage1, target, extra_db, rate, routing.n_out
+                )
                 report.loudness_lufs = measured - extra_db  # shifted back by += below
                 if abs(measured - target) > LOUDNESS_TOLERANCE_LU:
                     report.warnings.append(
                         f"loudness {measured:.2f} LUFS misses the target {target:g} LUFS by "
                         f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
-                        "the measurement's −70 LUFS gate)")
+                        "the measurement's −70 LUFS gate)"
+                    )
             with np.errstate(over="ignore"):
                 scaled_peak = peak.peak * 10 ** (extra_db / 20)
             if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
-                raise InputError(f"{out_path.name}: normalization would need a gain of "
-                                 f"{extra_db:g} dB, which overflows; nothing written")
+                raise InputError(
+                    f"{out_path.name}: normalization would need a gain of "
+                    f"{extra_db:g} dB, which overflows; nothing written"
+                )
         report.gain_db = s.gain_db + extra_db
         report.peak_dbfs = peak.dbfs + extra_db
         if report.true_peak_dbtp is not None:
@@ -292,9 +344,12 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         if report.loudness_lufs is not None:
             report.loudness_lufs += extra_db
         if report.peak_dbfs > 0:
-            msg = (f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale")
-            msg += (": it will clip in this integer format; lower --gain or use --normalize peak"
-                    if integer else "; a later conversion to integer would clip")
+            msg = f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale"
+            msg += (
+                ": it will clip in this integer format; lower --gain or use --normalize peak"
+                if integer
+                else "; a later conversion to integer would clip"
+            )
             report.warnings.append(msg)
         if extra_db == 0.0 and not integer:
             stage1.replace(final_tmp)
@@ -321,9 +376,12 @@ def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int
     """Scale, add TPDF dither for integer formats, clip to the format and write."""
     bits = INTEGER_SUBTYPES.get(s.subtype)
     rng = np.random.default_rng(s.seed)
-    with sf.SoundFile(str(src_path)) as src, \
-            sf.SoundFile(str(dst_path), "w", src.samplerate, src.channels, s.subtype,
-                         format=fmt) as dst:
+    with (
+        sf.SoundFile(str(src_path)) as src,
+        sf.SoundFile(
+            str(dst_path), "w", src.samplerate, src.channels, s.subtype, format=fmt
+        ) as dst,
+    ):
         total, done = src.frames, 0
         while True:
             y = src.read(max(B, 65536), dtype="float64", always_2d=True)
@@ -349,9 +407,13 @@ def _check_finite(y: np.ndarray, out_path) -> None:
     """Refuse to write a block holding NaN or ±inf (a file of them plays as silence or as
     a full-scale burst, and is never what was asked for)."""
     if not np.all(np.isfinite(y)):
-        raise InputError(describe(Path(out_path).name,
-                                  "the rendered signal holds NaN or infinite samples (check "
-                                  "the gain and the normalization target); nothing written"))
+        raise InputError(
+            describe(
+                Path(out_path).name,
+                "the rendered signal holds NaN or infinite samples (check "
+                "the gain and the normalization target); nothing written",
+            )
+        )
 
 
 def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
@@ -367,8 +429,9 @@ def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
     return meter.integrated()
 
 
-def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels: int,
-                        tries: int = 4) -> tuple[float, float]:
+def _loudness_to_target(
+    path, target: float, gain_db: float, rate: int, channels: int, tries: int = 4
+) -> tuple[float, float]:
     """Gain (dB) that brings the staged file to ``target`` LUFS, and the loudness measured
     with it.
 
@@ -389,4 +452,3 @@ def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels
         gain_db += target - measured
         measured = _measure_loudness(path, gain_db, rate, channels)
     return gain_db, measured
-

@@ -40,7 +40,7 @@ class ComputeLog:
             return self._ring[skip:n].copy()
         start = n % size
         kept = np.concatenate([self._ring[start:], self._ring[:start]])
-        return kept[max(0, skip - (n - size)):]
+        return kept[max(0, skip - (n - size)) :]
 
     @property
     def mean_s(self) -> float:
@@ -54,11 +54,11 @@ class ComputeLog:
 class LiveStats:
     callbacks: int = 0
     frames: int = 0
-    dropouts: int = 0                   #: PortAudio over/underflow flags seen
-    in_peak: float = 0.0                #: linear sample peaks since the start
+    dropouts: int = 0  #: PortAudio over/underflow flags seen
+    in_peak: float = 0.0  #: linear sample peaks since the start
     out_peak: float = 0.0
     limiter_db: float = 0.0
-    nonfinite: int = 0                  #: blocks in which NaN/inf were replaced by silence
+    nonfinite: int = 0  #: blocks in which NaN/inf were replaced by silence
     compute: ComputeLog = field(default_factory=ComputeLog)
 
     @property
@@ -87,16 +87,28 @@ class LiveProcessor:
     offline renders (:mod:`roomconv.render.mix`).
     """
 
-    def __init__(self, ir: np.ndarray, rate: int, *, block: int = 128, n_in: int = 1,
-                 mix: float = 1.0, gain_db: float = 0.0, ceiling_dbfs: float = -1.0,
-                 fade_in_s: float = 0.5, precision: str = "auto", match_ir_level: bool = False):
+    def __init__(
+        self,
+        ir: np.ndarray,
+        rate: int,
+        *,
+        block: int = 128,
+        n_in: int = 1,
+        mix: float = 1.0,
+        gain_db: float = 0.0,
+        ceiling_dbfs: float = -1.0,
+        fade_in_s: float = 0.5,
+        precision: str = "auto",
+        match_ir_level: bool = False,
+    ):
         ir = np.asarray(ir, dtype=np.float64)
         ir = ir[:, None] if ir.ndim == 1 else ir
         rate = validate.sample_rate(rate)
         mix = validate.in_range(mix, "wet/dry mix", 0.0, 1.0)
         gain_db = validate.in_range(gain_db, "output gain", -100.0, 20.0, unit="dB")
-        ceiling_dbfs = validate.in_range(ceiling_dbfs, "limiter ceiling", -60.0,
-                                         safety.OUTPUT_CAP_DBFS, unit="dBFS")
+        ceiling_dbfs = validate.in_range(
+            ceiling_dbfs, "limiter ceiling", -60.0, safety.OUTPUT_CAP_DBFS, unit="dBFS"
+        )
         fade_in_s = validate.in_range(fade_in_s, "fade-in", 0.0, 60.0, unit="s")
         if ir.size == 0 or not np.all(np.isfinite(ir)):
             raise InputError("the impulse response is empty or holds NaN or infinite samples")
@@ -112,8 +124,14 @@ class LiveProcessor:
         # for the rest. Each extra stage costs a fixed dozen numpy calls per callback, which
         # outweighs its arithmetic saving at these sizes (`make bench` prints the figures).
         ratio = max(4, min(32, 2048 // self.block))
-        self.engine = NonUniformConvolver(ir, self.routing, self.block, precision=self.precision,
-                                          ratio=ratio, max_block=ratio * self.block)
+        self.engine = NonUniformConvolver(
+            ir,
+            self.routing,
+            self.block,
+            precision=self.precision,
+            ratio=ratio,
+            max_block=ratio * self.block,
+        )
         self.mix = float(mix)
         self.gain = 10 ** (gain_db / 20)
         self.limiter_ceiling_dbfs = min(ceiling_dbfs, safety.OUTPUT_CAP_DBFS)
@@ -145,8 +163,9 @@ class LiveProcessor:
                 self.fade_pos += x.shape[0]
             if self._stopping:
                 k = self._stopping
-                g *= np.linspace(k / self._fade_out_blocks, (k - 1) / self._fade_out_blocks,
-                                 x.shape[0])
+                g *= np.linspace(
+                    k / self._fade_out_blocks, (k - 1) / self._fade_out_blocks, x.shape[0]
+                )
                 self._stopping -= 1
             y *= g[:, None]
         elif self.gain != 1.0:
@@ -173,13 +192,22 @@ class LiveProcessor:
         self._stopping = self._fade_out_blocks
 
 
-def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,),
-             output_channels=(1,), duration_s: float | None = None, on_meter=None,
-             stop_event: threading.Event | None = None) -> LiveStats:
+def run_live(
+    proc: LiveProcessor,
+    rate: int,
+    *,
+    device=None,
+    input_channels=(1,),
+    output_channels=(1,),
+    duration_s: float | None = None,
+    on_meter=None,
+    stop_event: threading.Event | None = None,
+) -> LiveStats:
     """Run ``proc`` on a duplex PortAudio stream until ``duration_s`` worth of frames, the
     event, or Ctrl-C. Returns the statistics (dropouts counted from PortAudio's flags)."""
-    from ..measure.capture import load_sounddevice
     from ..errors import DeviceError
+    from ..measure.capture import load_sounddevice
+
     sd = load_sounddevice()
     stop_event = stop_event or threading.Event()
     if duration_s is not None:
@@ -188,13 +216,20 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
     n_out = len(output_channels)
     if proc.n_out != n_out:
         from ..errors import InputError
-        raise InputError(f"the routing gives {proc.n_out} output channel(s) but "
-                         f"{n_out} were asked for (--output-channels)")
+
+        raise InputError(
+            f"the routing gives {proc.n_out} output channel(s) but "
+            f"{n_out} were asked for (--output-channels)"
+        )
     done = threading.Event()
 
     def callback(indata, outdata, frames, _time, status):
-        if status.input_overflow or status.output_underflow or status.input_underflow \
-                or status.output_overflow:
+        if (
+            status.input_overflow
+            or status.output_underflow
+            or status.input_underflow
+            or status.output_overflow
+        ):
             proc.stats.dropouts += 1
         x = np.asarray(indata, dtype=np.float64)
         y = proc.process(x)
@@ -203,19 +238,26 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
         outdata[:] = safety.hard_cap(y, proc.limiter_ceiling_dbfs).astype(np.float32)
         if proc._stopping == 0 and proc._stop_requested:
             raise sd.CallbackStop
-        if (limit is not None and proc.stats.frames >= limit) or stop_event.is_set():
-            if not proc._stop_requested:
-                proc.begin_stop()
+        stop_due = (limit is not None and proc.stats.frames >= limit) or stop_event.is_set()
+        if stop_due and not proc._stop_requested:
+            proc.begin_stop()
 
     try:
-        stream = sd.Stream(samplerate=rate, blocksize=proc.block, device=device,
-                           channels=(max(input_channels), max(output_channels)),
-                           dtype="float32", callback=_mapped(callback, input_channels,
-                                                             output_channels),
-                           latency=4 * proc.block / rate, finished_callback=done.set)
+        stream = sd.Stream(
+            samplerate=rate,
+            blocksize=proc.block,
+            device=device,
+            channels=(max(input_channels), max(output_channels)),
+            dtype="float32",
+            callback=_mapped(callback, input_channels, output_channels),
+            latency=4 * proc.block / rate,
+            finished_callback=done.set,
+        )
     except Exception as exc:  # PortAudio errors are not one stable type
-        raise DeviceError(f"cannot open the sound card for live use: {exc} (check --device, "
-                          "the channels and the sample rate)") from None
+        raise DeviceError(
+            f"cannot open the sound card for live use: {exc} (check --device, "
+            "the channels and the sample rate)"
+        ) from None
     try:
         with stream:
             while not done.wait(0.2):
@@ -237,4 +279,5 @@ def _mapped(callback, ins, outs):
         callback(indata[:, ins0], buf, frames, t, status)
         outdata[:] = 0
         outdata[:, outs0] = buf
+
     return wrapped

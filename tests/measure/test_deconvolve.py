@@ -28,11 +28,14 @@ def _two_tap(n=4000):
     return h + 0.5 * np.roll(h, 1500)
 
 
-@pytest.mark.parametrize("name, h", [
-    ("synthetic room", band_limited_room(FS)),
-    ("pure delay", np.roll(band_limited_room(FS, rt=0.001, length_s=0.05, direct_at=0), 321)),
-    ("two-tap echo", _two_tap()),
-])
+@pytest.mark.parametrize(
+    "name, h",
+    [
+        ("synthetic room", band_limited_room(FS)),
+        ("pure delay", np.roll(band_limited_room(FS, rt=0.001, length_s=0.05, direct_at=0), 321)),
+        ("two-tap echo", _two_tap()),
+    ],
+)
 @pytest.mark.parametrize("use_sidecar", [True, False])
 def test_round_trip_error_below_minus_60_db(name, h, use_sidecar):
     y, h_true = _record(h)
@@ -71,8 +74,15 @@ def test_reference_channel_cancels_latency_and_card_response():
 
 def test_nonlinearity_leaves_linear_ir_and_places_harmonics():
     # A memoryless polynomial after the room (here a pure delay of 300 samples).
-    s = Sweep(rate=FS, f_low=20, f_high=20000, duration=4.0, level_dbfs=-12,
-              silence_pre=1.0, silence_post=1.0)
+    s = Sweep(
+        rate=FS,
+        f_low=20,
+        f_high=20000,
+        duration=4.0,
+        level_dbfs=-12,
+        silence_pre=1.0,
+        silence_post=1.0,
+    )
     d = 300
     x = sweep_signal(s)
     r = np.concatenate([np.zeros(d), x])
@@ -101,8 +111,15 @@ def test_nonlinearity_leaves_linear_ir_and_places_harmonics():
 def test_averaging_repeats_lowers_noise_by_10_log_n():
     # Uncorrelated noise: averaging N synchronous repeats lowers its power by 10·log10(N).
     n_rep = 4
-    s = Sweep(rate=FS, f_low=20, f_high=20000, duration=1.0, silence_pre=0.2,
-              silence_post=1.5, repeats=n_rep)
+    s = Sweep(
+        rate=FS,
+        f_low=20,
+        f_high=20000,
+        duration=1.0,
+        silence_pre=0.2,
+        silence_post=1.5,
+        repeats=n_rep,
+    )
     h = band_limited_room(FS, rt=0.2, length_s=0.3)
     y = fftconvolve(sweep_signal(s), h)
     y = 0.5 * y / np.max(np.abs(y)) + 1e-3 * np.random.default_rng(3).standard_normal(y.size)
@@ -124,11 +141,14 @@ def test_trim_cuts_leading_silence_and_says_how_much():
     assert ex.trimmed_samples + int(np.argmax(np.abs(ex.ir[:, 0]))) == 5000
 
 
-@pytest.mark.parametrize("make, text", [
-    (lambda y: np.zeros_like(y), "silent"),
-    (lambda y: y[: y.size // 2], "shorter than the sweep"),
-    (lambda y: np.clip(y * 10, -1, 1), "clipped"),
-])
+@pytest.mark.parametrize(
+    "make, text",
+    [
+        (lambda y: np.zeros_like(y), "silent"),
+        (lambda y: y[: y.size // 2], "shorter than the sweep"),
+        (lambda y: np.clip(y * 10, -1, 1), "clipped"),
+    ],
+)
 def test_bad_recordings_are_refused(make, text):
     y, _ = _record(band_limited_room(FS))
     with pytest.raises(InputError, match=text):
