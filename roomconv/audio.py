@@ -27,6 +27,35 @@ import soundfile as sf
 from . import __version__
 from .errors import InputError, OutputExistsError, RoomconvError, describe
 
+__all__ = [
+    "TEMP_PREFIX",
+    "TEMP_SUFFIX",
+    "read_audio",
+    "audio_info",
+    "check_output",
+    "atomic_path",
+    "audio_format_for",
+    "write_audio",
+    "write_json",
+    "write_text",
+    "read_json",
+    "sidecar_path",
+    "file_sha256",
+    "output_record",
+    "provenance",
+    "write_provenance",
+    "check_input_file",
+    "sweep_stale_temps",
+    "new_temp",
+    "drop_temp",
+    "write_error",
+    "commit",
+    "WriteGuard",
+    "drop_live_temps",
+    "end_run",
+    "reset_run_state",
+]
+
 #: Extensions we write, mapped to soundfile container names.
 _FORMATS = {".wav": "WAV", ".flac": "FLAC", ".aif": "AIFF", ".aiff": "AIFF", ".w64": "W64"}
 _WAV_LIMIT_BYTES = 4 * 1024**3 - 1024  # RIFF size fields are 32-bit

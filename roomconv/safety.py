@@ -11,6 +11,19 @@ import numpy as np
 
 from .errors import InputError
 
+__all__ = [
+    "HEARING_CAUTION",
+    "OUTPUT_CAP_DBFS",
+    "START_LEVEL_DBFS",
+    "RAMP_S",
+    "caution_text",
+    "db_to_gain",
+    "check_level",
+    "apply_ramps",
+    "hard_cap",
+    "OutputLimiter",
+]
+
 HEARING_CAUTION = """\
 CAUTION - HEARING AND EQUIPMENT
   * Sweeps and test signals are loud and rich in high frequencies. Set the amplifier and

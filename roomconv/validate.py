@@ -18,6 +18,23 @@ from collections.abc import Iterable
 
 from .errors import InputError
 
+__all__ = [
+    "MEMORY_BUDGET_BYTES",
+    "MAX_CHANNEL",
+    "parse_number",
+    "finite",
+    "in_range",
+    "positive",
+    "non_negative",
+    "count",
+    "sample_rate",
+    "channel_list",
+    "human_bytes",
+    "memory_budget",
+    "seconds_budget",
+    "all_finite",
+]
+
 #: Largest single buffer roomconv agrees to allocate for one signal (float64), bytes.
 MEMORY_BUDGET_BYTES = 2 * 1024**3
 #: Sample rates accepted for anything roomconv writes or plays, Hz. 8 kHz is telephone band,

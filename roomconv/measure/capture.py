@@ -14,6 +14,15 @@ from scipy.signal import fftconvolve
 from .. import safety
 from ..errors import DeviceError, InputError
 
+__all__ = [
+    "load_sounddevice",
+    "list_devices",
+    "SoundCard",
+    "SimulatedDevice",
+    "run_measurement",
+    "metered_playrec",
+]
+
 
 def load_sounddevice():
     """Import sounddevice, turning a missing PortAudio into a message a user can act on."""

@@ -16,6 +16,12 @@ from ..errors import InputError
 from . import quality as q
 from .sweep import Sweep, harmonic_delay, inverse_filter
 
+__all__ = [
+    "HARMONIC_ORDERS",
+    "Extraction",
+    "extract_ir",
+]
+
 HARMONIC_ORDERS = (2, 3, 4, 5)
 
 

@@ -13,6 +13,16 @@ from ..errors import InputError, describe
 from .deconvolve import HARMONIC_ORDERS, Extraction, extract_ir
 from .sweep import Sweep, sweep_signal
 
+__all__ = [
+    "save_sweep",
+    "load_sweep",
+    "sweep_inputs",
+    "plan_extraction",
+    "extract_files",
+    "save_extraction",
+    "format_quality",
+]
+
 
 def save_sweep(
     path,

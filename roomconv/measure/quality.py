@@ -7,6 +7,18 @@ from __future__ import annotations
 
 import numpy as np
 
+__all__ = [
+    "REQUIRED_INR_DB",
+    "CLIP_LEVEL",
+    "CLIP_RUN",
+    "clipped_samples",
+    "peak_dbfs",
+    "rms_dbfs",
+    "energy_envelope",
+    "envelope_inr",
+    "inr_warnings",
+]
+
 #: Impulse-to-noise ratios (INR) an evaluation range needs: the range itself plus 10 dB above
 #: the noise (ISO 3382-1:2009, 5.3.3 / ISO 3382-2:2008, 5.3.3 — from memory). EDT 0..-10,
 #: T20 -5..-25, T30 -5..-35 dB.

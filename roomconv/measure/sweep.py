@@ -13,6 +13,15 @@ import numpy as np
 
 from ..errors import InputError
 
+__all__ = [
+    "Sweep",
+    "instantaneous_frequency",
+    "harmonic_delay",
+    "sweep_only",
+    "sweep_signal",
+    "inverse_filter",
+]
+
 
 @dataclass(frozen=True)
 class Sweep:

@@ -40,6 +40,20 @@ from ..audio import (
 from ..errors import InputError, RoomconvError
 from .offline import RenderSettings, render_file
 
+__all__ = [
+    "Job",
+    "Outcome",
+    "plan_jobs",
+    "check_finished",
+    "is_finished",
+    "run_job",
+    "run_batch",
+    "stop_executor",
+    "local_executor",
+    "ClusterProgress",
+    "dask_executor",
+]
+
 
 @dataclass(frozen=True)
 class Job:

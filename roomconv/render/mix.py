@@ -21,6 +21,13 @@ import numpy as np
 
 from ..errors import InputError
 
+__all__ = [
+    "energy_per_output",
+    "ir_gain",
+    "wet_dry_db",
+    "describe_balance",
+]
+
 
 def energy_per_output(ir: np.ndarray, routing) -> float:
     """Mean over the outputs of the summed energy Σh² of the response channels that feed

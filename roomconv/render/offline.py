@@ -26,6 +26,21 @@ from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
 from .partitioned import offline_convolver, routing_for
 
+__all__ = [
+    "NORMALIZE",
+    "DEFAULT_TARGET",
+    "INTEGER_SUBTYPES",
+    "LOUDNESS_TOLERANCE_LU",
+    "LOUDNESS_TARGET_MIN",
+    "RenderSettings",
+    "RenderReport",
+    "resample_ir",
+    "prepare_ir",
+    "dry_routed",
+    "render_arrays",
+    "render_file",
+]
+
 NORMALIZE = ("none", "peak", "truepeak", "loudness")
 DEFAULT_TARGET = {"peak": -1.0, "truepeak": -1.0, "loudness": -23.0}
 INTEGER_SUBTYPES = {"PCM_16": 16, "PCM_24": 24, "PCM_32": 32, "PCM_S8": 8, "PCM_U8": 8}

@@ -18,6 +18,13 @@ from ..errors import InputError
 from .mix import ir_gain, wet_dry_db
 from .partitioned import NonUniformConvolver, live_block_size, routing_for
 
+__all__ = [
+    "ComputeLog",
+    "LiveStats",
+    "LiveProcessor",
+    "run_live",
+]
+
 
 class ComputeLog:
     """Callback compute times in a fixed ring (no growth over hours of live use), with the
