@@ -25,7 +25,23 @@ __all__ = [
 
 
 def load_sounddevice():
-    """Import sounddevice, turning a missing PortAudio into a message a user can act on."""
+    """Import sounddevice, turning a missing PortAudio into a message a user can act on.
+
+    Returns
+    -------
+    module
+        The ``sounddevice`` module.
+
+    Raises
+    ------
+    DeviceError
+        When PortAudio or the sounddevice package is missing.
+
+    Examples
+    --------
+    >>> sd = load_sounddevice()  # doctest: +SKIP
+    >>> sd.query_devices()  # doctest: +SKIP
+    """
     try:
         import sounddevice as sd  # noqa: PLC0415 - lazy on purpose
     except OSError as exc:
@@ -41,7 +57,24 @@ def load_sounddevice():
 
 
 def list_devices() -> list[dict]:
-    """Devices PortAudio sees, as plain dicts (index, name, inputs, outputs, default rate)."""
+    """Devices PortAudio sees, as plain dicts.
+
+    Returns
+    -------
+    list of dict
+        One per device: ``index`` (PortAudio's, 0-based), ``name``, ``inputs`` and ``outputs``
+        (channel counts) and ``default_rate`` (Hz).
+
+    Raises
+    ------
+    DeviceError
+        When PortAudio or the sounddevice package is missing.
+
+    Examples
+    --------
+    >>> [d["name"] for d in list_devices()]  # doctest: +SKIP
+    ['default', 'USB interface']
+    """
     sd = load_sounddevice()
     out = []
     for i, d in enumerate(sd.query_devices()):
@@ -61,16 +94,55 @@ def list_devices() -> list[dict]:
 class SoundCard:
     """A real duplex device through sounddevice's ``playrec``.
 
-    Channels are 1-based as printed on interfaces; ``output_channel`` plays the sweep,
-    ``input_channels`` are recorded in that order.
+    Parameters
+    ----------
+    device : int or str, optional
+        PortAudio device index or name; the system default when None.
+    output_channel : int
+        1-based output channel (as printed on interfaces) that plays the sweep.
+    input_channels : tuple of int
+        1-based input channels, recorded in this order.
+
+    Examples
+    --------
+    >>> card = SoundCard(device="hw:1,0", output_channel=1, input_channels=(1, 2))
+    >>> card.input_channels
+    (1, 2)
+    >>> rec = card.playrec(signal, 48000)  # doctest: +SKIP
     """
 
     device: int | str | None = None
     output_channel: int = 1
     input_channels: tuple[int, ...] = (1,)
-    timeout_s: float | None = None
 
     def playrec(self, signal: np.ndarray, rate: int) -> np.ndarray:
+        """Play ``signal`` on the output channel and record the input channels at the same time.
+
+        The signal is capped at :data:`~roomconv.safety.OUTPUT_CAP_DBFS` before it reaches the
+        card (a last line of defence; callers check levels first).
+
+        Parameters
+        ----------
+        signal : ndarray, shape (samples,)
+            Playback signal, full scale = 1.
+        rate : int
+            Sample rate, Hz.
+
+        Returns
+        -------
+        ndarray, shape (samples, len(input_channels))
+            The recording, float64.
+
+        Raises
+        ------
+        DeviceError
+            When PortAudio finds no device or refuses the stream.
+
+        Examples
+        --------
+        >>> SoundCard().playrec(np.zeros(4800), 48000).shape  # doctest: +SKIP
+        (4800, 1)
+        """
         sd = load_sounddevice()
         try:
             devs = sd.query_devices()
@@ -109,13 +181,25 @@ class SimulatedDevice:
     ir : ndarray, shape (taps,) or (taps, mics)
         The room's response from loudspeaker to each microphone.
     latency_samples : int
-        Converter round-trip delay added to every input channel.
+        Converter round-trip delay added to every input channel, samples.
     noise_dbfs : float
         Level (RMS, dBFS) of stationary white noise added to the microphone channels.
     loopback : bool
         Append a loopback channel (the output, delayed by the latency) after the microphones.
     distortion : tuple of float
         Coefficients (a2, a3) of a memoryless loudspeaker nonlinearity x + a2·x² + a3·x³.
+    seed : int
+        Seed of the noise generator (the same seed gives the same recording).
+    noise : ndarray, shape (samples,), optional
+        Coloured noise to add instead of white noise, repeated as needed.
+
+    Examples
+    --------
+    >>> dev = SimulatedDevice(ir=np.array([0.0, 0.5]), latency_samples=3, loopback=True,
+    ...                       noise_dbfs=-np.inf)
+    >>> rec = dev.playrec(np.array([1.0, 0.0, 0.0, 0.0, 0.0, 0.0]), 48000)
+    >>> rec[:, 0].tolist(), rec[:, 1].tolist()
+    ([0.0, 0.0, 0.0, 0.0, 0.5, 0.0], [0.0, 0.0, 0.0, 1.0, 0.0, 0.0])
     """
 
     ir: np.ndarray
@@ -127,6 +211,26 @@ class SimulatedDevice:
     noise: np.ndarray | None = None  # optional coloured noise (samples,), repeated as needed
 
     def playrec(self, signal: np.ndarray, rate: int) -> np.ndarray:
+        """Play ``signal`` through the simulated chain and return what the inputs record.
+
+        Parameters
+        ----------
+        signal : ndarray, shape (samples,)
+            Playback signal, full scale = 1.
+        rate : int
+            Sample rate, Hz (used for nothing but the interface's sake: the room is given in
+            samples).
+
+        Returns
+        -------
+        ndarray, shape (samples, mics [+ 1 loopback])
+            The recording, as long as ``signal``, float64.
+
+        Examples
+        --------
+        >>> SimulatedDevice(ir=np.ones((4, 2))).playrec(np.zeros(100), 48000).shape
+        (100, 2)
+        """
         x = np.asarray(signal, dtype=np.float64)
         a2, a3 = self.distortion
         driven = x
@@ -165,9 +269,39 @@ def run_measurement(
     tail_s: float = 0.5,
     level_cap_dbfs: float = safety.OUTPUT_CAP_DBFS,
 ) -> np.ndarray:
-    """Play ``playback`` (1-D) plus ``tail_s`` of silence and return the recording.
+    """Play ``playback`` plus ``tail_s`` of silence and return the recording.
 
-    Refuses a signal above the output cap; the caller must have shown and confirmed the caution.
+    The caller must have shown the caution text (:func:`roomconv.safety.caution_text`) and had
+    it confirmed before calling this with a real sound card.
+
+    Parameters
+    ----------
+    device : SoundCard or SimulatedDevice
+        Anything with ``playrec(signal, rate)``.
+    playback : ndarray, shape (samples,)
+        The signal to play, full scale = 1.
+    rate : int
+        Sample rate, Hz.
+    tail_s : float
+        Silence appended so the room's decay is recorded, s.
+    level_cap_dbfs : float
+        Refuse playback whose peak is above this, dBFS.
+
+    Returns
+    -------
+    ndarray, shape (samples + tail, channels)
+        The recording.
+
+    Raises
+    ------
+    InputError
+        When the playback peak is above ``level_cap_dbfs``.
+
+    Examples
+    --------
+    >>> dev = SimulatedDevice(ir=np.array([1.0]), noise_dbfs=-np.inf)
+    >>> run_measurement(dev, np.full(480, 0.5), 48000, tail_s=0.01).shape
+    (960, 1)
     """
     x = np.asarray(playback, dtype=np.float64).reshape(-1)
     peak = float(np.max(np.abs(x))) if x.size else 0.0
@@ -183,11 +317,37 @@ def run_measurement(
 def metered_playrec(
     device, signal: np.ndarray, rate: int, on_level, interval_s: float = 0.1
 ) -> np.ndarray:
-    """Play and record like :func:`run_measurement`, calling ``on_level(peak_dbfs, fraction)``
-    about every ``interval_s`` with the input peak of the last interval, for a live meter.
+    """Play and record like :func:`run_measurement`, reporting the input level as it goes.
 
-    A real card records in the background while this polls the part filled so far; a
-    simulated device's recording is replayed interval by interval.
+    ``on_level(peak_dbfs, fraction)`` is called about every ``interval_s`` with the input peak
+    of the last interval (dBFS) and the fraction done (0–1), for a live meter. A real card
+    records in the background while this polls the part filled so far; a simulated device's
+    recording is replayed interval by interval.
+
+    Parameters
+    ----------
+    device : SoundCard or SimulatedDevice
+    signal : ndarray, shape (samples,)
+        The signal to play, full scale = 1 (capped at the output cap for a real card).
+    rate : int
+        Sample rate, Hz.
+    on_level : callable
+        ``on_level(peak_dbfs: float, fraction: float)``.
+    interval_s : float
+        Meter interval, s.
+
+    Returns
+    -------
+    ndarray, shape (samples, channels)
+        The recording.
+
+    Examples
+    --------
+    >>> seen = []
+    >>> dev = SimulatedDevice(ir=np.array([1.0]), noise_dbfs=-np.inf)
+    >>> rec = metered_playrec(dev, np.full(9600, 0.5), 48000, lambda db, f: seen.append(f))
+    >>> seen
+    [0.5, 1.0]
     """
     x = np.asarray(signal, dtype=np.float64).reshape(-1)
     step = max(1, int(interval_s * rate))
