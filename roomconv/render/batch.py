@@ -57,6 +57,27 @@ __all__ = [
 
 @dataclass(frozen=True)
 class Job:
+    """One render of a batch: a dry file through a response into an output, with its sidecar.
+
+    Attributes
+    ----------
+    dry, ir, output : str
+        Paths.
+    settings : dict
+        :meth:`RenderSettings.as_dict` of the render.
+    provenance : dict
+        The sidecar this job writes (a finished job's sidecar must match it).
+    problem : str
+        Why an input cannot be used; the job then fails with this message.
+    replace : bool
+        The output exists and this run has decided to render it again.
+
+    Examples
+    --------
+    >>> Job("a.wav", "hall.wav", "out/a__hall.wav", {}, {}).name
+    'a__hall.wav'
+    """
+
     dry: str
     ir: str
     output: str
@@ -67,11 +88,32 @@ class Job:
 
     @property
     def name(self) -> str:
+        """The output's file name (what progress and messages show)."""
         return Path(self.output).name
 
 
 @dataclass
 class Outcome:
+    """What became of one :class:`Job`.
+
+    Attributes
+    ----------
+    job : Job
+    status : str
+        ``"done"``, ``"skipped"`` or ``"failed"``.
+    message : str
+        Why it was skipped or failed.
+    exit_code : int
+        0, or the exit code the failure maps to (2 bad input, 1 other).
+    report : dict
+        ``peak_dbfs`` (dBFS), ``seconds`` (s) and ``warnings`` of a done job.
+
+    Examples
+    --------
+    >>> Outcome(Job("a.wav", "h.wav", "a__h.wav", {}, {}), "done").exit_code
+    0
+    """
+
     job: Job
     status: str  #: done | skipped | failed
     message: str = ""
@@ -82,11 +124,42 @@ class Outcome:
 def plan_jobs(
     drys, irs, out_dir, settings: RenderSettings, guard: WriteGuard | None = None
 ) -> list[Job]:
-    """One job per (dry, IR) pair; inputs are checked and hashed once here, not once per job.
+    """One job per (dry, response) pair; inputs are checked and hashed once here.
 
     With ``guard`` (which knows every input of the batch), each output and its sidecar are
     planned against all inputs and against each other, so a batch whose outputs would land on
     its own inputs is refused before any work.
+
+    Parameters
+    ----------
+    drys, irs : iterable of path
+        Dry files and impulse responses.
+    out_dir : str or Path
+        Folder of the outputs ``<dry stem>__<ir stem>.wav``.
+    settings : RenderSettings
+    guard : WriteGuard, optional
+
+    Returns
+    -------
+    list of Job
+        In order: every response for the first dry file, then the next.
+
+    Raises
+    ------
+    InputError
+        When two jobs would write one output, or an output clashes with an input.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> soundfile.write(d / "voice.wav", np.array([0.5, 0.0]), 48000, subtype="DOUBLE")
+    >>> soundfile.write(d / "hall.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    >>> jobs = plan_jobs([d / "voice.wav"], [d / "hall.wav"], d / "wet", RenderSettings())
+    >>> [j.name for j in jobs]
+    ['voice__hall.wav']
+    >>> tmp.cleanup()
     """
     out_dir = Path(out_dir)
     hashes: dict[Path, str | None] = {}
@@ -131,9 +204,25 @@ def plan_jobs(
 
 
 def check_finished(job: Job) -> tuple[str, str]:
-    """Where a job stands: ``("finished", "")``, ``("damaged", why)`` for our own output that
-    no longer matches its sidecar, ``("orphan", why)`` for an output without a sidecar,
-    ``("foreign", why)`` for an output made with other inputs or settings, or ``("new", "")``.
+    """Where a job stands, from its output and sidecar.
+
+    Parameters
+    ----------
+    job : Job
+
+    Returns
+    -------
+    state : str
+        ``"finished"``, ``"damaged"`` (our own output that no longer matches its sidecar),
+        ``"orphan"`` (an output without a usable sidecar), ``"foreign"`` (made with other
+        inputs or settings) or ``"new"``.
+    why : str
+        A reason to show, empty for ``"finished"`` and ``"new"``.
+
+    Examples
+    --------
+    >>> check_finished(Job("a.wav", "h.wav", "/nonexistent/a__h.wav", {}, {}))
+    ('new', '')
     """
     out = Path(job.output)
     side = sidecar_path(out, "provenance")
@@ -169,6 +258,21 @@ def check_finished(job: Job) -> tuple[str, str]:
 
 
 def is_finished(job: Job) -> bool:
+    """Whether :func:`check_finished` vouches for the job's output.
+
+    Parameters
+    ----------
+    job : Job
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> is_finished(Job("a.wav", "h.wav", "/nonexistent/a__h.wav", {}, {}))
+    False
+    """
     return check_finished(job)[0] == "finished"
 
 
@@ -209,7 +313,32 @@ def _worker_init(parent_pid: int, progress) -> None:
 
 
 def run_job(job: Job, progress=None) -> dict:
-    """Render one job (in a worker); returns a small dict. ``progress`` has ``put(item)``."""
+    """Render one job (normally in a worker process) and write its sidecar last.
+
+    Parameters
+    ----------
+    job : Job
+    progress : object with ``put(item)``, optional
+        Receives ``(job.name, fraction)``; a pool worker's own queue by default.
+
+    Returns
+    -------
+    dict
+        ``{"ok": True, "peak_dbfs", "seconds", "warnings"}`` or
+        ``{"ok": False, "error", "exit_code"}``; a failure never raises.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> soundfile.write(d / "voice.wav", np.array([0.5, 0.0]), 48000, subtype="DOUBLE")
+    >>> soundfile.write(d / "hall.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    >>> job = plan_jobs([d / "voice.wav"], [d / "hall.wav"], d, RenderSettings())[0]
+    >>> run_job(job)["ok"], is_finished(job)
+    (True, True)
+    >>> tmp.cleanup()
+    """
     progress = progress if progress is not None else _WORKER["progress"]
 
     def tick(frac):
@@ -269,12 +398,48 @@ def run_batch(
 ) -> list[Outcome]:
     """Submit every unfinished job to ``executor`` and collect the outcomes.
 
-    ``progress`` is a queue-like object shared with the workers (``put``/``get``) for per-job
-    fractions; ``on_event(kind, payload)`` receives 'skip', 'start', 'progress' (name,
-    fraction) and 'done' (Outcome) events for a display. ``before_first()`` runs once before
-    the first job is submitted (the CLI creates the output folder there). On an interrupt
-    (KeyboardInterrupt, which SIGTERM/SIGHUP also raise in the CLI) the queued jobs are
-    cancelled and the workers stopped before the interrupt goes on.
+    ``on_event(kind, payload)`` receives 'skip', 'start', 'progress' (name, fraction) and
+    'done' (Outcome) events for a display. On an interrupt (KeyboardInterrupt, which
+    SIGTERM/SIGHUP also raise in the CLI) the queued jobs are cancelled and the workers stopped
+    before the interrupt goes on.
+
+    Parameters
+    ----------
+    jobs : list of Job
+        From :func:`plan_jobs`.
+    executor : concurrent.futures.Executor
+        :func:`local_executor`'s pool, a Dask executor, or any executor.
+    force : bool
+        Replace outputs made with other inputs or settings.
+    progress : queue-like, optional
+        Shared with the workers (``put`` / ``get_nowait``) for per-job fractions.
+    on_event : callable, optional
+    poll_s : float
+        Interval at which progress is drained and finished jobs collected, s.
+    before_first : callable, optional
+        Runs once before the first job is submitted (e.g. to create the output folder).
+
+    Returns
+    -------
+    list of Outcome
+        Skipped jobs first, then the others in the order they finished.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> soundfile.write(d / "voice.wav", np.array([0.5, 0.0]), 48000, subtype="DOUBLE")
+    >>> soundfile.write(d / "hall.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    >>> from concurrent.futures import ThreadPoolExecutor
+    >>> jobs = plan_jobs([d / "voice.wav"], [d / "hall.wav"], d, RenderSettings())
+    >>> with ThreadPoolExecutor(1) as pool:
+    ...     [o.status for o in run_batch(jobs, pool)]
+    ['done']
+    >>> with ThreadPoolExecutor(1) as pool:  # a second run verifies and skips
+    ...     [o.status for o in run_batch(jobs, pool)]
+    ['skipped']
+    >>> tmp.cleanup()
     """
     emit = on_event or (lambda *_: None)
     outcomes: list[Outcome] = []
@@ -351,8 +516,27 @@ def run_batch(
 
 
 def stop_executor(executor: Executor, futures=()) -> None:
-    """Cancel every queued job and stop running workers now (they remove their unfinished
-    files on SIGTERM); a worker that does not stop within a few seconds is killed."""
+    """Cancel every queued job and stop running workers now.
+
+    Workers remove their unfinished files on SIGTERM; one that does not stop within a few
+    seconds is killed.
+
+    Parameters
+    ----------
+    executor : concurrent.futures.Executor
+    futures : iterable of Future
+        Futures to cancel as well.
+
+    Returns
+    -------
+    None
+
+    Examples
+    --------
+    >>> from concurrent.futures import ThreadPoolExecutor
+    >>> pool = ThreadPoolExecutor(1)
+    >>> stop_executor(pool)
+    """
     for f in futures:
         f.cancel()
     procs = list((getattr(executor, "_processes", None) or {}).values())
@@ -393,6 +577,24 @@ def local_executor(workers: int | None):
 
     The queue reaches the workers through the pool's initializer rather than with each job,
     so no manager process is needed (one that could outlive a killed parent).
+
+    Parameters
+    ----------
+    workers : int, optional
+        Worker processes (default: one per core).
+
+    Returns
+    -------
+    pool : ProcessPoolExecutor
+    progress : multiprocessing.Queue
+        Pass it to :func:`run_batch` as ``progress``.
+    closer : multiprocessing.Queue
+        The same queue, to close when the batch ends.
+
+    Examples
+    --------
+    >>> pool, progress, _ = local_executor(2)  # doctest: +SKIP
+    >>> outcomes = run_batch(jobs, pool, progress=progress)  # doctest: +SKIP
     """
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
@@ -408,12 +610,25 @@ def local_executor(workers: int | None):
 
 class ClusterProgress:
     """Per-job progress from Dask workers: a named ``distributed.Queue`` behind the same
-    ``put`` / ``get_nowait`` as the local pool's manager queue.
+    ``put`` / ``get_nowait`` as the local pool's queue.
 
     Only the queue's name travels with a job; each side opens the queue when it first
     uses it (a pickled Queue would be opened by the scheduler as it unpacks the task, and a
     LocalCluster's in-process scheduler then waits on itself). A render reports once per
     engine block (a few seconds of audio or more): a handful of round trips per job.
+
+    Parameters
+    ----------
+    client : distributed.Client, optional
+    name : str, optional
+        Queue name (a unique one by default).
+
+    Examples
+    --------
+    >>> import pickle
+    >>> p = ClusterProgress(name="demo-progress")
+    >>> pickle.loads(pickle.dumps(p)).name  # only the name travels
+    'demo-progress'
     """
 
     def __init__(self, client=None, name: str | None = None):
@@ -437,9 +652,30 @@ class ClusterProgress:
         return self._queue
 
     def put(self, item) -> None:
+        """Send ``item`` (``(job name, fraction)``) to the parent.
+
+        Parameters
+        ----------
+        item : tuple
+
+        Examples
+        --------
+        >>> ClusterProgress(client).put(("a__hall.wav", 0.5))  # doctest: +SKIP
+        """
         self._open().put(item)
 
     def get_nowait(self):
+        """The next item, or :class:`queue.Empty` when there is none.
+
+        Returns
+        -------
+        tuple
+
+        Examples
+        --------
+        >>> ClusterProgress(client).get_nowait()  # doctest: +SKIP
+        ('a__hall.wav', 0.5)
+        """
         q = self._open()
         if q.qsize() == 0:
             raise queue_mod.Empty
@@ -450,7 +686,29 @@ class ClusterProgress:
 
 
 def dask_executor(address: str):
-    """An executor on a Dask distributed scheduler, with a :class:`ClusterProgress`."""
+    """An executor on a Dask distributed scheduler, with a :class:`ClusterProgress`.
+
+    Parameters
+    ----------
+    address : str
+        The scheduler's address, e.g. ``"tcp://10.0.0.5:8786"``.
+
+    Returns
+    -------
+    executor : Executor
+    progress : ClusterProgress
+    client : distributed.Client
+        Close it when the batch ends.
+
+    Raises
+    ------
+    InputError
+        When the optional Dask extra is missing or the scheduler cannot be reached.
+
+    Examples
+    --------
+    >>> pool, progress, client = dask_executor("tcp://127.0.0.1:8786")  # doctest: +SKIP
+    """
     try:
         from distributed import Client  # noqa: PLC0415 - optional extra
     except ImportError:
