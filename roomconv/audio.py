@@ -64,8 +64,35 @@ _WAV_LIMIT_BYTES = 4 * 1024**3 - 1024  # RIFF size fields are 32-bit
 def read_audio(path, *, what: str = "audio file") -> tuple[np.ndarray, int]:
     """Read a whole audio file as float64, shape (samples, channels).
 
-    Raises :class:`InputError` naming the file when it is missing, unreadable, truncated,
-    empty or holds non-finite samples.
+    Parameters
+    ----------
+    path : str or Path
+    what : str
+        What the file is ("impulse response"), used in a refusal.
+
+    Returns
+    -------
+    data : ndarray, shape (samples, channels)
+        float64, full scale = 1.
+    rate : int
+        Sample rate, Hz.
+
+    Raises
+    ------
+    InputError
+        Naming the file when it is missing, unreadable, truncated, empty or holds non-finite
+        samples.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_audio(d / "a.wav", np.array([0.5, -0.5]), 48000)
+    >>> data, rate = read_audio(d / "a.wav")
+    >>> data.tolist(), rate
+    ([[0.5], [-0.5]], 48000)
+    >>> tmp.cleanup()
     """
     p = check_input_file(path, what)
     try:
@@ -104,7 +131,33 @@ def _check_truncation(p: Path, info) -> None:
 
 
 def audio_info(path) -> sf._SoundFileInfo:
-    """soundfile's header information, with our error message on failure."""
+    """soundfile's header information, with our refusal on failure.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    soundfile._SoundFileInfo
+        ``frames``, ``samplerate`` (Hz), ``channels``, ``format``, ``subtype``.
+
+    Raises
+    ------
+    InputError
+        Naming the file when it is missing, unreadable or truncated.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_audio(d / "a.wav", np.zeros((10, 2)), 44100)
+    >>> i = audio_info(d / "a.wav")
+    >>> i.frames, i.samplerate, i.channels
+    (10, 44100, 2)
+    >>> tmp.cleanup()
+    """
     p = check_input_file(path, "audio file")
     try:
         info = sf.info(str(p))
@@ -115,19 +168,92 @@ def audio_info(path) -> sf._SoundFileInfo:
 
 
 def check_output(path, *, force: bool = False, inputs: Iterable = ()) -> Path:
-    """Validate one output path before any work is done (a one-file :class:`WriteGuard`)."""
+    """Validate one output path before any work is done (a one-file :class:`WriteGuard`).
+
+    Parameters
+    ----------
+    path : str or Path
+    force : bool
+        Accept an existing file (to be replaced).
+    inputs : iterable of path
+        The command's inputs; the output may never be one of them.
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    InputError
+        When the output exists (without ``force``), is an input, or cannot be written there.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> check_output(d / "new.wav").name
+    'new.wav'
+    >>> tmp.cleanup()
+    """
     return WriteGuard(inputs, force=force).file(path)
 
 
 @contextlib.contextmanager
 def atomic_path(path, *, force: bool = False, inputs: Iterable = ()) -> Iterator[Path]:
-    """Yield a temporary path beside ``path``; move it into place when the block succeeds."""
+    """Context manager: a temporary path beside ``path``, moved into place when the block
+    succeeds (and removed when it fails).
+
+    Parameters
+    ----------
+    path : str or Path
+    force : bool
+    inputs : iterable of path
+
+    Yields
+    ------
+    Path
+        The temporary file to write.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> with atomic_path(d / "notes.txt") as t:
+    ...     _ = t.write_text("hello")
+    >>> (d / "notes.txt").read_text()
+    'hello'
+    >>> tmp.cleanup()
+    """
     with WriteGuard(inputs, force=force) as g, g.target(path) as tmp:
         yield tmp
 
 
 def audio_format_for(path, n_bytes: int = 0) -> str:
-    """Container for ``path``'s extension; RF64 once a WAV would pass the 4 GiB RIFF limit."""
+    """Container for ``path``'s extension; RF64 once a WAV would pass the 4 GiB RIFF limit.
+
+    Parameters
+    ----------
+    path : str or Path
+    n_bytes : int
+        Expected size of the sample data, bytes.
+
+    Returns
+    -------
+    str
+        soundfile format name.
+
+    Raises
+    ------
+    InputError
+        For an extension roomconv does not write.
+
+    Examples
+    --------
+    >>> audio_format_for("x.flac"), audio_format_for("x.wav", 5 * 1024**3)
+    ('FLAC', 'RF64')
+    """
     ext = Path(path).suffix.lower()
     if ext not in _FORMATS:
         raise InputError(
@@ -150,7 +276,44 @@ def write_audio(
     force: bool = False,
     inputs: Iterable = (),
 ) -> Path:
-    """Write ``data`` (samples × channels, or 1-D) through a one-file guard."""
+    """Write ``data`` through a one-file guard (temporary file, then no-clobber rename).
+
+    Parameters
+    ----------
+    path : str or Path
+    data : ndarray, shape (samples,) or (samples, channels)
+        Full scale = 1; must be finite.
+    rate : int
+        Sample rate, Hz.
+    subtype : str
+        soundfile subtype (``"FLOAT"``, ``"DOUBLE"``, ``"PCM_24"``, ...).
+    force : bool
+        Replace an existing file.
+    inputs : iterable of path
+        Files the output may never be.
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    InputError
+        When the file exists (without ``force``), the data are not finite, or the format cannot
+        hold the subtype.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_audio(d / "a.wav", np.zeros(4), 48000)
+    >>> write_audio(d / "a.wav", np.zeros(4), 48000)
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.OutputExistsError: ...a.wav: exists already (...)
+    >>> tmp.cleanup()
+    """
     with WriteGuard(inputs, force=force) as g:
         return g.write_audio(path, data, rate, subtype=subtype)
 
@@ -163,18 +326,89 @@ def _check_subtype(path, fmt: str, subtype: str) -> None:
 
 
 def write_json(path, obj, *, force: bool = False, inputs: Iterable = ()) -> Path:
-    """Write ``obj`` as indented JSON (NaN written as null) through a one-file guard."""
+    """Write ``obj`` as indented JSON (NaN and ±inf written as null) through a one-file guard.
+
+    Parameters
+    ----------
+    path : str or Path
+    obj : object
+        dicts, lists, numbers (numpy ones too), strings, Paths.
+    force : bool
+    inputs : iterable of path
+
+    Returns
+    -------
+    Path
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_json(d / "q.json", {"inr_db": np.float64(52.5), "c80_db": float("nan")})
+    >>> read_json(d / "q.json")
+    {'inr_db': 52.5, 'c80_db': None}
+    >>> tmp.cleanup()
+    """
     with WriteGuard(inputs, force=force) as g:
         return g.write_json(path, obj)
 
 
 def write_text(path, text: str, *, force: bool = False, inputs: Iterable = ()) -> Path:
-    """Write a text file through a one-file guard."""
+    """Write a text file (UTF-8) through a one-file guard.
+
+    Parameters
+    ----------
+    path : str or Path
+    text : str
+    force : bool
+    inputs : iterable of path
+
+    Returns
+    -------
+    Path
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> write_text(d / "r.txt", "T30 1.2 s").read_text()
+    'T30 1.2 s'
+    >>> tmp.cleanup()
+    """
     with WriteGuard(inputs, force=force) as g:
         return g.write_text(path, text)
 
 
 def read_json(path, *, what: str = "JSON file") -> dict:
+    """Read a JSON file, refusing a missing, unreadable or malformed one with its name.
+
+    Parameters
+    ----------
+    path : str or Path
+    what : str
+        What the file is, used in a refusal.
+
+    Returns
+    -------
+    object
+        The parsed content (any JSON value; callers check its shape).
+
+    Raises
+    ------
+    InputError
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = (d / "x.json").write_text('{"rate": 48000}')
+    >>> read_json(d / "x.json")
+    {'rate': 48000}
+    >>> tmp.cleanup()
+    """
     p = check_input_file(path, what)
     try:
         return json.loads(p.read_text(encoding="utf-8"))
@@ -208,6 +442,21 @@ def sidecar_path(path, kind: str) -> Path:
     When that name would pass the file-name limit (a legal long output name plus the
     sidecar's longer suffix), the stem is shortened and a hash of the full stem keeps the name
     unique and the same from run to run.
+
+    Parameters
+    ----------
+    path : str or Path
+    kind : str
+        ``"sweep"``, ``"provenance"``, ...
+
+    Returns
+    -------
+    Path
+
+    Examples
+    --------
+    >>> sidecar_path("out/hall.wav", "provenance").as_posix()
+    'out/hall.provenance.json'
     """
     p = Path(path)
     name = f"{p.stem}.{kind}.json"
@@ -221,6 +470,33 @@ def sidecar_path(path, kind: str) -> Path:
 
 
 def file_sha256(path, chunk: int = 1 << 20) -> str:
+    """SHA-256 of a file's bytes, read in chunks.
+
+    Parameters
+    ----------
+    path : str or Path
+    chunk : int
+        Read size, bytes.
+
+    Returns
+    -------
+    str
+        Hex digest.
+
+    References
+    ----------
+    FIPS 180-4 (2015), Secure Hash Standard.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = (d / "e").write_bytes(b"")
+    >>> file_sha256(d / "e")[:16]  # the digest of no bytes
+    'e3b0c44298fc1c14'
+    >>> tmp.cleanup()
+    """
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         while block := fh.read(chunk):
@@ -229,7 +505,27 @@ def file_sha256(path, chunk: int = 1 << 20) -> str:
 
 
 def output_record(path) -> dict:
-    """What a later run checks to trust a finished output: frames and SHA-256."""
+    """What a later run checks to trust a finished output: its frames and SHA-256.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    dict
+        ``file``, ``sha256`` and, for audio, ``frames``.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_audio(d / "a.wav", np.zeros(7), 48000)
+    >>> output_record(d / "a.wav")["frames"]
+    7
+    >>> tmp.cleanup()
+    """
     rec: dict[str, str | int] = {"file": str(path), "sha256": file_sha256(path)}
     with contextlib.suppress(sf.LibsndfileError, RuntimeError):
         rec["frames"] = int(sf.info(str(path)).frames)
@@ -238,7 +534,29 @@ def output_record(path) -> dict:
 
 def provenance(inputs: Iterable, settings: dict, output=None) -> dict:
     """A provenance record: inputs with their hashes, the settings, roomconv's version and,
-    when given, the output's frame count and hash."""
+    when given, the output's frame count and hash.
+
+    Parameters
+    ----------
+    inputs : iterable of path
+    settings : dict
+    output : str or Path, optional
+
+    Returns
+    -------
+    dict
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = (d / "in.wav").write_bytes(b"")
+    >>> rec = provenance([d / "in.wav"], {"mix": 0.5})
+    >>> sorted(rec), rec["settings"]
+    (['inputs', 'roomconv_version', 'settings'], {'mix': 0.5})
+    >>> tmp.cleanup()
+    """
     rec = {
         "roomconv_version": __version__,
         "inputs": [{"file": str(p), "sha256": file_sha256(p)} for p in inputs],
@@ -257,8 +575,34 @@ def write_provenance(
     force: bool = False,
     guard: WriteGuard | None = None,
 ) -> Path:
-    """Write ``<output stem>.provenance.json`` beside ``output`` through ``guard`` (or a
-    one-file guard that knows ``inputs``); like any output it is replaced only with ``force``."""
+    """Write ``<output stem>.provenance.json`` beside ``output``.
+
+    Through ``guard``, or a one-file guard that knows ``inputs``; like any output it is
+    replaced only with ``force``.
+
+    Parameters
+    ----------
+    output : str or Path
+    inputs : iterable of path
+    settings : dict
+    force : bool
+    guard : WriteGuard, optional
+
+    Returns
+    -------
+    Path
+        The sidecar.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = write_audio(d / "wet.wav", np.zeros(3), 48000)
+    >>> write_provenance(d / "wet.wav", [], {"gain_db": 0.0}).name
+    'wet.provenance.json'
+    >>> tmp.cleanup()
+    """
     inputs = list(inputs)
     side = sidecar_path(output, "provenance")
     doc = provenance(inputs, settings, output=output if Path(output).is_file() else None)
@@ -340,8 +684,29 @@ def _short(p) -> str:
 
 
 def check_input_file(path, what: str = "file") -> Path:
-    """Refuse an input that is missing, a folder, or not a regular file (a FIFO would block
-    the reader forever; a device would never end) before anything opens it."""
+    """Refuse an input that is missing, a folder, or not a regular file (a FIFO would block).
+
+    Parameters
+    ----------
+    path : str or Path
+    what : str
+        What the file is, used in a refusal.
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    InputError
+
+    Examples
+    --------
+    >>> check_input_file("/nonexistent/dry.wav", "dry file")
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: /nonexistent/dry.wav: dry file not found (check the path)
+    """
     p = Path(path)
     st = _stat(p)
     if st is None:
@@ -390,6 +755,24 @@ def sweep_stale_temps(folder) -> list[Path]:
     Only names matching ``.rc-<host>-<pid>-<random>.tmp`` made on this machine by a process
     that no longer exists, and older than this process, are removed; anything else is left
     alone.
+
+    Parameters
+    ----------
+    folder : str or Path
+
+    Returns
+    -------
+    list of Path
+        The files removed.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> sweep_stale_temps(d)
+    []
+    >>> tmp.cleanup()
     """
     folder = Path(folder) if str(folder) else Path(".")
     removed: list[Path] = []
@@ -415,8 +798,29 @@ def sweep_stale_temps(folder) -> list[Path]:
 
 
 def new_temp(folder, target=None) -> Path:
-    """A fresh temporary file of our pattern in ``folder`` (registered for clean-up);
-    ``target``, the file it will become, is named in error messages."""
+    """A fresh, empty temporary file of our pattern in ``folder``, registered for clean-up.
+
+    Parameters
+    ----------
+    folder : str or Path
+    target : str or Path, optional
+        The file it will become, named in error messages.
+
+    Returns
+    -------
+    Path
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> t = new_temp(d)
+    >>> t.name.startswith(TEMP_PREFIX), t.name.endswith(TEMP_SUFFIX)
+    (True, True)
+    >>> drop_temp(t)
+    >>> tmp.cleanup()
+    """
     folder = Path(folder) if str(folder) else Path(".")
     for _ in range(100):
         p = folder / f"{TEMP_PREFIX}{_HOST}-{os.getpid()}-{secrets.token_hex(4)}{TEMP_SUFFIX}"
@@ -436,6 +840,27 @@ def new_temp(folder, target=None) -> Path:
 
 
 def drop_temp(p: Path) -> None:
+    """Remove a temporary file (if it is still there) and forget it.
+
+    Parameters
+    ----------
+    p : Path
+
+    Returns
+    -------
+    None
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> t = new_temp(d)
+    >>> drop_temp(t)
+    >>> t.exists()
+    False
+    >>> tmp.cleanup()
+    """
     with contextlib.suppress(FileNotFoundError):
         os.unlink(p)
     _LIVE_TEMPS.discard(Path(p))
@@ -456,7 +881,27 @@ def _nearly_full(folder: Path) -> bool:
 
 
 def write_error(exc: BaseException, target, folder: Path | None = None) -> RoomconvError | None:
-    """Translate a failed write into one line; ``None`` when it is not ours to explain."""
+    """Translate a failed write into one line; ``None`` when it is not ours to explain.
+
+    Parameters
+    ----------
+    exc : BaseException
+        What the write raised.
+    target : str or Path
+        The file being written.
+    folder : Path, optional
+        Its folder (to tell a full disk from other failures).
+
+    Returns
+    -------
+    RoomconvError or None
+
+    Examples
+    --------
+    >>> import errno
+    >>> print(write_error(OSError(errno.ENOSPC, "No space left"), "/data/out.wav"))
+    no space left on device while writing /data/out.wav (free some space ...)
+    """
     folder = folder or Path(target).parent
     err = getattr(exc, "errno", None)
     if isinstance(exc, OSError) and err is not None:
@@ -490,6 +935,32 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
     succeeds only if that name is still free, so of two processes racing for one new file
     exactly one wins. Where hard links are not supported an exclusive create reserves the name
     first. With ``force`` the file is renamed over the old one atomically.
+
+    Parameters
+    ----------
+    tmp : Path
+    final : Path
+    force : bool
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    OutputExistsError
+        When ``final`` appeared meanwhile (without ``force``).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> t = new_temp(d)
+    >>> commit(t, d / "out.bin", force=False)
+    >>> (d / "out.bin").exists(), t.exists()
+    (True, False)
+    >>> tmp.cleanup()
     """
     os.chmod(tmp, 0o666 & ~_umask())
     if force:
@@ -541,8 +1012,30 @@ class WriteGuard:
     - refuses two outputs of the same command that are the same file;
     - refuses an existing output without ``force`` (checked when planned, and again at the
       no-clobber final step of :func:`commit`);
-    - creates planned folders only when something is written into them, and :meth:`abort`
-      removes the folders it created (when empty) and its temporary files.
+    - creates planned folders only when something is written into them; :meth:`close`
+      removes the folders it created that stayed empty, and :meth:`rollback` the files it
+      created new.
+
+    Parameters
+    ----------
+    inputs : iterable of path
+        The command's inputs (None entries are ignored).
+    force : bool
+        Replace existing outputs (never inputs).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> _ = (d / "dry.wav").write_bytes(b"")
+    >>> with WriteGuard([d / "dry.wav"]) as g:
+    ...     out = g.file(d / "wet.wav")
+    ...     g.file(d / "." / "dry.wav")
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: ...dry.wav: is also an input; roomconv never writes over an input...
+    >>> tmp.cleanup()
     """
 
     def __init__(self, inputs: Iterable = (), *, force: bool = False):
@@ -557,6 +1050,21 @@ class WriteGuard:
 
     # -- planning ------------------------------------------------------------------------
     def add_input(self, path) -> None:
+        """Add an input the outputs must never be (None is ignored).
+
+        Parameters
+        ----------
+        path : str or Path or None
+
+        Returns
+        -------
+        None
+
+        Examples
+        --------
+        >>> g = WriteGuard()
+        >>> g.add_input("/data/dry.wav")
+        """
         if path is None:
             return
         p = Path(path)
@@ -621,8 +1129,31 @@ class WriteGuard:
             raise InputError(describe(_short(p), f"folder {_short(folder)} is not writable"))
 
     def file(self, path, *, exists_ok: bool = False) -> Path:
-        """Plan an output file; returns it as a Path. ``exists_ok`` leaves the decision about
-        an existing file to the caller (a batch resume)."""
+        """Plan an output file.
+
+        Parameters
+        ----------
+        path : str or Path
+        exists_ok : bool
+            Leave the decision about an existing file to the caller (a batch resume).
+
+        Returns
+        -------
+        Path
+
+        Raises
+        ------
+        InputError
+            When it is an input, planned twice, a folder, in a missing or read-only folder, or
+            exists (without ``force`` or ``exists_ok``).
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> with tempfile.TemporaryDirectory() as tmp:
+        ...     WriteGuard().file(Path(tmp) / "wet.wav").name
+        'wet.wav'
+        """
         p = Path(path)
         self._check_name(p)
         folder = p.parent if str(p.parent) else Path(".")
@@ -657,7 +1188,30 @@ class WriteGuard:
         return p
 
     def folder(self, path) -> Path:
-        """Plan an output folder (created on first use by :meth:`make_folder`)."""
+        """Plan an output folder (created on first use by :meth:`make_folder`).
+
+        Parameters
+        ----------
+        path : str or Path
+
+        Returns
+        -------
+        Path
+
+        Raises
+        ------
+        InputError
+            When it is a file, an input, or under a file or a read-only folder.
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> with tempfile.TemporaryDirectory() as tmp:
+        ...     g = WriteGuard()
+        ...     sub = g.folder(Path(tmp) / "renders")
+        ...     sub.exists()  # not created yet
+        False
+        """
         p = Path(path)
         self._check_name(p, folder=True)
         st = _stat(p)
@@ -687,7 +1241,26 @@ class WriteGuard:
         return p
 
     def make_folder(self, path) -> Path:
-        """Create a planned folder (and missing parents), remembering what this run made."""
+        """Create a planned folder (and missing parents), remembering what this run made.
+
+        Parameters
+        ----------
+        path : str or Path
+
+        Returns
+        -------
+        Path
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> with tempfile.TemporaryDirectory() as tmp:
+        ...     with WriteGuard() as g:
+        ...         sub = g.make_folder(g.folder(Path(tmp) / "a" / "b"))
+        ...         made = sub.is_dir()
+        ...     made, sub.exists()  # close() removed the folders that stayed empty
+        (True, False)
+        """
         p = Path(path)
         missing = []
         q = p
@@ -708,15 +1281,49 @@ class WriteGuard:
 
     # -- writing -------------------------------------------------------------------------
     def planned(self, path) -> bool:
-        """Whether ``path`` is one of the outputs planned already."""
+        """Whether ``path`` is one of the outputs planned already (whatever name reaches it).
+
+        Parameters
+        ----------
+        path : str or Path
+
+        Returns
+        -------
+        bool
+
+        Examples
+        --------
+        >>> g = WriteGuard()
+        >>> g.planned("/tmp/never-planned.wav")
+        False
+        """
         ident = _identity(Path(path))
         return any(_same(ident, oid) for _, oid in self._outputs)
 
     @contextlib.contextmanager
     def target(self, path) -> Iterator[Path]:
-        """Yield a temporary path beside ``path``; move it into place if the block succeeds.
+        """Context manager: a temporary path beside ``path``, moved into place if the block
+        succeeds; ``path`` is planned now if it was not before.
 
-        ``path`` is planned now if it was not before.
+        Parameters
+        ----------
+        path : str or Path
+
+        Yields
+        ------
+        Path
+            The temporary file to write.
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> with WriteGuard() as g, g.target(d / "r.csv") as t:
+        ...     _ = t.write_text("band_hz,t30_s")
+        >>> (d / "r.csv").read_text()
+        'band_hz,t30_s'
+        >>> tmp.cleanup()
         """
         out = Path(path)
         folder = out.parent if str(out.parent) else Path(".")
@@ -739,7 +1346,29 @@ class WriteGuard:
 
     def commit(self, tmp: Path, final) -> None:
         """:func:`commit` with this guard's ``force``, remembering files that are new, so
-        that :meth:`rollback` can remove them if the command fails later."""
+        that :meth:`rollback` can remove them if the command fails later.
+
+        Parameters
+        ----------
+        tmp : Path
+        final : str or Path
+
+        Returns
+        -------
+        None
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> g = WriteGuard()
+        >>> g.commit(new_temp(d), d / "x.bin")
+        >>> g.rollback()  # the command failed later: the new file goes
+        >>> (d / "x.bin").exists()
+        False
+        >>> tmp.cleanup()
+        """
         final = Path(final)
         existed = os.path.lexists(final)
         commit(tmp, final, force=self.force)
@@ -750,6 +1379,23 @@ class WriteGuard:
                 _LIVE_GUARDS.append(self)
 
     def write_audio(self, path, data: np.ndarray, rate: int, *, subtype: str = "FLOAT") -> Path:
+        """Write audio through :meth:`target` (see :func:`write_audio` for the parameters).
+
+        A file that libsndfile wrote short is not kept.
+
+        Returns
+        -------
+        Path
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> WriteGuard().write_audio(d / "a.flac", np.zeros((5, 2)), 48000, subtype="PCM_24").name
+        'a.flac'
+        >>> tmp.cleanup()
+        """
         arr = np.asarray(data)
         if arr.ndim == 1:
             arr = arr[:, None]
@@ -766,19 +1412,54 @@ class WriteGuard:
         return Path(path)
 
     def write_json(self, path, obj) -> Path:
+        """Write JSON through :meth:`target` (see :func:`write_json`).
+
+        Returns
+        -------
+        Path
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> WriteGuard().write_json(d / "s.json", {"band_hz": [500, 1000]}).name
+        's.json'
+        >>> tmp.cleanup()
+        """
         text = json.dumps(_jsonable(obj), indent=2, allow_nan=False)
         with self.target(path) as tmp:
             tmp.write_text(text + "\n", encoding="utf-8")
         return Path(path)
 
     def write_text(self, path, text: str) -> Path:
+        """Write UTF-8 text through :meth:`target`.
+
+        Returns
+        -------
+        Path
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> WriteGuard().write_text(d / "n.txt", "ok").read_text()
+        'ok'
+        >>> tmp.cleanup()
+        """
         with self.target(path) as tmp:
             tmp.write_text(text, encoding="utf-8")
         return Path(path)
 
     # -- ending --------------------------------------------------------------------------
     def tidy(self) -> None:
-        """Remove folders this run created that are still empty."""
+        """Remove folders this run created that are still empty.
+
+        Examples
+        --------
+        >>> WriteGuard().tidy()
+        """
         for q in reversed(self._created):
             with contextlib.suppress(OSError):
                 q.rmdir()
@@ -786,8 +1467,21 @@ class WriteGuard:
 
     def rollback(self) -> None:
         """After a failed command: remove the files it created new (still the very files it
-        wrote), then the folders it created that are now empty. Files replaced with
-        ``force`` cannot be restored and stay, complete."""
+        wrote), then the folders it created that are now empty. Files replaced with ``force``
+        cannot be restored and stay, complete.
+
+        Examples
+        --------
+        >>> import tempfile
+        >>> tmp = tempfile.TemporaryDirectory()
+        >>> d = Path(tmp.name)
+        >>> g = WriteGuard()
+        >>> _ = g.write_text(d / "part.txt", "half")
+        >>> g.rollback()
+        >>> (d / "part.txt").exists()
+        False
+        >>> tmp.cleanup()
+        """
         for path, ident in reversed(self._new_files):
             with contextlib.suppress(OSError):
                 st = os.stat(path)
@@ -797,6 +1491,12 @@ class WriteGuard:
         self.tidy()
 
     def close(self) -> None:
+        """End the guard's run: remove empty folders it created and stop tracking it.
+
+        Examples
+        --------
+        >>> WriteGuard().close()
+        """
         self.tidy()
         with contextlib.suppress(ValueError):
             _LIVE_GUARDS.remove(self)
@@ -809,15 +1509,40 @@ class WriteGuard:
 
 
 def drop_live_temps() -> None:
-    """Remove every temporary file this process has open (on an interrupt)."""
+    """Remove every temporary file this process has open (on an interrupt).
+
+    Examples
+    --------
+    >>> drop_live_temps()
+    """
     for p in list(_LIVE_TEMPS):
         drop_temp(p)
 
 
 def end_run(*, failed: bool = False) -> None:
-    """Remove every temporary file of this process and the folders its guards created that
-    are empty; with ``failed``, also the files its guards created new, so that a command that
-    fails half-way leaves nothing of its own behind. The CLI calls it when a command ends."""
+    """Remove every temporary file of this process and the empty folders its guards created;
+    with ``failed``, also the files its guards created new, so that a command that fails
+    half-way leaves nothing of its own behind. The CLI calls it when a command ends.
+
+    Parameters
+    ----------
+    failed : bool
+
+    Returns
+    -------
+    None
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = Path(tmp.name)
+    >>> t = new_temp(d)  # a temporary file of an unfinished write
+    >>> end_run()
+    >>> t.exists()
+    False
+    >>> tmp.cleanup()
+    """
     drop_live_temps()
     if failed:
         for g in list(_LIVE_GUARDS):
@@ -827,6 +1552,11 @@ def end_run(*, failed: bool = False) -> None:
 
 
 def reset_run_state() -> None:
-    """Forget what an earlier in-process run planned (the CLI calls it on entry)."""
+    """Forget what an earlier in-process run planned (the CLI calls it on entry).
+
+    Examples
+    --------
+    >>> reset_run_state()
+    """
     _LIVE_GUARDS.clear()
     _SWEPT.clear()
