@@ -1379,9 +1379,17 @@ class WriteGuard:
                 _LIVE_GUARDS.append(self)
 
     def write_audio(self, path, data: np.ndarray, rate: int, *, subtype: str = "FLOAT") -> Path:
-        """Write audio through :meth:`target` (see :func:`write_audio` for the parameters).
+        """Write audio through :meth:`target`; a file that libsndfile wrote short is not kept.
 
-        A file that libsndfile wrote short is not kept.
+        Parameters
+        ----------
+        path : str or Path
+        data : ndarray, shape (samples,) or (samples, channels)
+            Full scale = 1; must be finite.
+        rate : int
+            Sample rate, Hz.
+        subtype : str
+            soundfile subtype (``"FLOAT"``, ``"DOUBLE"``, ``"PCM_24"``, ...).
 
         Returns
         -------
@@ -1412,7 +1420,13 @@ class WriteGuard:
         return Path(path)
 
     def write_json(self, path, obj) -> Path:
-        """Write JSON through :meth:`target` (see :func:`write_json`).
+        """Write JSON through :meth:`target` (NaN and ±inf written as null).
+
+        Parameters
+        ----------
+        path : str or Path
+        obj : object
+            dicts, lists, numbers (numpy ones too), strings, Paths.
 
         Returns
         -------
@@ -1434,6 +1448,11 @@ class WriteGuard:
 
     def write_text(self, path, text: str) -> Path:
         """Write UTF-8 text through :meth:`target`.
+
+        Parameters
+        ----------
+        path : str or Path
+        text : str
 
         Returns
         -------
