@@ -56,7 +56,9 @@ def test_limiter_holds_the_ceiling_when_the_level_is_far_too_high():
     )
     y = np.concatenate([proc.process(x[i : i + 256]) for i in range(0, FS - 255, 256)])
     assert np.max(np.abs(y)) <= 10 ** (-6 / 20) + 1e-12
-    assert proc.stats.limiter_db > 20
+    # Closed form: a constant 1 through a 4× response and +20 dB is 40 at full level; held at
+    # the −6 dBFS ceiling, the gain reduction is 20·log10(40 / 10^(−6/20)) ≈ 38.06 dB.
+    assert proc.stats.limiter_db == pytest.approx(20 * np.log10(40 / 10 ** (-6 / 20)), abs=0.01)
 
 
 def _alsa_missing():
