@@ -13,6 +13,7 @@ from scipy import fft as sfft
 from scipy.signal import fftconvolve
 
 from ..errors import InputError
+from ..signal import cosine_step, raised_cosine
 from . import quality as q
 from .sweep import Sweep, harmonic_delay, inverse_filter
 
@@ -229,6 +230,7 @@ def _check_recording(y, rate, sweep, excitation, allow_clipped):
     if not np.all(np.isfinite(y)):
         raise InputError("the recording holds NaN or infinite samples")
     peak = np.max(np.abs(y), axis=0)
+    # 1e-9 is −180 dBFS, below any converter's noise: only digital silence is this quiet.
     if np.any(peak < 1e-9):
         silent = [int(c) for c in np.flatnonzero(peak < 1e-9)]
         raise InputError(
@@ -265,10 +267,12 @@ def _recording_quality(y, sweep, mics, ref) -> dict:
         "warnings": [],
     }
     if sweep is not None and sweep.n_pre >= int(0.05 * sweep.rate):
-        # Leading silence, minus a margin for the system's latency.
+        # Leading silence, minus a 20 % margin for the system's latency (common practice).
         head = y[: int(sweep.n_pre * 0.8)]
         out["noise_floor_dbfs"] = q.rms_dbfs(head).tolist()
     for c in mics:
+        # Within 1 dB of full scale risks clipping; below −40 dBFS wastes converter range
+        # (both common practice, not from a standard).
         if pk[c] > -1.0:
             out["warnings"].append(
                 f"channel {c}: recording peak {pk[c]:.1f} dBFS is within 1 dB "
@@ -313,12 +317,12 @@ def _band_weights(
     w = np.ones_like(f)
     # Below f1: rises from 0 at f1/2^t to 1 at f1.
     x_lo = np.clip((lf - (np.log2(lo) - transition_oct)) / transition_oct, 0.0, 1.0)
-    w *= 0.5 - 0.5 * np.cos(np.pi * x_lo)
+    w *= cosine_step(x_lo)
     top = min(hi * 2.0**transition_oct, nyq)
     if top > hi * (1 + 1e-9):
         # Above f2: falls from 1 at f2 to 0 at ``top`` (Nyquist at the latest).
         x_hi = np.clip((np.log2(top) - lf) / (np.log2(top) - np.log2(hi)), 0.0, 1.0)
-        w *= 0.5 - 0.5 * np.cos(np.pi * x_hi)
+        w *= cosine_step(x_hi)
     return w
 
 
@@ -337,6 +341,8 @@ def _regularized_inverse(P: np.ndarray, f: np.ndarray, band, rate: int) -> np.nd
     p2 = np.abs(P) ** 2
     top = p2.max()
     w = _band_weights(f, band, rate)
+    # 1e-8 (−80 dB re the peak power) only keeps the division finite in band; 1.0 outside
+    # leaves at most unit gain where the excitation carries nothing (common practice).
     eps = top * (1e-8 * w + 1.0 * (1 - w))
     return np.conj(P) / (p2 + eps)
 
@@ -359,6 +365,7 @@ def _estimate_band(exc: np.ndarray, rate: int) -> tuple[float, float]:
     f = sfft.rfftfreq(nfft, 1.0 / rate)
     k = max(1, p.size // 512)
     sm = np.convolve(p, np.ones(k) / k, mode="same")
+    # Within 40 dB of the peak (1e-4 in power): common practice for a usable band.
     live = np.flatnonzero(sm >= sm.max() * 1e-4)
     lo, hi = max(f[live[0]], 1.0), min(f[live[-1]], rate / 2 * 0.999)
     if not hi > lo * 1.5:
@@ -392,6 +399,7 @@ def _shift(x: np.ndarray, d: int, n: int) -> np.ndarray:
 
 def _reference_lead(z0: int, sweep, rate: int) -> int:
     """Negative time kept for the loopback division: clear of harmonic 2, at most 0.2 s."""
+    # 0.2 s covers the band-edge ringing of any sweep down to 20 Hz (common practice).
     lead = int(0.2 * rate)
     if sweep is not None:
         lead = min(lead, int(0.5 * harmonic_delay(sweep, 2) * rate))
@@ -424,6 +432,8 @@ def _harmonic_irs(raw, zeros, sweep, rate, mics, latency, ref, n_out):
         d = delays[k]
         gap = d - prev  # room before the next-lower order's own zero lag
         prev = d
+        # Keep 5 % of the gap free before the next-lower order, and refuse windows shorter
+        # than 5 ms (a response that short says nothing): both common practice.
         n_k = min(n_out, gap - max(1, gap // 20))
         if n_k < int(0.005 * rate):
             warnings.append(
@@ -447,8 +457,10 @@ def _harmonic_irs(raw, zeros, sweep, rate, mics, latency, ref, n_out):
             # Scale by the loopback gain so harmonic levels are relative to the same reference.
             g = np.max(np.abs(np.mean([raw[z : z + n_out, ref] for z in zeros], axis=0)))
             h = h / g
+        # A raised-cosine fade over the window's last tenth (common practice) keeps the cut
+        # from adding a click to the harmonic's spectrum.
         fade = max(1, n_k // 10)
-        h[-fade:] *= (0.5 + 0.5 * np.cos(np.pi * (np.arange(fade) + 1) / fade))[:, None]
+        h[-fade:] *= raised_cosine(fade, rising=False)[:, None]
         out[k] = h
     d2 = delays[2] / rate
     warnings.append(

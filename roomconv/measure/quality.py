@@ -24,8 +24,10 @@ __all__ = [
 #: T20 -5..-25, T30 -5..-35 dB.
 REQUIRED_INR_DB = {"edt": 20.0, "t20": 35.0, "t30": 45.0}
 
+#: Linear amplitude that counts as full scale (−0.009 dBFS; common practice).
 CLIP_LEVEL = 0.999
-CLIP_RUN = 3  # consecutive samples at full scale: the flat top that marks clipping
+#: Consecutive samples at full scale that mark the flat top of clipping (common practice).
+CLIP_RUN = 3
 
 
 def clipped_samples(x: np.ndarray, level: float = CLIP_LEVEL, run: int = CLIP_RUN) -> np.ndarray:

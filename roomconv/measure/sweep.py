@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..signal import db_to_gain, raised_cosine
 
 __all__ = [
     "Sweep",
@@ -305,15 +306,14 @@ def sweep_only(sweep: Sweep) -> np.ndarray:
     x *= _fade_window(
         n, int(round(sweep.fade_in * sweep.rate)), int(round(sweep.fade_out * sweep.rate))
     )
-    return x * 10.0 ** (sweep.level_dbfs / 20.0)
+    return x * db_to_gain(sweep.level_dbfs)
 
 
 def _fade_window(n: int, n_in: int, n_out: int) -> np.ndarray:
     w = np.ones(n)
-    if n_in > 0:
-        w[:n_in] = 0.5 - 0.5 * np.cos(np.pi * np.arange(n_in) / n_in)
+    w[:n_in] = raised_cosine(n_in)
     if n_out > 0:
-        w[n - n_out :] = 0.5 + 0.5 * np.cos(np.pi * (np.arange(n_out) + 1) / n_out)
+        w[n - n_out :] = raised_cosine(n_out, rising=False)
     return w
 
 
