@@ -12,7 +12,9 @@ from __future__ import annotations
 import json
 import os
 
+import numpy as np
 import pytest
+import soundfile as sf
 
 
 @pytest.fixture
@@ -81,8 +83,15 @@ def test_intact_sidecar_still_extracts(sweep_files, cli):
         sweep_files / "s.wav",
         "-o",
         sweep_files / "ir.wav",
+        "--json",
+        sweep_files / "q.json",
     )
     assert code == 0, err
+    # The sweep recorded by itself is an identity system: with the sidecar read, the
+    # analytic inverse (Farina 2000) gives a band-limited unit impulse at lag 0.
+    assert json.loads((sweep_files / "q.json").read_text())["method"] == "analytic_inverse"
+    ir, _ = sf.read(sweep_files / "ir.wav")
+    assert int(np.argmax(np.abs(ir))) == 0
 
 
 @pytest.mark.parametrize(
