@@ -88,6 +88,12 @@ class RenderSettings:
     match_ir_level : bool
         Scale the response to unit energy per output before mixing (:mod:`roomconv.render.mix`).
 
+    References
+    ----------
+    ITU-R BS.1770-4 (2015), loudness and true peak (``normalize``).
+    Lipshitz, S. P., Wannamaker, R. A., Vanderkooy, J. (1992). Quantization and dither: a
+    theoretical survey. J. Audio Eng. Soc. 40(5), 355–375 (TPDF dither; cited from memory).
+
     Examples
     --------
     >>> s = RenderSettings(mix=0.3, predelay_ms=12.0).check()

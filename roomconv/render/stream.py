@@ -218,6 +218,11 @@ class LiveProcessor:
     InputError
         For an empty, silent or non-finite response, or a value out of range.
 
+    References
+    ----------
+    Gardner, W. G. (1995). Efficient convolution without input-output delay. J. Audio Eng.
+    Soc. 43(3), 127–136 (non-uniform partitions; cited from memory).
+
     Examples
     --------
     >>> proc = LiveProcessor(np.array([1.0, 0.5]), 48000, block=64, fade_in_s=0.0)
