@@ -556,7 +556,9 @@ def stop_executor(executor: Executor, futures=()) -> None:
             p.join(max(0.0, deadline - time.monotonic()))
             if p.is_alive():
                 p.kill()
-                p.join(1.0)
+                # SIGKILL cannot be ignored, but on a loaded machine the dying process may
+                # take more than a moment to be scheduled and reaped.
+                p.join(10.0)
         except (OSError, ValueError, AssertionError, AttributeError):
             pass
 
