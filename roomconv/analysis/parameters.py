@@ -638,6 +638,7 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
         _ratio_noise_uncertainty(res, e, t, pre, rate, noise, comp, band, noise_dof, label)
     if band is not None and others:
         _filter_sensitivity(res, corrected, others, rate, onset, tr, pre, k, label)
+    _ratio_statistics(res, e - noise, t, pre, rate, comp, k, band, label)
     if raw is None:
         return
     for m, v in corrected.items():
@@ -652,6 +653,68 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
                      f"{label}: {name}: the background noise moves it by {bias:.2g}{unit} "
                      f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
                      "correction is only as good as the noise estimate")
+
+
+def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, rate: int,
+                      comp: float, k: float, band: Band | None, label: str) -> None:
+    """Caution on C50, C80, D50 and Ts whose single-position statistical uncertainty exceeds
+    half the JND.
+
+    A diffuse decay is a random signal: a band of width B carries about B independent energy
+    values per second, so an energy sum over a window, Σ e(t), varies by
+    (rate/B)·Σ ē(t)² (ē the smoothed energy; Gaussian band-limited noise, Bendat & Piersol
+    2010 — from memory). Early and late sums are propagated into each ratio; one position's
+    value can differ from the room's by that much, as its decay times do (ISO 3382-2 A.2).
+    The direct sound is counted as random too, so the estimate errs on the cautious side.
+    """
+    per_dof = _dof_samples(band, rate)
+    L = max(1, int(round(per_dof)))
+    s = np.maximum(e, 0.0)
+    if L > 1:
+        c = np.cumsum(np.concatenate([[0.0], s]))
+        lo = np.clip(np.arange(s.size) - L // 2, 0, s.size)
+        hi = np.clip(lo + L, 0, s.size)
+        smooth = (c[hi] - c[lo]) / np.maximum(hi - lo, 1)
+    else:
+        smooth = s
+    k_n = k / rate if k > 0 else 0.0  # per sample
+    e_c = float(smooth[-1]) if smooth.size else 0.0
+    comp_var = per_dof * e_c ** 2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
+
+    def var(sl):
+        return per_dof * float(np.sum(np.square(smooth[sl])))
+
+    total = float(s.sum()) + comp
+    if total <= 0:
+        return
+    k10 = 10 / np.log(10)
+    for ms, cname, dname in ((50, "c50_db", "d50"), (80, "c80_db", None)):
+        n = pre + int(round(ms / 1000 * rate))
+        early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
+        if early <= 0 or late <= 0 or getattr(res, cname) is None:
+            continue
+        rel2 = var(slice(0, n)) / early ** 2 + (var(slice(n, None)) + comp_var) / late ** 2
+        _judge_statistics(res, cname, cname[:3].upper(), k10 * np.sqrt(rel2), " dB", label)
+        if dname and res.d50 is not None:
+            d = early / total
+            _judge_statistics(res, dname, "D50", d * (1 - d) * np.sqrt(rel2), "", label)
+    if res.ts_ms is not None:
+        moment = float(np.sum(t * s))
+        if moment > 0:
+            v_m = per_dof * float(np.sum(np.square(t * smooth)))
+            v_t = var(slice(None)) + comp_var
+            sigma = res.ts_ms * np.sqrt(v_m / moment ** 2 + v_t / total ** 2)
+            _judge_statistics(res, "ts_ms", "Ts", sigma, " ms", label)
+
+
+def _judge_statistics(res: BandResult, metric: str, name: str, sigma: float, unit: str,
+                      label: str) -> None:
+    jnd = JND[metric][1]
+    if np.isfinite(sigma) and sigma > NOISE_SIGMA_CAUTION_JND * jnd:
+        res.flag((metric,), CAUTION, STATISTICAL,
+                 f"{label}: {name} at one position is uncertain by ±{sigma:.2g}{unit} (the "
+                 f"randomness of a diffuse decay in this band), more than half its JND of "
+                 f"{jnd:g}{unit}; average several positions")
 
 
 def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: int,
