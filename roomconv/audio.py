@@ -412,6 +412,8 @@ def read_json(path, *, what: str = "JSON file") -> dict:
     p = check_input_file(path, what)
     try:
         return json.loads(p.read_text(encoding="utf-8"))
+    except RecursionError:
+        raise InputError(describe(p, f"{what} is nested too deeply to be read")) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
         raise InputError(describe(p, f"{what} is not valid JSON: {exc}")) from None
 

@@ -153,6 +153,14 @@ class StrengthReference:
                       f"this band (it holds {_label(held[0])}-{_label(held[-1])} Hz)")
 
 
+#: Plausible levels of 10·lg(∫p₁₀² dt / FS²·s): a full-scale unit impulse at 8 kHz is
+#: −39 dB; any real source and interface lies far inside ±200 dB (common practice bound that
+#: keeps out values that are not levels at all).
+LEVEL_MIN_DB, LEVEL_MAX_DB = -200.0, 200.0
+#: Free-field reference distances beyond this are not free-field measurements (common practice).
+MAX_DISTANCE_M = 100.0
+
+
 def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
                             bands: str = "octave") -> StrengthReference:
     """Strength reference from a free-field impulse response of the source.
@@ -222,8 +230,10 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
         raise InputError("the strength reference needs a single channel")
     if not (isinstance(rate, (int, np.integer)) and rate > 0):
         raise InputError(f"sample rate {rate!r} is not a positive whole number of Hz")
-    if not (np.isfinite(distance_m) and distance_m > 0):
-        raise InputError(f"distance {distance_m!r} m is not a finite distance above 0 m")
+    if not (np.isfinite(distance_m) and 0 < distance_m <= MAX_DISTANCE_M):
+        raise InputError(f"distance {distance_m!r} m is not a distance above 0 m and at most "
+                         f"{MAX_DISTANCE_M:g} m (a free-field reference is measured at a few "
+                         "metres)")
     if bands not in BAND_SETS:
         raise InputError(f"unknown band set '{bands}' (use octave or third)")
     if not np.all(np.isfinite(x)):
@@ -321,12 +331,14 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
                          "point to point")
     if not (isinstance(rate, (int, np.integer)) and rate > 0):
         raise InputError(f"sample rate {rate!r} is not a positive whole number of Hz")
-    for name, v in (("room volume", volume_m3), ("speed of sound", speed_of_sound)):
-        if not (_is_number(v) and math.isfinite(v) and v > 0):
-            raise InputError(f"{name} {v!r} is not a finite number above 0")
+    for name, v, lo, hi in (("room volume", volume_m3, 1.0, 1e6),
+                            ("speed of sound", speed_of_sound, 250.0, 450.0)):
+        if not (_is_number(v) and math.isfinite(v) and lo <= v <= hi):
+            raise InputError(f"{name} {v!r} is out of range (accepted: {lo:g} to {hi:g})")
     if surface_m2 is not None and not (_is_number(surface_m2) and math.isfinite(surface_m2)
-                                       and surface_m2 > 0):
-        raise InputError(f"room surface {surface_m2!r} is not a finite number above 0")
+                                       and 1.0 <= surface_m2 <= 1e6):
+        raise InputError(f"room surface {surface_m2!r} m² is out of range (accepted: 1 to "
+                         "1e6 m²)")
     if bands not in BAND_SETS:
         raise InputError(f"unknown band set '{bands}' (use octave or third)")
     for i, h in enumerate(items):
@@ -342,9 +354,9 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
         if t is None:
             notes.append(f"{b.label} Hz band left out: no reverberation time given for it")
             continue
-        if not (_is_number(t) and math.isfinite(t) and t > 0):
-            raise InputError(f"reverberation time {t!r} s for the {b.label} Hz band is not a "
-                             "finite number above 0")
+        if not (_is_number(t) and math.isfinite(t) and 0.05 <= t <= 60.0):
+            raise InputError(f"reverberation time {t!r} s for the {b.label} Hz band is out of "
+                             "range (accepted: 0.05 to 60 s)")
         levels, why = [], None
         for h in items:
             e, why = _diffuse_energy(filter_band(h, rate, b), rate, b.bandwidth, float(t))
@@ -374,6 +386,9 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
     method = (f"reverberation room of {volume_m3:g} m³, {len(items)} positions, "
               f"A = 55.26·V/(c·T) per band"
               + (f", Waterhouse correction for {surface_m2:g} m²" if surface_m2 else ""))
+    if not values:
+        raise InputError("the reverberation-room method gave no band value: "
+                         + "; ".join(notes) if notes else "no band could be evaluated")
     return StrengthReference(wideband_db=None, bands_db=values, band_set=bands, rate_hz=rate,
                              method=method, notes=tuple(notes), uncertainty_db=uncertainty)
 
@@ -463,9 +478,10 @@ def parse_strength_reference(text: str) -> StrengthReference:
     except ValueError:
         value = None
     if value is not None:
-        if not math.isfinite(value):
-            raise InputError(f"strength reference {text!r} is not a finite level: give dB of "
-                             "∫p² dt at 10 m, or the JSON file from roomconv calibrate")
+        if not (math.isfinite(value) and LEVEL_MIN_DB <= value <= LEVEL_MAX_DB):
+            raise InputError(f"strength reference {text!r} is not a finite level between "
+                             f"{LEVEL_MIN_DB:g} and {LEVEL_MAX_DB:g} dB: give dB of ∫p² dt at "
+                             "10 m, or the JSON file from roomconv calibrate")
         return StrengthReference(wideband_db=value, bands_db={}, band_set=None, rate_hz=None,
                                  method="a single wideband level given as a number")
     p = Path(s)
@@ -475,8 +491,13 @@ def parse_strength_reference(text: str) -> StrengthReference:
     if p.is_dir():
         raise InputError(describe(p, "is a folder, not a strength reference file",
                                   "give the JSON file from roomconv calibrate"))
+    from ..audio import check_input_file
+    p = check_input_file(p, "strength reference file")  # a pipe or device would block
     try:
         d = json.loads(p.read_text(encoding="utf-8"))
+    except RecursionError:
+        raise InputError(describe(p, "is nested too deeply to be a strength reference",
+                                  "re-create it with roomconv calibrate")) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
         raise InputError(describe(p, f"is not valid JSON: {exc}",
                                   "re-create it with roomconv calibrate")) from None
@@ -622,6 +643,9 @@ def _finite(v, name, bad) -> float:
     f = float(v)
     if not math.isfinite(f):
         raise bad(f"field '{name}' is not finite")
+    if not LEVEL_MIN_DB <= f <= LEVEL_MAX_DB:
+        raise bad(f"field '{name}' is {f:g} dB, not a level between {LEVEL_MIN_DB:g} and "
+                  f"{LEVEL_MAX_DB:g} dB")
     return f
 
 

@@ -719,6 +719,6 @@ def dask_executor(address: str):
         ) from None
     try:
         client = Client(address, timeout="10s")
-    except (OSError, TimeoutError) as exc:
+    except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"cannot reach the Dask scheduler at {address}: {exc}") from None
     return client.get_executor(), ClusterProgress(client), client

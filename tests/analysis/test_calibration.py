@@ -406,3 +406,31 @@ def test_reverberation_room_needs_several_positions_and_valid_times():
     ref = reverberation_room_reference(resp, 16000, volume_m3=200.0, reverberation_s={500: 5.0})
     assert set(ref.bands_db) <= {500.0}
     assert any("1k Hz band left out: no reverberation time" in n for n in ref.notes)
+
+
+@pytest.mark.parametrize("text", ["1e308", "-1e308", "250"])
+def test_levels_that_are_not_levels_are_refused(text):
+    # An outside audit found G = −1e308 dB returned as 'ok' for --calibration 1e308.
+    with pytest.raises(InputError, match="not a finite level between"):
+        parse_strength_reference(text)
+
+
+def test_a_deeply_nested_file_is_refused_not_a_crash(tmp_path):
+    p = tmp_path / "deep.json"
+    p.write_text("[" * 100000 + "]" * 100000)
+    with pytest.raises(InputError, match="nested too deeply"):
+        parse_strength_reference(str(p))
+
+
+def test_a_pipe_is_refused_before_it_is_opened(tmp_path):
+    import os
+    p = tmp_path / "fifo.json"
+    os.mkfifo(p)
+    with pytest.raises(InputError):
+        parse_strength_reference(str(p))
+
+
+def test_distances_beyond_a_free_field_measurement_are_refused():
+    h = band_limited_pulse()
+    with pytest.raises(InputError, match="distance"):
+        reference_from_response(h, 96000, distance_m=1e308)
