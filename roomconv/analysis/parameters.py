@@ -66,6 +66,10 @@ CURVATURE_LIMIT_PCT = 10.0
 JND = {"edt_s": ("relative", 0.05), "t20_s": ("relative", 0.05), "t30_s": ("relative", 0.05),
        "c80_db": ("absolute", 1.0), "c50_db": ("absolute", 1.0), "d50": ("absolute", 0.05),
        "ts_ms": ("absolute", 10.0), "g_db": ("absolute", 1.0)}
+#: A response that ends less than this below its peak, with no noise floor found in it, gives
+#: no energy ratios: its late energy is indistinguishable from noise or a cut (common practice;
+#: the ratios need the decay well below the early energy).
+MIN_END_DROP_DB = 20.0
 #: A noise correction that moves an energy ratio by more than half its JND is flagged.
 NOISE_BIAS_FRACTION_OF_JND = 0.5
 
@@ -600,6 +604,13 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
     start = onset - pre
     stop = onset + tr.index
     e = np.square(xr[start:stop])
+    if not tr.noise_limited and np.isfinite(tr.inr_db) and tr.inr_db < MIN_END_DROP_DB:
+        # No noise floor was found, yet the response ends barely below its peak: its end is
+        # noise or a cut, and the late energy cannot be told from it.
+        res.flag(RATIO_METRICS, NOT_EVALUABLE, "late_energy_unknown",
+                 f"{label}: the response ends only {tr.inr_db:.0f} dB below its peak and no "
+                 "noise floor could be separated: C50, C80, D50 and Ts not evaluated")
+        return
     if tr.index < int(round(0.08 * rate)):
         res.flag(RATIO_METRICS, NOT_EVALUABLE, "short_for_clarity",
                  f"{label}: the decay meets the noise less than 80 ms after the onset: "
