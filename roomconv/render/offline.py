@@ -388,6 +388,14 @@ def render_arrays(
     return out * db_to_gain(s.gain_db)
 
 
+def _audio_rate(rate: int, path) -> None:
+    """Refuse a file whose sample rate no audio interface uses (1 Hz, 7 Hz…): rendering
+    through it would resample by absurd factors or write an unplayable file."""
+    if not validate.RATE_MIN <= rate <= validate.RATE_MAX:
+        raise InputError(describe(path, f"its sample rate {rate} Hz is outside "
+                                        f"{validate.RATE_MIN}–{validate.RATE_MAX} Hz"))
+
+
 def render_file(
     dry_path,
     ir_path,
@@ -459,7 +467,9 @@ def render_file(
     if info.frames == 0:
         raise InputError(describe(dry_path, "the dry file holds no samples"))
     rate, n_in = info.samplerate, info.channels
+    _audio_rate(rate, dry_path)
     ir, ir_rate = read_audio(ir_path, what="impulse response")
+    _audio_rate(ir_rate, ir_path)
     if not np.any(ir):
         raise InputError(describe(ir_path, "the impulse response is silent"))
     ir, resampled = prepare_ir(ir, ir_rate, rate, s.predelay_ms)

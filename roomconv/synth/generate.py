@@ -181,6 +181,11 @@ def mixing_time(room: RoomModel) -> tuple[float, str | None]:
     )
 
 
+#: Longest response made without an explicit length, s: enough for any hall's decay; a
+#: longer one is only made on request (common practice).
+DEFAULT_LENGTH_CAP_S = 30.0
+
+
 def synthesize(
     room: RoomModel,
     source,
@@ -266,12 +271,19 @@ def synthesize(
     fade_s = 0.5 * t_mix
     direct_s = distance / c
     fade_start = max(t_mix - fade_s / 2, direct_s + TAIL_AFTER_DIRECT_S)
+    cut_note = None
     if length_s is None:
-        length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
+        natural = LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S
+        length_s = min(DEFAULT_LENGTH_CAP_S, natural)
+        if natural > DEFAULT_LENGTH_CAP_S:
+            cut_note = (f"the response is cut at {DEFAULT_LENGTH_CAP_S:g} s, before its decay "
+                        f"ends (it would need {natural:.0f} s; give a length to choose)")
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")
     notes = [mix_note] if mix_note else []
+    if cut_note:
+        notes.append(cut_note)
     if fade_start > t_mix - fade_s / 2 + 1e-12:
         notes.append(
             f"the direct sound arrives at {1000 * direct_s:.1f} ms, too late for the usual "

@@ -168,6 +168,10 @@ def _octave_power(rate: int, band: float) -> np.ndarray:
     lo, hi = fm * 10**-0.15, fm * 10**0.15
     if hi >= 0.5 * rate:
         hi = 0.499 * rate
+    if lo >= 0.9 * hi:
+        # A band above what the rate holds (8 kHz at 8 kHz sampling): read the top of the
+        # spectrum instead, so its node is still fitted to something.
+        lo = 0.8 * hi
     order = 3 if hi < 0.15 * rate else 4
     sos = butter(order, [lo, hi], btype="bandpass", fs=rate, output="sos")
     _, h = sosfreqz(sos, worN=_grid(rate), fs=rate)

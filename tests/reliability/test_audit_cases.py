@@ -1,0 +1,35 @@
+"""Cases an outside hostile-input audit found accepted or crashing; each now a clear refusal
+or a stated note."""
+
+import numpy as np
+import soundfile as sf
+
+from roomconv.synth.generate import DEFAULT_LENGTH_CAP_S, synthesize
+from roomconv.synth.room import RoomModel
+
+
+def test_render_refuses_a_response_at_an_absurd_sample_rate(tmp_path, cli):
+    sf.write(tmp_path / "dry.wav", 0.1 * np.random.default_rng(0).standard_normal(4800), 48000)
+    sf.write(tmp_path / "ir7.wav", np.array([1.0, 0.5, 0.25]), 7)
+    code, _, err = cli("render", tmp_path / "dry.wav", "--ir", tmp_path / "ir7.wav", "-o",
+                       tmp_path / "w.wav")
+    assert code == 2 and "ir7.wav" in err and "7 Hz" in err
+    assert len(err.strip().splitlines()) == 1 and not (tmp_path / "w.wav").exists()
+
+
+def test_a_response_cut_before_its_decay_ends_says_so():
+    # A 200 m cube of concrete decays for minutes (Sabine's T = 0.161·V/A, V = 8e6 m³); the
+    # default length stops at the cap, and the result's notes say so.
+    res = synthesize(RoomModel(200, 200, 200, {k: "concrete" for k in
+                                ("left", "right", "front", "back", "floor", "ceiling")}), (50, 50, 1.5),
+                     (60, 55, 1.2), rate=16000, length_s=None)
+    assert res.ir.shape[0] == round(DEFAULT_LENGTH_CAP_S * 16000)
+    assert any("cut at" in n for n in res.notes)
+
+
+def test_synth_at_the_lowest_accepted_rate_works(tmp_path, cli):
+    # 8 kHz is the lowest rate the options accept; the 8 kHz octave lies above its Nyquist
+    # frequency and once crashed the tail fit ("Wn[0] must be less than Wn[1]", exit 1).
+    code, _, err = cli("synth", tmp_path / "s.wav", "--room", "6x5x3", "--rate", 8000)
+    assert code == 0, err
+    assert sf.info(str(tmp_path / "s.wav")).samplerate == 8000
