@@ -33,3 +33,20 @@ def test_synth_at_the_lowest_accepted_rate_works(tmp_path, cli):
     code, _, err = cli("synth", tmp_path / "s.wav", "--room", "6x5x3", "--rate", 8000)
     assert code == 0, err
     assert sf.info(str(tmp_path / "s.wav")).samplerate == 8000
+
+
+def test_an_output_planned_as_file_and_folder_is_refused_before_work(tmp_path):
+    # extract … --harmonics hh --json hh ran the whole extraction, then blamed "another
+    # process"; the one guard now refuses the plan itself.
+    import pytest
+
+    from roomconv.audio import WriteGuard
+    from roomconv.errors import InputError
+    g = WriteGuard()
+    g.folder(tmp_path / "hh")
+    with pytest.raises(InputError, match="as a folder and as a file"):
+        g.file(tmp_path / "hh")
+    g2 = WriteGuard()
+    g2.file(tmp_path / "x")
+    with pytest.raises(InputError, match="as a file and as a folder"):
+        g2.folder(tmp_path / "x")
