@@ -7,6 +7,10 @@ from __future__ import annotations
 
 import numpy as np
 
+# The envelope and INR live in roomconv.signal so that analysis can use them without
+# reaching into measure; they stay importable from here.
+from ..signal import energy_envelope, envelope_inr  # noqa: F401
+
 #: Impulse-to-noise ratios (INR) an evaluation range needs: the range itself plus 10 dB above
 #: the noise (ISO 3382-1:2009, 5.3.3 / ISO 3382-2:2008, 5.3.3 — from memory). EDT 0..-10,
 #: T20 -5..-25, T30 -5..-35 dB.
@@ -45,40 +49,6 @@ def rms_dbfs(x: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore"):
         # Floor at -200 dBFS so digital silence reads as a number, not -inf.
         return 10 * np.log10(np.maximum(np.mean(np.square(x), axis=0), 1e-20))
-
-
-def energy_envelope(h: np.ndarray, rate: int, interval_s: float = 0.01) -> tuple[np.ndarray, int]:
-    """Mean squared amplitude over consecutive intervals (1-D input).
-
-    Returns the envelope and the interval length in samples.
-
-    References
-    ----------
-    Lundeby, A., Vigran, T. E., Bietz, H., Vorländer, M. (1995). Uncertainties of measurements
-    in room acoustics. Acustica 81, 344–355 (step 1: local time averages of 10–50 ms).
-    """
-    n = max(1, int(round(interval_s * rate)))
-    m = h.size // n
-    if m == 0:
-        return np.array([np.mean(np.square(h))]), h.size
-    return np.mean(np.square(h[: m * n]).reshape(m, n), axis=1), n
-
-
-def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
-                 tail_fraction: float = 0.1) -> tuple[float, float]:
-    """Impulse-to-noise ratio (INR, dB) of a 1-D IR from its smoothed energy envelope.
-
-    The noise is the mean energy of the last ``tail_fraction`` of the response, the peak the
-    largest interval mean. Returns ``(inr_db, noise_db_re_peak_sample)``.
-    """
-    env, _ = energy_envelope(h, rate, interval_s)
-    tail = env[-max(1, int(round(tail_fraction * env.size))):]
-    noise = float(np.mean(tail))
-    peak = float(np.max(env))
-    if noise <= 0:
-        return float("inf"), float("-inf")
-    ref = float(np.max(np.square(h)))
-    return 10 * np.log10(peak / noise), 10 * np.log10(noise / ref)
 
 
 def inr_warnings(inr_db: float, label: str) -> list[str]:
