@@ -50,7 +50,6 @@ class SoundCard:
     device: int | str | None = None
     output_channel: int = 1
     input_channels: tuple[int, ...] = (1,)
-    timeout_s: float | None = None
 
     def playrec(self, signal: np.ndarray, rate: int) -> np.ndarray:
         sd = load_sounddevice()

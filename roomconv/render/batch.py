@@ -1,7 +1,7 @@
 """Many dry files × many IRs: a batch written against ``concurrent.futures.Executor``, so a
 local process pool and a Dask cluster run the very same code.
 
-Each job writes ``<dry>__<ir>.wav`` and a provenance sidecar holding the inputs' hashes, the
+Each job writes one output (named by the caller) and a provenance sidecar holding the inputs' hashes, the
 settings and the output's frame count and SHA-256; a later run skips a job only when its
 sidecar matches and the output still has those frames and that hash (resume), and renders
 again a job whose output is damaged or whose sidecar is missing.
@@ -56,8 +56,12 @@ class Outcome:
 
 
 def plan_jobs(drys, irs, out_dir, settings: RenderSettings,
-              guard: WriteGuard | None = None) -> list[Job]:
+              guard: WriteGuard | None = None, *,
+              output_name: Callable[[Path, Path], str]) -> list[Job]:
     """One job per (dry, IR) pair; inputs are checked and hashed once here, not once per job.
+
+    ``output_name(dry, ir)`` names each output (the job layer owns naming:
+    :func:`roomconv.jobs.naming.render_output_name`).
 
     With ``guard`` (which knows every input of the batch), each output and its sidecar are
     planned against all inputs and against each other, so a batch whose outputs would land on
@@ -80,7 +84,7 @@ def plan_jobs(drys, irs, out_dir, settings: RenderSettings,
     for d in drys:
         for i in irs:
             d, i = Path(d), Path(i)
-            out = out_dir / f"{d.stem}__{i.stem}.wav"
+            out = out_dir / output_name(d, i)
             if out in seen:
                 raise InputError(f"two jobs would both write {out.name}: rename one of the "
                                  f"inputs ({d.name}, {i.name})")

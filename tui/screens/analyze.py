@@ -6,13 +6,12 @@ from __future__ import annotations
 import shlex
 from pathlib import Path
 
+from rich.text import Text
 from textual import on, work
-from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
-from textual.widgets import Button, DataTable, Input, Label, Select, Static
-
-from rich.text import Text
+from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, Static
+from textual.worker import get_current_worker
 
 from roomconv.analysis.report import HEADERS, LEGEND, band_label, fmt, value_verdict
 from roomconv.errors import RoomconvError
@@ -36,6 +35,7 @@ class AnalyzePane(VerticalScroll):
         with Horizontal(classes="row"):
             yield Label("Export to")
             yield Input("analysis_out", id="an-export-dir")
+            yield Checkbox("Replace existing files", id="an-replace")
             yield Button("Export JSON/CSV/HTML", id="an-export")
         yield Static("", id="an-status", classes="status")
         yield DataTable(id="an-table")
@@ -61,15 +61,15 @@ class AnalyzePane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="analyze")
     def analyse(self) -> None:
-        from roomconv.analysis.study import analyse_files
+        from roomconv.jobs.analyze import analyze_study
         app = self.app
         try:
             files = shlex.split(self.query_one("#an-files", Input).value)
             if not files:
-                raise RoomconvError("type one or more IR file paths first")
-            bands = self.query_one("#an-bands", Select).value
+                raise RoomconvError("IR files: type one or more IR file paths first")
+            bands = str(self.query_one("#an-bands", Select).value)
             app.call_from_thread(self.query_one("#an-status", Static).update, "analysing…")
-            study = analyse_files([Path(f) for f in files], bands=bands)
+            study = analyze_study([Path(f) for f in files], bands=bands).study
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Analyze")
             app.call_from_thread(self.query_one("#an-status", Static).update, "")
@@ -115,18 +115,15 @@ class AnalyzePane(VerticalScroll):
 
     @on(Button.Pressed, "#an-export")
     def export(self) -> None:
-        from roomconv.analysis.report import csv_text, html_report
-        from roomconv.audio import write_json, write_text
+        from roomconv.jobs.analyze import export_study
         if self.study is None:
             self.app.notify("analyze something first", severity="warning")
             return
         folder = Path(self.query_one("#an-export-dir", Input).value)
         try:
-            folder.mkdir(parents=True, exist_ok=True)
-            write_json(folder / "results.json", self.study.document, force=True)
-            write_text(folder / "results.csv", csv_text(self.study.document), force=True)
-            write_text(folder / "report.html", html_report(self.study), force=True)
-        except (OSError, RoomconvError) as exc:
+            export_study(self.study, folder,
+                         force=self.query_one("#an-replace", Checkbox).value)
+        except RoomconvError as exc:
             self.app.notify(str(exc), severity="error", title="Export")
             return
         self.app.notify(f"exported to {folder}", title="Analyze")
