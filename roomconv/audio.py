@@ -418,7 +418,7 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
     except FileExistsError:
         raise OutputExistsError(describe(_short(final), "appeared while this run was working "
                                          "(another process wrote it)",
-                                         "nothing was replaced; pass --force to replace it"))
+                                         "nothing was replaced"))
     except OSError as exc:
         if exc.errno not in _LINK_UNSUPPORTED:
             raise
@@ -427,7 +427,7 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
         except FileExistsError:
             raise OutputExistsError(describe(_short(final), "appeared while this run was "
                                              "working (another process wrote it)",
-                                             "pass --force to replace it")) from None
+                                             "nothing was replaced")) from None
         # Until the rename, the reserved (empty) name counts as ours to remove on interrupt.
         _LIVE_TEMPS.add(final)
         os.close(fd)
@@ -531,7 +531,7 @@ class WriteGuard:
         self._check_against(p, ident)
         if st is not None and not (self.force or exists_ok):
             raise OutputExistsError(describe(_short(p), "exists already",
-                                             "pass --force to replace it"))
+                                             "nothing was replaced"))
         self._outputs.append((p, ident))
         if str(folder) not in _SWEPT and folder.is_dir():
             _SWEPT.add(str(folder))

@@ -8,7 +8,7 @@ import sys
 import traceback
 
 from .. import __version__
-from ..errors import RoomconvError
+from ..errors import OutputExistsError, RoomconvError
 from . import analysis, calibrate, demo, measure, render, synth, workbench
 from .common import Parser, common_options
 
@@ -121,7 +121,9 @@ def _run(args) -> int:
         if args.debug:
             traceback.print_exc()
         _roll_back()
-        print(f"roomconv: error: {exc}", file=sys.stderr)
+        # The library says what exists; replacing it is this front end's option.
+        hint = "; pass --force to replace it" if isinstance(exc, OutputExistsError) else ""
+        print(f"roomconv: error: {exc}{hint}", file=sys.stderr)
         return exc.exit_code
     except KeyboardInterrupt as exc:
         signum = getattr(exc, "signum", signal.SIGINT)

@@ -56,11 +56,23 @@ def _sweep_budget(a, channels: int = 1) -> None:
                          f"do not fit in a {a.duration:g} s sweep (shorten them)")
 
 
+#: Which options set the value a sweep refusal is about (the library names values only).
+_SWEEP_OPTIONS = (("sweep band", "--low/--high"), ("sweep end", "--high/--rate"),
+                  ("sweep duration", "--duration"), ("fades", "--fade-in/--fade-out"),
+                  ("silence", "--pre/--silence"), ("number of sweeps", "--repeat"),
+                  ("sample rate", "--rate"), ("level", "--level"))
+
+
 def _sweep_from_args(a):
     from ..measure.sweep import Sweep
-    return Sweep(rate=a.rate, f_low=a.low, f_high=a.high, duration=a.duration,
-                 level_dbfs=a.level, fade_in=a.fade_in, fade_out=a.fade_out,
-                 silence_pre=a.pre, silence_post=a.silence, repeats=a.repeat)
+    try:
+        return Sweep(rate=a.rate, f_low=a.low, f_high=a.high, duration=a.duration,
+                     level_dbfs=a.level, fade_in=a.fade_in, fade_out=a.fade_out,
+                     silence_pre=a.pre, silence_post=a.silence, repeats=a.repeat)
+    except InputError as exc:
+        text = str(exc)
+        option = next((o for key, o in _SWEEP_OPTIONS if text.startswith(key)), None)
+        raise (InputError(f"{option}: {text}") if option else exc) from None
 
 
 def format_quality(quality: dict) -> str:
@@ -145,6 +157,8 @@ def _named(exc: InputError) -> InputError:
         return InputError(f"--reference-channel: {text}")
     if "the simulated room is at" in text:
         return InputError(f"{text} (pass --rate with the room's rate)")
+    if "is clipped on channel" in text:
+        return InputError(f"{text}: --allow-clipped accepts it")
     return exc
 
 

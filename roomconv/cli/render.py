@@ -98,11 +98,24 @@ def describe_report(r) -> str:
     return ", ".join(parts)
 
 
+def _named(exc: InputError) -> InputError:
+    """The job's refusal with the options that change what it is about."""
+    text = str(exc)
+    if "cannot route" in text:
+        return InputError(f"{text} (see --shared and --outputs)")
+    if "Dask cluster" in text:
+        return InputError(f"--scheduler: {text}")
+    return exc
+
+
 def run_render(a):
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, [a.dry])
     with progress_bar("rendering", quiet=a.quiet) as progress:
-        rep = jobs.render_one(a.dry, a.ir, a.output, s, force=a.force, progress=progress)
+        try:
+            rep = jobs.render_one(a.dry, a.ir, a.output, s, force=a.force, progress=progress)
+        except InputError as exc:
+            raise _named(exc) from None
     for w in rep.warnings:
         note(f"warning: {w}")
     out(describe_report(rep), a)
@@ -120,14 +133,18 @@ def run_batch(a):
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, a.dry)
     view = BatchView(len(a.dry) * len(a.ir), quiet=a.quiet)
-    with view:
-        res = jobs.run_batch(a.dry, a.ir, a.out_dir, s, workers=a.workers,
-                             scheduler=a.scheduler, force=a.force, on_event=view)
+    try:
+        with view:
+            res = jobs.run_batch(a.dry, a.ir, a.out_dir, s, workers=a.workers,
+                                 scheduler=a.scheduler, force=a.force, on_event=view)
+    except InputError as exc:
+        raise _named(exc) from None
     failed = res.failed
     out(f"batch: {res.count('done')} rendered, {res.count('skipped')} already finished, "
         f"{len(failed)} failed, {len(res.outcomes)} in all → {res.out_dir}", a)
     for o in failed:
-        note(f"failed: {o.job.name}: {o.message}")
+        hint = " (pass --force to replace it)" if "other inputs or settings" in o.message else ""
+        note(f"failed: {o.job.name}: {o.message}{hint}")
     return res.exit_code
 
 

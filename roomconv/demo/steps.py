@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from ..errors import InputError
+from ..errors import OutputExistsError
 from ..jobs.progress import ProgressCallback, silent
 from .scenario import (
     CHAIN,
@@ -62,8 +62,7 @@ def run_demo(out, *, quick: bool = False, force: bool = False,
     t_start = time.monotonic()
     out = Path(out)
     if out.exists() and any(out.iterdir()) and not force:
-        raise InputError(f"{out}: folder is not empty (pass --force to overwrite the demo's "
-                         "files in it)")
+        raise OutputExistsError(f"{out}: folder is not empty (nothing was replaced)")
     make_folders(out, *(out / sub for sub in ("irs", "harmonics", "renders", "recordings")))
     sweep = Sweep(rate=RATE_HZ, f_low=20, f_high=20000, duration=sc.sweep_s,
                   level_dbfs=CHAIN.sweep_level_dbfs, silence_pre=CHAIN.silence_pre_s,

@@ -59,7 +59,7 @@ class SoundCard:
             raise DeviceError(f"cannot query sound devices: {exc}") from None
         if len(devs) == 0:
             raise DeviceError("PortAudio found no sound device; connect an interface, or "
-                              "use --simulate IR.wav to rehearse the measurement")
+                              "rehearse the measurement on a simulated room")
         out = safety.hard_cap(np.asarray(signal, dtype=np.float64))
         try:
             rec = sd.playrec(out.astype(np.float32)[:, None], samplerate=rate,
@@ -67,7 +67,7 @@ class SoundCard:
                              output_mapping=[self.output_channel], device=self.device,
                              dtype="float32", blocking=True)
         except Exception as exc:
-            raise DeviceError(f"the sound card refused the stream: {exc} (check --device, the "
+            raise DeviceError(f"the sound card refused the stream: {exc} (check the device, the "
                               "channel numbers and the sample rate)") from None
         return np.asarray(rec, dtype=np.float64)
 

@@ -168,10 +168,12 @@ def _check_recording(y, rate, sweep, excitation, allow_clipped):
                          f"it should contain ({need / rate:.2f} s); record for longer")
     clipped = q.clipped_samples(y)
     if clipped.sum() and not allow_clipped:
-        chans = [int(c) for c in np.flatnonzero(clipped)]
+        # Channels as a person counts them, from 1.
+        chans = ", ".join(str(int(c) + 1) for c in np.flatnonzero(clipped))
         raise InputError(f"the recording is clipped on channel(s) {chans} "
                          f"({int(clipped.sum())} samples at full scale); lower the input gain "
-                         "or the sweep level and measure again (or pass --allow-clipped)")
+                         "or the sweep level and measure again (or accept a clipped "
+                         "recording explicitly)")
 
 
 def _recording_quality(y, sweep, mics, ref) -> dict:
@@ -285,7 +287,7 @@ def _limit_length(n_out, n_raw, zeros, sweep, rate):
         avail = min(avail, clean)
     if n_out > avail:
         warn = (f"IR length cut to {avail / rate:.2f} s: the recording or the gap between "
-                "repeated sweeps holds no more (use a longer --silence)")
+                "repeated sweeps holds no more (use a longer silence after the sweep)")
         n_out = avail
     return n_out, warn
 

@@ -239,7 +239,7 @@ def run_batch(jobs: list[Job], executor: Executor, *, force: bool = False, progr
                 continue
             if state == "foreign" and not force:
                 outcomes.append(Outcome(job, "failed", f"{job.output} exists with other "
-                                        "inputs or settings (pass --force to replace it)", 2))
+                                        "inputs or settings (replace it only on purpose)", 2))
                 emit("done", outcomes[-1])
                 continue
             if job.problem:
@@ -387,7 +387,7 @@ def dask_executor(address: str):
     try:
         from distributed import Client  # noqa: PLC0415 - optional extra
     except ImportError:
-        raise InputError("--scheduler needs the optional Dask extra: pip install "
+        raise InputError("a Dask cluster needs the optional Dask extra: pip install "
                          "'roomconv[cluster]'") from None
     try:
         client = Client(address, timeout="10s")

@@ -56,9 +56,11 @@ class RenderSettings:
             lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
             self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
-            raise InputError(f"--normalize must be one of {', '.join(NORMALIZE)}")
+            raise InputError(f"normalization '{self.normalize}' must be one of "
+                             f"{', '.join(NORMALIZE)}")
         if self.precision not in ("auto", "float64", "float32"):
-            raise InputError("--precision must be auto, float64 or float32")
+            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or "
+                             "float32")
         return self
 
     def engine_precision(self) -> str:
@@ -119,7 +121,7 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
     raise InputError("the dry signal cannot be mixed in: inputs and outputs differ in count "
-                     "(use --mix 1)")
+                     "(use a fully wet mix, 1)")
 
 
 def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
@@ -241,7 +243,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 if peak.peak > stage_max:
                     raise InputError(describe(out_path.name, f"the rendered signal reaches "
                                               f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
-                                              f"what a {stage_sub} file holds (lower --gain); "
+                                              f"what a {stage_sub} file holds (lower the gain); "
                                               "nothing written"))
                 if tpk is not None:
                     tpk.feed(y)
@@ -266,8 +268,8 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
                      "loudness": report.loudness_lufs}[s.normalize]
             if not np.isfinite(level):
-                why = ("stays below the −70 LUFS gate of the loudness measurement (use "
-                       "--normalize peak)" if s.normalize == "loudness" else "is silent")
+                why = ("stays below the −70 LUFS gate of the loudness measurement (normalize "
+                       "the peak instead)" if s.normalize == "loudness" else "is silent")
                 raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to "
                                  "normalize")
             extra_db = target - level
@@ -293,7 +295,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             report.loudness_lufs += extra_db
         if report.peak_dbfs > 0:
             msg = (f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale")
-            msg += (": it will clip in this integer format; lower --gain or use --normalize peak"
+            msg += (": it will clip in this integer format; lower the gain or normalize the peak"
                     if integer else "; a later conversion to integer would clip")
             report.warnings.append(msg)
         if extra_db == 0.0 and not integer:

@@ -189,7 +189,7 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
     if proc.n_out != n_out:
         from ..errors import InputError
         raise InputError(f"the routing gives {proc.n_out} output channel(s) but "
-                         f"{n_out} were asked for (--output-channels)")
+                         f"{n_out} were asked for")
     done = threading.Event()
 
     def callback(indata, outdata, frames, _time, status):
@@ -214,7 +214,7 @@ def run_live(proc: LiveProcessor, rate: int, *, device=None, input_channels=(1,)
                                                              output_channels),
                            latency=4 * proc.block / rate, finished_callback=done.set)
     except Exception as exc:  # PortAudio errors are not one stable type
-        raise DeviceError(f"cannot open the sound card for live use: {exc} (check --device, "
+        raise DeviceError(f"cannot open the sound card for live use: {exc} (check the device, "
                           "the channels and the sample rate)") from None
     try:
         with stream:
