@@ -6,18 +6,59 @@ from pathlib import Path
 
 from ..jobs.analyze import analyze_study
 from .common import Command, note, out
-from .display import progress_bar
+from .display import print_table, progress_bar
 
-__all__ = ["COMMANDS"]
+__all__ = ["COMMANDS", "show_study"]
+
+
+def show_study(doc: dict) -> None:
+    """Per-position tables, the average with its uncertainty, the single numbers, notes."""
+    from ..analysis.report import (
+        HEADERS,
+        LEGEND,
+        band_label,
+        mean_with_spread,
+        metrics_of,
+        single_number_lines,
+        table_rows,
+    )
+    metrics = metrics_of(doc)
+    header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
+    right = range(1, len(metrics) + 1)
+    for p in doc["positions"]:
+        print_table(header, table_rows(p, metrics), right=right,
+                    title=f"{p['file']}  channel {p['channel']}")
+        for w in (w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]):
+            print(f"  ! {w}")
+    if len(doc["positions"]) > 1:
+        rows = []
+        for r in doc["average"]["bands"]:
+            u = r["t30_s"].get("uncertainty")
+            rows.append([band_label(r["band_hz"]), *(mean_with_spread(m, r) for m in
+                                                     ("edt_s", "t20_s", "t30_s")),
+                         "—" if u is None else f"{u:.3f}",
+                         *(mean_with_spread(m, r) for m in ("c80_db", "d50", "ts_ms"))])
+        print_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"],
+                    rows, right=range(1, 8),
+                    title=f"Average over {len(doc['positions'])} positions (mean ± std; "
+                          "T uncertainty per ISO 3382-2)")
+    print("Mid-frequency values:")
+    for line in single_number_lines(doc):
+        print(f"  {line}")
+    print(LEGEND)
+    for n in doc.get("notes", []):
+        print(f"note: {n}")
+    for e in doc.get("errors", []):
+        print(f"error: {e}")
 
 
 def run_analyze(a):
-    from ..analysis.report import terminal_report
     with progress_bar("analysing", quiet=a.quiet) as progress:
         res = analyze_study(a.irs, bands=a.bands, filtering=a.filtering,
                             calibration=a.calibration, json_path=a.json, csv_path=a.csv,
                             report_dir=a.report, force=a.force, progress=progress)
-    out(terminal_report(res.study.document), a)
+    if not a.quiet:
+        show_study(res.study.document)
     for p in res.written:
         out(f"wrote {p}", a)
     for e in res.errors:  # the outputs above hold the readable files; say which were not
