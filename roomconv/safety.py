@@ -11,6 +11,9 @@ import numpy as np
 
 from .errors import InputError
 
+# db_to_gain stays importable from here for callers of safety.db_to_gain.
+from .signal import cosine_step, db_to_gain  # noqa: F401
+
 HEARING_CAUTION = """\
 CAUTION - HEARING AND EQUIPMENT
   * Sweeps and test signals are loud and rich in high frequencies. Set the amplifier and
@@ -36,10 +39,6 @@ def caution_text(cap_dbfs: float = OUTPUT_CAP_DBFS) -> str:
     return HEARING_CAUTION.format(cap=cap_dbfs)
 
 
-def db_to_gain(db: float) -> float:
-    return float(10.0 ** (db / 20.0))
-
-
 def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
     """Validate a playback level against the hard cap."""
     if not np.isfinite(level_dbfs):
@@ -55,7 +54,7 @@ def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.nda
     out = np.array(signal, dtype=np.float64, copy=True)
     n = min(int(round(ramp_s * rate)), out.shape[0] // 2)
     if n > 0:
-        w = 0.5 - 0.5 * np.cos(np.pi * np.arange(n) / n)
+        w = cosine_step(np.arange(n) / n)
         shape = (n,) + (1,) * (out.ndim - 1)
         out[:n] *= w.reshape(shape)
         out[-n:] *= w[::-1].reshape(shape)
@@ -65,7 +64,7 @@ def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.nda
 def hard_cap(signal: np.ndarray, cap_dbfs: float = OUTPUT_CAP_DBFS) -> np.ndarray:
     """Clip anything above the cap (a last line of defence after the limiter); NaN becomes
     silence and ±inf the cap (``np.clip`` alone would let NaN through)."""
-    g = db_to_gain(min(cap_dbfs, OUTPUT_CAP_DBFS))
+    g = float(db_to_gain(min(cap_dbfs, OUTPUT_CAP_DBFS)))
     return np.clip(np.nan_to_num(signal, nan=0.0, posinf=g, neginf=-g), -g, g)
 
 
@@ -79,7 +78,7 @@ class OutputLimiter:
     CHUNK = 8192
 
     def __init__(self, rate: int, ceiling_dbfs: float = OUTPUT_CAP_DBFS, release_s: float = 0.2):
-        self.ceiling = db_to_gain(ceiling_dbfs)
+        self.ceiling = float(db_to_gain(ceiling_dbfs))
         self._release = float(np.exp(-1.0 / max(release_s * rate, 1.0)))
         self._gain = 1.0
         self.max_reduction_db = 0.0

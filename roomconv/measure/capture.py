@@ -13,6 +13,7 @@ from scipy.signal import fftconvolve
 
 from ..errors import DeviceError, InputError
 from .. import safety
+from ..signal import db_to_gain
 
 
 def load_sounddevice():
@@ -117,7 +118,7 @@ class SimulatedDevice:
             reps = int(np.ceil(n / self.noise.size))
             mics = mics + np.tile(self.noise, reps)[:n, None]
         elif np.isfinite(self.noise_dbfs):
-            mics = mics + 10 ** (self.noise_dbfs / 20) * rng.standard_normal(mics.shape)
+            mics = mics + db_to_gain(self.noise_dbfs) * rng.standard_normal(mics.shape)
         chans = [mics]
         if self.loopback:
             chans.append(x[:, None])

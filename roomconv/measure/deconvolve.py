@@ -13,6 +13,7 @@ from scipy import fft as sfft
 from scipy.signal import fftconvolve
 
 from ..errors import InputError
+from ..signal import cosine_step
 from . import quality as q
 from .sweep import Sweep, harmonic_delay, inverse_filter
 
@@ -225,12 +226,12 @@ def _band_weights(f: np.ndarray, band: tuple[float, float], rate: int,
     w = np.ones_like(f)
     # Below f1: rises from 0 at f1/2^t to 1 at f1.
     x_lo = np.clip((lf - (np.log2(lo) - transition_oct)) / transition_oct, 0.0, 1.0)
-    w *= 0.5 - 0.5 * np.cos(np.pi * x_lo)
+    w *= cosine_step(x_lo)
     top = min(hi * 2.0 ** transition_oct, nyq)
     if top > hi * (1 + 1e-9):
         # Above f2: falls from 1 at f2 to 0 at ``top`` (Nyquist at the latest).
         x_hi = np.clip((np.log2(top) - lf) / (np.log2(top) - np.log2(hi)), 0.0, 1.0)
-        w *= 0.5 - 0.5 * np.cos(np.pi * x_hi)
+        w *= cosine_step(x_hi)
     return w
 
 
@@ -355,7 +356,7 @@ def _harmonic_irs(raw, zeros, sweep, rate, mics, latency, ref, n_out):
             g = np.max(np.abs(np.mean([raw[z:z + n_out, ref] for z in zeros], axis=0)))
             h = h / g
         fade = max(1, n_k // 10)
-        h[-fade:] *= (0.5 + 0.5 * np.cos(np.pi * (np.arange(fade) + 1) / fade))[:, None]
+        h[-fade:] *= cosine_step(1.0 - (np.arange(fade) + 1) / fade)[:, None]
         out[k] = h
     d2 = delays[2] / rate
     warnings.append(f"harmonic 2 arrives {d2:.2f} s before the linear response; reverberation "

@@ -11,6 +11,7 @@ from dataclasses import asdict, dataclass, fields
 import numpy as np
 
 from ..errors import InputError
+from ..signal import cosine_step
 
 
 @dataclass(frozen=True)
@@ -160,9 +161,9 @@ def sweep_only(sweep: Sweep) -> np.ndarray:
 def _fade_window(n: int, n_in: int, n_out: int) -> np.ndarray:
     w = np.ones(n)
     if n_in > 0:
-        w[:n_in] = 0.5 - 0.5 * np.cos(np.pi * np.arange(n_in) / n_in)
+        w[:n_in] = cosine_step(np.arange(n_in) / n_in)
     if n_out > 0:
-        w[n - n_out:] = 0.5 + 0.5 * np.cos(np.pi * (np.arange(n_out) + 1) / n_out)
+        w[n - n_out:] = cosine_step(1.0 - (np.arange(n_out) + 1) / n_out)
     return w
 
 

@@ -15,6 +15,7 @@ from .. import validate
 from ..audio import (WriteGuard, audio_format_for, audio_info, drop_temp, new_temp, read_audio,
                      write_error)
 from ..errors import InputError, describe
+from ..signal import db_to_gain
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
 from .partitioned import offline_convolver, routing_for
@@ -156,7 +157,7 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
             out[start:start + n] = y[:n]
     finally:
         conv.close()
-    return out * 10 ** (s.gain_db / 20)
+    return out * db_to_gain(s.gain_db)
 
 
 def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
@@ -237,7 +238,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 n = min(B, n_out - written)
                 y = y[:n]
                 if s.gain_db:
-                    y = y * 10 ** (s.gain_db / 20)
+                    y = y * db_to_gain(s.gain_db)
                 _check_finite(y, out_path)
                 peak.feed(y)
                 if peak.peak > stage_max:
@@ -283,7 +284,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                         f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
                         "the measurement's −70 LUFS gate)")
             with np.errstate(over="ignore"):
-                scaled_peak = peak.peak * 10 ** (extra_db / 20)
+                scaled_peak = peak.peak * db_to_gain(extra_db)
             if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
                 raise InputError(f"{out_path.name}: normalization would need a gain of "
                                  f"{extra_db:g} dB, which overflows; nothing written")
@@ -301,7 +302,7 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         if extra_db == 0.0 and not integer:
             stage1.replace(final_tmp)
         else:
-            _second_pass(stage1, final_tmp, fmt, s, 10 ** (extra_db / 20), B, progress)
+            _second_pass(stage1, final_tmp, fmt, s, float(db_to_gain(extra_db)), B, progress)
         guard.commit(final_tmp, out_path)
         if progress:
             progress(1.0)
@@ -359,7 +360,7 @@ def _check_finite(y: np.ndarray, out_path) -> None:
 def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
     """Integrated loudness of the staged file scaled by ``gain_db``, block by block."""
     meter = LoudnessMeter(rate, channels)
-    g = 10 ** (gain_db / 20)
+    g = db_to_gain(gain_db)
     with sf.SoundFile(str(path)) as src:
         while True:
             y = src.read(1 << 16, dtype="float64", always_2d=True)

@@ -15,6 +15,7 @@ import numpy as np
 
 from .. import safety, validate
 from ..errors import InputError
+from ..signal import cosine_step, db_to_gain
 from .mix import ir_gain, wet_dry_db
 from .partitioned import NonUniformConvolver, live_block_size, routing_for
 
@@ -115,7 +116,7 @@ class LiveProcessor:
         self.engine = NonUniformConvolver(ir, self.routing, self.block, precision=self.precision,
                                           ratio=ratio, max_block=ratio * self.block)
         self.mix = float(mix)
-        self.gain = 10 ** (gain_db / 20)
+        self.gain = float(db_to_gain(gain_db))
         self.limiter_ceiling_dbfs = min(ceiling_dbfs, safety.OUTPUT_CAP_DBFS)
         self.limiter = safety.OutputLimiter(rate, self.limiter_ceiling_dbfs)
         self.fade_len = max(1, int(fade_in_s * rate))
@@ -141,7 +142,7 @@ class LiveProcessor:
             g = np.full(x.shape[0], self.gain)
             if self.fade_pos < self.fade_len:
                 ramp = np.minimum(1.0, (self.fade_pos + np.arange(x.shape[0])) / self.fade_len)
-                g *= 0.5 - 0.5 * np.cos(np.pi * ramp)
+                g *= cosine_step(ramp)
                 self.fade_pos += x.shape[0]
             if self._stopping:
                 k = self._stopping
