@@ -1,6 +1,6 @@
-"""The architecture as the import graph shows it: no circles, the terminal workbench never
-imports the command line, the numerics never import a front end or the job layer, and
-``synth`` does not reach into ``analysis``.
+"""The architecture as the source shows it: no import circles, the terminal workbench never
+imports the command line, the numerics never import a front end or the job layer,
+``synth`` does not reach into ``analysis``, and no front end writes a file itself.
 
 Each module's imports are read with Python's own parser (``ast``), so nothing is imported
 to check them. The graph is checked with Tarjan's strongly-connected-components algorithm
@@ -145,3 +145,39 @@ def test_synth_does_not_import_analysis_and_measure_and_analysis_stay_apart():
         bad = {m: sorted(t for t in deps if _within(t, (dst,)))
                for m, deps in g.items() if _within(m, (src,))}
         assert {m: d for m, d in bad.items() if d} == {}, (src, dst)
+
+
+#: Calls that write files; front ends leave them to the job layer.
+WRITERS = {"write_audio", "write_json", "write_text", "write_provenance", "WriteGuard",
+           "mkdir", "make_folder", "write_bytes", "write", "atomic_path", "check_output"}
+
+
+def _writes(path: Path) -> list[str]:
+    found = []
+    label = path.relative_to(ROOT) if path.is_relative_to(ROOT) else path.name
+    for node in ast.walk(ast.parse(path.read_text(), str(path))):
+        if isinstance(node, ast.Call):
+            f = node.func
+            name = f.attr if isinstance(f, ast.Attribute) else getattr(f, "id", "")
+            # sys.stderr.write / print-like stream writes are not files.
+            stream = (isinstance(f, ast.Attribute) and isinstance(f.value, ast.Attribute)
+                      and f.value.attr in ("stderr", "stdout"))
+            if name in WRITERS and not stream:
+                found.append(f"{label}:{node.lineno} {name}")
+            if name == "open" and any(isinstance(a, ast.Constant) and isinstance(a.value, str)
+                                      and set(a.value) & set("wax+") for a in node.args[1:]):
+                found.append(f"{label}:{node.lineno} open for writing")
+    return found
+
+
+def test_front_ends_write_no_file_themselves():
+    files = [*(ROOT / "tui").rglob("*.py"), *(ROOT / "roomconv" / "cli").rglob("*.py"),
+             *(ROOT / "roomconv" / "demo").rglob("*.py")]
+    assert [w for p in files for w in _writes(p)] == []
+
+
+def test_the_writer_scan_finds_a_write(tmp_path):
+    probe = tmp_path / "probe.py"
+    probe.write_text("import soundfile as sf\nsf.write('x.wav', [0.0], 8000)\n"
+                     "open('y.txt', 'w')\nimport sys\nsys.stderr.write('note')\n")
+    assert len(_writes(probe)) == 2
