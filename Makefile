@@ -4,7 +4,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint bench clean venv
+.PHONY: demo test lint bench accuracy clean venv
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -28,6 +28,10 @@ lint: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) -m benchmarks.run
+
+# Accuracy of the analysis on synthetic responses of known truth (a report: exits 0).
+accuracy: $(STAMP)
+	$(PY) -m benchmarks.accuracy
 
 clean:
 	rm -rf $(VENV) demo_out .pytest_cache

@@ -79,7 +79,7 @@ def speech():
         return None
     with tempfile.TemporaryDirectory() as tmp:
         wav = Path(tmp) / "s.wav"
-        text = "Welcome to Linden Hall. Listen to how the room answers every word."
+        text = "Welcome to Quillmere Hall. Listen to how the room answers every word."
         subprocess.run([exe, "-v", "en-gb", "-s", "150", "-w", str(wav), text], check=True)
         x, rate = sf.read(wav)
     g = np.gcd(rate, RATE)

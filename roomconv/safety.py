@@ -10,9 +10,20 @@ import math
 import numpy as np
 
 from .errors import InputError
+from .signal import db_to_gain, raised_cosine
 
-# db_to_gain stays importable from here for callers of safety.db_to_gain.
-from .signal import cosine_step, db_to_gain  # noqa: F401
+__all__ = [
+    "HEARING_CAUTION",
+    "OUTPUT_CAP_DBFS",
+    "START_LEVEL_DBFS",
+    "RAMP_S",
+    "caution_text",
+    "db_to_gain",
+    "check_level",
+    "apply_ramps",
+    "hard_cap",
+    "OutputLimiter",
+]
 
 HEARING_CAUTION = """\
 CAUTION - HEARING AND EQUIPMENT
@@ -36,25 +47,85 @@ RAMP_S = 0.05
 
 
 def caution_text(cap_dbfs: float = OUTPUT_CAP_DBFS) -> str:
+    """The hearing and equipment caution shown (and confirmed) before any sound is played.
+
+    Parameters
+    ----------
+    cap_dbfs : float
+        The output cap quoted in the text, dBFS.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> print(caution_text().splitlines()[0])
+    CAUTION - HEARING AND EQUIPMENT
+    """
     return HEARING_CAUTION.format(cap=cap_dbfs)
 
 
 def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
-    """Validate a playback level against the hard cap."""
+    """Validate a playback level against the hard cap.
+
+    Parameters
+    ----------
+    level_dbfs : float
+        Peak playback level, dBFS.
+    cap_dbfs : float
+        Highest level accepted, dBFS.
+
+    Returns
+    -------
+    float
+        ``level_dbfs``.
+
+    Raises
+    ------
+    InputError
+        When the level is not finite or above the cap.
+
+    Examples
+    --------
+    >>> check_level(-20.0)
+    -20.0
+    """
     if not np.isfinite(level_dbfs):
         raise InputError(f"level {level_dbfs} dBFS is not a finite number")
     if level_dbfs > cap_dbfs:
-        raise InputError(f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
-                         "(lower the level)")
+        raise InputError(
+            f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
+            "(lower the level)"
+        )
     return level_dbfs
 
 
 def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.ndarray:
-    """Raised-cosine fade-in and fade-out over ``ramp_s`` at both ends (copy)."""
+    """Raised-cosine fade-in and fade-out over ``ramp_s`` at both ends (a copy).
+
+    Parameters
+    ----------
+    signal : ndarray, shape (samples,) or (samples, channels)
+    rate : int
+        Sample rate, Hz.
+    ramp_s : float
+        Length of each ramp, s (at most half the signal).
+
+    Returns
+    -------
+    ndarray
+        float64, shaped like ``signal``.
+
+    Examples
+    --------
+    >>> apply_ramps(np.ones(8), 1000, ramp_s=0.002).tolist()
+    [0.0, 0.5, 1.0, 1.0, 1.0, 1.0, 0.5, 0.0]
+    """
     out = np.array(signal, dtype=np.float64, copy=True)
     n = min(int(round(ramp_s * rate)), out.shape[0] // 2)
     if n > 0:
-        w = cosine_step(np.arange(n) / n)
+        w = raised_cosine(n)
         shape = (n,) + (1,) * (out.ndim - 1)
         out[:n] *= w.reshape(shape)
         out[-n:] *= w[::-1].reshape(shape)
@@ -62,8 +133,25 @@ def apply_ramps(signal: np.ndarray, rate: int, ramp_s: float = RAMP_S) -> np.nda
 
 
 def hard_cap(signal: np.ndarray, cap_dbfs: float = OUTPUT_CAP_DBFS) -> np.ndarray:
-    """Clip anything above the cap (a last line of defence after the limiter); NaN becomes
-    silence and ±inf the cap (``np.clip`` alone would let NaN through)."""
+    """Clip anything above the cap: a last line of defence after the limiter.
+
+    NaN becomes silence and ±inf the cap (``np.clip`` alone would let NaN through).
+
+    Parameters
+    ----------
+    signal : ndarray
+    cap_dbfs : float
+        Cap, dBFS; never above :data:`OUTPUT_CAP_DBFS`.
+
+    Returns
+    -------
+    ndarray
+
+    Examples
+    --------
+    >>> hard_cap(np.array([0.5, 2.0, np.nan]), cap_dbfs=-6.0206).round(3).tolist()
+    [0.5, 0.5, 0.0]
+    """
     g = float(db_to_gain(min(cap_dbfs, OUTPUT_CAP_DBFS)))
     return np.clip(np.nan_to_num(signal, nan=0.0, posinf=g, neginf=-g), -g, g)
 
@@ -72,6 +160,22 @@ class OutputLimiter:
     """A look-ahead-free peak limiter for live output: instant attack, smooth release.
 
     Gain never lets a sample exceed the ceiling; the release is exponential.
+
+    Parameters
+    ----------
+    rate : int
+        Sample rate, Hz.
+    ceiling_dbfs : float
+        Ceiling, dBFS.
+    release_s : float
+        Release time constant, s (the gain recovers by a factor e per ``release_s``).
+
+    Examples
+    --------
+    >>> lim = OutputLimiter(48000, ceiling_dbfs=-6.0206)
+    >>> y = lim.process(np.array([0.25, 1.0, 0.25]))
+    >>> round(float(np.max(np.abs(y))), 3), round(lim.max_reduction_db, 1)
+    (0.5, 6.0)
     """
 
     #: Longest stretch handled in one vectorized pass (r^-n must stay finite).
@@ -84,22 +188,36 @@ class OutputLimiter:
         self.max_reduction_db = 0.0
         self._powers: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self.last_peak = 0.0  #: peak of the last block returned, linear
-        self.nonfinite = 0    #: blocks in which NaN/inf samples were replaced by silence
+        self.nonfinite = 0  #: blocks in which NaN/inf samples were replaced by silence
 
     def process(self, block: np.ndarray, *, in_place: bool = False) -> np.ndarray:
-        """Limit one block (samples × channels, or samples).
-
-        Returns a new array, or ``block`` itself, changed, with ``in_place``. The output's
-        peak is left in :attr:`last_peak` (linear), for meters.
+        """Limit one block.
 
         The gain reduction u = 1 − g follows u[n] = max(1 − need[n], r·u[n−1]) (instant
         attack, exponential release r); unrolled, u[n] = r^(n+1)·max(u_prev, max_k v[k]·r^−(k+1)),
         a cumulative maximum, so the block needs no per-sample Python loop.
+
+        Parameters
+        ----------
+        block : ndarray, shape (samples,) or (samples, channels)
+        in_place : bool
+            Change ``block`` itself instead of returning a new array.
+
+        Returns
+        -------
+        ndarray
+            The limited block; its peak is left in :attr:`last_peak` (linear), for meters.
+
+        Examples
+        --------
+        >>> lim = OutputLimiter(48000, ceiling_dbfs=0.0)
+        >>> lim.process(np.array([[0.5, -2.0]])).tolist()
+        [[0.25, -1.0]]
         """
         if block.shape[0] > self.CHUNK:
             parts, top = [], 0.0
             for i in range(0, block.shape[0], self.CHUNK):
-                parts.append(self.process(block[i:i + self.CHUNK], in_place=in_place))
+                parts.append(self.process(block[i : i + self.CHUNK], in_place=in_place))
                 top = max(top, self.last_peak)
             self.last_peak = top
             return block if in_place else np.concatenate(parts)
@@ -130,7 +248,7 @@ class OutputLimiter:
         n = peaks.size
         if n not in self._powers:
             k = np.arange(1, n + 1)
-            self._powers[n] = (self._release ** k, self._release ** -k)
+            self._powers[n] = (self._release**k, self._release**-k)
         up, down = self._powers[n]
         # 1 − need, where need = min(1, c / peak) is the gain each sample needs on its own.
         v = np.maximum(peaks, c)

@@ -24,8 +24,8 @@ def test_vectorized_limiter_equals_its_recursion(block):
     rng = np.random.default_rng(0)
     x = rng.standard_normal(6000) * np.linspace(0.05, 4, 6000)
     lim = OutputLimiter(48000, -3.0)
-    y = np.concatenate([lim.process(x[i:i + block, None]) for i in range(0, x.size, block)])
-    want = np.clip(x * reference_gain(x, 48000, -3.0), -10 ** (-3 / 20), 10 ** (-3 / 20))
+    y = np.concatenate([lim.process(x[i : i + block, None]) for i in range(0, x.size, block)])
+    want = np.clip(x * reference_gain(x, 48000, -3.0), -(10 ** (-3 / 20)), 10 ** (-3 / 20))
     assert np.max(np.abs(y[:, 0] - want)) < 1e-12
     assert np.max(np.abs(y)) <= 10 ** (-3 / 20)
 
@@ -52,7 +52,13 @@ def test_limiter_on_long_stereo_blocks_equals_its_recursion():
 def test_ramps_caps_and_level_check():
     x = np.ones((1000, 2))
     r = apply_ramps(x, 1000, 0.1)
-    assert r[0, 0] == 0 and r[-1, 1] < 0.01 and r[500, 0] == 1
+    # Half of a Hann window (Harris 1978, Proc. IEEE 66(1), eq. for the cos² window):
+    # w[k] = 0.5 − 0.5·cos(πk/n) for the n = 100 samples of the fade-in, mirrored at the end.
+    k = np.arange(100)
+    w = 0.5 - 0.5 * np.cos(np.pi * k / 100)
+    assert np.max(np.abs(r[:100, 0] - w)) < 1e-15
+    assert np.max(np.abs(r[-100:, 1] - w[::-1])) < 1e-15
+    assert np.all(r[100:-100] == 1.0)
     assert np.max(hard_cap(np.array([3.0, -3.0]), -6.0)) == pytest.approx(10 ** (-6 / 20))
     assert check_level(-20) == -20
     with pytest.raises(InputError, match="output cap"):

@@ -306,7 +306,11 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     # filter's impulse-response energy lies within 1/B of its peak (common practice), and
     # more would add only noise.
     spread = 0 if band is None else min(lead, int(np.ceil(1.5 * rate / band.bandwidth)))
-    _energy_ratios(res, xr, rate, onset, tr, band, label, spread)
+    others = ()
+    if band is not None and filtering == "auto":
+        hp = np.concatenate([np.zeros(lead), h])
+        others = (filter_band(hp, rate, band), xd)
+    _energy_ratios(res, xr, rate, onset, tr, band, label, spread, others)
     if strength_reference_db is not None:
         _strength(res, xd, rate, onset, tr, band, strength_reference_db, lead)
     elif strength_missing is not None:
@@ -581,9 +585,13 @@ def _ratio_noise_uncertainty(res: BandResult, e: np.ndarray, t: np.ndarray, pre:
 
 
 def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: Truncation,
-                   band: Band | None, label: str, pre: int = 0) -> None:
+                   band: Band | None, label: str, pre: int = 0, others=()) -> None:
     """C50, C80, D50 and Ts from the broadband onset, noise subtracted, the late decay
     beyond the truncation point added (Lundeby's compensation), and their noise bias.
+
+    ``others``: the same band filtered forwards and backwards (causal and anti-causal
+    smearing); where they bracket the zero-phase value by more than half a JND, the value
+    depends on the band filter's time response and is flagged.
 
     References
     ----------
@@ -628,6 +636,8 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
         setattr(res, m, v)
     if noise > 0:
         _ratio_noise_uncertainty(res, e, t, pre, rate, noise, comp, band, noise_dof, label)
+    if band is not None and others:
+        _filter_sensitivity(res, corrected, others, rate, onset, tr, pre, k, label)
     if raw is None:
         return
     for m, v in corrected.items():
@@ -642,6 +652,41 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
                      f"{label}: {name}: the background noise moves it by {bias:.2g}{unit} "
                      f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
                      "correction is only as good as the noise estimate")
+
+
+def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: int,
+                        tr: Truncation, pre: int, k: float, label: str) -> None:
+    """Flag energy ratios that the band filter's own time response moves by more than half
+    a JND. A forward filter delays the band's energy and a backwards one advances it by
+    the filter's group delay, so their difference is about twice the shift a filter's
+    group delay alone makes; a zero-phase filter has none, and what is left of the filter's
+    shape is its symmetric spread, taken as a quarter of that difference (checked on the
+    accuracy grid, ``make accuracy``: common practice, like the B·T rule for decay
+    times)."""
+    ends = []
+    for x in others:
+        e = np.square(x[onset - pre: onset + tr.index])
+        noise = 0.0
+        if tr.noise_limited:
+            tail = np.square(x[onset + tr.noise_start:])
+            noise = float(np.mean(tail)) if tail.size else 0.0
+        comp = noise * rate / k if (tr.noise_limited and k > 0) else 0.0
+        t = (np.arange(e.size) - pre) / rate
+        r = _ratios(e - noise, t, comp, k, tr.index / rate, pre, rate)
+        if r is None:
+            return
+        ends.append(r)
+    names = {"c50_db": ("C50", " dB"), "c80_db": ("C80", " dB"), "d50": ("D50", ""),
+             "ts_ms": ("Ts", " ms")}
+    for m, v in value.items():
+        spread = abs(ends[0][m] - ends[1][m]) / 4
+        jnd = JND[m][1]
+        if spread > NOISE_SIGMA_CAUTION_JND * jnd:
+            name, unit = names[m]
+            res.flag((m,), CAUTION, f"{m.split('_')[0]}_filter_sensitive",
+                     f"{label}: {name}: the band filter's own time response can move it by "
+                     f"±{spread:.2g}{unit} (its bandwidth is narrow for the 50/80 ms limits), "
+                     f"more than half its JND of {jnd:g}{unit}")
 
 
 def _end_energy(x: np.ndarray, rate: int, slope_db_s: float) -> float:

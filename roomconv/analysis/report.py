@@ -211,8 +211,11 @@ white-space:pre-wrap;font-size:12px}img{max-width:100%}"""
 
 
 def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
-                extra_series: dict | None = None) -> str:
-    """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first."""
+                extra_series: dict | None = None, cautions: bool = True) -> str:
+    """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first.
+
+    ``cautions`` ends the page with the playback caution, for pages that also offer sound
+    (the demo's renders); a page of results alone leaves it out."""
     doc = study.document
     metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
@@ -250,6 +253,8 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
         out.append(f"<p>note: {html.escape(n)}</p>")
     for e in doc.get("errors", []):
         out.append(f"<p class='warn'>error: {html.escape(e)}</p>")
-    out.append("<h2>Cautions</h2><div class='caution'>"
-               f"{html.escape(caution_text())}</div></body></html>")
+    if cautions:
+        out.append("<h2>Cautions</h2><div class='caution'>"
+                   f"{html.escape(caution_text())}</div>")
+    out.append("</body></html>")
     return "\n".join(out)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..errors import InputError
 from ..jobs.analyze import analyze_study
 from .common import Command, note, out
 from .display import print_table, progress_bar
@@ -53,6 +54,10 @@ def show_study(doc: dict) -> None:
 
 
 def run_analyze(a):
+    if a.study is not None:
+        return _run_study(a)
+    if not a.irs:
+        raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
     with progress_bar("analysing", quiet=a.quiet) as progress:
         res = analyze_study(a.irs, bands=a.bands, filtering=a.filtering,
                             calibration=a.calibration, json_path=a.json, csv_path=a.csv,
@@ -66,9 +71,37 @@ def run_analyze(a):
     return 2 if res.errors else 0
 
 
+def _run_study(a):
+    """``analyze --study``: the responses a study file names; the report as HTML and PDF."""
+    from ..jobs.study import report_study
+    from ..report.pdf import pdf_engine_problem
+    if a.irs:
+        raise InputError("analyze: give either IR.wav files or --study, not both (the study "
+                         "file lists its responses)")
+    if a.report is not None:
+        problem = pdf_engine_problem()
+        if problem is not None:
+            raise InputError(f"--report: cannot write the PDF: {problem}")
+    with progress_bar("analysing", quiet=a.quiet) as progress:
+        res = report_study(a.study, bands=a.bands, filtering=a.filtering,
+                           calibration=a.calibration, json_path=a.json, csv_path=a.csv,
+                           report_dir=a.report, force=a.force, progress=progress)
+    doc = res.document
+    if not a.quiet:
+        show_study(doc)
+    g = doc["grade"]
+    out(f"measurement grade (ISO 3382-2): {g['name'] or 'below survey'}", a)
+    for p in res.written:
+        out(f"wrote {p}", a)
+    return 2 if res.errors else 0
+
+
 def configure_analyze(p):
-    p.add_argument("irs", nargs="+", type=Path, metavar="IR.wav",
-                   help="impulse responses; every channel is its own position")
+    p.add_argument("irs", nargs="*", type=Path, metavar="IR.wav",
+                   help="impulse responses; every channel is its own position (or --study)")
+    p.add_argument("--study", type=Path, default=None, metavar="STUDY.toml",
+                   help="a study file (see 'roomconv study init'): its responses, positions "
+                        "and details; with --report, DIR/report.html and DIR/report.pdf")
     p.add_argument("--bands", choices=("octave", "third"), default="octave",
                    help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands")
     p.add_argument("--json", type=Path, default=None, metavar="OUT.json",

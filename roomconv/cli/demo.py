@@ -1,4 +1,4 @@
-"""The ``demo`` command: run the Linden Hall scenario and show its headline figures."""
+"""The ``demo`` command: run the Quillmere Hall scenario and show its headline figures."""
 
 from __future__ import annotations
 
@@ -26,7 +26,7 @@ def run_demo_command(a):
     rows.append(["average", fmt(avg["t30_mid_s"], "{:.2f}"), fmt(avg["edt_mid_s"], "{:.2f}"),
                  fmt(avg["c80_mid_db"], "{:+.1f}"), fmt(avg["d50_mid"], "{:.2f}"), ""])
     print_table(["position", "T30 s", "EDT s", "C80 dB", "D50", "quality"], rows,
-                title="Linden Hall (demo) — mid-frequency figures (500 Hz / 1 kHz)",
+                title="Quillmere Hall (demo) — mid-frequency figures (500 Hz / 1 kHz)",
                 right=(1, 2, 3, 4))
     dev = summary["t30_vs_eyring_pct"]
     if dev:

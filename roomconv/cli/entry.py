@@ -9,7 +9,7 @@ import traceback
 
 from .. import __version__
 from ..errors import OutputExistsError, RoomconvError
-from . import analysis, calibrate, demo, measure, render, synth, workbench
+from . import analysis, calibrate, demo, measure, render, study, synth, workbench
 from .common import Parser, common_options
 
 __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
@@ -18,7 +18,7 @@ __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
 def command_groups() -> list:
     """Every command, in the order ``--help`` lists them (registered here, not on import)."""
     return [*measure.COMMANDS, *analysis.COMMANDS, *calibrate.COMMANDS, *synth.COMMANDS,
-            *render.COMMANDS, *demo.COMMANDS, *workbench.COMMANDS]
+            *render.COMMANDS, *study.COMMANDS, *demo.COMMANDS, *workbench.COMMANDS]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -25,15 +25,32 @@ def _room_from_args(a):
 
 
 def show_prediction(result, a) -> None:
-    """Sabine and Eyring reverberation times per octave band, and the tail's own."""
+    """Sabine and Eyring reverberation times per octave band; for a synthesized response also
+    the tail's T actually used, where it comes from, and what an octave filter is expected to
+    read from it."""
     from ..synth.materials import OCTAVES
     if getattr(a, "quiet", False):
         return
     used = result.used_rt
-    headers = ["band Hz", "Sabine s", "Eyring s"] + (["tail s"] if used else [])
-    rows = [[str(b), f"{result.sabine[b]:.2f}", f"{result.eyring[b]:.2f}"]
-            + ([f"{used[b]:.2f}"] if used else []) for b in OCTAVES]
-    print_table(headers, rows, right=range(len(headers)))
+    origin = getattr(result, "rt_origin", {}) or {}
+    reading = getattr(result, "expected_reading", {}) or {}
+    headers = ["band Hz", "Sabine s", "Eyring s"]
+    if used:
+        headers += ["tail s", "from", "octave reading s"]
+    rows = []
+    for b in OCTAVES:
+        row = [str(b), f"{result.sabine[b]:.2f}", f"{result.eyring[b]:.2f}"]
+        if used:
+            row += [f"{used[b]:.2f}", origin.get(b, "")]
+            if b in reading:
+                # The notes explain a band whose expected reading strays from the tail's T.
+                off = abs(reading[b] / used[b] - 1) > 0.02
+                row.append(f"{reading[b]:.2f}" + ("  (see note)" if off else ""))
+            else:
+                row.append("")
+        rows.append(row)
+    right = [0, 1, 2] + ([3, 5] if used else [])
+    print_table(headers, rows, right=right)
 
 
 def run_synth(a):
@@ -48,16 +65,23 @@ def run_synth(a):
             length_s=a.length, peak_dbfs=a.peak, materials_file=a.materials_file,
             force=a.force, settings={"room": list(a.room), "rt60": a.rt60, "rate": a.rate})
     except InputError as exc:
-        if "silent; its peak" in str(exc):
+        # The library names values; this front end adds the option that set them.
+        text = str(exc)
+        if "silent; its peak" in text:
             raise InputError(f"--peak: {exc}") from None
+        if "the source and the receiver apart" in text:
+            raise InputError(f"--source/--receiver: {exc}") from None
+        if "from the given bands" in text:
+            raise InputError(f"--rt60: {exc}") from None
         raise
     out(f"room {room.length:g} x {room.width:g} x {room.height:g} m, V = {room.volume:.0f} m³, "
         f"S = {room.total_area:.0f} m²", a)
     show_prediction(res.result, a)
     ir = res.ir
-    out(f"{res.result.image_count} image sources up to the mixing time "
-        f"{1000 * res.result.mixing_time_s:.0f} ms; wrote {a.output} ({ir.shape[1]} channel(s), "
-        f"{ir.shape[0] / a.rate:.2f} s)", a)
+    out(f"{res.result.image_count} image sources up to the tail (mixing time "
+        f"{1000 * res.result.mixing_time_s:.0f} ms, cross-fade from "
+        f"{1000 * res.result.tail_start_s:.1f} ms); wrote {a.output} ({ir.shape[1]} "
+        f"channel(s), {ir.shape[0] / a.rate:.2f} s)", a)
     for n in res.result.notes:
         out(f"note: {n}", a)
     return 0
@@ -88,7 +112,9 @@ def configure_synth(p):
     p.add_argument("output", type=Path, help="IR WAV to write")
     _room_options(p)
     p.add_argument("--rt60", default=None, metavar="BAND:SECONDS,...",
-                   help="reverberation time of the tail per octave band (overrides prediction)")
+                   help="reverberation time of the tail per octave band (overrides the "
+                        "prediction; bands left out are interpolated between the given ones "
+                        "and held flat beyond them)")
     p.add_argument("--source", type=opt(jobs.position), default=None, metavar="X,Y,Z",
                    help="source position, m")
     p.add_argument("--receiver", type=opt(jobs.position), default=None, metavar="X,Y,Z",

@@ -1,4 +1,4 @@
-"""The demo's scenario, data only: Linden Hall, a multi-purpose hall of our own invention,
+"""The demo's scenario, data only: Quillmere Hall, a multi-purpose hall of our own invention,
 its sources and microphones, the sweep, the simulated measurement chain and the dry clips.
 """
 
@@ -12,7 +12,7 @@ import numpy as np
 
 from ..signal import db_to_gain
 
-__all__ = ["Scenario", "FULL", "QUICK", "RATE_HZ", "SEED", "linden_hall", "pink_noise",
+__all__ = ["Scenario", "FULL", "QUICK", "RATE_HZ", "SEED", "quillmere_hall", "pink_noise",
            "demo_clip", "SOURCE_CLIPS", "CHAIN"]
 
 #: The dry clips' source folder in a checkout (demo_audio/, beside the script that made them).
@@ -77,7 +77,7 @@ def demo_clip(name: str) -> Path | None:
     return Path(str(clip)) if clip.is_file() else None
 
 
-def linden_hall():
+def quillmere_hall():
     """26 × 15 × 6 m (2,340 m³): plastered walls, a glazed side wall, a timber-panelled stage
     wall and timber floor, 220 m² of upholstered seating (empty), plaster ceiling."""
     from ..synth.room import Patch, RoomModel

@@ -1,4 +1,4 @@
-"""The demo's steps: synthesize Linden Hall, measure every position through the simulated
+"""The demo's steps: synthesize Quillmere Hall, measure every position through the simulated
 chain, analyse and compare with the prediction, render the clips, write the report.
 
 Each step calls the job layer, which names, guards and records every file it writes.
@@ -24,13 +24,13 @@ from .scenario import (
     SEED,
     Scenario,
     demo_clip,
-    linden_hall,
     pink_noise,
+    quillmere_hall,
 )
 
 __all__ = ["run_demo"]
 
-TITLE = "Linden Hall — room acoustic study (demo)"
+TITLE = "Quillmere Hall — room acoustic study (demo)"
 
 
 @dataclass
@@ -69,9 +69,9 @@ def run_demo(out, *, quick: bool = False, force: bool = False,
                   silence_post=CHAIN.silence_post_s)
     n_pos = len(sc.sources) * len(sc.receivers)
     run = _Run(sc, out, force, progress,
-               {"scenario": "Linden Hall (fictional)", "quick": quick, "seed": SEED},
+               {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
                total=n_pos * 2 + 3 + len(sc.clips) + 1)
-    room = linden_hall()
+    room = quillmere_hall()
     truths = true_responses(run, room)
     qualities = measure_positions(run, truths, sweep)
     study, comparison = analyse_positions(run, room, qualities)
@@ -118,6 +118,7 @@ def measure_positions(run: _Run, truths: dict, sweep) -> dict:
             reference_channel=2, length_s=CHAIN.measured_length_s,
             harmonics_dir=run.out / "harmonics" if first else None,
             save_recording=run.out / "recordings" / f"{name}_recording.wav" if first else None,
+            json_path=run.out / "irs" / f"{name}.quality.json",
             harmonic_provenance=True, force=run.force,
             settings={**run.settings, "position": name})
         qualities[name] = res.quality
@@ -207,7 +208,77 @@ def write_report(run: _Run, room, sweep, study, comparison, renders) -> None:
                 report_file=run.out / "report.html",
                 report_options={"title": TITLE, "sections": sections, "extra_series": extra},
                 provenance={**run.settings, "sweep": sweep.to_dict()}, force=run.force)
+    client_report(run, room, sweep)
     run.step("report")
+
+
+def client_report(run: _Run, room, sweep) -> list[Path]:
+    """6b. The study file and the client report (report/report.html and .pdf) from it, as a
+    consultant sends them; the HTML alone, saying why, where no PDF engine is installed."""
+    from ..jobs.study import report_study, write_study_file
+    study_file = write_study_file(run.out / "study.toml", _study_text(run.scenario, room, sweep),
+                                  force=run.force)
+    res = report_study(study_file, report_dir=run.out / "report", force=run.force,
+                       require_pdf=False)
+    run.notes.extend(f"note: {n}" for n in res.notes)
+    return [study_file, *res.written]
+
+
+def _study_text(sc: Scenario, room, sweep) -> str:
+    pts = "".join(f'\n[[sources]]\nid = "S{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+                  for i, (x, y, z) in enumerate(sc.sources, 1))
+    pts += "".join(f'\n[[receivers]]\nid = "R{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+                   for i, (x, y, z) in enumerate(sc.receivers, 1))
+    resp = "".join(f'\n[[responses]]\nsource = "S{si}"\nreceiver = "R{ri}"\n'
+                   f'file = "irs/S{si}R{ri}.wav"\nquality_file = "irs/S{si}R{ri}.quality.json"\n'
+                   for si in range(1, len(sc.sources) + 1)
+                   for ri in range(1, len(sc.receivers) + 1))
+    # Everything below is the demo's own invented scenario, including the client's target.
+    return f"""# Quillmere Hall: a fictional hall, measured in simulation by `roomconv demo`.
+[study]
+title = "Quillmere Hall: room acoustic survey (demo)"
+client = "Quillmere Hall Community Trust (fictional)"
+project_number = "DEMO-001"
+author = "roomconv demo"
+dates = [2026-01-15]
+notes = "A scenario of our own: the hall, its responses and the measurement chain are synthesized."
+
+[room]
+name = "Quillmere Hall"
+use = "multi-purpose: concerts, talks, community events"
+dimensions_m = [{room.length:g}, {room.width:g}, {room.height:g}]
+state = "unoccupied"
+furnished = true
+temperature_c = 20.0
+humidity_pct = 50.0
+
+[equipment]
+source = "simulated omnidirectional loudspeaker (mild 2nd/3rd-order distortion)"
+microphone = "simulated omnidirectional measurement microphone"
+interface = "simulated sound card, loopback reference on input 2"
+
+[sweep]
+f_low_hz = {sweep.f_low:g}
+f_high_hz = {sweep.f_high:g}
+duration_s = {sweep.duration:g}
+level_dbfs = {sweep.level_dbfs:g}
+repeats = {sweep.repeats}
+silence_s = {sweep.silence_post:g}
+rate_hz = {sweep.rate}
+{pts}{resp}
+[targets]
+basis = "t30"
+tolerance_pct = [-15, 15]
+source = "the (fictional) client's brief"
+
+[targets.reverberation_s]
+"125" = 1.6
+"250" = 1.5
+"500" = 1.4
+"1000" = 1.4
+"2000" = 1.4
+"4000" = 1.3
+"""
 
 
 def _verdict(q: dict) -> dict:
@@ -232,10 +303,12 @@ def _report_sections(room, sweep, verdicts, comparison, renders, out):
     from ..analysis.report import _html_table
     surf = [[s, room.surfaces[s], f"{room.surface_area(s):.0f}"] for s in room.surfaces]
     surf += [[f"{p.surface} (part)", p.material, f"{p.area_m2:.0f}"] for p in room.patches]
-    desc = (f"<p>Linden Hall is a fictional multi-purpose hall invented for this demo: "
+    desc = (f"<p>Quillmere Hall is a fictional multi-purpose hall invented for this demo: "
             f"{room.length:g} × {room.width:g} × {room.height:g} m, V = {room.volume:.0f} m³, "
             f"S = {room.total_area:.0f} m², 20 °C, 50 % RH. It is synthesized by roomconv's "
-            "image-source model with a per-band diffuse tail.</p>"
+            "image-source model with a diffuse tail whose decay time varies smoothly with "
+            "frequency and is fitted so that octave-band filters read the Eyring "
+            "prediction.</p>"
             + _html_table(["surface", "material", "area m²"], surf))
     a2, a3 = CHAIN.distortion
     chain = (f"<p>Exponential sweep {sweep.f_low:g} Hz–{sweep.f_high / 1000:g} kHz, "
@@ -249,10 +322,14 @@ def _report_sections(room, sweep, verdicts, comparison, renders, out):
              str(v["latency_samples"])] for n, v in verdicts.items()]
     quality = _html_table(["position", "verdict", "INR dB", "clipped", "latency removed"],
                           rows)
-    comp = _html_table(["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
-                       [[f"{c['band_hz']:g}", f"{c['measured_t30_s']:.2f}",
-                         f"{c['eyring_s']:.2f}", f"{c['sabine_s']:.2f}",
-                         f"{c['deviation_pct']:+.1f}"] for c in comparison])
+    comp = ("<p>T30 averaged over the measured positions against Eyring's formula per octave "
+            "band (deviation relative to Eyring). The synthetic hall decays at that prediction "
+            "as an octave filter reads it, so the deviation shows what the measuring chain "
+            "(sweep, distortion, noise, deconvolution) and the few positions add; the ISO "
+            "3382-1 just-noticeable difference of T is 5 %.</p>") + _html_table(
+        ["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
+        [[f"{c['band_hz']:g}", f"{c['measured_t30_s']:.2f}", f"{c['eyring_s']:.2f}",
+          f"{c['sabine_s']:.2f}", f"{c['deviation_pct']:+.1f}"] for c in comparison])
     rend = "<ul>" + "".join(
         f"<li>{html.escape(str(p.relative_to(out)))}: peak {r.peak_dbfs:+.1f} dBFS, true peak "
         f"{r.true_peak_dbtp:+.1f} dBTP</li>" for p, r in renders) + "</ul>"
@@ -272,6 +349,7 @@ def _summary(doc, seconds, out) -> dict:
     return {"positions": per_pos, "average": doc["average"]["single_numbers"],
             "quality": {n: q["verdict"] for n, q in doc["quality"].items()},
             "t30_vs_eyring_pct": [min(dev), max(dev)] if dev else None,
-            "files": [str(out / n) for n in ("report.html", "results.json", "results.csv",
-                                             "irs", "harmonics", "renders")],
+            "files": [str(out / n) for n in ("report", "study.toml", "report.html",
+                                             "results.json", "results.csv", "irs",
+                                             "harmonics", "renders")],
             "seconds": seconds, "output": str(out), "roomconv_version": __version__}

@@ -20,6 +20,7 @@ from .render import (
                      run_batch,
                      run_live,
 )
+from .study import check_study, init_study, report_study, save_session_study, write_study_file
 from .synth import EditResult, SynthJobResult, edit_response, materials_table, synthesize_room
 
 __all__ = ["AnalyzeResult", "analyze_study", "export_study", "MeasureResult",
@@ -27,4 +28,5 @@ __all__ = ["AnalyzeResult", "analyze_study", "export_study", "MeasureResult",
            "harmonic_output", "position_output", "render_output_name", "study_outputs",
            "Cancelled", "ProgressCallback", "silent", "BatchResult", "LiveSetup", "QueueResult",
            "prepare_live", "render_many", "render_one", "run_batch", "run_live", "EditResult",
-           "SynthJobResult", "edit_response", "materials_table", "synthesize_room"]
+           "SynthJobResult", "edit_response", "materials_table", "synthesize_room", "check_study",
+           "init_study", "report_study", "save_session_study", "write_study_file"]

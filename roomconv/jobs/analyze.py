@@ -128,7 +128,8 @@ def analyze_study(irs: Sequence, *, bands: str = "octave", filtering: str = "aut
                 total += 1
         study = analyse_files(inputs, bands=bands, filtering=filtering, calibration=cal,
                               progress=_Counter(total, progress))
-        written = _write(g, study, json_path, csv_path, report_file)
+        # A page of results alone: no playback caution (pages that offer sound add it).
+        written = _write(g, study, json_path, csv_path, report_file, {"cautions": False})
     return AnalyzeResult(study, written)
 
 
@@ -141,4 +142,5 @@ def export_study(study: Study, folder, *, force: bool = False) -> list[Path]:
         g.folder(folder)
         for p in names.values():
             g.file(p)
-        return _write(g, study, names["json"], names["csv"], names["report"])
+        return _write(g, study, names["json"], names["csv"], names["report"],
+                      {"cautions": False})

@@ -234,7 +234,8 @@ def synthesize_room(output, room, *, source_m=None, receiver_m=None, rate_hz: in
     stereo : str, optional
         ``"spaced:M"`` or ``"coincident:DEG"``; None for one receiver.
     rt60_s : dict, optional
-        Reverberation time of the tail per octave band, s (overrides the prediction).
+        Reverberation time of the tail per octave band, s (overrides the prediction; bands
+        left out are interpolated between the given ones and held flat beyond them).
     prediction : {"eyring", "sabine"}
     length_s : float, optional
     peak_dbfs : float, optional
@@ -265,7 +266,9 @@ def synthesize_room(output, room, *, source_m=None, receiver_m=None, rate_hz: in
                   "receiver_m": list(rcv), "stereo": stereo, "rt60_s": rt60_s or None,
                   "seed": seed, "rate_hz": rate_hz, "prediction": prediction,
                   "predicted_sabine_s": res.sabine, "predicted_eyring_s": res.eyring,
-                  "tail_rt_s": res.used_rt, "mixing_time_s": res.mixing_time_s,
+                  "tail_rt_s": res.used_rt, "tail_rt_origin": res.rt_origin,
+                  "expected_octave_reading_s": res.expected_reading,
+                  "mixing_time_s": res.mixing_time_s, "tail_start_s": res.tail_start_s,
                   **(settings or {})}
         write_provenance(output, [], record, guard=g)
     return SynthJobResult(Path(output), room, src, rcv, res, ir)

@@ -13,16 +13,47 @@ from scipy import fft as sfft
 from scipy.signal import fftconvolve
 
 from ..errors import InputError
-from ..signal import cosine_step
+from ..signal import cosine_step, raised_cosine
 from . import quality as q
 from .sweep import Sweep, harmonic_delay, inverse_filter
+
+__all__ = [
+    "HARMONIC_ORDERS",
+    "Extraction",
+    "extract_ir",
+]
 
 HARMONIC_ORDERS = (2, 3, 4, 5)
 
 
 @dataclass
 class Extraction:
-    """Result of :func:`extract_ir`. Arrays are (samples × channels), float64."""
+    """Result of :func:`extract_ir`.
+
+    Attributes
+    ----------
+    ir : ndarray, shape (samples, channels)
+        The linear impulse response of each microphone channel, float64; sample 0 is zero lag.
+    rate : int
+        Sample rate, Hz.
+    harmonics : dict of int to ndarray
+        Harmonic order k (2–5) to its impulse response (samples × channels), when separated.
+    quality : dict
+        Recording and response figures (peak and noise floor in dBFS, INR in dB, latency in
+        samples, warnings); JSON-ready.
+    trimmed_samples : int
+        Leading samples cut by ``trim=True``.
+    method : str
+        ``"analytic_inverse"`` (from a sweep description) or ``"regularized_division"``.
+
+    Examples
+    --------
+    >>> from roomconv.measure.sweep import Sweep, sweep_signal
+    >>> s = Sweep(duration=0.5, silence_pre=0.1, silence_post=0.3)
+    >>> ex = extract_ir(sweep_signal(s), s.rate, sweep=s, harmonics=False)
+    >>> ex.ir.shape, ex.method
+    ((14400, 1), 'analytic_inverse')
+    """
 
     ir: np.ndarray
     rate: int
@@ -32,10 +63,19 @@ class Extraction:
     method: str = "analytic_inverse"
 
 
-def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
-               excitation: np.ndarray | None = None, reference_channel: int | None = None,
-               length_s: float | None = None, harmonics: bool = True, trim: bool = False,
-               allow_clipped: bool = False, band: tuple[float, float] | None = None) -> Extraction:
+def extract_ir(
+    recording: np.ndarray,
+    rate: int,
+    *,
+    sweep: Sweep | None = None,
+    excitation: np.ndarray | None = None,
+    reference_channel: int | None = None,
+    length_s: float | None = None,
+    harmonics: bool = True,
+    trim: bool = False,
+    allow_clipped: bool = False,
+    band: tuple[float, float] | None = None,
+) -> Extraction:
     """Deconvolve a sweep recording into impulse responses.
 
     Parameters
@@ -44,7 +84,7 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
         What the microphone(s) (and optionally the loopback) recorded, started together with
         playback.
     rate : int
-        Sample rate of ``recording``; must equal the sweep's.
+        Sample rate of ``recording``, Hz; must equal the sweep's.
     sweep : Sweep, optional
         The sweep description (from its sidecar). Enables the analytic inverse filter, repeats
         and harmonic separation.
@@ -52,10 +92,10 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
         The played signal when no description is known; deconvolved by regularized spectral
         division (Müller & Massarani 2001). Exactly one of ``sweep``/``excitation`` is needed.
     reference_channel : int, optional
-        Index of a loopback channel; the microphone IRs are divided by its response so that
+        0-based index of a loopback channel; the microphone IRs are divided by its response so that
         the sound card's latency and response cancel.
     length_s : float, optional
-        Length of the returned IR. Defaults to the silence after the sweep (or 2 s).
+        Length of the returned IR, s. Defaults to the silence after the sweep (or 2 s).
     harmonics : bool
         Separate harmonic orders 2–5 (needs ``sweep``).
     trim : bool
@@ -63,11 +103,18 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
     allow_clipped : bool
         Accept a recording with clipped samples (they are still reported).
     band : (float, float), optional
-        Band for spectral division; default from the sweep or estimated from the excitation.
+        Band for spectral division, Hz; default from the sweep or estimated from the excitation.
 
     Returns
     -------
     Extraction
+        The responses, harmonic responses and quality figures.
+
+    Raises
+    ------
+    InputError
+        For a silent, clipped (unless allowed), too short or non-finite recording, a
+        reference channel that does not exist, or a rate that differs from the sweep's.
 
     References
     ----------
@@ -75,6 +122,19 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
     swept-sine technique. 108th AES Convention, preprint 5093.
     Müller, S., Massarani, P. (2001). Transfer-function measurement with sweeps. J. Audio
     Eng. Soc. 49(6), 443–471.
+
+    Examples
+    --------
+    A pure delay of 100 samples comes back as a peak at sample 100:
+
+    >>> from roomconv.measure.sweep import Sweep, sweep_signal
+    >>> s = Sweep(duration=0.5, silence_pre=0.1, silence_post=0.3)
+    >>> rec = np.concatenate([np.zeros(100), sweep_signal(s)])
+    >>> ex = extract_ir(rec, s.rate, sweep=s, length_s=0.1)
+    >>> int(np.argmax(np.abs(ex.ir[:, 0])))
+    100
+    >>> sorted(ex.harmonics)
+    [2, 3, 4, 5]
     """
     y = np.asarray(recording, dtype=np.float64)
     if y.ndim == 1:
@@ -83,14 +143,18 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
         raise ValueError("give exactly one of sweep or excitation")
     n_ch = y.shape[1]
     if reference_channel is not None and not (0 <= reference_channel < n_ch):
-        raise InputError(f"reference channel {reference_channel} does not exist: the recording "
-                         f"has {n_ch} channel(s), numbered 0..{n_ch - 1}")
+        raise InputError(
+            f"reference channel {reference_channel} does not exist: the recording "
+            f"has {n_ch} channel(s), numbered 0..{n_ch - 1}"
+        )
     mic_channels = [c for c in range(n_ch) if c != reference_channel]
     if not mic_channels:
         raise InputError("the recording holds only the reference channel; no microphone left")
     if sweep is not None and sweep.rate != rate:
-        raise InputError(f"the recording is at {rate} Hz but the sweep at {sweep.rate} Hz "
-                         "(record at the sweep's rate)")
+        raise InputError(
+            f"the recording is at {rate} Hz but the sweep at {sweep.rate} Hz "
+            "(record at the sweep's rate)"
+        )
     _check_recording(y, rate, sweep, excitation, allow_clipped)
 
     quality: dict = {"recording": _recording_quality(y, sweep, mic_channels, reference_channel)}
@@ -113,16 +177,17 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
     if len_warn:
         warnings.append(len_warn)
 
-    segments = np.stack([raw[z:z + n_out] for z in zeros])  # repeats × samples × channels
+    segments = np.stack([raw[z : z + n_out] for z in zeros])  # repeats × samples × channels
 
     latency = 0
     if reference_channel is not None:
         # Divide with some negative time kept in both windows: the deconvolved responses ring
         # before lag 0 (band edges), and cutting mic and loopback differently would not cancel.
         pre = _reference_lead(zeros[0], sweep, rate)
-        ext = np.mean([raw[z - pre:z + n_out] for z in zeros], axis=0)
-        ir_all, latency = _divide_by_reference(ext, mic_channels, reference_channel, rate,
-                                               (f_lo, f_hi), n_out, pre)
+        ext = np.mean([raw[z - pre : z + n_out] for z in zeros], axis=0)
+        ir_all, latency = _divide_by_reference(
+            ext, mic_channels, reference_channel, rate, (f_lo, f_hi), n_out, pre
+        )
         segments = np.stack([_shift(s[:, mic_channels], latency, n_out) for s in segments])
         quality["reference_latency_samples"] = int(latency)
     else:
@@ -134,8 +199,9 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
 
     harm: dict[int, np.ndarray] = {}
     if harmonics and sweep is not None:
-        harm, h_warn = _harmonic_irs(raw, zeros, sweep, rate, mic_channels, latency,
-                                     reference_channel, n_out)
+        harm, h_warn = _harmonic_irs(
+            raw, zeros, sweep, rate, mic_channels, latency, reference_channel, n_out
+        )
         warnings += h_warn
 
     trimmed = 0
@@ -149,8 +215,14 @@ def extract_ir(recording: np.ndarray, rate: int, *, sweep: Sweep | None = None,
     quality["band_hz"] = [float(f_lo), float(f_hi)]
     quality["trimmed_samples"] = int(trimmed)
     quality["warnings"] = quality["recording"].pop("warnings") + warnings
-    return Extraction(ir=ir_all, rate=rate, harmonics=harm, quality=quality,
-                      trimmed_samples=trimmed, method=method)
+    return Extraction(
+        ir=ir_all,
+        rate=rate,
+        harmonics=harm,
+        quality=quality,
+        trimmed_samples=trimmed,
+        method=method,
+    )
 
 
 # --- checks --------------------------------------------------------------------------------
@@ -158,41 +230,60 @@ def _check_recording(y, rate, sweep, excitation, allow_clipped):
     if not np.all(np.isfinite(y)):
         raise InputError("the recording holds NaN or infinite samples")
     peak = np.max(np.abs(y), axis=0)
+    # 1e-9 is −180 dBFS, below any converter's noise: only digital silence is this quiet.
     if np.any(peak < 1e-9):
         silent = [int(c) for c in np.flatnonzero(peak < 1e-9)]
-        raise InputError(f"the recording is silent on channel(s) {silent} "
-                         "(check the microphone, the input channel and the gain)")
-    need = (sweep.n_pre + (sweep.repeats - 1) * sweep.n_period + sweep.n_sweep
-            if sweep is not None else np.asarray(excitation).reshape(-1).size)
+        raise InputError(
+            f"the recording is silent on channel(s) {silent} "
+            "(check the microphone, the input channel and the gain)"
+        )
+    need = (
+        sweep.n_pre + (sweep.repeats - 1) * sweep.n_period + sweep.n_sweep
+        if sweep is not None
+        else np.asarray(excitation).reshape(-1).size
+    )
     if y.shape[0] < need:
-        raise InputError(f"the recording ({y.shape[0] / rate:.2f} s) is shorter than the sweep "
-                         f"it should contain ({need / rate:.2f} s); record for longer")
+        raise InputError(
+            f"the recording ({y.shape[0] / rate:.2f} s) is shorter than the sweep "
+            f"it should contain ({need / rate:.2f} s); record for longer"
+        )
     clipped = q.clipped_samples(y)
     if clipped.sum() and not allow_clipped:
-        # Channels as a person counts them, from 1.
-        chans = ", ".join(str(int(c) + 1) for c in np.flatnonzero(clipped))
-        raise InputError(f"the recording is clipped on channel(s) {chans} "
-                         f"({int(clipped.sum())} samples at full scale); lower the input gain "
-                         "or the sweep level and measure again (or accept a clipped "
-                         "recording explicitly)")
+        chans = [int(c) for c in np.flatnonzero(clipped)]
+        raise InputError(
+            f"the recording is clipped on channel(s) {chans} "
+            f"({int(clipped.sum())} samples at full scale); lower the input gain "
+            "or the sweep level and measure again (or accept a clipped "
+            "recording explicitly)"
+        )
 
 
 def _recording_quality(y, sweep, mics, ref) -> dict:
     pk = q.peak_dbfs(y)
     clipped = q.clipped_samples(y)
-    out = {"peak_dbfs": pk.tolist(), "clipped_samples": clipped.tolist(),
-           "noise_floor_dbfs": None, "warnings": []}
+    out = {
+        "peak_dbfs": pk.tolist(),
+        "clipped_samples": clipped.tolist(),
+        "noise_floor_dbfs": None,
+        "warnings": [],
+    }
     if sweep is not None and sweep.n_pre >= int(0.05 * sweep.rate):
-        # Leading silence, minus a margin for the system's latency.
+        # Leading silence, minus a 20 % margin for the system's latency (common practice).
         head = y[: int(sweep.n_pre * 0.8)]
         out["noise_floor_dbfs"] = q.rms_dbfs(head).tolist()
     for c in mics:
+        # Within 1 dB of full scale risks clipping; below −40 dBFS wastes converter range
+        # (both common practice, not from a standard).
         if pk[c] > -1.0:
-            out["warnings"].append(f"channel {c}: recording peak {pk[c]:.1f} dBFS is within 1 dB "
-                                   "of full scale; lower the input gain")
+            out["warnings"].append(
+                f"channel {c}: recording peak {pk[c]:.1f} dBFS is within 1 dB "
+                "of full scale; lower the input gain"
+            )
         elif pk[c] < -40.0:
-            out["warnings"].append(f"channel {c}: recording peak {pk[c]:.1f} dBFS is low; raise "
-                                   "the input gain or the level for a better signal-to-noise ratio")
+            out["warnings"].append(
+                f"channel {c}: recording peak {pk[c]:.1f} dBFS is low; raise "
+                "the input gain or the level for a better signal-to-noise ratio"
+            )
         if clipped[c]:
             out["warnings"].append(f"channel {c}: {clipped[c]} clipped samples")
     return out
@@ -209,8 +300,9 @@ def _zero_indices(sweep: Sweep) -> list[int]:
     return [sweep.n_pre + r * sweep.n_period + sweep.n_sweep - 1 for r in range(sweep.repeats)]
 
 
-def _band_weights(f: np.ndarray, band: tuple[float, float], rate: int,
-                  transition_oct: float = 1 / 3) -> np.ndarray:
+def _band_weights(
+    f: np.ndarray, band: tuple[float, float], rate: int, transition_oct: float = 1 / 3
+) -> np.ndarray:
     """1 across ``band``, 0 well outside it, raised-cosine transitions *outside* the band.
 
     The upper transition runs from f2 up to f2·2^transition_oct (or to Nyquist, whichever
@@ -227,7 +319,7 @@ def _band_weights(f: np.ndarray, band: tuple[float, float], rate: int,
     # Below f1: rises from 0 at f1/2^t to 1 at f1.
     x_lo = np.clip((lf - (np.log2(lo) - transition_oct)) / transition_oct, 0.0, 1.0)
     w *= cosine_step(x_lo)
-    top = min(hi * 2.0 ** transition_oct, nyq)
+    top = min(hi * 2.0**transition_oct, nyq)
     if top > hi * (1 + 1e-9):
         # Above f2: falls from 1 at f2 to 0 at ``top`` (Nyquist at the latest).
         x_hi = np.clip((np.log2(top) - lf) / (np.log2(top) - np.log2(hi)), 0.0, 1.0)
@@ -250,6 +342,8 @@ def _regularized_inverse(P: np.ndarray, f: np.ndarray, band, rate: int) -> np.nd
     p2 = np.abs(P) ** 2
     top = p2.max()
     w = _band_weights(f, band, rate)
+    # 1e-8 (−80 dB re the peak power) only keeps the division finite in band; 1.0 outside
+    # leaves at most unit gain where the excitation carries nothing (common practice).
     eps = top * (1e-8 * w + 1.0 * (1 - w))
     return np.conj(P) / (p2 + eps)
 
@@ -272,6 +366,7 @@ def _estimate_band(exc: np.ndarray, rate: int) -> tuple[float, float]:
     f = sfft.rfftfreq(nfft, 1.0 / rate)
     k = max(1, p.size // 512)
     sm = np.convolve(p, np.ones(k) / k, mode="same")
+    # Within 40 dB of the peak (1e-4 in power): common practice for a usable band.
     live = np.flatnonzero(sm >= sm.max() * 1e-4)
     lo, hi = max(f[live[0]], 1.0), min(f[live[-1]], rate / 2 * 0.999)
     if not hi > lo * 1.5:
@@ -287,8 +382,10 @@ def _limit_length(n_out, n_raw, zeros, sweep, rate):
         clean = sweep.n_period - int(round(harmonic_delay(sweep, max(HARMONIC_ORDERS)) * rate))
         avail = min(avail, clean)
     if n_out > avail:
-        warn = (f"IR length cut to {avail / rate:.2f} s: the recording or the gap between "
-                "repeated sweeps holds no more (use a longer silence after the sweep)")
+        warn = (
+            f"IR length cut to {avail / rate:.2f} s: the recording or the gap between "
+            "repeated sweeps holds no more (use a longer silence after the sweep)"
+        )
         n_out = avail
     return n_out, warn
 
@@ -296,13 +393,14 @@ def _limit_length(n_out, n_raw, zeros, sweep, rate):
 def _shift(x: np.ndarray, d: int, n: int) -> np.ndarray:
     """Advance ``x`` by ``d`` samples, zero-padding the end, keeping ``n`` samples."""
     out = np.zeros((n,) + x.shape[1:])
-    seg = x[d:d + n]
+    seg = x[d : d + n]
     out[: seg.shape[0]] = seg
     return out
 
 
 def _reference_lead(z0: int, sweep, rate: int) -> int:
     """Negative time kept for the loopback division: clear of harmonic 2, at most 0.2 s."""
+    # 0.2 s covers the band-edge ringing of any sweep down to 20 Hz (common practice).
     lead = int(0.2 * rate)
     if sweep is not None:
         lead = min(lead, int(0.5 * harmonic_delay(sweep, 2) * rate))
@@ -335,32 +433,41 @@ def _harmonic_irs(raw, zeros, sweep, rate, mics, latency, ref, n_out):
         d = delays[k]
         gap = d - prev  # room before the next-lower order's own zero lag
         prev = d
+        # Keep 5 % of the gap free before the next-lower order, and refuse windows shorter
+        # than 5 ms (a response that short says nothing): both common practice.
         n_k = min(n_out, gap - max(1, gap // 20))
         if n_k < int(0.005 * rate):
-            warnings.append(f"harmonic {k} lies too close to harmonic {k - 1} to be separated "
-                            "(use a longer or wider sweep)")
+            warnings.append(
+                f"harmonic {k} lies too close to harmonic {k - 1} to be separated "
+                "(use a longer or wider sweep)"
+            )
             continue
         segs = []
         for z in zeros:
             start = z - d + latency
             if start < 0:
                 break
-            segs.append(raw[start:start + n_k])
+            segs.append(raw[start : start + n_k])
         if len(segs) < len(zeros):
-            warnings.append(f"harmonic {k} falls before the recording starts (add silence "
-                            "before the sweep)")
+            warnings.append(
+                f"harmonic {k} falls before the recording starts (add silence before the sweep)"
+            )
             continue
         h = np.mean(segs, axis=0)[:, mics]
         if ref is not None:
             # Scale by the loopback gain so harmonic levels are relative to the same reference.
-            g = np.max(np.abs(np.mean([raw[z:z + n_out, ref] for z in zeros], axis=0)))
+            g = np.max(np.abs(np.mean([raw[z : z + n_out, ref] for z in zeros], axis=0)))
             h = h / g
+        # A raised-cosine fade over the window's last tenth (common practice) keeps the cut
+        # from adding a click to the harmonic's spectrum.
         fade = max(1, n_k // 10)
-        h[-fade:] *= cosine_step(1.0 - (np.arange(fade) + 1) / fade)[:, None]
+        h[-fade:] *= raised_cosine(fade, rising=False)[:, None]
         out[k] = h
     d2 = delays[2] / rate
-    warnings.append(f"harmonic 2 arrives {d2:.2f} s before the linear response; reverberation "
-                    "longer than that mixes distortion into the linear IR") if d2 < 0.5 else None
+    warnings.append(
+        f"harmonic 2 arrives {d2:.2f} s before the linear response; reverberation "
+        "longer than that mixes distortion into the linear IR"
+    ) if d2 < 0.5 else None
     return out, [w for w in warnings if w]
 
 
@@ -382,9 +489,12 @@ def _repeat_figures(segments: np.ndarray, rate: int) -> dict:
     dev = np.mean([np.sum(np.square(s[win] - mean[win])) for s in segments])
     ref = np.sum(np.square(mean[win]))
     variance_db = 10 * np.log10(dev / ref) if dev > 0 and ref > 0 else float("-inf")
-    return {"count": int(n_rep), "snr_gain_db": float(gain),
-            "expected_snr_gain_db": float(10 * np.log10(n_rep)),
-            "repeat_mismatch_db": float(variance_db)}
+    return {
+        "count": int(n_rep),
+        "snr_gain_db": float(gain),
+        "expected_snr_gain_db": float(10 * np.log10(n_rep)),
+        "repeat_mismatch_db": float(variance_db),
+    }
 
 
 def _onset_trim_point(ir: np.ndarray, rate: int) -> int:
@@ -401,5 +511,8 @@ def _ir_quality(ir: np.ndarray, rate: int, warnings: list[str]) -> dict:
         inrs.append(inr)
         floors.append(floor)
         warnings += q.inr_warnings(inr, f"IR channel {c}")
-    return {"inr_db": inrs, "noise_floor_db_re_peak": floors,
-            "peak_sample": [int(np.argmax(np.abs(ir[:, c]))) for c in range(ir.shape[1])]}
+    return {
+        "inr_db": inrs,
+        "noise_floor_db_re_peak": floors,
+        "peak_sample": [int(np.argmax(np.abs(ir[:, c]))) for c in range(ir.shape[1])],
+    }

@@ -4,21 +4,43 @@ progressively to a temporary file, then scale/dither into the final file and ren
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 import soundfile as sf
 
 from .. import validate
-from ..audio import (WriteGuard, audio_format_for, audio_info, drop_temp, new_temp, read_audio,
-                     write_error)
+from ..audio import (
+    WriteGuard,
+    audio_format_for,
+    audio_info,
+    drop_temp,
+    new_temp,
+    read_audio,
+    write_error,
+)
 from ..errors import InputError, describe
-from ..signal import db_to_gain
+from ..signal import db_to_gain, resample
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
 from .partitioned import offline_convolver, routing_for
+
+__all__ = [
+    "NORMALIZE",
+    "DEFAULT_TARGET",
+    "INTEGER_SUBTYPES",
+    "LOUDNESS_TOLERANCE_LU",
+    "LOUDNESS_TARGET_MIN",
+    "RenderSettings",
+    "RenderReport",
+    "resample_ir",
+    "prepare_ir",
+    "dry_routed",
+    "render_arrays",
+    "render_file",
+]
 
 NORMALIZE = ("none", "peak", "truepeak", "loudness")
 DEFAULT_TARGET = {"peak": -1.0, "truepeak": -1.0, "loudness": -23.0}
@@ -32,24 +54,83 @@ LOUDNESS_TARGET_MIN = -60.0
 
 @dataclass
 class RenderSettings:
-    """What a render does besides the convolution itself."""
+    """What a render does besides the convolution itself.
 
-    mix: float = 1.0               #: 0 = dry only, 1 = wet only
+    Parameters
+    ----------
+    mix : float
+        Wet share, 0 (dry only) to 1 (wet only).
+    predelay_ms : float
+        Silence put in front of the response, ms.
+    gain_db : float
+        Output gain, dB (−100 to +60).
+    normalize : str
+        ``"none"``, ``"peak"`` (dBFS), ``"truepeak"`` (dBTP, ITU-R BS.1770-4 annex 2) or
+        ``"loudness"`` (LUFS, ITU-R BS.1770-4).
+    target : float, optional
+        The normalization target in the unit ``normalize`` implies; defaults in
+        :data:`DEFAULT_TARGET`.
+    subtype : str
+        soundfile subtype of the output (``"FLOAT"``, ``"DOUBLE"``, ``"PCM_24"``, ...).
+    precision : str
+        Engine arithmetic: ``"auto"``, ``"float64"`` or ``"float32"``
+        (see :meth:`engine_precision`).
+    outputs : int, optional
+        General matrix routing: outputs per input.
+    shared : bool
+        Use one response channel for every input.
+    keep_tail : bool
+        Keep the decay after the dry signal ends (output is dry + response − 1 samples long).
+    dither : bool
+        TPDF dither when writing integer subtypes.
+    seed : int
+        Seed of the dither.
+    match_ir_level : bool
+        Scale the response to unit energy per output before mixing (:mod:`roomconv.render.mix`).
+
+    References
+    ----------
+    ITU-R BS.1770-4 (2015), loudness and true peak (``normalize``).
+    Lipshitz, S. P., Wannamaker, R. A., Vanderkooy, J. (1992). Quantization and dither: a
+    theoretical survey. J. Audio Eng. Soc. 40(5), 355–375 (TPDF dither; cited from memory).
+
+    Examples
+    --------
+    >>> s = RenderSettings(mix=0.3, predelay_ms=12.0).check()
+    >>> s.engine_precision()
+    'float32'
+    """
+
+    mix: float = 1.0  #: 0 = dry only, 1 = wet only
     predelay_ms: float = 0.0
     gain_db: float = 0.0
-    normalize: str = "none"        #: none | peak | truepeak | loudness
-    target: float | None = None    #: dBFS, dBTP or LUFS depending on ``normalize``
+    normalize: str = "none"  #: none | peak | truepeak | loudness
+    target: float | None = None  #: dBFS, dBTP or LUFS depending on ``normalize``
     subtype: str = "FLOAT"
-    precision: str = "auto"       #: auto | float64 | float32 (see engine_precision)
-    outputs: int | None = None     #: general matrix routing: outputs per input
-    shared: bool = False           #: one IR channel for every input
+    precision: str = "auto"  #: auto | float64 | float32 (see engine_precision)
+    outputs: int | None = None  #: general matrix routing: outputs per input
+    shared: bool = False  #: one IR channel for every input
     keep_tail: bool = True
     dither: bool = True
     seed: int = 0
     #: scale the response to unit energy per output before mixing (see render.mix)
     match_ir_level: bool = False
 
-    def check(self) -> "RenderSettings":
+    def check(self) -> RenderSettings:
+        """Check every value, raising :class:`~roomconv.errors.InputError` for a bad one.
+
+        Returns
+        -------
+        RenderSettings
+            ``self``, with numbers parsed (so ``mix="0.5"`` becomes 0.5).
+
+        Examples
+        --------
+        >>> RenderSettings(mix=2.0).check()
+        Traceback (most recent call last):
+        ...
+        roomconv.errors.InputError: ...
+        """
         self.mix = validate.in_range(self.mix, "wet/dry mix", 0.0, 1.0)
         self.predelay_ms = validate.non_negative(self.predelay_ms, "pre-delay", unit="ms")
         self.gain_db = validate.in_range(self.gain_db, "output gain", -100.0, 60.0, unit="dB")
@@ -57,36 +138,89 @@ class RenderSettings:
             lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
             self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
-            raise InputError(f"normalization '{self.normalize}' must be one of "
-                             f"{', '.join(NORMALIZE)}")
+            raise InputError(f"normalization '{self.normalize}' must be one of {', '.join(NORMALIZE)}")
         if self.precision not in ("auto", "float64", "float32"):
-            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or "
-                             "float32")
+            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or float32")
         return self
 
     def engine_precision(self) -> str:
-        """``auto``: float32 arithmetic unless the file keeps doubles.
+        """The engine's arithmetic: ``auto`` means float32 unless the file keeps doubles.
 
         The float32 engine's error is about −130 dB relative to the signal (measured against
         fftconvolve in the tests), far below audibility and below what a 16-bit file or a
         24-bit converter resolves; DOUBLE files are computed in float64.
+
+        Returns
+        -------
+        str
+            ``"float32"`` or ``"float64"``.
+
+        Examples
+        --------
+        >>> RenderSettings(subtype="DOUBLE").engine_precision()
+        'float64'
         """
         if self.precision != "auto":
             return self.precision
         return "float64" if self.subtype == "DOUBLE" else "float32"
 
     def as_dict(self) -> dict:
+        """The settings as a JSON-ready dict (for provenance).
+
+        Returns
+        -------
+        dict
+
+        Examples
+        --------
+        >>> RenderSettings().as_dict()["mix"]
+        1.0
+        """
         return asdict(self)
 
 
 @dataclass
 class RenderReport:
+    """What :func:`render_file` did.
+
+    Attributes
+    ----------
+    output : Path
+        The file written.
+    frames : int
+        Samples per channel written.
+    channels : int
+        Output channels.
+    rate : int
+        Sample rate, Hz.
+    routing : str
+        Name of the routing (e.g. ``"true stereo"``).
+    peak_dbfs : float
+        Sample peak after gain and normalization, dBFS.
+    true_peak_dbtp : float, optional
+        True peak, dBTP (with ``normalize="truepeak"``).
+    loudness_lufs : float, optional
+        Integrated loudness, LUFS (with ``normalize="loudness"``).
+    gain_db : float
+        Gain applied by normalization, dB.
+    ir_resampled_from : int, optional
+        The response's own rate, Hz, when it was resampled.
+    wet_dry_db : float, optional
+        Wet-to-dry balance for broadband input, dB (:func:`~roomconv.render.mix.wet_dry_db`).
+    warnings : list of str
+
+    Examples
+    --------
+    >>> RenderReport("wet.wav", 48000, 2, 48000, "stereo", -6.0).gain_db
+    0.0
+    """
+
     output: Path
     frames: int
     channels: int
     rate: int
     routing: str
-    peak_dbfs: float               #: after gain/normalization
+    peak_dbfs: float  #: after gain/normalization
     true_peak_dbtp: float | None = None
     loudness_lufs: float | None = None
     gain_db: float = 0.0
@@ -96,15 +230,59 @@ class RenderReport:
 
 
 def resample_ir(ir: np.ndarray, rate: int, new_rate: int) -> np.ndarray:
-    """Resample an IR with soxr's very-high-quality filter (steep and flat up to near
-    Nyquist), keeping its level: gain is preserved for band-limited content."""
-    import soxr  # noqa: PLC0415
-    return np.asarray(soxr.resample(np.ascontiguousarray(ir), rate, new_rate, quality="VHQ"),
-                      dtype=np.float64).reshape(-1, ir.shape[1] if ir.ndim == 2 else 1)
+    """Resample an impulse response, keeping its level (gain is preserved in band).
+
+    Uses :func:`roomconv.signal.resample` (soxr, very high quality).
+
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, channels)
+    rate : int
+        Its sample rate, Hz.
+    new_rate : int
+        The wanted sample rate, Hz.
+
+    Returns
+    -------
+    ndarray, shape (about taps·new_rate/rate, channels)
+        float64, always 2-D.
+
+    Examples
+    --------
+    >>> resample_ir(np.ones(480), 48000, 44100).shape
+    (441, 1)
+    """
+    y = resample(ir, rate, new_rate)
+    return y.reshape(y.shape[0], -1)
 
 
-def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
-               ) -> tuple[np.ndarray, int | None]:
+def prepare_ir(
+    ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
+) -> tuple[np.ndarray, int | None]:
+    """Bring a response to the render's rate and put the pre-delay in front of it.
+
+    Parameters
+    ----------
+    ir : ndarray, shape (taps,) or (taps, channels)
+    ir_rate : int
+        The response's sample rate, Hz.
+    rate : int
+        The render's sample rate, Hz.
+    predelay_ms : float
+        Silence put in front, ms.
+
+    Returns
+    -------
+    ir : ndarray, shape (taps', channels)
+    resampled_from : int or None
+        ``ir_rate`` when the response was resampled.
+
+    Examples
+    --------
+    >>> ir, was = prepare_ir(np.ones(4), 48000, 48000, predelay_ms=0.125)
+    >>> ir[:, 0].tolist(), was
+    ([0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 1.0], None)
+    """
     ir = ir[:, None] if ir.ndim == 1 else ir
     resampled = None
     if ir_rate != rate:
@@ -117,12 +295,35 @@ def prepare_ir(ir: np.ndarray, ir_rate: int, rate: int, predelay_ms: float
 
 
 def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
+    """The dry signal laid out on the outputs, for mixing: as it is, or one channel repeated.
+
+    Parameters
+    ----------
+    x : ndarray, shape (samples, inputs)
+    n_out : int
+        Output channels.
+
+    Returns
+    -------
+    ndarray, shape (samples, n_out)
+
+    Raises
+    ------
+    InputError
+        When several inputs cannot be laid out on a different number of outputs.
+
+    Examples
+    --------
+    >>> dry_routed(np.array([[1.0], [2.0]]), 2).tolist()
+    [[1.0, 1.0], [2.0, 2.0]]
+    """
     if x.shape[1] == n_out:
         return x
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
-    raise InputError("the dry signal cannot be mixed in: inputs and outputs differ in count "
-                     "(use a fully wet mix, 1)")
+    raise InputError(
+        "the dry signal cannot be mixed in: inputs and outputs differ in count (use a fully wet mix, 1)"
+    )
 
 
 def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
@@ -136,9 +337,35 @@ def _wet_dry(conv, x: np.ndarray, mix: float, n_out: int) -> np.ndarray:
     return y
 
 
-def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings,
-                  ir_rate: int | None = None) -> np.ndarray:
-    """In-memory render (no normalization or dither): the convolution, pre-delay and mix."""
+def render_arrays(
+    dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSettings, ir_rate: int | None = None
+) -> np.ndarray:
+    """In-memory render: convolution, pre-delay, mix and gain (no normalization or dither).
+
+    Parameters
+    ----------
+    dry : ndarray, shape (samples,) or (samples, inputs)
+        The dry signal.
+    ir : ndarray, shape (taps,) or (taps, channels)
+        The impulse response.
+    rate : int
+        Sample rate of ``dry``, Hz.
+    settings : RenderSettings
+    ir_rate : int, optional
+        Sample rate of ``ir``, Hz, when it differs (it is resampled).
+
+    Returns
+    -------
+    ndarray, shape (samples [+ taps − 1], outputs)
+        float64.
+
+    Examples
+    --------
+    >>> y = render_arrays(np.array([1.0, 0.0, 0.0]), np.array([0.5, 0.25]), 48000,
+    ...                   RenderSettings(mix=1.0))
+    >>> y[:, 0].tolist()
+    [0.5, 0.25, 0.0, 0.0]
+    """
     s = settings.check()
     dry = dry[:, None] if dry.ndim == 1 else dry
     ir, _ = prepare_ir(ir, ir_rate or rate, rate, s.predelay_ms)
@@ -146,27 +373,43 @@ def render_arrays(dry: np.ndarray, ir: np.ndarray, rate: int, settings: RenderSe
     ir = ir * ir_gain(ir, routing, s.match_ir_level)
     n_out = dry.shape[0] + ir.shape[0] - 1 if s.keep_tail else dry.shape[0]
     # In memory the result stays float64, so "auto" computes in float64 here.
-    conv = offline_convolver(ir, routing,
-                             precision="float64" if s.precision == "auto" else s.precision)
+    conv = offline_convolver(
+        ir, routing, precision="float64" if s.precision == "auto" else s.precision
+    )
     B = conv.block
     out = np.empty((n_out, routing.n_out))
     try:
         for start in range(0, n_out, B):
-            y = _wet_dry(conv, dry[start:start + B], s.mix, routing.n_out)
+            y = _wet_dry(conv, dry[start : start + B], s.mix, routing.n_out)
             n = min(B, n_out - start)
-            out[start:start + n] = y[:n]
+            out[start : start + n] = y[:n]
     finally:
         conv.close()
     return out * db_to_gain(s.gain_db)
 
 
-def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force: bool = False,
-                progress: Callable[[float], None] | None = None,
-                workers: int | None = None, guard: WriteGuard | None = None) -> RenderReport:
+def render_file(
+    dry_path,
+    ir_path,
+    out_path,
+    settings: RenderSettings,
+    *,
+    force: bool = False,
+    progress: Callable[[float], None] | None = None,
+    workers: int | None = None,
+    guard: WriteGuard | None = None,
+) -> RenderReport:
     """Render ``dry_path`` through ``ir_path`` into ``out_path`` in bounded memory.
+
+    The dry file is read in blocks, convolved, mixed and written to a temporary file; a
+    second pass applies normalization and dither, and the result is renamed into place.
 
     Parameters
     ----------
+    dry_path, ir_path : str or Path
+        The dry audio and the impulse response (resampled to the dry file's rate if needed).
+    out_path : str or Path
+        The output audio file.
     settings : RenderSettings
     force : bool
         Replace an existing output (never an input).
@@ -177,6 +420,34 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     guard : WriteGuard, optional
         The command's write guard (it knows all the command's inputs); by default one that
         knows the dry file and the response, with ``force``.
+
+    Returns
+    -------
+    RenderReport
+
+    Raises
+    ------
+    InputError
+        For an unreadable, empty or silent input, a routing that does not fit, a level the
+        output cannot hold, or an output that exists (without ``force``) or is an input.
+
+    References
+    ----------
+    ITU-R BS.1770-4 (2015): loudness and true-peak measurement (``normalize``).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, soundfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     d = pathlib.Path(tmp)
+    ...     soundfile.write(d / "dry.wav", np.array([0.5, 0.0, 0.0]), 48000, subtype="DOUBLE")
+    ...     soundfile.write(d / "ir.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    ...     rep = render_file(d / "dry.wav", d / "ir.wav", d / "wet.wav",
+    ...                       RenderSettings(subtype="DOUBLE"))
+    ...     soundfile.read(d / "wet.wav")[0].tolist()
+    [0.5, 0.25, 0.0, 0.0]
+    >>> rep.frames, rep.routing
+    (4, 'mono')
     """
     s = settings.check()
     dry_path, ir_path, out_path = Path(dry_path), Path(ir_path), Path(out_path)
@@ -221,11 +492,14 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
     try:
         stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
         stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
-        stage_fmt = audio_format_for(out_path.with_suffix(".wav"),
-                                     n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4))
-        with sf.SoundFile(str(dry_path)) as src, \
-                sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub,
-                             format=stage_fmt) as dst:
+        stage_fmt = audio_format_for(
+            out_path.with_suffix(".wav"),
+            n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4),
+        )
+        with (
+            sf.SoundFile(str(dry_path)) as src,
+            sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub, format=stage_fmt) as dst,
+        ):
             written = 0
             while written < n_out:
                 x = src.read(B, dtype="float64", always_2d=True)
@@ -242,10 +516,15 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 _check_finite(y, out_path)
                 peak.feed(y)
                 if peak.peak > stage_max:
-                    raise InputError(describe(out_path.name, f"the rendered signal reaches "
-                                              f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
-                                              f"what a {stage_sub} file holds (lower the gain); "
-                                              "nothing written"))
+                    raise InputError(
+                        describe(
+                            out_path.name,
+                            f"the rendered signal reaches "
+                            f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
+                            f"what a {stage_sub} file holds (lower the gain); "
+                            "nothing written",
+                        )
+                    )
                 if tpk is not None:
                     tpk.feed(y)
                 if loud is not None:
@@ -253,11 +532,22 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
                 dst.write(y)
                 written += n
                 if progress:
-                    progress(0.8 * written / n_out if integer or s.normalize != "none"
-                             else written / n_out)
-        report = RenderReport(out_path, n_out, routing.n_out, rate, routing.name, peak.dbfs,
-                              gain_db=s.gain_db, ir_resampled_from=resampled,
-                              wet_dry_db=balance_db)
+                    progress(
+                        0.8 * written / n_out
+                        if integer or s.normalize != "none"
+                        else written / n_out
+                    )
+        report = RenderReport(
+            out_path,
+            n_out,
+            routing.n_out,
+            rate,
+            routing.name,
+            peak.dbfs,
+            gain_db=s.gain_db,
+            ir_resampled_from=resampled,
+            wet_dry_db=balance_db,
+        )
         extra_db = 0.0
         if tpk is not None:
             tpk.finish()
@@ -266,28 +556,40 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
             report.loudness_lufs = loud.integrated()
         if s.normalize != "none":
             target = s.target if s.target is not None else DEFAULT_TARGET[s.normalize]
-            level = {"peak": report.peak_dbfs, "truepeak": report.true_peak_dbtp,
-                     "loudness": report.loudness_lufs}[s.normalize]
-            if not np.isfinite(level):
-                why = ("stays below the −70 LUFS gate of the loudness measurement (normalize "
-                       "the peak instead)" if s.normalize == "loudness" else "is silent")
-                raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to "
-                                 "normalize")
+            level = {
+                "peak": report.peak_dbfs,
+                "truepeak": report.true_peak_dbtp,
+                "loudness": report.loudness_lufs,
+            }[s.normalize]
+            if level is None or not np.isfinite(level):
+                why = (
+                    "stays below the −70 LUFS gate of the loudness measurement (normalize "
+                    "the peak instead)"
+                    if s.normalize == "loudness"
+                    else "is silent"
+                )
+                raise InputError(
+                    f"{out_path.name}: the rendered signal {why}; nothing to normalize"
+                )
             extra_db = target - level
             if s.normalize == "loudness":
-                extra_db, measured = _loudness_to_target(stage1, target, extra_db, rate,
-                                                         routing.n_out)
+                extra_db, measured = _loudness_to_target(
+                    stage1, target, extra_db, rate, routing.n_out
+                )
                 report.loudness_lufs = measured - extra_db  # shifted back by += below
                 if abs(measured - target) > LOUDNESS_TOLERANCE_LU:
                     report.warnings.append(
                         f"loudness {measured:.2f} LUFS misses the target {target:g} LUFS by "
                         f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
-                        "the measurement's −70 LUFS gate)")
+                        "the measurement's −70 LUFS gate)"
+                    )
             with np.errstate(over="ignore"):
                 scaled_peak = peak.peak * db_to_gain(extra_db)
             if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
-                raise InputError(f"{out_path.name}: normalization would need a gain of "
-                                 f"{extra_db:g} dB, which overflows; nothing written")
+                raise InputError(
+                    f"{out_path.name}: normalization would need a gain of "
+                    f"{extra_db:g} dB, which overflows; nothing written"
+                )
         report.gain_db = s.gain_db + extra_db
         report.peak_dbfs = peak.dbfs + extra_db
         if report.true_peak_dbtp is not None:
@@ -295,9 +597,12 @@ def render_file(dry_path, ir_path, out_path, settings: RenderSettings, *, force:
         if report.loudness_lufs is not None:
             report.loudness_lufs += extra_db
         if report.peak_dbfs > 0:
-            msg = (f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale")
-            msg += (": it will clip in this integer format; lower the gain or normalize the peak"
-                    if integer else "; a later conversion to integer would clip")
+            msg = f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale"
+            msg += (
+                ": it will clip in this integer format; lower the gain or normalize the peak"
+                if integer
+                else "; a later conversion to integer would clip"
+            )
             report.warnings.append(msg)
         if extra_db == 0.0 and not integer:
             stage1.replace(final_tmp)
@@ -324,9 +629,12 @@ def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int
     """Scale, add TPDF dither for integer formats, clip to the format and write."""
     bits = INTEGER_SUBTYPES.get(s.subtype)
     rng = np.random.default_rng(s.seed)
-    with sf.SoundFile(str(src_path)) as src, \
-            sf.SoundFile(str(dst_path), "w", src.samplerate, src.channels, s.subtype,
-                         format=fmt) as dst:
+    with (
+        sf.SoundFile(str(src_path)) as src,
+        sf.SoundFile(
+            str(dst_path), "w", src.samplerate, src.channels, s.subtype, format=fmt
+        ) as dst,
+    ):
         total, done = src.frames, 0
         while True:
             y = src.read(max(B, 65536), dtype="float64", always_2d=True)
@@ -352,9 +660,13 @@ def _check_finite(y: np.ndarray, out_path) -> None:
     """Refuse to write a block holding NaN or ±inf (a file of them plays as silence or as
     a full-scale burst, and is never what was asked for)."""
     if not np.all(np.isfinite(y)):
-        raise InputError(describe(Path(out_path).name,
-                                  "the rendered signal holds NaN or infinite samples (check "
-                                  "the gain and the normalization target); nothing written"))
+        raise InputError(
+            describe(
+                Path(out_path).name,
+                "the rendered signal holds NaN or infinite samples (check "
+                "the gain and the normalization target); nothing written",
+            )
+        )
 
 
 def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
@@ -370,8 +682,9 @@ def _measure_loudness(path, gain_db: float, rate: int, channels: int) -> float:
     return meter.integrated()
 
 
-def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels: int,
-                        tries: int = 4) -> tuple[float, float]:
+def _loudness_to_target(
+    path, target: float, gain_db: float, rate: int, channels: int, tries: int = 4
+) -> tuple[float, float]:
     """Gain (dB) that brings the staged file to ``target`` LUFS, and the loudness measured
     with it.
 
@@ -392,4 +705,3 @@ def _loudness_to_target(path, target: float, gain_db: float, rate: int, channels
         gain_db += target - measured
         measured = _measure_loudness(path, gain_db, rate, channels)
     return gain_db, measured
-

@@ -12,9 +12,9 @@ from .air import speed_of_sound
 from .image_source import image_sources, render_images
 from .materials import OCTAVES
 from .room import RoomModel, eyring, max_reverberation, sabine
-from .tail import band_noise, diffuse_tail
+from .tail import band_noise, diffuse_tail, fit_decay_nodes
 
-__all__ = ["Receivers", "SynthResult", "synthesize"]
+__all__ = ["Receivers", "SynthResult", "synthesize", "mixing_time", "fill_bands", "MIN_DISTANCE_M"]
 
 #: Mean power of a cardioid ½ + ½·cos θ in a diffuse field relative to an omni:
 #: ∫(½ + ½cos θ)² dΩ / 4π = 1/3 (closed form).
@@ -23,6 +23,18 @@ CARDIOID_DIFFUSE_POWER = 1.0 / 3.0
 #: practical noise floor), plus the direct sound's travel time and 0.1 s.
 LENGTH_DECAYS = 1.2
 LENGTH_MARGIN_S = 0.1
+#: Closest source–receiver distance accepted, m (common practice: nearer, the point-source
+#: 1/r law and the loudspeaker's size no longer go together, and 1/r grows without bound).
+MIN_DISTANCE_M = 0.1
+#: The tail never starts before the direct sound plus this, s (our choice: a few ms, past
+#: the direct sound's own interpolation kernel of SINC_HALF samples at any common rate).
+TAIL_AFTER_DIRECT_S = 0.003
+#: Rooms where the sqrt(V) ms rule of thumb is not used (our choice): below this volume, m³,
+#: or with the longest side this many times the shortest.
+SMALL_ROOM_M3 = 50.0
+FLAT_RATIO = 5.0
+#: Below this fraction of the asked octave reading, a band is reported as not reached.
+READING_REPORT = 0.02
 
 
 @dataclass
@@ -79,9 +91,18 @@ class SynthResult:
     used_rt : dict
         Reverberation time per band given to the tail, s.
     mixing_time_s : float
+        Where the tail is centred, s.
     image_count : int
         Images rendered (largest over the channels).
     notes : list of str
+    rt_origin : dict
+        Where each band of ``used_rt`` comes from: 'given', 'interpolated', 'held' (beyond
+        the given range), 'eyring' or 'sabine'.
+    expected_reading : dict
+        The octave-band T30 the tail's decay curve is expected to give, s; equal to
+        ``used_rt`` within FIT_TOLERANCE except in bands named in ``notes``.
+    tail_start_s : float
+        Where the cross-fade into the tail begins, s after emission.
     """
 
     ir: np.ndarray  #: (samples, channels)
@@ -92,6 +113,9 @@ class SynthResult:
     mixing_time_s: float
     image_count: int
     notes: list = field(default_factory=list)
+    rt_origin: dict = field(default_factory=dict)
+    expected_reading: dict = field(default_factory=dict)
+    tail_start_s: float = 0.0
 
 
 def _check_point(room: RoomModel, p, what: str) -> np.ndarray:
@@ -104,6 +128,57 @@ def _check_point(room: RoomModel, p, what: str) -> np.ndarray:
             f"(0..{room.length:g}, 0..{room.width:g}, 0..{room.height:g} m)"
         )
     return a
+
+
+def mixing_time(room: RoomModel) -> tuple[float, str | None]:
+    """Mixing time, s, and a note when the usual rule of thumb does not apply.
+
+    sqrt(V) ms (V in m³) is the common rule of thumb. In very small rooms (under 50 m³) or
+    very flat ones (longest side over 5 × the shortest) reflections thicken at a pace set by
+    the mean free path 4V/S rather than the volume; there the predictor 20·V/S + 12 ms is
+    used instead.
+
+    Parameters
+    ----------
+    room : RoomModel
+
+    Returns
+    -------
+    seconds : float
+    note : str or None
+        Why the rule of thumb was replaced, or None.
+
+    Examples
+    --------
+    >>> from .room import RoomModel
+    >>> round(mixing_time(RoomModel(20, 10, 5))[0] * 1000, 1)
+    31.6
+    >>> t, note = mixing_time(RoomModel(4, 3, 2.5))
+    >>> round(t * 1000, 1), note is not None
+    (22.2, True)
+
+    References
+    ----------
+    Lindau, A., Kosanke, L., Weinzierl, S. (2012). Perceptual evaluation of model- and
+    signal-based predictors of the mixing time in binaural room impulse responses. J. Audio
+    Eng. Soc. 60(11), 887–898 (the 20·V/S + 12 ms predictor; from memory).
+    """
+    V, S = room.volume, room.total_area
+    dims = room.dims
+    rule = np.sqrt(V) / 1000.0
+    small, flat = V < SMALL_ROOM_M3, dims.max() > FLAT_RATIO * dims.min()
+    if not (small or flat):
+        return float(rule), None
+    used = (20.0 * V / S + 12.0) / 1000.0
+    why = (
+        f"the room is very small ({V:.0f} m³)"
+        if small
+        else f"the room is very flat (sides {dims.min():g} to {dims.max():g} m)"
+    )
+    return float(used), (
+        f"{why}: the sqrt(V) rule for the mixing time ({1000 * rule:.0f} ms) does not "
+        f"apply; used 20·V/S + 12 ms = {1000 * used:.0f} ms (mean-free-path predictor)"
+    )
 
 
 def synthesize(
@@ -123,8 +198,10 @@ def synthesize(
 
     Sample 0 is the moment of emission; the direct sound arrives at distance / c. Early
     reflections come from image sources (exact arrival times, per-band wall absorption, air
-    absorption); after the mixing time sqrt(V) ms (a common rule of thumb) a per-band noise tail
-    takes over, decaying at the predicted (or given) reverberation time.
+    absorption); around the mixing time (:func:`mixing_time`), and never before the direct
+    sound plus a few ms, a noise tail takes over whose decay time is a smooth function of
+    frequency, fitted so that octave-band filters read the predicted (or given)
+    reverberation time.
 
     Parameters
     ----------
@@ -136,7 +213,9 @@ def synthesize(
         Mono, spaced pair (along the room's length axis) or coincident cardioids facing the
         source at ±angle/2.
     rt : dict, optional
-        Reverberation time per octave band for the tail, overriding the prediction.
+        Reverberation time per octave band for the tail, overriding the prediction. Bands
+        not given are interpolated between the given ones (log T against log f) and held at
+        the end values beyond them (:func:`fill_bands`).
     prediction : 'eyring' or 'sabine'
         Which formula sets the tail's decay when ``rt`` does not.
     seed : int
@@ -170,27 +249,52 @@ def synthesize(
         raise InputError(f"sample rate {rate} Hz is too low (at least 8000 Hz)")
     src = _check_point(room, source, "source")
     rcv = _check_point(room, receiver, "receiver")
+    distance = float(np.linalg.norm(src - rcv))
+    if distance < MIN_DISTANCE_M:
+        raise InputError(
+            f"source and receiver are {distance:.3f} m apart: closer than "
+            f"{MIN_DISTANCE_M:g} m the direct sound's 1/r level has no meaning; move "
+            "the source and the receiver apart"
+        )
     sab, eyr = sabine(room, air=air), eyring(room, air=air)
-    used = _tail_reverberation(room, eyr if prediction == "eyring" else sab, rt, air)
+    used, origin = _tail_reverberation(
+        room, eyr if prediction == "eyring" else sab, rt, air, prediction
+    )
     c = speed_of_sound(room.temperature_c)
-    t_mix = np.sqrt(room.volume) / 1000.0
+    t_mix, mix_note = mixing_time(room)
     # The crossfade from images to tail spans half the mixing time (our choice).
     fade_s = 0.5 * t_mix
+    direct_s = distance / c
+    fade_start = max(t_mix - fade_s / 2, direct_s + TAIL_AFTER_DIRECT_S)
     if length_s is None:
-        direct_s = float(np.linalg.norm(src - rcv)) / c
         length_s = min(30.0, LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S)
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")
+    notes = [mix_note] if mix_note else []
+    if fade_start > t_mix - fade_s / 2 + 1e-12:
+        notes.append(
+            f"the direct sound arrives at {1000 * direct_s:.1f} ms, too late for the usual "
+            f"cross-fade around the mixing time {1000 * t_mix:.0f} ms: the tail fades in "
+            f"from {1000 * fade_start:.1f} ms instead"
+        )
+    nodes, reading = fit_decay_nodes(used, rate)
+    for b in sorted(used):
+        if abs(reading[b] / used[b] - 1) > READING_REPORT:
+            notes.append(
+                f"{b} Hz: the decay asked for differs so much from the neighbouring bands' "
+                f"that an octave filter will read about {reading[b]:.2f} s, not "
+                f"{used[b]:.2f} s (the neighbours' slower decay leaks through its skirts)"
+            )
 
-    w_early, w_late = _early_late_weights(n, rate, t_mix, fade_s)
+    w_early, w_late = _early_late_weights(n, rate, fade_start, fade_s)
     noises = _tail_noises(rate, n, receivers, np.random.default_rng(seed))
     chans = []
     count = 0
     for noise, (pos, axis) in zip(
         noises, _receiver_positions(room, rcv, src, receivers), strict=True
     ):
-        imgs = image_sources(room, src, pos, max_distance=c * (t_mix + fade_s))
+        imgs = image_sources(room, src, pos, max_distance=c * (fade_start + fade_s))
         count = max(count, imgs.positions.shape[0])
         directivity, tail_gain = _cardioid(imgs, pos, axis)
         early = render_images(
@@ -202,18 +306,70 @@ def synthesize(
             air=air,
             directivity=directivity,
         )
-        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=noise) * tail_gain
-        chans.append(early * w_early + late * w_late)
-    notes = []
+        late = diffuse_tail(used, room.volume, rate, n, c=c, noise=noise, nodes=nodes)
+        chans.append(early * w_early + late * (w_late * tail_gain))
     if receivers.kind == "spaced":
         notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
-    return SynthResult(np.stack(chans, axis=1), rate, sab, eyr, used, float(t_mix), count, notes)
+    return SynthResult(
+        np.stack(chans, axis=1),
+        rate,
+        sab,
+        eyr,
+        used,
+        float(t_mix),
+        count,
+        notes,
+        origin,
+        reading,
+        float(fade_start),
+    )
 
 
-def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: bool) -> dict:
-    """The decay time per band the tail gets: the prediction, overridden by ``rt`` where the
-    air's own absorption allows it."""
+def fill_bands(given: dict, bands=OCTAVES) -> tuple[dict, dict]:
+    """Complete a partial per-band table: log T interpolated linearly in log f between the
+    given bands, held at the end values beyond them.
+
+    Parameters
+    ----------
+    given : dict
+        {band Hz: T s}, at least one band.
+    bands : sequence of float
+        The bands to fill.
+
+    Returns
+    -------
+    values : dict
+        {band: T s} for every band.
+    origin : dict
+        {band: 'given' | 'interpolated' | 'held'}.
+
+    Examples
+    --------
+    >>> v, o = fill_bands({250: 1.0, 1000: 4.0})
+    >>> round(v[500], 2), o[500], v[63], o[63], v[8000], o[8000]
+    (2.0, 'interpolated', 1.0, 'held', 4.0, 'held')
+    """
+    keys = sorted(given)
+    lo, hi = keys[0], keys[-1]
+    x, y = np.log(keys), np.log([given[k] for k in keys])
+    values, origin = {}, {}
+    for b in bands:
+        if b in given:
+            values[b], origin[b] = float(given[b]), "given"
+        else:
+            values[b] = float(np.exp(np.interp(np.log(b), x, y)))
+            origin[b] = "interpolated" if lo < b < hi else "held"
+    return values, origin
+
+
+def _tail_reverberation(
+    room: RoomModel, predicted: dict, rt: dict | None, air: bool, prediction: str = "eyring"
+) -> tuple[dict, dict]:
+    """The decay time per band the tail gets, and where each comes from: the prediction,
+    or ``rt`` (completed by :func:`fill_bands`) where the air's own absorption allows it."""
     used = dict(predicted)
+    origin = {b: prediction for b in used}
+    checked = {}
     for band, T in (rt or {}).items():
         b = float(band)
         if b not in OCTAVES:
@@ -225,19 +381,30 @@ def _tail_reverberation(room: RoomModel, predicted: dict, rt: dict | None, air: 
                 f"room: it must be positive and below {tmax:.1f} s, the limit set "
                 "by air absorption alone"
             )
-        used[int(b)] = float(T)
+        checked[int(b)] = float(T)
+    if checked:
+        used, origin = fill_bands(checked)
+        for b in used:
+            tmax = max_reverberation(room, b) if air else np.inf
+            if used[b] >= tmax:
+                raise InputError(
+                    f"the tail's {b} Hz band, {origin[b]} from the given bands, would be "
+                    f"{used[b]:.2f} s, beyond the {tmax:.1f} s the air alone allows there; "
+                    f"give a value for {b} Hz"
+                )
     if any(not np.isfinite(v) or v <= 0 for v in used.values()):
         raise InputError(
             "the room absorbs everything in some band (α = 1 everywhere): "
             "no reverberation to synthesize"
         )
-    return used
+    return used, origin
 
 
-def _early_late_weights(n: int, rate: int, t_mix: float, fade_s: float):
-    """Crossfade weights from the image sources to the tail, centred on the mixing time."""
+def _early_late_weights(n: int, rate: int, start_s: float, fade_s: float):
+    """Crossfade weights from the image sources to the tail, from ``start_s`` over
+    ``fade_s``."""
     t = np.arange(n) / rate
-    u = np.clip((t - (t_mix - fade_s / 2)) / fade_s, 0, 1)
+    u = np.clip((t - start_s) / fade_s, 0, 1)
     # Equal-power (cos/sin) rather than the raised-cosine step: images and tail are
     # uncorrelated, so their powers, not their amplitudes, must sum to one.
     return np.cos(0.5 * np.pi * u), np.sin(0.5 * np.pi * u)

@@ -1,26 +1,65 @@
-"""The late reverberant tail: per-band noise with an evened envelope, decaying at a given
-reverberation time, at the diffuse-field level a room of volume V implies."""
+"""The late reverberant tail: noise whose decay time is a smooth function of frequency,
+at the diffuse-field level a room of volume V implies.
+
+The decay asked for is a reverberation time per octave band, i.e. what an octave-band filter
+(IEC 61260-1) reading the tail should measure. Between and beyond the octave centres the
+tail needs a decay at every frequency: :func:`decay_curve` draws one through node values,
+linear in log T against log f and held flat beyond the outer bands, and the tail applies it
+per narrow band (six per octave). Because an octave filter also hears its neighbours'
+slopes, :func:`fit_decay_nodes` adjusts the node values until a model of the octave reading
+returns the values asked for, and reports any band it cannot bring there.
+"""
 
 from __future__ import annotations
 
-import numpy as np
+import functools
 
+import numpy as np
+from scipy.signal import butter, fftconvolve, sosfreqz
+
+from ..signal import cosine_step
 from .air import speed_of_sound
 from .image_source import band_weights
 from .materials import OCTAVES
 
-__all__ = ["band_noise", "diffuse_tail"]
+__all__ = [
+    "band_noise",
+    "decay_curve",
+    "octave_reading",
+    "fit_decay_nodes",
+    "diffuse_tail",
+    "NARROW_PER_OCTAVE",
+]
 
 _LN10 = np.log(10)
 #: Envelope-evening window per band: 4 periods of the band's width, at least 10 ms (our
 #: choice, common practice for smoothing a band envelope without following the decay).
 _EVEN_PERIODS = 4.0
 _EVEN_MIN_S = 0.01
+#: Narrow bands per octave carrying their own decay (our choice): fine enough that
+#: neighbouring narrow bands differ by under a fifth of an octave's change in T, few enough
+#: to keep the tail to one inverse FFT per narrow band.
+NARROW_PER_OCTAVE = 6
+#: Lowest narrow band, Hz: everything below it shares its decay.
+_NARROW_LOW_HZ = 20.0
+#: A fitted octave reading within this fraction of the asked value counts as reached (our
+#: choice: a tenth of the 5 % just-noticeable difference of ISO 3382-1, Annex A).
+FIT_TOLERANCE = 0.005
+#: How far a node may move from its asked value while fitting (our choice): beyond this the
+#: curve would need implausible swings, and the band is reported as not reachable instead.
+_NODE_RANGE = 4.0
+#: Exponent of each update (our choice): a full step overshoots where neighbouring bands
+#: pull on each other's readings.
+_STEP = 0.5
+#: A band still this far from its target after fitting is left at its asked value (our
+#: choice, twice the ISO 3382-1 JND of 5 %).
+_GIVE_UP = 0.10
 
 
 def _moving_rms(x: np.ndarray, n: int) -> np.ndarray:
     k = np.ones(max(1, n)) / max(1, n)
-    return np.sqrt(np.maximum(np.convolve(x * x, k, mode="same"), 1e-30))
+    # FFT convolution: a direct one costs samples × window, minutes for long low bands.
+    return np.sqrt(np.maximum(fftconvolve(x * x, k, mode="same"), 1e-30))
 
 
 def band_noise(rate: int, n_samples: int, rng: np.random.Generator, bands=OCTAVES) -> np.ndarray:
@@ -68,6 +107,217 @@ def band_noise(rate: int, n_samples: int, rng: np.random.Generator, bands=OCTAVE
     return out
 
 
+def decay_curve(freqs, nodes: dict) -> np.ndarray:
+    """Decay time at any frequency through per-band node values.
+
+    log T is linear in log f between neighbouring nodes and held at the end values beyond
+    the lowest and highest node.
+
+    Parameters
+    ----------
+    freqs : array_like
+        Frequencies, Hz (values at or below 0 take the lowest node's value).
+    nodes : dict
+        {band centre Hz: T in s}.
+
+    Returns
+    -------
+    ndarray
+        T in s at ``freqs``.
+
+    Examples
+    --------
+    Half-way (in octaves) between 1 s at 500 Hz and 4 s at 1 kHz is the geometric mean:
+
+    >>> decay_curve([250.0, 707.1, 2000.0], {500: 1.0, 1000: 4.0}).round(2).tolist()
+    [1.0, 2.0, 4.0]
+    """
+    b = np.array(sorted(nodes), float)
+    v = np.log([nodes[k] for k in sorted(nodes)])
+    lf = np.log(np.maximum(np.asarray(freqs, float), 1e-6))
+    return np.exp(np.interp(lf, np.log(b), v))
+
+
+def narrow_centres(rate: int) -> np.ndarray:
+    """Centres of the narrow decay bands, Hz: NARROW_PER_OCTAVE per octave from 20 Hz up to
+    below Nyquist."""
+    n = int(np.floor(np.log2(0.5 * rate / _NARROW_LOW_HZ) * NARROW_PER_OCTAVE))
+    return _NARROW_LOW_HZ * 2.0 ** (np.arange(n + 1) / NARROW_PER_OCTAVE)
+
+
+def _narrow_weight(freqs: np.ndarray, centres: np.ndarray, i: int) -> np.ndarray:
+    """Row ``i`` of ``band_weights(freqs, centres, 1 / NARROW_PER_OCTAVE)``, computed from its
+    own two crossovers only."""
+    lf = np.log2(np.maximum(freqs, 1e-6))
+    tr = 1.0 / NARROW_PER_OCTAVE
+    w = np.ones_like(lf)
+    if i > 0:
+        w *= cosine_step((lf - 0.5 * np.log2(centres[i - 1] * centres[i])) / tr + 0.5)
+    if i + 1 < centres.size:
+        w *= 1 - cosine_step((lf - 0.5 * np.log2(centres[i] * centres[i + 1])) / tr + 0.5)
+    return w
+
+
+@functools.lru_cache(maxsize=64)
+def _octave_power(rate: int, band: float) -> np.ndarray:
+    """|H|² of an IEC 61260-1 octave band-pass (Butterworth, order 3, or 4 for bands reaching
+    above 15 % of the rate, on the exact base-10 band edges) at ``freqs``."""
+    # Exact mid-band frequency 1000·10^(0.3x) (IEC 61260-1:2014, eq. 2), edges at 10^(±0.15).
+    x = np.round(10 * np.log10(band / 1000.0) / 3)
+    fm = 1000.0 * 10 ** (0.3 * x)
+    lo, hi = fm * 10**-0.15, fm * 10**0.15
+    if hi >= 0.5 * rate:
+        hi = 0.499 * rate
+    order = 3 if hi < 0.15 * rate else 4
+    sos = butter(order, [lo, hi], btype="bandpass", fs=rate, output="sos")
+    _, h = sosfreqz(sos, worN=_grid(rate), fs=rate)
+    return np.abs(h) ** 2
+
+
+def _grid(rate: int) -> np.ndarray:
+    return np.geomspace(10.0, 0.49 * rate, 600)
+
+
+def octave_reading(nodes: dict, rate: int, bands=OCTAVES) -> dict:
+    """Expected octave-band T30 of noise whose decay at each frequency follows
+    :func:`decay_curve` through ``nodes``.
+
+    Each frequency's energy decays as exp(−6 ln10·t/T(f)); through the octave filter and the
+    backward integral this is Σ_f |H(f)|²·T(f)/(6 ln10)·exp(−6 ln10·t/T(f)) in closed form,
+    and T30 is the line fitted to it from −5 to −35 dB.
+
+    Parameters
+    ----------
+    nodes : dict
+        {band Hz: T s}, the curve's nodes.
+    rate : int
+        Sample rate, Hz.
+    bands : sequence of float
+        Octave bands to read.
+
+    Returns
+    -------
+    dict
+        {band: T30 in s}.
+
+    Examples
+    --------
+    A decay that is the same at every frequency is read back unchanged:
+
+    >>> round(octave_reading({b: 1.5 for b in OCTAVES}, 48000)[500], 3)
+    1.5
+
+    References
+    ----------
+    ISO 3382-1:2009, 5.3 (backward integration, T30 from −5 to −35 dB).
+    Schroeder, M. R. (1965). New method of measuring reverberation time. J. Acoust. Soc.
+    Am. 37, 409–412.
+    IEC 61260-1:2014 (octave-band filters).
+    """
+    f = _grid(rate)
+    df = np.gradient(f)
+    k = 6 * _LN10 / decay_curve(f, nodes)  # energy decay rate per frequency, 1/s
+    out = {}
+    for b in bands:
+        g = _octave_power(rate, float(b)) * df / k
+        # Frequencies the filter rejects by more than 70 dB cannot move the fit.
+        m = g > 1e-7 * g.max()
+        g, kb = g[m], k[m]
+        t_max = 3.0 * nodes[b] if b in nodes else 3.0 * max(nodes.values())
+        t = np.linspace(0.0, t_max, 200)
+        s = np.exp(-np.outer(t, kb)) @ g
+        db = 10 * np.log10(np.maximum(s / s[0], 1e-300))
+        sel = (db <= -5) & (db >= -35)
+        if np.count_nonzero(sel) < 10 or db[-1] > -35:
+            # Too slow to reach −35 dB on this grid: widen it once.
+            t = np.linspace(0.0, 3 * t_max, 600)
+            s = np.exp(-np.outer(t, kb)) @ g
+            db = 10 * np.log10(np.maximum(s / s[0], 1e-300))
+            sel = (db <= -5) & (db >= -35)
+        slope = np.polyfit(t[sel], db[sel], 1)[0]
+        out[b] = float(-60.0 / slope)
+    return out
+
+
+def fit_decay_nodes(target: dict, rate: int, *, iterations: int = 20) -> tuple[dict, dict]:
+    """Node values whose curve an octave filter reads as ``target``.
+
+    Starting from the target itself, each node is scaled by target / reading until every
+    band is within :data:`FIT_TOLERANCE` or stops improving; nodes stay within a factor 4
+    of their target. A band still more than 10 % off keeps its asked value as node and the
+    others are fitted again; its reading then differs from the target (the caller reports
+    it).
+
+    Parameters
+    ----------
+    target : dict
+        {octave band Hz: T30 in s} the octave filter should read.
+    rate : int
+        Sample rate, Hz.
+    iterations : int
+        Most updates.
+
+    Returns
+    -------
+    nodes : dict
+        {band: T in s} for :func:`decay_curve`.
+    reading : dict
+        {band: T30 in s} the model reads from the nodes; equal to ``target`` within
+        :data:`FIT_TOLERANCE` where the fit succeeded.
+
+    Examples
+    --------
+    A decay falling by a third per octave is read 6 % slow at 250 Hz before the fit:
+
+    >>> target = {63: 2.6, 125: 2.4, 250: 1.6, 500: 1.1, 1000: 1.0, 2000: 0.9, 4000: 0.8,
+    ...           8000: 0.6}
+    >>> round(octave_reading(target, 48000)[250] / 1.6, 2)
+    1.06
+    >>> nodes, reading = fit_decay_nodes(target, 48000)
+    >>> all(abs(reading[b] / target[b] - 1) < 0.01 for b in target)
+    True
+    """
+    bands = sorted(target)
+    free = set(bands)
+    nodes, reading = _fit(target, dict(target), free, rate, iterations)
+    # A band the fit cannot bring near its target (a much slower neighbour leaks through the
+    # filter's skirts whatever its own node) keeps its node at the asked value, so the decay
+    # within it stays as asked, and the others are fitted again around it.
+    stuck: set = set()
+    for _ in range(len(bands)):
+        more = {b for b in free - stuck if abs(reading[b] / target[b] - 1) > _GIVE_UP}
+        if not more:
+            break
+        stuck |= more
+        nodes, reading = _fit(target, dict(target), free - stuck, rate, iterations)
+    return nodes, reading
+
+
+def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int):
+    bands = sorted(target)
+    reading = octave_reading(nodes, rate, bands)
+
+    def cost(r):
+        return max((abs(np.log(r[b] / target[b])) for b in free), default=0.0)
+
+    best = (cost(reading), dict(nodes), reading)
+    for _ in range(iterations):
+        if best[0] < np.log1p(FIT_TOLERANCE):
+            break
+        for b in free:
+            nodes[b] = float(
+                np.clip(
+                    nodes[b] * (target[b] / reading[b]) ** _STEP,
+                    target[b] / _NODE_RANGE,
+                    target[b] * _NODE_RANGE,
+                )
+            )
+        reading = octave_reading(nodes, rate, bands)
+        if cost(reading) < best[0]:
+            best = (cost(reading), dict(nodes), reading)
+    return best[1], best[2]
+
+
 def diffuse_tail(
     rt: dict,
     volume: float,
@@ -78,16 +328,21 @@ def diffuse_tail(
     seed: int = 0,
     bands=OCTAVES,
     noise: np.ndarray | None = None,
+    nodes: dict | None = None,
 ) -> np.ndarray:
-    """Σ_b noise_b(t) · sqrt(4πc / (V·fs)) · 10^(−3t/T_b).
+    """Noise · sqrt(4πc / (V·fs)) · 10^(−3t/T(f)), T(f) a smooth curve through per-band
+    nodes, applied per narrow band.
 
     The level is the expected energy of image-source arrivals per unit time for a source
-    whose direct sound has amplitude 1/r: 4πc/V (reflection density 4πc³t²/V times 1/(ct)²).
+    whose direct sound has amplitude 1/r: 4πc/V (reflection density 4πc³t²/V times 1/(ct)²),
+    referred to the moment of emission. Integrated from the direct sound's arrival r/c on it
+    is (4πcT/(6 ln10·V))·e^(−6 ln10·r/(cT)) = (312·T/V)·e^(−0.04 r/T) relative to the
+    direct sound's 1/r², Barron and Lee's revised theory.
 
     Parameters
     ----------
     rt : dict
-        Reverberation time per band, {band_hz: seconds}.
+        Reverberation time per octave band an octave filter should read, {band_hz: s}.
     volume : float
         Room volume, m³.
     rate : int
@@ -99,10 +354,12 @@ def diffuse_tail(
     seed : int
         Seed of the noise when ``noise`` is not given.
     bands : sequence of float
-        Octave mid-band frequencies, Hz.
+        Octave mid-band frequencies, Hz, of ``noise``.
     noise : ndarray, optional
         (bands, samples) from :func:`band_noise`, to share or correlate noise between
         channels.
+    nodes : dict, optional
+        The curve's nodes from :func:`fit_decay_nodes` (default: fitted here from ``rt``).
 
     Returns
     -------
@@ -121,14 +378,32 @@ def diffuse_tail(
     ----------
     Kuttruff, H. Room Acoustics (5th ed., 2009), 4.1 (density of reflections) and 5.1
     (exponential decay of the diffuse field).
+    Barron, M., Lee, L.-J. (1988). Energy relations in concert auditoriums, I. J. Acoust. Soc.
+    Am. 84(2), 618–628 (revised theory of the reflected energy).
     """
     if c is None:
         c = speed_of_sound(20.0)
     if noise is None:
         noise = band_noise(rate, n_samples, np.random.default_rng(seed), bands)
+    if nodes is None:
+        nodes, _ = fit_decay_nodes({b: rt[b] for b in bands}, rate)
+    white = noise.sum(axis=0)
+    nfft = 1 << int(np.ceil(np.log2(n_samples)))
+    Z = np.fft.rfft(white, nfft)
+    centres = narrow_centres(rate)
+    freqs = np.fft.rfftfreq(nfft, 1.0 / rate)
+    T = decay_curve(centres, nodes)
     t = np.arange(n_samples) / rate
-    level = np.sqrt(4 * np.pi * c / (volume * rate))
     out = np.zeros(n_samples)
-    for i, b in enumerate(bands):
-        out += noise[i] * np.exp(-3 * _LN10 * t / rt[b])
-    return out * level
+    spec = np.zeros_like(Z)
+    for i in range(centres.size):
+        # A narrow band's weight is zero outside its neighbours' centres: evaluate it on
+        # that slice only, so memory stays one spectrum however many bands there are.
+        lo = np.searchsorted(freqs, centres[i - 1]) if i > 0 else 0
+        hi = np.searchsorted(freqs, centres[i + 1], "right") if i + 1 < centres.size else None
+        sl = slice(lo, hi)
+        w = _narrow_weight(freqs[sl], centres, i)
+        spec[:] = 0
+        spec[sl] = Z[sl] * w
+        out += np.fft.irfft(spec, nfft)[:n_samples] * np.exp(-3 * _LN10 * t / T[i])
+    return out * np.sqrt(4 * np.pi * c / (volume * rate))

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from roomconv.demo import QUICK, linden_hall
+from roomconv.demo import QUICK, quillmere_hall
 from roomconv.synth.room import eyring
 
 
@@ -20,15 +20,21 @@ def demo(tmp_path_factory):
 
 
 def test_measured_t30_follows_the_prediction(demo):
+    # The comparison: the T30 averaged over the measured positions (ISO 3382-1 backward
+    # integration on IEC 61260-1 octave filters, read through the simulated sweep chain)
+    # against Eyring's formula for the hall (Eyring 1930), per octave band. It is fair
+    # because the synthetic hall's tail is made to decay at exactly that prediction as an
+    # octave filter reads it, so what is left to differ is the measuring chain (sweep,
+    # distortion, noise, deconvolution) and the randomness of two positions. 10 % in every
+    # band: twice the ISO 3382-1 JND of 5 % (Annex A, from memory), for two positions only.
     doc = json.loads((demo / "results.json").read_text())
-    pred = eyring(linden_hall())
+    pred = eyring(quillmere_hall())
     avg = {r["band_hz"]: r["t30_s"]["mean"] for r in doc["average"]["bands"]}
-    for band in (63, 125, 250, 500, 1000, 2000, 4000):
+    for band in (63, 125, 250, 500, 1000, 2000, 4000, 8000):
         assert avg[band] == pytest.approx(pred[band], rel=0.10), band
-    # At 8 kHz air absorption makes T fall steeply across the octave; the band filter then
-    # reads the slower lower edge (see the issue note), so the margin there is wider.
-    assert avg[8000] == pytest.approx(pred[8000], rel=0.15)
     assert len(doc["measured_vs_predicted"]) == 8
+    for row in doc["measured_vs_predicted"]:
+        assert abs(row["deviation_pct"]) < 10, row
 
 
 def test_every_position_has_a_quality_verdict(demo):
@@ -65,3 +71,16 @@ def test_demo_refuses_a_non_empty_folder_without_force(tmp_path, cli):
     code, _, err = cli("demo", "--out", tmp_path, "--quick")
     assert code == 2 and "--force" in err
     assert (tmp_path / "keep.txt").read_text() == "mine"
+
+
+def test_demo_writes_the_study_report_as_html_and_pdf(demo):
+    # The demo's study file loads and names every position; the report comes as both files.
+    from roomconv.study import load_study
+    study = load_study(demo / "study.toml")
+    assert len(study.responses) == len(QUICK.sources) * len(QUICK.receivers)
+    # ISO 32000-1:2008, 7.5.2 (from memory): a PDF file begins with "%PDF-".
+    assert (demo / "report" / "report.pdf").read_bytes().startswith(b"%PDF-")
+    page = (demo / "report" / "report.html").read_text()
+    assert "Quillmere Hall" in page and "Measurement grade (ISO 3382-2)" in page
+    # 1 source × 2 receivers: survey grade (ISO 3382-2:2008, Table 1, from memory).
+    assert "<p class='grade'>Survey</p>" in page

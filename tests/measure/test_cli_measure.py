@@ -15,8 +15,9 @@ FS = 48000
 @pytest.fixture
 def setup(tmp_path, cli):
     sweep = tmp_path / "sweep.wav"
-    code, out, err = cli("sweep", sweep, "--duration", 2, "--silence", 1, "--low", 10,
-                         "--high", 22000)
+    code, out, err = cli(
+        "sweep", sweep, "--duration", 2, "--silence", 1, "--low", 10, "--high", 22000
+    )
     assert code == 0, err
     x, _ = sf.read(sweep)
     room = band_limited_room(FS, rt=0.25, length_s=0.5)
@@ -37,8 +38,18 @@ def test_sweep_writes_wav_and_sidecar(setup):
 
 def test_extract_writes_ir_quality_and_harmonics(setup, cli):
     tmp, sweep, rec, room = setup
-    code, out, err = cli("extract", rec, "--sweep", sweep, "-o", tmp / "ir.wav",
-                         "--json", tmp / "q.json", "--harmonics", tmp / "harm")
+    code, out, err = cli(
+        "extract",
+        rec,
+        "--sweep",
+        sweep,
+        "-o",
+        tmp / "ir.wav",
+        "--json",
+        tmp / "q.json",
+        "--harmonics",
+        tmp / "harm",
+    )
     assert code == 0, err
     assert "impulse-to-noise ratio (INR)" in out
     assert "peak-to-noise" not in out
@@ -49,7 +60,11 @@ def test_extract_writes_ir_quality_and_harmonics(setup, cli):
     assert q["method"] == "analytic_inverse"
     assert q["ir"]["peak_sample"] == [int(np.argmax(np.abs(room)))]
     assert sorted(p.name for p in (tmp / "harm").iterdir()) == [
-        "ir_h2.wav", "ir_h3.wav", "ir_h4.wav", "ir_h5.wav"]
+        "ir_h2.wav",
+        "ir_h3.wav",
+        "ir_h4.wav",
+        "ir_h5.wav",
+    ]
     prov = json.loads((tmp / "ir.provenance.json").read_text())
     assert {i["file"] for i in prov["inputs"]} == {str(rec), str(sweep)}
 
@@ -76,35 +91,54 @@ def test_rate_mismatch_is_refused(setup, cli, tmp_path):
     tmp, sweep, rec, _ = setup
     y, _ = sf.read(rec)
     sf.write(tmp / "rec44.wav", y, 44100)
-    _expect_refusal(cli, ["extract", tmp / "rec44.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
-                    "44100 Hz", tmp / "o.wav")
+    _expect_refusal(
+        cli,
+        ["extract", tmp / "rec44.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
+        "44100 Hz",
+        tmp / "o.wav",
+    )
 
 
 def test_short_recording_is_refused(setup, cli):
     tmp, sweep, rec, _ = setup
     y, _ = sf.read(rec)
     sf.write(tmp / "short.wav", y[: y.size // 3], FS)
-    _expect_refusal(cli, ["extract", tmp / "short.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
-                    "shorter than the sweep", tmp / "o.wav")
+    _expect_refusal(
+        cli,
+        ["extract", tmp / "short.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
+        "shorter than the sweep",
+        tmp / "o.wav",
+    )
 
 
-@pytest.mark.parametrize("kind, text", [("silent", "silent"), ("nan", "NaN"),
-                                        ("clipped", "clipped")])
+@pytest.mark.parametrize(
+    "kind, text", [("silent", "silent"), ("nan", "NaN"), ("clipped", "clipped")]
+)
 def test_unusable_recordings_are_refused(setup, cli, kind, text):
     tmp, sweep, rec, _ = setup
     y, _ = sf.read(rec)
-    bad = {"silent": np.zeros_like(y), "nan": np.where(np.arange(y.size) == 100, np.nan, y),
-           "clipped": np.clip(4 * y, -1, 1)}[kind]
+    bad = {
+        "silent": np.zeros_like(y),
+        "nan": np.where(np.arange(y.size) == 100, np.nan, y),
+        "clipped": np.clip(4 * y, -1, 1),
+    }[kind]
     sf.write(tmp / "bad.wav", bad, FS, subtype="FLOAT")
-    _expect_refusal(cli, ["extract", tmp / "bad.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
-                    text, tmp / "o.wav")
+    _expect_refusal(
+        cli,
+        ["extract", tmp / "bad.wav", "--sweep", sweep, "-o", tmp / "o.wav"],
+        text,
+        tmp / "o.wav",
+    )
 
 
 def test_missing_reference_channel_is_refused(setup, cli):
     tmp, sweep, rec, _ = setup
-    _expect_refusal(cli, ["extract", rec, "--sweep", sweep, "-o", tmp / "o.wav",
-                          "--reference-channel", 3], "reference channel 3 does not exist",
-                    tmp / "o.wav")
+    _expect_refusal(
+        cli,
+        ["extract", rec, "--sweep", sweep, "-o", tmp / "o.wav", "--reference-channel", 3],
+        "reference channel 3 does not exist",
+        tmp / "o.wav",
+    )
 
 
 def test_existing_output_needs_force_and_inputs_are_never_overwritten(setup, cli):
@@ -163,6 +197,7 @@ def test_measure_refuses_a_level_above_the_cap(tmp_path, cli):
 def test_device_numbers_are_indices_and_words_are_names():
     # sounddevice reads a str as part of a device name, an int as its index.
     from roomconv.cli import build_parser, device_spec
+
     assert device_spec("0") == 0 and device_spec(" 12 ") == 12
     assert device_spec("USB Audio") == "USB Audio" and device_spec("hw:1,0") == "hw:1,0"
     a = build_parser().parse_args(["measure", "ir.wav", "--device", "3"])

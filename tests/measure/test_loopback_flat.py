@@ -40,8 +40,7 @@ def _card(x, rate):
 
 
 def _simulate(rate, seed=0):
-    s = Sweep(rate=rate, f_low=F1, f_high=F2, duration=DURATION, silence_pre=0.3,
-              silence_post=0.8)
+    s = Sweep(rate=rate, f_low=F1, f_high=F2, duration=DURATION, silence_pre=0.3, silence_post=0.8)
     played = _card(np.concatenate([sweep_signal(s), np.zeros(int(0.3 * rate))]), rate)
     b, a = _room(rate)
     d = int(ROOM_DELAY_S * rate)
@@ -125,8 +124,9 @@ def test_spectral_division_is_flat_across_the_estimated_band():
 def test_repeated_sweeps_with_loopback_stay_flat():
     # Three sweeps averaged, harmonics separated: the same check band and limit as above.
     rate = 48000
-    s = Sweep(rate=rate, f_low=F1, f_high=F2, duration=1.5, silence_pre=0.3,
-              silence_post=1.0, repeats=3)
+    s = Sweep(
+        rate=rate, f_low=F1, f_high=F2, duration=1.5, silence_pre=0.3, silence_post=1.0, repeats=3
+    )
     played = _card(np.concatenate([sweep_signal(s), np.zeros(int(0.3 * rate))]), rate)
     b, a = _room(rate)
     d = int(ROOM_DELAY_S * rate)

@@ -32,16 +32,42 @@ def _alsa_available() -> str | None:
 
 @pytest.mark.skipif(_alsa_available() is not None, reason=str(_alsa_available()))
 def test_measure_through_portaudio_file_device(tmp_path):
-    s = Sweep(rate=FS, f_low=10, f_high=22000, duration=1.5, level_dbfs=-20,
-              silence_pre=0.3, silence_post=1.0)
+    s = Sweep(
+        rate=FS,
+        f_low=10,
+        f_high=22000,
+        duration=1.5,
+        level_dbfs=-20,
+        silence_pre=0.3,
+        silence_post=1.0,
+    )
     room = band_limited_room(FS, rt=0.15, length_s=0.3) * 0.3
     answer = fftconvolve(sweep_signal(s), room)
     capture = np.zeros(answer.size + 3 * FS)
     capture[: answer.size] = answer
     env = alsa_file_device(tmp_path, capture)
-    cmd = [sys.executable, "-m", "roomconv", "measure", str(tmp_path / "ir.wav"), "--yes",
-           "--duration", "1.5", "--low", "10", "--high", "22000", "--pre", "0.3",
-           "--silence", "1.0", "--level", "-20", "--length", "0.5"]
+    cmd = [
+        sys.executable,
+        "-m",
+        "roomconv",
+        "measure",
+        str(tmp_path / "ir.wav"),
+        "--yes",
+        "--duration",
+        "1.5",
+        "--low",
+        "10",
+        "--high",
+        "22000",
+        "--pre",
+        "0.3",
+        "--silence",
+        "1.0",
+        "--level",
+        "-20",
+        "--length",
+        "0.5",
+    ]
     proc = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=90)
     assert proc.returncode == 0, proc.stderr
     assert "CAUTION" in proc.stderr
@@ -51,7 +77,7 @@ def test_measure_through_portaudio_file_device(tmp_path):
     # or take a buffer the driver may insert): align on the cross-correlation, then compare.
     lag = int(np.argmax(np.abs(np.correlate(ir[:4000], room[:2000], mode="valid"))))
     assert lag < 4000 - 2000
-    assert rel_error_db(ir[lag:lag + room.size], room) < -60
+    assert rel_error_db(ir[lag : lag + room.size], room) < -60
     # What was played is the sweep, capped: never above the level asked for.
     played = np.fromfile(tmp_path / "PLAYED.raw", dtype="<f4")
     assert played.size > 0
@@ -73,8 +99,9 @@ def test_level_meter_through_portaudio_file_device(tmp_path):
     # The capture file holds a tone at −20 dBFS; the meter must read it while "recording".
     t = np.arange(3 * FS) / FS
     env = alsa_file_device(tmp_path, 0.1 * np.sin(2 * np.pi * 500 * t))
-    proc = subprocess.run([sys.executable, "-c", METER_SCRIPT], env=env, capture_output=True,
-                          text=True, timeout=60)
+    proc = subprocess.run(
+        [sys.executable, "-c", METER_SCRIPT], env=env, capture_output=True, text=True, timeout=60
+    )
     assert proc.returncode == 0, proc.stderr
     count, peak, last, frames = proc.stdout.split()
     assert int(count) >= 3 and float(last) == 1.0 and int(frames) == 24000

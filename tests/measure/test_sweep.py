@@ -5,8 +5,14 @@ import pytest
 from scipy.signal import hilbert
 
 from roomconv.errors import InputError
-from roomconv.measure.sweep import (Sweep, harmonic_delay, instantaneous_frequency,
-                                    inverse_filter, sweep_only, sweep_signal)
+from roomconv.measure.sweep import (
+    Sweep,
+    harmonic_delay,
+    instantaneous_frequency,
+    inverse_filter,
+    sweep_only,
+    sweep_signal,
+)
 
 
 def test_instantaneous_frequency_follows_farina_closed_form():
@@ -55,12 +61,15 @@ def test_inverse_filter_gives_flat_unit_response_in_band():
     assert np.max(np.abs(mag_db)) < 0.01
 
 
-@pytest.mark.parametrize("kwargs, text", [
-    (dict(f_low=100, f_high=50), "not increasing"),
-    (dict(rate=48000, f_high=30000), "Nyquist"),
-    (dict(repeats=0), "at least 1"),
-    (dict(level_dbfs=3.0), "above full scale"),
-])
+@pytest.mark.parametrize(
+    "kwargs, text",
+    [
+        (dict(f_low=100, f_high=50), "not increasing"),
+        (dict(rate=48000, f_high=30000), "Nyquist"),
+        (dict(repeats=0), "at least 1"),
+        (dict(level_dbfs=3.0), "above full scale"),
+    ],
+)
 def test_bad_parameters_are_explained(kwargs, text):
     with pytest.raises(InputError, match=text):
         Sweep(**kwargs)

@@ -18,8 +18,14 @@ ROOT = Path(__file__).resolve().parents[2]
 RATE = 16000
 
 
-def write_noise(path, seconds: float, channels: int = 1, rate: int = RATE, seed: int = 0,
-                decay: float | None = None) -> Path:
+def write_noise(
+    path,
+    seconds: float,
+    channels: int = 1,
+    rate: int = RATE,
+    seed: int = 0,
+    decay: float | None = None,
+) -> Path:
     """White noise (optionally decaying exponentially, as a toy room response)."""
     rng = np.random.default_rng(seed)
     n = int(seconds * rate)
@@ -33,9 +39,15 @@ def write_noise(path, seconds: float, channels: int = 1, rate: int = RATE, seed:
 def start_cli(*args, cwd=None) -> subprocess.Popen:
     """``python -m roomconv ARGS`` as a child process of its own session."""
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.Popen([sys.executable, "-m", "roomconv", *map(str, args)], cwd=cwd,
-                            env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True, start_new_session=True)
+    return subprocess.Popen(
+        [sys.executable, "-m", "roomconv", *map(str, args)],
+        cwd=cwd,
+        env=env,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
 
 
 def run_cli(*args, cwd=None, timeout: float = 60) -> tuple[int, str, str]:

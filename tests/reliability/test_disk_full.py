@@ -19,8 +19,12 @@ def small_disk(tmp_path):
     mnt.mkdir()
     if os.geteuid() != 0 or not shutil.which("mount"):
         pytest.skip("a small tmpfs needs root and mount(8)")
-    r = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=1m", "tmpfs", str(mnt)],
-                       capture_output=True, text=True, check=False)
+    r = subprocess.run(
+        ["mount", "-t", "tmpfs", "-o", "size=1m", "tmpfs", str(mnt)],
+        capture_output=True,
+        text=True,
+        check=False,
+    )
     if r.returncode != 0:
         pytest.skip(f"cannot mount a tmpfs here: {r.stderr.strip()}")
     try:
@@ -52,15 +56,34 @@ def test_extract_whose_later_output_hits_a_full_disk_leaves_none(small_disk, tmp
     ir = write_noise(tmp_path / "room.wav", 0.3, seed=1, decay=15.0)
     sweep = ["--rate", 16000, "--duration", 1, "--silence", 0.6, "--high", 7000]
     assert cli("sweep", tmp_path / "sw.wav", *sweep)[0] == 0
-    assert cli("measure", tmp_path / "ref.wav", "--simulate", ir, *sweep,
-               "--save-recording", tmp_path / "rec.wav")[0] == 0
+    assert (
+        cli(
+            "measure",
+            tmp_path / "ref.wav",
+            "--simulate",
+            ir,
+            *sweep,
+            "--save-recording",
+            tmp_path / "rec.wav",
+        )[0]
+        == 0
+    )
     # Leave room for the response (9600 float samples, about 38 kB) but not for the rest.
     st = os.statvfs(small_disk)
     filler = small_disk / "filler.bin"
     filler.write_bytes(b"\0" * (st.f_bavail * st.f_frsize - 56 * 1024))
-    code, _, err = cli("extract", tmp_path / "rec.wav", "--sweep", tmp_path / "sw.wav",
-                       "-o", small_disk / "x.wav", "--harmonics", small_disk / "harm",
-                       "--json", small_disk / "x.quality.json")
+    code, _, err = cli(
+        "extract",
+        tmp_path / "rec.wav",
+        "--sweep",
+        tmp_path / "sw.wav",
+        "-o",
+        small_disk / "x.wav",
+        "--harmonics",
+        small_disk / "harm",
+        "--json",
+        small_disk / "x.quality.json",
+    )
     assert code == 2, err
     assert "no space left on device while writing" in err
     # The response was written before the disk filled up; the failed run removed it again.

@@ -40,8 +40,9 @@ def test_signal_during_render_removes_temp_files_and_exits_128_plus_n(long_job, 
 
 def test_sigkill_leftovers_are_removed_by_the_next_run_and_nothing_else(long_job):
     folder, dry, ir = long_job
-    p = start_cli("render", dry, "--ir", ir, "-o", folder / "first.wav", "--normalize",
-                  "loudness", "--quiet")
+    p = start_cli(
+        "render", dry, "--ir", ir, "-o", folder / "first.wav", "--normalize", "loudness", "--quiet"
+    )
     assert wait_for(lambda: temps(folder), timeout=60)
     p.send_signal(signal.SIGKILL)
     p.wait(timeout=30)
@@ -50,9 +51,13 @@ def test_sigkill_leftovers_are_removed_by_the_next_run_and_nothing_else(long_job
     assert all(t.name.startswith(f".rc-{audio._HOST}-{p.pid}-") for t in left)
     # Files that merely look similar, and a temp file of a live process, must survive.
     other_host = "0000" if audio._HOST != "0000" else "ffff"
-    bystanders = [folder / ".rc-notapid.tmp", folder / ".first.wav.abc.part",
-                  folder / f".rc-{audio._HOST}-{os.getpid()}-keepme01.tmp",
-                  folder / f".rc-{other_host}-{p.pid}-otherhost.tmp", folder / "notes.tmp"]
+    bystanders = [
+        folder / ".rc-notapid.tmp",
+        folder / ".first.wav.abc.part",
+        folder / f".rc-{audio._HOST}-{os.getpid()}-keepme01.tmp",
+        folder / f".rc-{other_host}-{p.pid}-otherhost.tmp",
+        folder / "notes.tmp",
+    ]
     for b in bystanders:
         b.write_text("x")
     old = time.time() - 3600

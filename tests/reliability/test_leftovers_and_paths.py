@@ -48,17 +48,26 @@ def test_batch_with_only_bad_inputs_leaves_no_output_folder(files, cli):
     tmp, _, ir, bad = files
     fifo = tmp / "pipe.wav"
     os.mkfifo(fifo)
-    code, _, err = cli("batch", bad, fifo, "--ir", ir, "--out-dir", tmp / "newout",
-                       "--workers", 1)
+    code, _, err = cli("batch", bad, fifo, "--ir", ir, "--out-dir", tmp / "newout", "--workers", 1)
     assert code == 2 and "bad.wav" in err and "pipe.wav" in err
     assert not (tmp / "newout").exists()
 
 
 def test_failed_extraction_in_measure_leaves_no_recording(files, cli):
     tmp, _, ir, _ = files
-    code, _, err = cli("measure", tmp / "m.wav", "--simulate", ir, *SWEEP,
-                       "--reference-channel", 5, "--save-recording", tmp / "rec.wav",
-                       "--harmonics", tmp / "harm")
+    code, _, err = cli(
+        "measure",
+        tmp / "m.wav",
+        "--simulate",
+        ir,
+        *SWEEP,
+        "--reference-channel",
+        5,
+        "--save-recording",
+        tmp / "rec.wav",
+        "--harmonics",
+        tmp / "harm",
+    )
     assert code == 2 and one_line(err)
     assert not any(p.exists() for p in (tmp / "rec.wav", tmp / "m.wav", tmp / "harm"))
 
@@ -68,22 +77,46 @@ def test_existing_file_as_report_or_harmonics_folder(files, cli):
     code, _, err = cli("analyze", ir, "--report", dry)
     assert code == 2 and "dry.wav" in err and "not a folder" in err
     assert cli("sweep", tmp / "sw.wav", *SWEEP)[0] == 0
-    assert cli("measure", tmp / "ref.wav", "--simulate", ir, *SWEEP,
-               "--save-recording", tmp / "rec.wav")[0] == 0
-    code, _, err = cli("extract", tmp / "rec.wav", "--sweep", tmp / "sw.wav", "-o",
-                       tmp / "x.wav", "--harmonics", dry)
+    assert (
+        cli(
+            "measure",
+            tmp / "ref.wav",
+            "--simulate",
+            ir,
+            *SWEEP,
+            "--save-recording",
+            tmp / "rec.wav",
+        )[0]
+        == 0
+    )
+    code, _, err = cli(
+        "extract",
+        tmp / "rec.wav",
+        "--sweep",
+        tmp / "sw.wav",
+        "-o",
+        tmp / "x.wav",
+        "--harmonics",
+        dry,
+    )
     assert code == 2 and "dry.wav" in err and "not a folder" in err
     assert not (tmp / "x.wav").exists()
 
 
-@pytest.mark.parametrize("case", ["dir-output", "empty-output", "long-name", "long-path",
-                                  "loop-output"])
+@pytest.mark.parametrize(
+    "case", ["dir-output", "empty-output", "long-name", "long-path", "loop-output"]
+)
 def test_bad_output_names_are_refused(files, cli, case):
     tmp, dry, ir, _ = files
     (tmp / "loop1").symlink_to(tmp / "loop2")
     (tmp / "loop2").symlink_to(tmp / "loop1")
-    out = {"dir-output": tmp, "empty-output": "", "long-name": tmp / ("n" * 300 + ".wav"),
-           "long-path": tmp / ("d/" * 2500 + "x.wav"), "loop-output": tmp / "loop1"}[case]
+    out = {
+        "dir-output": tmp,
+        "empty-output": "",
+        "long-name": tmp / ("n" * 300 + ".wav"),
+        "long-path": tmp / ("d/" * 2500 + "x.wav"),
+        "loop-output": tmp / "loop1",
+    }[case]
     code, _, err = cli("render", dry, "--ir", ir, "-o", out)
     assert code == 2 and one_line(err), err
     assert len(err) < 600  # a 5000-character path is shortened in the message
@@ -103,8 +136,12 @@ def test_bad_inputs_are_refused_before_opening(files, case):
     p = start_cli("render", src, "--ir", ir, "-o", tmp / "o.wav")
     _, err = p.communicate(timeout=60)
     assert p.returncode == 2 and one_line(err) and f"in-{case}" in err
-    expect = {"fifo": "not a regular file", "directory": "is a directory",
-              "loop": "loop of symbolic links", "missing": "not found"}[case]
+    expect = {
+        "fifo": "not a regular file",
+        "directory": "is a directory",
+        "loop": "loop of symbolic links",
+        "missing": "not found",
+    }[case]
     assert expect in err
 
 
@@ -115,8 +152,9 @@ def test_side_input_that_is_not_a_file_is_refused_without_hanging(tmp_path, case
         os.mkfifo(side)
     else:
         side.mkdir()
-    p = start_cli("synth", tmp_path / "room.wav", "--room", "5x4x3", "--rate", RATE,
-                  "--materials-file", side)
+    p = start_cli(
+        "synth", tmp_path / "room.wav", "--room", "5x4x3", "--rate", RATE, "--materials-file", side
+    )
     _, err = p.communicate(timeout=60)
     assert p.returncode == 2 and one_line(err) and "extra_materials.json" in err
     assert not (tmp_path / "room.wav").exists()

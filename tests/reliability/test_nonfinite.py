@@ -35,20 +35,31 @@ def files(tmp_path):
     return tmp_path
 
 
-@pytest.mark.parametrize("args", [
-    ["--gain", "nan"], ["--gain", "1000"], ["--normalize", "peak", "--target", "nan"],
-    ["--normalize", "loudness", "--target", "-inf"], ["--mix", "nan"],
-])
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["--gain", "nan"],
+        ["--gain", "1000"],
+        ["--normalize", "peak", "--target", "nan"],
+        ["--normalize", "loudness", "--target", "-inf"],
+        ["--mix", "nan"],
+    ],
+)
 def test_non_finite_or_overflowing_settings_write_nothing(files, cli, args):
-    code, _, err = cli("render", files / "dry.wav", "--ir", files / "ir.wav", "-o",
-                       files / "wet.wav", *args)
+    code, _, err = cli(
+        "render", files / "dry.wav", "--ir", files / "ir.wav", "-o", files / "wet.wav", *args
+    )
     assert code == 2, err
     assert sorted(os.listdir(files)) == ["dry.wav", "ir.wav"]
 
 
 def test_library_settings_refuse_non_finite_values():
-    for kw in ({"gain_db": math.nan}, {"mix": math.inf}, {"predelay_ms": -math.inf},
-               {"normalize": "peak", "target": math.nan}):
+    for kw in (
+        {"gain_db": math.nan},
+        {"mix": math.inf},
+        {"predelay_ms": -math.inf},
+        {"normalize": "peak", "target": math.nan},
+    ):
         with pytest.raises(InputError):
             RenderSettings(**kw).check()
 
@@ -59,10 +70,20 @@ def test_render_that_would_overflow_a_float_file_is_refused(tmp_path, cli):
     big = np.full((1000, 1), 1e36)
     sf.write(tmp_path / "loud.wav", big, FS, subtype="FLOAT")
     sf.write(tmp_path / "one.wav", np.array([1.0]), FS, subtype="FLOAT")
-    assert 1e36 * 10.0 ** (60 / 20) > float(np.finfo(np.float32).max)
+    assert float(np.finfo(np.float32).max) < 1e36 * 10.0 ** (60 / 20)
     for precision in ("float64", "float32"):  # overflow after the engine, or inside it
-        code, _, err = cli("render", tmp_path / "loud.wav", "--ir", tmp_path / "one.wav",
-                           "-o", tmp_path / "o.wav", "--gain", "60", "--precision", precision)
+        code, _, err = cli(
+            "render",
+            tmp_path / "loud.wav",
+            "--ir",
+            tmp_path / "one.wav",
+            "-o",
+            tmp_path / "o.wav",
+            "--gain",
+            "60",
+            "--precision",
+            precision,
+        )
         assert code == 2 and "o.wav" in err and "nothing written" in err, err
         assert len(err.strip().splitlines()) == 1, err
         assert sorted(os.listdir(tmp_path)) == ["loud.wav", "one.wav"]
@@ -71,8 +92,12 @@ def test_render_that_would_overflow_a_float_file_is_refused(tmp_path, cli):
 def test_live_processor_checks_its_numbers_before_any_stream():
     ir = np.zeros(64)
     ir[0] = 1.0
-    for kw in ({"gain_db": math.nan}, {"mix": math.nan}, {"ceiling_dbfs": 0.0},
-               {"gain_db": math.inf}):
+    for kw in (
+        {"gain_db": math.nan},
+        {"mix": math.nan},
+        {"ceiling_dbfs": 0.0},
+        {"gain_db": math.inf},
+    ):
         with pytest.raises(InputError):
             LiveProcessor(ir, FS, block=128, **kw)
     bad = ir.copy()

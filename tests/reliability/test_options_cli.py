@@ -141,8 +141,7 @@ def _base(cmd: str, d: Path) -> list:
     }[cmd]
 
 
-@pytest.mark.parametrize("cmd, bad, option", CORPUS,
-                         ids=[f"{c}{''.join(b)}" for c, b, _ in CORPUS])
+@pytest.mark.parametrize("cmd, bad, option", CORPUS, ids=[f"{c}{''.join(b)}" for c, b, _ in CORPUS])
 def test_bad_value_is_a_one_line_refusal_naming_the_option(work, cli, cmd, bad, option):
     before = sorted(os.listdir(work))
     args = _base(cmd, work)
@@ -189,8 +188,16 @@ def test_debug_and_quiet_before_or_after_the_command(work, cli):
 def _run(args, **kw):
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
     env.update(kw.pop("env", {}))
-    return subprocess.run([sys.executable, *args], capture_output=True, text=True, env=env,
-                          check=False, timeout=60, cwd=ROOT, **kw)
+    return subprocess.run(
+        [sys.executable, *args],
+        capture_output=True,
+        text=True,
+        env=env,
+        check=False,
+        timeout=60,
+        cwd=ROOT,
+        **kw,
+    )
 
 
 @pytest.mark.parametrize("how", ["devnull", "dumb"])

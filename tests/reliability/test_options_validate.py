@@ -41,8 +41,18 @@ def test_ranges_and_counts():
         validate.non_negative(-1e-9, "fade-in")
 
 
-@pytest.mark.parametrize("rate, ok", [(0, False), (1, False), (7999, False), (8000, True),
-                                      (48000, True), (384000, True), (384001, False)])
+@pytest.mark.parametrize(
+    "rate, ok",
+    [
+        (0, False),
+        (1, False),
+        (7999, False),
+        (8000, True),
+        (48000, True),
+        (384000, True),
+        (384001, False),
+    ],
+)
 def test_sample_rate_bounds(rate, ok):
     if ok:
         assert validate.sample_rate(rate) == rate
@@ -78,5 +88,5 @@ def test_bad_channel_lists(text):
 
 
 def test_human_bytes():
-    assert validate.human_bytes(3 * 1024 ** 3) == "3 GiB"
+    assert validate.human_bytes(3 * 1024**3) == "3 GiB"
     assert validate.human_bytes(512) == "512 bytes"

@@ -37,8 +37,9 @@ def files(tmp_path):
 def test_measure_recording_never_replaces_the_simulated_room(files, cli):
     tmp, _, ir = files
     before = digest(ir)
-    code, _, err = cli("measure", tmp / "m.wav", "--simulate", ir, *SWEEP,
-                       "--save-recording", ir, "--force")
+    code, _, err = cli(
+        "measure", tmp / "m.wav", "--simulate", ir, *SWEEP, "--save-recording", ir, "--force"
+    )
     assert code == 2 and "ir.wav" in err and "input" in err
     assert digest(ir) == before and not (tmp / "m.wav").exists()
 
@@ -48,10 +49,29 @@ def test_extract_json_never_replaces_the_sweep_sidecar(files, cli):
     assert cli("sweep", tmp / "sw.wav", *SWEEP)[0] == 0
     side = tmp / "sw.sweep.json"
     before = digest(side)
-    assert cli("measure", tmp / "ref.wav", "--simulate", ir, *SWEEP,
-               "--save-recording", tmp / "rec.wav")[0] == 0
-    code, _, err = cli("extract", tmp / "rec.wav", "--sweep", tmp / "sw.wav", "-o",
-                       tmp / "x.wav", "--json", side, "--force")
+    assert (
+        cli(
+            "measure",
+            tmp / "ref.wav",
+            "--simulate",
+            ir,
+            *SWEEP,
+            "--save-recording",
+            tmp / "rec.wav",
+        )[0]
+        == 0
+    )
+    code, _, err = cli(
+        "extract",
+        tmp / "rec.wav",
+        "--sweep",
+        tmp / "sw.wav",
+        "-o",
+        tmp / "x.wav",
+        "--json",
+        side,
+        "--force",
+    )
     assert code == 2 and "sw.sweep.json" in err
     assert digest(side) == before and not (tmp / "x.wav").exists()
 
@@ -60,12 +80,22 @@ def test_provenance_sidecars_are_outputs_like_any_other(files, cli):
     tmp, dry, ir = files
     # A sidecar that is also this command's input: synth reading it as a materials file,
     # edit reading it as the response.
-    assert cli("synth", tmp / "room.wav", "--room", "6x5x3", "--rate", RATE,
-               "--length", 0.3)[0] == 0
+    assert (
+        cli("synth", tmp / "room.wav", "--room", "6x5x3", "--rate", RATE, "--length", 0.3)[0] == 0
+    )
     side = tmp / "room.provenance.json"
     before = digest(side)
-    code, _, err = cli("synth", tmp / "room.wav", "--room", "6x5x3", "--rate", RATE,
-                       "--materials-file", side, "--force")
+    code, _, err = cli(
+        "synth",
+        tmp / "room.wav",
+        "--room",
+        "6x5x3",
+        "--rate",
+        RATE,
+        "--materials-file",
+        side,
+        "--force",
+    )
     assert code == 2 and "room.provenance.json" in err
     code, _, err = cli("edit", side, "-o", tmp / "room.wav", "--reverse", "--force")
     assert code == 2 and "room.provenance.json" in err
@@ -84,8 +114,11 @@ def test_provenance_sidecars_are_outputs_like_any_other(files, cli):
 def test_an_input_reached_by_another_name_is_refused_even_with_force(files, cli, alias):
     tmp, dry, ir = files
     (tmp / "sub").mkdir()
-    target = {"symlink": tmp / "link.wav", "hardlink": tmp / "hard.wav",
-              "dotdot": tmp / "sub" / ".." / "dry.wav"}[alias]
+    target = {
+        "symlink": tmp / "link.wav",
+        "hardlink": tmp / "hard.wav",
+        "dotdot": tmp / "sub" / ".." / "dry.wav",
+    }[alias]
     if alias == "symlink":
         target.symlink_to(dry)
     elif alias == "hardlink":
@@ -99,10 +132,28 @@ def test_an_input_reached_by_another_name_is_refused_even_with_force(files, cli,
 def test_outputs_colliding_with_each_other_are_refused_before_any_write(files, cli):
     tmp, _, ir = files
     assert cli("sweep", tmp / "sw.wav", *SWEEP)[0] == 0
-    assert cli("measure", tmp / "ref.wav", "--simulate", ir, *SWEEP,
-               "--save-recording", tmp / "rec.wav")[0] == 0
-    code, _, err = cli("extract", tmp / "rec.wav", "--sweep", tmp / "sw.wav", "-o",
-                       tmp / "x.wav", "--json", tmp / "x.provenance.json")
+    assert (
+        cli(
+            "measure",
+            tmp / "ref.wav",
+            "--simulate",
+            ir,
+            *SWEEP,
+            "--save-recording",
+            tmp / "rec.wav",
+        )[0]
+        == 0
+    )
+    code, _, err = cli(
+        "extract",
+        tmp / "rec.wav",
+        "--sweep",
+        tmp / "sw.wav",
+        "-o",
+        tmp / "x.wav",
+        "--json",
+        tmp / "x.provenance.json",
+    )
     assert code == 2 and "written twice" in err
     assert not (tmp / "x.wav").exists() and not (tmp / "x.provenance.json").exists()
 
@@ -112,12 +163,33 @@ def test_batch_whose_outputs_land_on_its_inputs_is_refused(tmp_path, cli):
     takes.mkdir()
     write_noise(takes / "a.wav", 0.5)
     ir = write_noise(tmp_path / "ir.wav", 0.1, seed=1, decay=30.0)
-    assert cli("batch", *sorted(takes.glob("*.wav")), "--ir", ir, "--out-dir", takes,
-               "--workers", 1, "--force")[0] == 0
+    assert (
+        cli(
+            "batch",
+            *sorted(takes.glob("*.wav")),
+            "--ir",
+            ir,
+            "--out-dir",
+            takes,
+            "--workers",
+            1,
+            "--force",
+        )[0]
+        == 0
+    )
     first = digest(takes / "a__ir.wav")
     # The second run's glob now includes the first run's output as a dry file.
-    code, _, err = cli("batch", *sorted(takes.glob("*.wav")), "--ir", ir, "--out-dir", takes,
-                       "--workers", 1, "--force")
+    code, _, err = cli(
+        "batch",
+        *sorted(takes.glob("*.wav")),
+        "--ir",
+        ir,
+        "--out-dir",
+        takes,
+        "--workers",
+        1,
+        "--force",
+    )
     assert code == 2 and "a__ir.wav" in err and "input" in err
     assert digest(takes / "a__ir.wav") == first
     assert not (takes / "a__ir__ir.wav").exists()
@@ -142,6 +214,7 @@ def test_commit_falls_back_to_exclusive_create_without_hard_links(tmp_path, monk
 
     def no_links(*_a, **_k):
         raise OSError(errno.EPERM, "links not supported here")
+
     monkeypatch.setattr(os, "link", no_links)
     final = tmp_path / "f.json"
     t1, t2 = new_temp(tmp_path), new_temp(tmp_path)
@@ -157,8 +230,10 @@ def test_two_processes_rendering_one_new_file_exactly_one_wins(files):
     tmp, _, ir = files
     dry = write_noise(tmp / "long.wav", 40, channels=2)
     out = tmp / "race.wav"
-    procs = [start_cli("render", dry, "--ir", ir, "-o", out, "--normalize", "loudness",
-                       "--quiet") for _ in range(2)]
+    procs = [
+        start_cli("render", dry, "--ir", ir, "-o", out, "--normalize", "loudness", "--quiet")
+        for _ in range(2)
+    ]
     results = [(p.wait(timeout=120), p.stderr.read()) for p in procs]
     codes = sorted(c for c, _ in results)
     assert codes == [0, 2], results

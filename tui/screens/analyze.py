@@ -37,6 +37,11 @@ class AnalyzePane(VerticalScroll):
             yield Input("analysis_out", id="an-export-dir")
             yield Checkbox("Replace existing files", id="an-replace")
             yield Button("Export JSON/CSV/HTML", id="an-export")
+        with Horizontal(classes="row"):
+            yield Label("Study file")
+            yield Input(placeholder="study.toml (roomconv study init)", id="an-study")
+            yield Button("Study report HTML+PDF", id="an-study-report")
+            yield Button("Save session as study", id="an-save-study")
         yield Static("", id="an-status", classes="status")
         yield DataTable(id="an-table")
         yield Static("", id="an-warnings", classes="status")
@@ -78,6 +83,66 @@ class AnalyzePane(VerticalScroll):
             return
         self.study = study
         app.call_from_thread(self.show, study)
+
+    @on(Button.Pressed, "#an-save-study")
+    def save_session_study(self) -> None:
+        """The session's positions as a study file (the Study file path, else study.toml in
+        the export folder); an existing file is never replaced."""
+        from roomconv.jobs.study import save_session_study
+        if not self.app.session:
+            self.app.notify("no positions measured yet in this session", severity="warning")
+            return
+        box = self.query_one("#an-study", Input)
+        path = Path(box.value.strip() or
+                    Path(self.query_one("#an-export-dir", Input).value) / "study.toml")
+        positions = []
+        for p in self.app.session:
+            q = Path(p["file"]).with_name(f"{p['name']}.quality.json")
+            positions.append((p["name"], p["file"], q if q.is_file() else None))
+        try:
+            save_session_study(path, positions)
+        except (OSError, RoomconvError) as exc:
+            self.app.notify(str(exc), severity="error", title="Save session")
+            return
+        box.value = str(path)
+        self.app.notify(f"wrote {path}: fill in the room and positions, then make the report",
+                        title="Save session")
+
+    @on(Button.Pressed, "#an-study-report")
+    def study_report_pressed(self) -> None:
+        self.study_report()
+
+    @work(thread=True, exclusive=True, group="analyze")
+    def study_report(self) -> None:
+        """Analyse the responses a study file names and write the client report (HTML and
+        PDF) into the export folder; an existing report is never replaced."""
+        from roomconv.errors import OutputExistsError
+        from roomconv.jobs.study import report_study
+        app = self.app
+        status = self.query_one("#an-status", Static)
+        try:
+            path = self.query_one("#an-study", Input).value.strip()
+            if not path:
+                raise RoomconvError("type the path of a study file first "
+                                    "('roomconv study init' writes a template)")
+            folder = Path(self.query_one("#an-export-dir", Input).value)
+            app.call_from_thread(status.update, f"analysing the study {path}…")
+            # The job plans both report files before the work and refuses existing ones.
+            res = report_study(path, bands=str(self.query_one("#an-bands", Select).value),
+                               report_dir=folder)
+            if get_current_worker().is_cancelled:
+                return
+            self.study = res.results.analysis
+            app.call_from_thread(self.show, res.results.analysis)
+        except OutputExistsError as exc:
+            app.call_from_thread(app.notify, f"{exc}; choose another export folder",
+                                 severity="error", title="Study report")
+            return
+        except (OSError, RoomconvError) as exc:
+            app.call_from_thread(app.notify, str(exc), severity="error", title="Study report")
+            return
+        app.call_from_thread(app.notify, "wrote " + ", ".join(str(p) for p in res.written),
+                             title="Study report")
 
     def show(self, study) -> None:
         doc = study.document
