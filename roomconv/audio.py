@@ -976,7 +976,7 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
             describe(
                 _short(final),
                 "appeared while this run was working (another process wrote it)",
-                "nothing was replaced; pass --force to replace it",
+                "nothing was replaced",
             )
         ) from None
     except OSError as exc:
@@ -989,7 +989,7 @@ def commit(tmp: Path, final: Path, *, force: bool) -> None:
                 describe(
                     _short(final),
                     "appeared while this run was working (another process wrote it)",
-                    "pass --force to replace it",
+                    "nothing was replaced",
                 )
             ) from None
         # Until the rename, the reserved (empty) name counts as ours to remove on interrupt.
@@ -1184,7 +1184,7 @@ class WriteGuard:
                                       "run", "give the two outputs different names"))
         if st is not None and not (self.force or exists_ok):
             raise OutputExistsError(
-                describe(_short(p), "exists already", "pass --force to replace it")
+                describe(_short(p), "exists already", "nothing was replaced")
             )
         self._outputs.append((p, ident))
         if str(folder) not in _SWEPT and folder.is_dir():

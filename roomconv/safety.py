@@ -96,7 +96,7 @@ def check_level(level_dbfs: float, cap_dbfs: float = OUTPUT_CAP_DBFS) -> float:
     if level_dbfs > cap_dbfs:
         raise InputError(
             f"level {level_dbfs:g} dBFS is above the output cap of {cap_dbfs:g} dBFS "
-            "(lower --level)"
+            "(lower the level)"
         )
     return level_dbfs
 

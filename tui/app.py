@@ -3,8 +3,6 @@ notices for errors. Start with ``roomconv tui`` or ``roomconv-tui``."""
 
 from __future__ import annotations
 
-from pathlib import Path
-
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
@@ -57,7 +55,6 @@ class RoomconvApp(App):
     def __init__(self):
         super().__init__()
         self.session: list[dict] = []
-        self.last_synth: Path | None = None
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -135,9 +132,14 @@ def main(argv: list[str] | None = None) -> int:
     ``roomconv tui`` (``argv`` []). Returns the exit code: 2 when no terminal can be used."""
     import sys
 
-    from roomconv.cli import Parser
-    parser = Parser(prog="roomconv-tui", description="The roomconv terminal workbench (no options).")
-    parser.parse_args(sys.argv[1:] if argv is None else argv)  # exit 2 on unknown options
+    args = sys.argv[1:] if argv is None else argv
+    if args and args[0] in ("-h", "--help"):
+        print("usage: roomconv-tui\n\nThe roomconv terminal workbench (no options).")
+        return 0
+    if args:
+        print(f"roomconv-tui: error: unrecognized arguments: {' '.join(args)} (the workbench "
+              "takes no options)", file=sys.stderr)
+        return 2
     problem = terminal_problem()
     if problem:
         print(f"roomconv-tui: error: {problem}; the workbench needs an interactive terminal "

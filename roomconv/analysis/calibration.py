@@ -144,7 +144,7 @@ class StrengthReference:
         if band_set is not None and self.band_set is not None and band_set != self.band_set:
             return None, (f"{label} Hz: G not evaluated: the strength reference holds "
                           f"{_set_name(self.band_set)} values and the analysis uses "
-                          f"{_set_name(band_set)} (make the reference with --bands {band_set})")
+                          f"{_set_name(band_set)} (make the reference in the same {_set_name(band_set)} set)")
         for nominal, value in self.bands_db.items():
             if math.isclose(float(nominal), float(band_hz), rel_tol=1e-6):
                 return float(value), None
@@ -413,7 +413,7 @@ def reference_from_dict(d, *, source: str) -> StrengthReference:
         if d and all(_is_number(v) for v in d.values()):
             raise bad("is a calibration file from an earlier version of roomconv (band → dB "
                       "of a per-sample sum); it cannot be converted without the sample rate",
-                      "re-create it with roomconv calibrate REF.wav --distance D -o FILE")
+                      "re-create it from the reference response with roomconv calibrate")
         raise bad("is not a strength reference (no 'kind' field)")
     if d["kind"] != KIND:
         raise bad(f"field 'kind' is {d['kind']!r}, expected {KIND!r}")

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..measure.quality import energy_envelope
+from ..signal import energy_envelope
 
 __all__ = ["onset_index", "Truncation", "lundeby_truncation", "schroeder_integral", "decay_db",
            "LineFit", "fit_decay", "available_range_db"]

@@ -24,7 +24,7 @@ import numpy as np
 from scipy.signal import sosfilt
 
 from ..errors import InputError
-from ..measure.quality import energy_envelope
+from ..signal import energy_envelope
 from .bands import Band, band_sos, bands_for_rate, filter_band
 from .decay import (
     Truncation,

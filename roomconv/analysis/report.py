@@ -51,7 +51,7 @@ def band_label(band_hz) -> str:
 _JUDGED = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "g_db")
 
 
-def _metrics(doc) -> tuple[str, ...]:
+def metrics_of(doc) -> tuple[str, ...]:
     return METRICS + (("g_db",) if doc["settings"].get("calibration") is not None else ())
 
 
@@ -90,48 +90,8 @@ def single_number_lines(doc: dict) -> list[str]:
     return out
 
 
-def text_table(header: list[str], rows: list[list[str]]) -> str:
-    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]
-    line = "  ".join(h.rjust(w) for h, w in zip(header, widths))
-    out = [line, "-" * len(line)]
-    out += ["  ".join(c.rjust(w) for c, w in zip(r, widths)) for r in rows]
-    return "\n".join(out)
-
-
-def terminal_report(doc: dict, *, warnings: bool = True) -> str:
-    """Per-position tables, the average with uncertainty, single numbers and warnings."""
-    metrics = _metrics(doc)
-    header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
-    parts = []
-    for p in doc["positions"]:
-        parts.append(f"\n{p['file']}  channel {p['channel']}")
-        parts.append(text_table(header, table_rows(p, metrics)))
-        if warnings:
-            ws = [w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]]
-            parts += [f"  ! {w}" for w in ws]
-    if len(doc["positions"]) > 1:
-        parts.append(f"\nAverage over {len(doc['positions'])} positions (mean ± std; "
-                     "T uncertainty per ISO 3382-2)")
-        avg_header = ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"]
-        rows = []
-        for r in doc["average"]["bands"]:
-            u = r["t30_s"].get("uncertainty")
-            rows.append([band_label(r["band_hz"]),
-                         _pm("edt_s", r), _pm("t20_s", r), _pm("t30_s", r),
-                         "—" if u is None else f"{u:.3f}",
-                         _pm("c80_db", r), _pm("d50", r), _pm("ts_ms", r)])
-        parts.append(text_table(avg_header, rows))
-    parts.append("\nMid-frequency values:")
-    parts += [f"  {line}" for line in single_number_lines(doc)]
-    parts.append(LEGEND)
-    for n in doc.get("notes", []):
-        parts.append(f"note: {n}")
-    for e in doc.get("errors", []):
-        parts.append(f"error: {e}")
-    return "\n".join(parts)
-
-
-def _pm(metric, row) -> str:
+def mean_with_spread(metric, row) -> str:
+    """An averaged value as ``mean±std`` with its caution mark (— when not evaluable)."""
     s = row[metric]
     if s["mean"] is None:
         return "—"
@@ -142,7 +102,7 @@ def _pm(metric, row) -> str:
 
 def csv_text(doc: dict) -> str:
     """One row per position × band (wideband as band 'wideband'), then the averages."""
-    metrics = _metrics(doc)
+    metrics = metrics_of(doc)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     judged = [m for m in metrics if m in _JUDGED]
@@ -257,7 +217,7 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
     ``cautions`` ends the page with the playback caution, for pages that also offer sound
     (the demo's renders); a page of results alone leaves it out."""
     doc = study.document
-    metrics = _metrics(doc)
+    metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
     out = [f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
            f"</title><style>{_CSS}</style></head><body><h1>{html.escape(title)}</h1>",
@@ -272,9 +232,9 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
         rows = []
         for r in doc["average"]["bands"]:
             u = r["t30_s"].get("uncertainty")
-            rows.append([band_label(r["band_hz"]), _pm("edt_s", r), _pm("t20_s", r),
-                         _pm("t30_s", r), "—" if u is None else f"{u:.3f}", _pm("c80_db", r),
-                         _pm("d50", r), _pm("ts_ms", r), str(r["t30_s"]["n"])])
+            rows.append([band_label(r["band_hz"]), mean_with_spread("edt_s", r), mean_with_spread("t20_s", r),
+                         mean_with_spread("t30_s", r), "—" if u is None else f"{u:.3f}", mean_with_spread("c80_db", r),
+                         mean_with_spread("d50", r), mean_with_spread("ts_ms", r), str(r["t30_s"]["n"])])
         out.append(f"<h2>Average over {len(doc['positions'])} positions</h2>")
         out.append(_html_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50",
                                 "Ts ms", "n"], rows))

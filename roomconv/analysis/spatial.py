@@ -9,18 +9,18 @@ import numpy as np
 from .bands import all_bands
 from .parameters import (
     CAUTION,
+    DECAYS_PER_POSITION_IR,
     JND,
     METRICS,
     NOISE_SIGMA_CAUTION_JND,
     NOT_EVALUABLE,
     OK,
     STATISTICAL,
-    DECAYS_PER_POSITION_IR,
     decay_time_sigma,
 )
 
 __all__ = ["DECAYS_PER_POSITION_IR", "JND", "decay_time_uncertainty", "spatial_average",
-           "single_numbers", "SINGLE_NUMBERS"]
+           "single_numbers", "position_single_numbers", "SINGLE_NUMBERS"]
 
 
 
@@ -132,3 +132,19 @@ def single_numbers(average: list[dict], kind: str = "octave", *, with_verdicts: 
         verdicts[key] = (NOT_EVALUABLE if not ok else
                          CAUTION if CAUTION in marks else OK)
     return (out, verdicts) if with_verdicts else out
+
+
+def position_single_numbers(bands: list[dict], kind: str = "octave") -> dict:
+    """Mid-frequency values of one position from its band rows, by the same rule as
+    :func:`single_numbers` (ISO 3382-1:2009, A.3 — from memory).
+
+    Examples
+    --------
+    >>> rows = [{"band_hz": 500, "t30_s": 1.0}, {"band_hz": 1000, "t30_s": 1.2}]
+    >>> round(position_single_numbers(rows)["t30_mid_s"], 3)
+    1.1
+    """
+    as_average = [{"band_hz": r["band_hz"],
+                   **{m: {"mean": r.get(m)} for m in SINGLE_NUMBERS.values()
+                      if m != "g_db" or "g_db" in r}} for r in bands]
+    return single_numbers(as_average, kind)

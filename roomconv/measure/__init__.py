@@ -1,6 +1,7 @@
 """Swept-sine measurement: the excitation, its deconvolution and the quality of the result.
 
-Every public name of the submodules is re-exported here::
+Every public name of the submodules is re-exported here (reading and writing files is the
+job layer's, :mod:`roomconv.jobs.measure`)::
 
     from roomconv.measure import Sweep, sweep_signal, extract_ir
 
@@ -20,15 +21,6 @@ from .deconvolve import (
     HARMONIC_ORDERS,
     Extraction,
     extract_ir,
-)
-from .files import (
-    extract_files,
-    format_quality,
-    load_sweep,
-    plan_extraction,
-    save_extraction,
-    save_sweep,
-    sweep_inputs,
 )
 from .quality import (
     CLIP_LEVEL,
@@ -75,11 +67,4 @@ __all__ = [
     "SimulatedDevice",
     "run_measurement",
     "metered_playrec",
-    "save_sweep",
-    "load_sweep",
-    "sweep_inputs",
-    "plan_extraction",
-    "extract_files",
-    "save_extraction",
-    "format_quality",
 ]

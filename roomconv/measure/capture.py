@@ -152,7 +152,7 @@ class SoundCard:
         if len(devs) == 0:
             raise DeviceError(
                 "PortAudio found no sound device; connect an interface, or "
-                "use --simulate IR.wav to rehearse the measurement"
+                "rehearse the measurement on a simulated room"
             )
         out = safety.hard_cap(np.asarray(signal, dtype=np.float64))
         try:
@@ -167,7 +167,7 @@ class SoundCard:
             )
         except Exception as exc:
             raise DeviceError(
-                f"the sound card refused the stream: {exc} (check --device, the "
+                f"the sound card refused the stream: {exc} (check the device, the "
                 "channel numbers and the sample rate)"
             ) from None
         return np.asarray(rec, dtype=np.float64)

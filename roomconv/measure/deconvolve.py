@@ -253,7 +253,8 @@ def _check_recording(y, rate, sweep, excitation, allow_clipped):
         raise InputError(
             f"the recording is clipped on channel(s) {chans} "
             f"({int(clipped.sum())} samples at full scale); lower the input gain "
-            "or the sweep level and measure again (or pass --allow-clipped)"
+            "or the sweep level and measure again (or accept a clipped "
+            "recording explicitly)"
         )
 
 
@@ -383,7 +384,7 @@ def _limit_length(n_out, n_raw, zeros, sweep, rate):
     if n_out > avail:
         warn = (
             f"IR length cut to {avail / rate:.2f} s: the recording or the gap between "
-            "repeated sweeps holds no more (use a longer --silence)"
+            "repeated sweeps holds no more (use a longer silence after the sweep)"
         )
         n_out = avail
     return n_out, warn

@@ -92,12 +92,12 @@ class Sweep:
         if not (0 < self.f_low < self.f_high):
             raise InputError(
                 f"sweep band {self.f_low:g}-{self.f_high:g} Hz is not increasing "
-                "and positive (set --low below --high)"
+                "and positive (set the start below the stop frequency)"
             )
         if self.f_high > self.rate / 2:
             raise InputError(
                 f"sweep end {self.f_high:g} Hz is above the Nyquist frequency "
-                f"{self.rate / 2:g} Hz (lower --high or raise --rate)"
+                f"{self.rate / 2:g} Hz (lower the stop frequency or raise the sample rate)"
             )
         if self.duration <= 0.05:
             raise InputError(f"sweep duration {self.duration:g} s is too short (more than 0.05 s)")
@@ -106,7 +106,7 @@ class Sweep:
         if self.silence_pre < 0 or self.silence_post < 0:
             raise InputError("silence before and after the sweep must be non-negative")
         if self.repeats < 1:
-            raise InputError(f"--repeat must be at least 1 (got {self.repeats})")
+            raise InputError(f"the number of sweeps must be at least 1 (got {self.repeats})")
         if self.level_dbfs > 0:
             raise InputError(f"level {self.level_dbfs:g} dBFS is above full scale")
 

@@ -122,9 +122,19 @@ class Outcome:
 
 
 def plan_jobs(
-    drys, irs, out_dir, settings: RenderSettings, guard: WriteGuard | None = None
+    drys,
+    irs,
+    out_dir,
+    settings: RenderSettings,
+    guard: WriteGuard | None = None,
+    *,
+    output_name: Callable[[Path, Path], str] | None = None,
 ) -> list[Job]:
     """One job per (dry, response) pair; inputs are checked and hashed once here.
+
+    ``output_name(dry, ir)`` names each output; the job layer passes its one naming
+    function (:func:`roomconv.jobs.naming.render_output_name`). Without it the outputs are
+    ``<dry stem>__<ir stem>.wav``, the same rule, for library callers.
 
     With ``guard`` (which knows every input of the batch), each output and its sidecar are
     planned against all inputs and against each other, so a batch whose outputs would land on
@@ -180,7 +190,7 @@ def plan_jobs(
     for d in drys:
         for i in irs:
             d, i = Path(d), Path(i)
-            out = out_dir / f"{d.stem}__{i.stem}.wav"
+            out = out_dir / (output_name(d, i) if output_name else f"{d.stem}__{i.stem}.wav")
             if out in seen:
                 raise InputError(
                     f"two jobs would both write {out.name}: rename one of the "
@@ -461,7 +471,7 @@ def run_batch(
                         job,
                         "failed",
                         f"{job.output} exists with other "
-                        "inputs or settings (pass --force to replace it)",
+                        "inputs or settings (replace it only on purpose)",
                         2,
                     )
                 )
@@ -715,7 +725,7 @@ def dask_executor(address: str):
         from distributed import Client  # noqa: PLC0415 - optional extra
     except ImportError:
         raise InputError(
-            "--scheduler needs the optional Dask extra: pip install 'roomconv[cluster]'"
+            "a Dask cluster needs the optional Dask extra: pip install 'roomconv[cluster]'"
         ) from None
     try:
         client = Client(address, timeout="10s")

@@ -138,9 +138,9 @@ class RenderSettings:
             lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
             self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
-            raise InputError(f"--normalize must be one of {', '.join(NORMALIZE)}")
+            raise InputError(f"normalization '{self.normalize}' must be one of {', '.join(NORMALIZE)}")
         if self.precision not in ("auto", "float64", "float32"):
-            raise InputError("--precision must be auto, float64 or float32")
+            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or float32")
         return self
 
     def engine_precision(self) -> str:
@@ -322,7 +322,7 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
     raise InputError(
-        "the dry signal cannot be mixed in: inputs and outputs differ in count (use --mix 1)"
+        "the dry signal cannot be mixed in: inputs and outputs differ in count (use a fully wet mix, 1)"
     )
 
 
@@ -531,7 +531,7 @@ def render_file(
                             out_path.name,
                             f"the rendered signal reaches "
                             f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
-                            f"what a {stage_sub} file holds (lower --gain); "
+                            f"what a {stage_sub} file holds (lower the gain); "
                             "nothing written",
                         )
                     )
@@ -573,8 +573,8 @@ def render_file(
             }[s.normalize]
             if level is None or not np.isfinite(level):
                 why = (
-                    "stays below the −70 LUFS gate of the loudness measurement (use "
-                    "--normalize peak)"
+                    "stays below the −70 LUFS gate of the loudness measurement (normalize "
+                    "the peak instead)"
                     if s.normalize == "loudness"
                     else "is silent"
                 )
@@ -609,7 +609,7 @@ def render_file(
         if report.peak_dbfs > 0:
             msg = f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale"
             msg += (
-                ": it will clip in this integer format; lower --gain or use --normalize peak"
+                ": it will clip in this integer format; lower the gain or normalize the peak"
                 if integer
                 else "; a later conversion to integer would clip"
             )

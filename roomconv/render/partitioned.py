@@ -144,7 +144,7 @@ def routing_for(
     raise InputError(
         f"cannot route {n_in} input channel(s) through an IR with {n_ir} "
         "channel(s): use 1 IR channel (shared), one per input, 4 for true stereo "
-        "with 2 inputs, or a matrix with --outputs"
+        "with 2 inputs, or a general matrix (give the number of outputs)"
     )
 
 

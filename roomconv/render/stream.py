@@ -439,7 +439,7 @@ def run_live(
 
         raise InputError(
             f"the routing gives {proc.n_out} output channel(s) but "
-            f"{n_out} were asked for (--output-channels)"
+            f"{n_out} were asked for"
         )
     done = threading.Event()
 
@@ -475,7 +475,7 @@ def run_live(
         )
     except Exception as exc:  # PortAudio errors are not one stable type
         raise DeviceError(
-            f"cannot open the sound card for live use: {exc} (check --device, "
+            f"cannot open the sound card for live use: {exc} (check the device, "
             "the channels and the sample rate)"
         ) from None
     try:

@@ -12,11 +12,11 @@ from ..analysis.report import (
     HEADERS,
     SINGLE_NUMBER_NAMES,
     _html_table,
-    _metrics,
-    _pm,
     band_label,
+    metrics_of,
     table_rows,
 )
+from ..analysis.report import mean_with_spread as _pm
 from ..analysis.spatial import SINGLE_NUMBERS
 from . import figures as F
 from .inputs import StudyResults
@@ -126,7 +126,7 @@ def _evaluation_notes(doc: dict) -> list[str]:
     mids = _mids(doc)
     lines = []
     counts = {"caution": 0, "not evaluable": 0, "total": 0}
-    judged = [m for m in _metrics(doc) if m in SINGLE_NUMBERS.values()]
+    judged = [m for m in metrics_of(doc) if m in SINGLE_NUMBERS.values()]
     for p in doc["positions"]:
         for r in p["bands"]:
             for m in judged:
@@ -286,7 +286,7 @@ def report_html(res: StudyResults) -> str:
         out.append(f"<p>{e(st.notes)}</p>")
 
     # 5. Results
-    metrics = _metrics(doc)
+    metrics = metrics_of(doc)
     out.append("<h2>4. Results</h2>")
     n = len(doc["positions"])
     avg_rows = []

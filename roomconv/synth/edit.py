@@ -136,12 +136,14 @@ def reverse(ir: np.ndarray) -> np.ndarray:
     return _2d(ir)[::-1].copy()
 
 
-def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) -> np.ndarray:
+def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
+                onset: int | None = None) -> np.ndarray:
     """Stretch (factor > 1) or shrink the decay time by multiplying with an exponential.
 
     A decay of time T becomes factor·T: each band is multiplied by
     exp(3·ln10·t/T·(1 − 1/factor)), where T is that band's own decay time. ``factor`` is a
-    number or {band_hz: factor}; T per band is read from the response (T30, else T20).
+    number or {band_hz: factor}; T per band is given by the caller (measured from the response
+    by the analysis, which synth does not import).
 
     Parameters
     ----------
@@ -150,6 +152,9 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
         Sample rate, Hz.
     factor : float or dict
         New T / old T, for every band or per octave band {band_hz: factor}.
+    decay_times_s : sequence of dict
+        Per channel, the present decay time in seconds per octave band {band_hz: T}; a band
+        that is missing is refused.
     onset : int, optional
         Sample where the decay starts (default: each channel's peak).
 
@@ -161,8 +166,6 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     ----------
     ISO 3382-1:2009, 3.10 and 5.3 (the decay times read from the response).
     """
-    from ..analysis.parameters import room_parameters
-
     x = _2d(ir)
     factors = factor if isinstance(factor, dict) else {b: float(factor) for b in OCTAVES}
     for b, f in factors.items():
@@ -172,17 +175,17 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, onset: int | None = None) 
     nfft = 1 << int(np.ceil(np.log2(2 * n)))
     W = band_weights(np.fft.rfftfreq(nfft, 1.0 / rate))
     out = np.zeros_like(x)
+    if len(decay_times_s) != x.shape[1]:
+        raise InputError(f"decay times are given for {len(decay_times_s)} channel(s) but the "
+                         f"response has {x.shape[1]}")
     for ch in range(x.shape[1]):
-        res, wide, _ = room_parameters(x[:, ch], rate, low=63, high=8000)
         t0 = onset if onset is not None else int(np.argmax(np.abs(x[:, ch])))
         t = np.maximum(np.arange(n) - t0, 0) / rate
         X = np.fft.rfft(x[:, ch], nfft)
-        by_band = {
-            int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res if r.band_hz is not None
-        }
+        by_band = decay_times_s[ch]
         for i, b in enumerate(OCTAVES):
-            T = by_band.get(b) or wide.t30_s or wide.t20_s
-            if T is None:
+            T = by_band.get(b)
+            if T is None or not (T > 0 and np.isfinite(T)):
                 raise InputError(f"the decay time at {b} Hz cannot be read from the response")
             f = factors.get(b, 1.0)
             band = np.fft.irfft(X * W[i], nfft)[:n]

@@ -259,7 +259,7 @@ def synthesize(
         raise InputError(
             f"source and receiver are {distance:.3f} m apart: closer than "
             f"{MIN_DISTANCE_M:g} m the direct sound's 1/r level has no meaning; move "
-            "--source or --receiver apart"
+            "the source and the receiver apart"
         )
     sab, eyr = sabine(room, air=air), eyring(room, air=air)
     used, origin = _tail_reverberation(
@@ -400,7 +400,7 @@ def _tail_reverberation(
             tmax = max_reverberation(room, b) if air else np.inf
             if used[b] >= tmax:
                 raise InputError(
-                    f"--rt60: the {b} Hz band, {origin[b]} from the given bands, would be "
+                    f"the tail's {b} Hz band, {origin[b]} from the given bands, would be "
                     f"{used[b]:.2f} s, beyond the {tmax:.1f} s the air alone allows there; "
                     f"give a value for {b} Hz"
                 )

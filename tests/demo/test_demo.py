@@ -81,6 +81,6 @@ def test_demo_writes_the_study_report_as_html_and_pdf(demo):
     # ISO 32000-1:2008, 7.5.2 (from memory): a PDF file begins with "%PDF-".
     assert (demo / "report" / "report.pdf").read_bytes().startswith(b"%PDF-")
     page = (demo / "report" / "report.html").read_text()
-    assert "Linden Hall" in page and "Measurement grade (ISO 3382-2)" in page
+    assert "Quillmere Hall" in page and "Measurement grade (ISO 3382-2)" in page
     # 1 source × 2 receivers: survey grade (ISO 3382-2:2008, Table 1, from memory).
     assert "<p class='grade'>Survey</p>" in page

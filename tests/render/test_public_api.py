@@ -11,7 +11,7 @@ import sys
 import pytest
 
 MODULES = {
-    "roomconv.measure": ["sweep", "deconvolve", "quality", "capture", "files"],
+    "roomconv.measure": ["sweep", "deconvolve", "quality", "capture"],
     "roomconv.render": ["partitioned", "levels", "mix", "offline", "stream", "batch"],
 }
 SINGLE = [

@@ -40,7 +40,8 @@ def test_decay_scale_changes_T_by_the_factor():
         {b: 1.0 for b in (63, 125, 250, 500, 1000, 2000, 4000, 8000)}, 500.0, FS, 3 * FS, seed=4
     )
     # Read back with the ISO 3382-1 backward integration written out in reference.py.
-    y = edit.scale_decay(x, FS, 0.7)
+    # The tail was made with T = 1 s in every band; that is the decay time handed in.
+    y = edit.scale_decay(x, FS, 0.7, decay_times_s=[{b: 1.0 for b in edit.OCTAVES}])
     for band in (125, 1000, 4000):
         before = schroeder_t30(octave(x, FS, band), FS)
         after = schroeder_t30(octave(y[:, 0], FS, band), FS)

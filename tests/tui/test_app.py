@@ -152,7 +152,8 @@ async def test_measure_tab_against_a_simulated_room(tmp_path):
         app.query_one("#ms-sim").value = str(room)
         app.query_one("#ms-duration").value = "2"
         app.query_one("#ms-silence").value = "1"
-        app.query_one("#ms-ref").value = "1"
+        # Channels count from 1: the room's channel, then the simulated loopback.
+        app.query_one("#ms-ref").value = "2"
         app.query_one("#ms-folder").value = str(tmp_path / "session")
         await press(app, pilot, "#ms-level-check")
         await settle(app, pilot)

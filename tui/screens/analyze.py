@@ -6,13 +6,12 @@ from __future__ import annotations
 import shlex
 from pathlib import Path
 
+from rich.text import Text
 from textual import on, work
-from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
-from textual.widgets import Button, DataTable, Input, Label, Select, Static
-
-from rich.text import Text
+from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, Static
+from textual.worker import get_current_worker
 
 from roomconv.analysis.report import HEADERS, LEGEND, band_label, fmt, value_verdict
 from roomconv.errors import RoomconvError
@@ -36,6 +35,7 @@ class AnalyzePane(VerticalScroll):
         with Horizontal(classes="row"):
             yield Label("Export to")
             yield Input("analysis_out", id="an-export-dir")
+            yield Checkbox("Replace existing files", id="an-replace")
             yield Button("Export JSON/CSV/HTML", id="an-export")
         with Horizontal(classes="row"):
             yield Label("Study file")
@@ -66,15 +66,15 @@ class AnalyzePane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="analyze")
     def analyse(self) -> None:
-        from roomconv.analysis.study import analyse_files
+        from roomconv.jobs.analyze import analyze_study
         app = self.app
         try:
             files = shlex.split(self.query_one("#an-files", Input).value)
             if not files:
-                raise RoomconvError("type one or more IR file paths first")
-            bands = self.query_one("#an-bands", Select).value
+                raise RoomconvError("IR files: type one or more IR file paths first")
+            bands = str(self.query_one("#an-bands", Select).value)
             app.call_from_thread(self.query_one("#an-status", Static).update, "analysing…")
-            study = analyse_files([Path(f) for f in files], bands=bands)
+            study = analyze_study([Path(f) for f in files], bands=bands).study
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Analyze")
             app.call_from_thread(self.query_one("#an-status", Static).update, "")
@@ -88,8 +88,7 @@ class AnalyzePane(VerticalScroll):
     def save_session_study(self) -> None:
         """The session's positions as a study file (the Study file path, else study.toml in
         the export folder); an existing file is never replaced."""
-        from roomconv.audio import write_text
-        from roomconv.study import session_study_text
+        from roomconv.jobs.study import save_session_study
         if not self.app.session:
             self.app.notify("no positions measured yet in this session", severity="warning")
             return
@@ -101,8 +100,7 @@ class AnalyzePane(VerticalScroll):
             q = Path(p["file"]).with_name(f"{p['name']}.quality.json")
             positions.append((p["name"], p["file"], q if q.is_file() else None))
         try:
-            path.parent.mkdir(parents=True, exist_ok=True)
-            write_text(path, session_study_text("Workbench session", positions, path.parent))
+            save_session_study(path, positions)
         except (OSError, RoomconvError) as exc:
             self.app.notify(str(exc), severity="error", title="Save session")
             return
@@ -119,8 +117,7 @@ class AnalyzePane(VerticalScroll):
         """Analyse the responses a study file names and write the client report (HTML and
         PDF) into the export folder; an existing report is never replaced."""
         from roomconv.errors import OutputExistsError
-        from roomconv.report import analyse_study, write_report
-        from roomconv.study import load_study
+        from roomconv.jobs.study import report_study
         app = self.app
         status = self.query_one("#an-status", Static)
         try:
@@ -129,19 +126,14 @@ class AnalyzePane(VerticalScroll):
                 raise RoomconvError("type the path of a study file first "
                                     "('roomconv study init' writes a template)")
             folder = Path(self.query_one("#an-export-dir", Input).value)
-            st = load_study(path)
-            inputs = [st.path] + [r.file for r in st.responses]
-            for name in ("report.html", "report.pdf"):  # refuse before the work, not after
-                if (folder / name).exists():
-                    raise OutputExistsError(f"{folder / name} exists already")
-            app.call_from_thread(status.update, f"analysing the study {st.title}…")
-            res = analyse_study(st, bands=self.query_one("#an-bands", Select).value)
+            app.call_from_thread(status.update, f"analysing the study {path}…")
+            # The job plans both report files before the work and refuses existing ones.
+            res = report_study(path, bands=str(self.query_one("#an-bands", Select).value),
+                               report_dir=folder)
             if get_current_worker().is_cancelled:
                 return
-            self.study = res.analysis
-            app.call_from_thread(self.show, res.analysis)
-            folder.mkdir(parents=True, exist_ok=True)
-            written = write_report(res, folder, inputs=inputs)
+            self.study = res.results.analysis
+            app.call_from_thread(self.show, res.results.analysis)
         except OutputExistsError as exc:
             app.call_from_thread(app.notify, f"{exc}; choose another export folder",
                                  severity="error", title="Study report")
@@ -149,7 +141,7 @@ class AnalyzePane(VerticalScroll):
         except (OSError, RoomconvError) as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Study report")
             return
-        app.call_from_thread(app.notify, "wrote " + ", ".join(str(p) for p in written),
+        app.call_from_thread(app.notify, "wrote " + ", ".join(str(p) for p in res.written),
                              title="Study report")
 
     def show(self, study) -> None:
@@ -188,18 +180,15 @@ class AnalyzePane(VerticalScroll):
 
     @on(Button.Pressed, "#an-export")
     def export(self) -> None:
-        from roomconv.analysis.report import csv_text, html_report
-        from roomconv.audio import write_json, write_text
+        from roomconv.jobs.analyze import export_study
         if self.study is None:
             self.app.notify("analyze something first", severity="warning")
             return
         folder = Path(self.query_one("#an-export-dir", Input).value)
         try:
-            folder.mkdir(parents=True, exist_ok=True)
-            write_json(folder / "results.json", self.study.document, force=True)
-            write_text(folder / "results.csv", csv_text(self.study.document), force=True)
-            write_text(folder / "report.html", html_report(self.study), force=True)
-        except (OSError, RoomconvError) as exc:
+            export_study(self.study, folder,
+                         force=self.query_one("#an-replace", Checkbox).value)
+        except RoomconvError as exc:
             self.app.notify(str(exc), severity="error", title="Export")
             return
         self.app.notify(f"exported to {folder}", title="Analyze")

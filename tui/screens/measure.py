@@ -5,17 +5,17 @@ simulated room."""
 
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
 from textual import on, work
-from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
-from textual.widgets import (Button, Checkbox, DataTable, Input, Label, ProgressBar, Select,
-                             Static)
+from textual.widgets import Button, Checkbox, DataTable, Input, Label, ProgressBar, Select, Static
+from textual.worker import get_current_worker
 
+from roomconv import validate
 from roomconv.errors import InputError, RoomconvError
+from roomconv.jobs.progress import Cancelled
 from roomconv.safety import caution_text
 
 
@@ -31,7 +31,7 @@ class MeasurePane(VerticalScroll):
             yield Label("In ch")
             yield Input("1", id="ms-in-ch", classes="narrow")
         with Horizontal(classes="row"):
-            yield Label("Loopback channel (0-based, optional)")
+            yield Label("Loopback channel (counting from 1, optional)")
             yield Input("", id="ms-ref", classes="narrow")
         with Horizontal(classes="row"):
             yield Label("Sweep Hz")
@@ -89,34 +89,50 @@ class MeasurePane(VerticalScroll):
         self.app.call_from_thread(self.query_one("#ms-device", Select).set_options, options)
         self.app.call_from_thread(self.query_one("#ms-devices", Static).update, text)
 
+    def number(self, selector: str, label: str) -> float:
+        """A field's number, or a refusal naming the field."""
+        text = self.query_one(selector, Input).value.strip()
+        try:
+            return float(text)
+        except ValueError:
+            raise InputError(f"{label}: '{text}' is not a number") from None
+
+    def channel(self, selector: str, label: str) -> int | None:
+        """A 1-based channel field (empty: none)."""
+        text = self.query_one(selector, Input).value.strip()
+        if not text:
+            return None
+        if not text.isdigit() or int(text) < 1:
+            raise InputError(f"{label}: '{text}' is not a channel number (channels count "
+                             "from 1)")
+        return int(text)
+
+    def channels(self, selector: str, label: str) -> tuple[int, ...]:
+        return validate.channel_list(self.query_one(selector, Input).value, label)
+
     def sweep(self):
         from roomconv.measure.sweep import Sweep
-        v = lambda i: float(self.query_one(i, Input).value)  # noqa: E731
-        try:
-            return Sweep(f_low=v("#ms-low"), f_high=v("#ms-high"), duration=v("#ms-duration"),
-                         level_dbfs=v("#ms-level"), silence_post=v("#ms-silence"))
-        except InputError:
-            raise  # the library's own refusal says what is wrong already
-        except ValueError:
-            raise RoomconvError("sweep settings must be numbers") from None
+        return Sweep(f_low=self.number("#ms-low", "Sweep start Hz"),
+                     f_high=self.number("#ms-high", "Sweep stop Hz"),
+                     duration=self.number("#ms-duration", "Duration s"),
+                     level_dbfs=self.number("#ms-level", "Level dBFS"),
+                     silence_post=self.number("#ms-silence", "Silence s"))
 
-    def device(self):
-        from roomconv.audio import read_audio
-        from roomconv.measure.capture import SimulatedDevice, SoundCard
-        sim = self.query_one("#ms-sim", Input).value.strip()
-        ref = self.query_one("#ms-ref", Input).value.strip()
-        if sim:
-            ir, _ = read_audio(sim, what="simulated room IR")
-            return SimulatedDevice(ir, latency_samples=256, noise_dbfs=-90,
-                                   loopback=bool(ref)), True
+    def simulated_room(self) -> str | None:
+        return self.query_one("#ms-sim", Input).value.strip() or None
+
+    def confirm(self) -> None:
+        """The caution is on screen; sound plays only once its box is ticked."""
         if not self.query_one("#ms-ack", Checkbox).value:
-            raise RoomconvError("read the hearing and equipment caution and tick the box "
-                                "before any sound is played")
+            raise InputError("read the hearing and equipment caution and tick the box "
+                             "before any sound is played")
+
+    def card(self) -> dict:
+        """The sound card fields, as the measurement jobs take them."""
         choice = self.query_one("#ms-device", Select).value
-        dev = None if choice in ("default", Select.BLANK) else int(choice)
-        ins = tuple(int(c) for c in self.query_one("#ms-in-ch", Input).value.split(","))
-        out = int(self.query_one("#ms-out-ch", Input).value)
-        return SoundCard(device=dev, output_channel=out, input_channels=ins), False
+        return {"device": None if choice in ("default", Select.BLANK) else int(str(choice)),
+                "output_channel": self.channel("#ms-out-ch", "Out ch") or 1,
+                "input_channels": self.channels("#ms-in-ch", "In ch")}
 
     @on(Button.Pressed, "#ms-level-check")
     def level_pressed(self) -> None:
@@ -124,29 +140,23 @@ class MeasurePane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="measure")
     def level_check(self) -> None:
-        """A 2 s, 1 kHz tone at −40 dBFS, ramped, with a live input meter."""
-        import numpy as np
-        from roomconv.measure.capture import metered_playrec
-        from roomconv.safety import apply_ramps
+        """A quiet 1 kHz tone, ramped, with a live input meter."""
+        from roomconv.jobs.measure import LEVEL_CHECK_DBFS, level_check
         app = self.app
         meter = self.query_one("#ms-meter", Static)
-        peaks = []
 
         def show(peak_db, frac):
-            peaks.append(peak_db)
             bar = "█" * int(max(0.0, min(1.0, (peak_db + 80) / 80)) * 40)
             app.call_from_thread(meter.update, f"input meter: {bar:<40} {peak_db:6.1f} dBFS "
                                                f"({100 * frac:3.0f} %)")
         try:
-            device, _ = self.device()
-            rate = 48000
-            t = np.arange(2 * rate) / rate
-            tone = apply_ramps(10 ** (-40 / 20) * np.sin(2 * np.pi * 1000 * t), rate)
-            metered_playrec(device, tone, rate, show)
+            sim = self.simulated_room()
+            peak = level_check(simulate=sim, confirm=None if sim else self.confirm,
+                               on_level=show, **({} if sim else self.card()))
             app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                 f"level check: input peak {max(peaks):.1f} dBFS for a "
-                                 "-40 dBFS tone; aim for the sweep to peak 10-20 dB below "
-                                 "full scale at the microphone")
+                                 f"level check: input peak {peak:.1f} dBFS for a "
+                                 f"{LEVEL_CHECK_DBFS:g} dBFS tone; aim for the sweep to peak "
+                                 "10-20 dB below full scale at the microphone")
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Level check")
 
@@ -154,44 +164,45 @@ class MeasurePane(VerticalScroll):
     def run_pressed(self) -> None:
         self.measure()
 
+    def progress(self, stage: str, fraction: float, message: str | None = None) -> None:
+        """The jobs' progress callback: the bar, and a notice for each message."""
+        if get_current_worker().is_cancelled:
+            raise Cancelled()
+        self.app.call_from_thread(self.query_one("#ms-progress", ProgressBar).update,
+                                  progress=fraction)
+        if message:
+            self.app.call_from_thread(self.app.notify, message, title="Measure")
+
+    def position(self) -> tuple[str, Path, Path]:
+        """The next position's name, response file and quality file."""
+        from roomconv.jobs.naming import position_output
+        folder = Path(self.query_one("#ms-folder", Input).value)
+        name = self.query_one("#ms-name", Input).value.strip() or f"P{len(self.app.session) + 1}"
+        out, quality = position_output(folder, name)
+        return name, out, quality
+
     @work(thread=True, exclusive=True, group="measure")
     def measure(self) -> None:
-        from roomconv.measure.capture import run_measurement
-        from roomconv.measure.deconvolve import extract_ir
-        from roomconv.measure.sweep import sweep_signal
-        from roomconv.safety import check_level
+        from roomconv.jobs.guard import make_folders
+        from roomconv.jobs.measure import measure_position
         app = self.app
-        bar = self.query_one("#ms-progress", ProgressBar)
         try:
             s = self.sweep()
-            check_level(s.level_dbfs)
-            device, simulated = self.device()
-            ref_txt = self.query_one("#ms-ref", Input).value.strip()
-            ref = int(ref_txt) if ref_txt else None
-            app.call_from_thread(bar.update, progress=0.0)
-            if not simulated:
-                # The sweep blocks in playrec; show elapsed time from a timer thread.
-                import threading
-                stop = threading.Event()
-                total = s.n_total / s.rate + 0.5
-
-                def ticker():
-                    t0 = time.monotonic()
-                    while not stop.wait(0.2):
-                        app.call_from_thread(bar.update,
-                                             progress=min(0.95, (time.monotonic() - t0) / total))
-                threading.Thread(target=ticker, daemon=True).start()
-            rec = run_measurement(device, sweep_signal(s), s.rate)
-            if not simulated:
-                stop.set()
-            app.call_from_thread(bar.update, progress=0.97)
-            ex = extract_ir(rec, s.rate, sweep=s, reference_channel=ref)
-            if get_current_worker().is_cancelled:
-                app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                     "measurement cancelled; nothing saved")
-                return
-            self.save_position(ex, [])
-            app.call_from_thread(bar.update, progress=1.0)
+            sim = self.simulated_room()
+            ref = self.channel("#ms-ref", "Loopback channel")
+            name, out, quality = self.position()
+            if sim is None:
+                self.confirm()
+            make_folders(out.parent)
+            res = measure_position(out, s, simulate=sim, reference_channel=ref,
+                                   sim_latency_samples=256, sim_noise_dbfs=-90.0,
+                                   match_simulated_rate=True, json_path=quality,
+                                   confirm=None if sim else self.confirm,
+                                   progress=self.progress, **({} if sim else self.card()))
+            self.show_position(name, res)
+        except Cancelled:
+            app.call_from_thread(self.query_one("#ms-status", Static).update,
+                                 "measurement cancelled; nothing saved")
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Measure")
 
@@ -201,38 +212,38 @@ class MeasurePane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="measure")
     def import_recording(self) -> None:
-        from roomconv.measure.files import extract_files
+        from roomconv.jobs.guard import make_folders
+        from roomconv.jobs.measure import extract_recording
         app = self.app
         try:
             rec = Path(self.query_one("#ms-rec", Input).value)
             sweep = Path(self.query_one("#ms-sweep", Input).value)
-            ref_txt = self.query_one("#ms-ref", Input).value.strip()
-            ex, notes = extract_files(rec, sweep, reference_channel=int(ref_txt)
-                                      if ref_txt else None)
-            for n in notes:
+            ref = self.channel("#ms-ref", "Loopback channel")
+            name, out, quality = self.position()
+            make_folders(out.parent)
+            res = extract_recording(rec, sweep, out, reference_channel=ref, json_path=quality,
+                                    progress=self.progress)
+            for n in res.notes:
                 app.call_from_thread(app.notify, n, title="Import")
-            self.save_position(ex, [rec, sweep])
-        except (RoomconvError, ValueError) as exc:
+            self.show_position(name, res)
+        except Cancelled:
+            app.call_from_thread(self.query_one("#ms-status", Static).update,
+                                 "import cancelled; nothing saved")
+        except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Import")
 
-    def save_position(self, ex, inputs) -> None:
-        from roomconv.audio import write_audio, write_json, write_provenance
+    def show_position(self, name: str, res) -> None:
+        """Add a measured position to the session and its table."""
         app = self.app
-        folder = Path(self.query_one("#ms-folder", Input).value)
-        folder.mkdir(parents=True, exist_ok=True)
-        name = self.query_one("#ms-name", Input).value.strip() or f"P{len(app.session) + 1}"
-        out = folder / f"{name}.wav"
-        write_audio(out, ex.ir, ex.rate, force=True, inputs=inputs)
-        write_json(folder / f"{name}.quality.json", ex.quality, force=True, inputs=inputs)
-        write_provenance(out, inputs, {"quality": ex.quality}, force=True)
-        q = ex.quality
-        app.session.append({"name": name, "file": out, "quality": q})
-        row = (name, str(out), f"{min(q['ir']['inr_db']):.1f}",
+        q = res.quality
+        app.session.append({"name": name, "file": res.output, "quality": q})
+        row = (name, str(res.output), f"{min(q['ir']['inr_db']):.1f}",
                f"{max(q['recording']['peak_dbfs']):.1f}",
                str(sum(q["recording"]["clipped_samples"])), str(len(q["warnings"])))
         app.call_from_thread(self.query_one("#ms-positions", DataTable).add_row, *row)
         nxt = f"P{len(app.session) + 1}"
         app.call_from_thread(setattr, self.query_one("#ms-name", Input), "value", nxt)
+        app.call_from_thread(self.query_one("#ms-progress", ProgressBar).update, progress=1.0)
         app.call_from_thread(self.query_one("#ms-status", Static).update,
                              f"{name}: impulse-to-noise ratio (INR) "
                              f"{min(q['ir']['inr_db']):.1f} dB; "

@@ -13,11 +13,8 @@ from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import Button, Checkbox, Input, Label, ProgressBar, Select, Static
 
 from roomconv.errors import InputError, RoomconvError
+from roomconv.jobs.progress import Cancelled
 from roomconv.safety import caution_text
-
-
-class Cancelled(Exception):
-    pass
 
 
 class RenderPane(VerticalScroll):
@@ -46,6 +43,7 @@ class RenderPane(VerticalScroll):
             yield Button("Cancel", id="rn-cancel")
             yield Button("Preview 10 s", id="rn-preview")
             yield Checkbox("I have read the caution below", id="rn-ack")
+            yield Checkbox("Replace existing files", id="rn-replace")
         yield Static("job", id="rn-job-label", classes="status")
         yield ProgressBar(total=1.0, show_eta=False, id="rn-job")
         yield Static("overall", classes="status")
@@ -55,18 +53,21 @@ class RenderPane(VerticalScroll):
 
     cancel_event: threading.Event | None = None
 
+    def number(self, selector: str, label: str) -> float:
+        """A field's number, or a refusal naming the field."""
+        text = self.query_one(selector, Input).value.strip()
+        try:
+            return float(text)
+        except ValueError:
+            raise InputError(f"{label}: '{text}' is not a number") from None
+
     def settings(self):
         from roomconv.render.offline import RenderSettings
-        try:
-            return RenderSettings(mix=float(self.query_one("#rn-mix", Input).value),
-                                  predelay_ms=float(self.query_one("#rn-predelay", Input).value),
-                                  gain_db=float(self.query_one("#rn-gain", Input).value),
-                                  normalize=self.query_one("#rn-normalize", Select).value,
-                                  match_ir_level=True).check()
-        except InputError:
-            raise  # the library's own refusal says what is wrong already
-        except ValueError as exc:
-            raise RoomconvError(f"wet/dry, pre-delay and gain must be numbers ({exc})") from None
+        return RenderSettings(mix=self.number("#rn-mix", "Wet/dry"),
+                              predelay_ms=self.number("#rn-predelay", "Pre-delay ms"),
+                              gain_db=self.number("#rn-gain", "Gain dB"),
+                              normalize=str(self.query_one("#rn-normalize", Select).value),
+                              match_ir_level=True).check()
 
     @on(Button.Pressed, "#rn-run")
     def run_pressed(self) -> None:
@@ -80,8 +81,7 @@ class RenderPane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="render")
     def render_queue(self, cancel: threading.Event) -> None:
-        from roomconv.audio import write_provenance
-        from roomconv.render.offline import render_file
+        from roomconv.jobs.render import render_many
         app = self.app
         job_bar = self.query_one("#rn-job", ProgressBar)
         all_bar = self.query_one("#rn-all", ProgressBar)
@@ -92,38 +92,37 @@ class RenderPane(VerticalScroll):
             drys = [Path(p) for p in shlex.split(self.query_one("#rn-dry", Input).value)]
             ir = Path(self.query_one("#rn-ir", Input).value)
             if not drys:
-                raise RoomconvError("type one or more dry files first")
+                raise InputError("Dry files: type one or more dry files first")
             folder = Path(self.query_one("#rn-out", Input).value)
-            folder.mkdir(parents=True, exist_ok=True)
-        except (RoomconvError, OSError) as exc:
+        except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Render")
             return
-        done, failed = 0, []
-        for k, dry in enumerate(drys):
-            out = folder / f"{dry.stem}__{ir.stem}.wav"
-            app.call_from_thread(label.update, f"job {k + 1}/{len(drys)}: {out.name}")
 
-            def tick(frac, k=k):
-                if cancel.is_set():
-                    raise Cancelled()
-                app.call_from_thread(job_bar.update, progress=frac)
-                app.call_from_thread(all_bar.update, progress=(k + frac) / len(drys))
-            try:
-                rep = render_file(dry, ir, out, s, force=True, progress=tick)
-                write_provenance(out, [dry, ir], s.as_dict(), force=True)
-                done += 1
-                for w in rep.warnings:
-                    app.call_from_thread(app.notify, w, severity="warning", title=out.name)
-            except Cancelled:
-                app.call_from_thread(status.update, f"cancelled after {done} file(s)")
-                return
-            except RoomconvError as exc:
-                failed.append(f"{dry.name}: {exc}")
-                app.call_from_thread(app.notify, str(exc), severity="error", title=dry.name)
+        def progress(stage: str, frac: float, message: str | None = None) -> None:
+            if cancel.is_set():
+                raise Cancelled()
+            k = int(stage.split("/", 1)[0]) - 1
+            app.call_from_thread(label.update, f"job {stage}")
+            app.call_from_thread(job_bar.update, progress=frac)
+            app.call_from_thread(all_bar.update, progress=(k + frac) / len(drys))
+            if message:
+                app.call_from_thread(app.notify, message, severity="error", title="Render")
+        try:
+            res = render_many(drys, ir, folder, s, progress=progress,
+                              force=self.query_one("#rn-replace", Checkbox).value)
+        except RoomconvError as exc:
+            app.call_from_thread(app.notify, str(exc), severity="error", title="Render")
+            return
+        for rep in res.reports:
+            for w in rep.warnings:
+                app.call_from_thread(app.notify, w, severity="warning", title=rep.output.name)
+        if res.cancelled:
+            app.call_from_thread(status.update, f"cancelled after {len(res.reports)} file(s)")
+            return
         app.call_from_thread(all_bar.update, progress=1.0)
-        msg = f"rendered {done} of {len(drys)} into {folder}"
-        if failed:
-            msg += f"; {len(failed)} failed"
+        msg = f"rendered {len(res.reports)} of {len(drys)} into {folder}"
+        if res.failed:
+            msg += f"; {len(res.failed)} failed"
         app.call_from_thread(status.update, msg)
 
     @on(Button.Pressed, "#rn-preview")
@@ -136,19 +135,17 @@ class RenderPane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="preview")
     def preview(self) -> None:
-        from roomconv.audio import read_audio
-        from roomconv.measure.capture import load_sounddevice
-        from roomconv.render.offline import render_arrays
-        from roomconv.safety import OutputLimiter, apply_ramps
+        from roomconv.jobs.render import preview
         app = self.app
         try:
-            sd = load_sounddevice()
             drys = shlex.split(self.query_one("#rn-dry", Input).value)
-            dry, rate = read_audio(drys[0])
-            ir, ir_rate = read_audio(self.query_one("#rn-ir", Input).value)
-            y = render_arrays(dry[: 10 * rate], ir, rate, self.settings(), ir_rate=ir_rate)
-            y = OutputLimiter(rate).process(apply_ramps(y * 10 ** (-12 / 20), rate))
-            sd.play(y.astype("float32"), rate, blocking=True)
-        except (RoomconvError, IndexError) as exc:
-            app.call_from_thread(app.notify, str(exc) or "nothing to preview",
-                                 severity="error", title="Preview")
+            if not drys:
+                raise InputError("Dry files: type a dry file to preview")
+            preview(drys[0], self.query_one("#rn-ir", Input).value, self.settings(),
+                    confirm=self.confirm)
+        except RoomconvError as exc:
+            app.call_from_thread(app.notify, str(exc), severity="error", title="Preview")
+
+    def confirm(self) -> None:
+        if not self.query_one("#rn-ack", Checkbox).value:
+            raise InputError("read the caution and tick the box before any sound is played")

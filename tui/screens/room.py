@@ -6,13 +6,13 @@ from __future__ import annotations
 from pathlib import Path
 
 from textual import on, work
-from textual.worker import get_current_worker
 from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
-from textual.widgets import Button, DataTable, Input, Label, Select, Static
+from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, Static
+from textual.worker import get_current_worker
 
-from roomconv.cli_synth import parse_triple
 from roomconv.errors import RoomconvError
+from roomconv.jobs.synth import parse_triple, room_size
 from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
 
@@ -46,6 +46,7 @@ class RoomPane(VerticalScroll):
                          allow_blank=False, id="room-stereo")
             yield Label("Save IR as")
             yield Input("room.wav", id="room-out")
+            yield Checkbox("Replace an existing file", id="room-replace")
         with Horizontal(classes="row"):
             yield Button("Synthesize", id="room-synth", variant="primary")
             yield Button("→ Analyze", id="room-to-analyze")
@@ -57,8 +58,8 @@ class RoomPane(VerticalScroll):
         self.update_prediction()
 
     def room(self) -> RoomModel:
-        L, W, H = parse_triple(self.query_one("#room-size", Input).value, "size", sep="x")
-        surfaces = {s: self.query_one(f"#mat-{s}", Select).value for s in SURFACES}
+        L, W, H = room_size(self.query_one("#room-size", Input).value)
+        surfaces = {s: str(self.query_one(f"#mat-{s}", Select).value) for s in SURFACES}
         return RoomModel(L, W, H, surfaces)
 
     @on(Input.Changed)
@@ -83,30 +84,27 @@ class RoomPane(VerticalScroll):
 
     @work(thread=True, exclusive=True, group="room")
     def synthesize(self) -> None:
-        from roomconv.audio import write_audio, write_provenance
-        from roomconv.synth.generate import Receivers, synthesize
+        from roomconv.jobs.synth import synthesize_room
         app = self.app
         try:
             room = self.room()
-            src = parse_triple(self.query_one("#room-source", Input).value, "source")
-            rcv = parse_triple(self.query_one("#room-receiver", Input).value, "receiver")
+            src = parse_triple(self.query_one("#room-source", Input).value, "source position")
+            rcv = parse_triple(self.query_one("#room-receiver", Input).value,
+                               "receiver position")
             out = Path(self.query_one("#room-out", Input).value)
-            stereo = self.query_one("#room-stereo", Select).value
-            res = synthesize(room, src, rcv, receivers=Receivers.parse(stereo), seed=0)
-            write_audio(out, res.ir, res.rate, force=True)
-            write_provenance(out, [], {"room": [room.length, room.width, room.height],
-                                       "surfaces": room.surfaces, "source": list(src),
-                                       "receiver": list(rcv), "stereo": stereo},
-                             force=True)
-        except (ValueError, RoomconvError) as exc:
+            stereo = str(self.query_one("#room-stereo", Select).value)
+            res = synthesize_room(out, room, source_m=src, receiver_m=rcv,
+                                  stereo=None if stereo == "mono" else stereo, seed=0,
+                                  force=self.query_one("#room-replace", Checkbox).value)
+        except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Room")
             return
         if get_current_worker().is_cancelled:
             return
-        app.last_synth = out
+        ir, rate = res.ir, res.result.rate
         app.call_from_thread(self.query_one("#room-status", Static).update,
-                             f"wrote {out} ({res.ir.shape[1]} ch, {res.ir.shape[0] / res.rate:.2f} s)"
-                             f"; {res.image_count} image sources")
+                             f"wrote {out} ({ir.shape[1]} ch, {ir.shape[0] / rate:.2f} s)"
+                             f"; {res.result.image_count} image sources")
         app.call_from_thread(app.notify, f"synthesized {out}", title="Room")
 
     @on(Button.Pressed, "#room-to-analyze")

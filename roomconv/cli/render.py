@@ -2,16 +2,20 @@
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
-from .audio import WriteGuard, sidecar_path, write_provenance
-from .cli import _note, _out, command, device_spec
-from .progress import Progress
+from .. import validate
+from ..errors import InputError
+from ..jobs import render as jobs
+from .common import Command, budget, confirm_caution, device_spec, note, opt, out
+from .display import BatchView, progress_bar
+
+__all__ = ["COMMANDS", "render_options", "settings_from_args", "describe_report"]
 
 
 def render_options(p):
-    from . import validate as v
-    from .cli import opt
+    v = validate
     g = p.add_argument_group("rendering")
     g.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
                    help="wet/dry: 0 dry only … 1 wet only (1). The response is first scaled "
@@ -53,7 +57,8 @@ def render_options(p):
 
 
 def settings_from_args(a):
-    from .render.offline import RenderSettings
+    """The render settings from the options; ``--target`` alone implies loudness."""
+    from ..render.offline import LOUDNESS_TARGET_MIN, RenderSettings
     normalize = a.normalize
     if normalize is None:
         normalize = "none"
@@ -61,15 +66,11 @@ def settings_from_args(a):
             # A target nobody acts on would be silently ignored; loudness is what a bare
             # target most often means, and the note says so.
             normalize = "loudness"
-            _note(f"--target {a.target:g} without --normalize: normalizing loudness to "
-                  f"{a.target:g} LUFS")
+            note(f"--target {a.target:g} without --normalize: normalizing loudness to "
+                 f"{a.target:g} LUFS")
     elif normalize == "none" and a.target is not None:
-        from .errors import InputError
         raise InputError("--target: given with --normalize none; drop one of the two")
     if normalize == "loudness" and a.target is not None:
-        from . import validate
-        from .cli import budget
-        from .render.offline import LOUDNESS_TARGET_MIN
         budget("--target", validate.in_range, a.target, "loudness target",
                LOUDNESS_TARGET_MIN, 0.0, unit="LUFS")
     return RenderSettings(mix=a.mix, predelay_ms=a.predelay, gain_db=a.gain,
@@ -79,23 +80,9 @@ def settings_from_args(a):
                           match_ir_level=not a.keep_ir_level).check()
 
 
-def check_predelay(a, paths) -> None:
-    """Refuse a pre-delay whose buffer would not fit, at the rate of the files it applies to,
-    before any work (files that cannot be read are reported later by the render itself)."""
-    from .audio import audio_info
-    from .cli import budget
-    from . import validate
-    for p in paths:
-        try:
-            info = audio_info(p)
-        except Exception:  # noqa: BLE001 - unreadable inputs get their own message later
-            continue
-        budget("--predelay", validate.seconds_budget, a.predelay / 1000.0, info.samplerate,
-               "this pre-delay", channels=info.channels)
-
-
 def describe_report(r) -> str:
-    from .render.mix import describe_balance
+    """One line on what a render wrote."""
+    from ..render.mix import describe_balance
     parts = [f"wrote {r.output}: {r.channels} channel(s), {r.frames / r.rate:.2f} s at "
              f"{r.rate} Hz, routing {r.routing}, peak {r.peak_dbfs:+.1f} dBFS"]
     if r.true_peak_dbtp is not None:
@@ -111,137 +98,60 @@ def describe_report(r) -> str:
     return ", ".join(parts)
 
 
-@command("render", "render a dry recording through an impulse response")
-def cmd_render(a):
-    from .render.offline import render_file
+def _named(exc: InputError) -> InputError:
+    """The job's refusal with the options that change what it is about."""
+    text = str(exc)
+    if "cannot route" in text:
+        return InputError(f"{text} (see --shared and --outputs)")
+    if "Dask cluster" in text:
+        return InputError(f"--scheduler: {text}")
+    return exc
+
+
+def run_render(a):
     s = settings_from_args(a)
-    check_predelay(a, [a.dry])
-    # Plan the output and its provenance sidecar before any work, against both inputs.
-    guard = WriteGuard([a.dry, a.ir], force=a.force)
-    guard.file(a.output)
-    guard.file(sidecar_path(a.output, "provenance"))
-    with Progress(1.0, "rendering", enabled=False if a.quiet else None) as bar:
-        def tick(frac, bar=bar):
-            bar.update(frac - bar.done)
-        rep = render_file(a.dry, a.ir, a.output, s, force=a.force, progress=tick, guard=guard)
-    write_provenance(a.output, [a.dry, a.ir], s.as_dict(), guard=guard)
+    budget("--predelay", jobs.check_predelay, a.predelay, [a.dry])
+    with progress_bar("rendering", quiet=a.quiet) as progress:
+        try:
+            rep = jobs.render_one(a.dry, a.ir, a.output, s, force=a.force, progress=progress)
+        except InputError as exc:
+            raise _named(exc) from None
     for w in rep.warnings:
-        _note(f"warning: {w}")
-    _out(describe_report(rep), a)
+        note(f"warning: {w}")
+    out(describe_report(rep), a)
     return 0
 
 
-def _cfg_render(p):
+def configure_render(p):
     p.add_argument("dry", type=Path, help="dry recording")
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("-o", "--output", type=Path, required=True, help="wet file to write")
     render_options(p)
 
 
-cmd_render.configure = _cfg_render
-
-
-class BatchDisplay:
-    """Overall bar plus one line per running job (redrawn in place on a terminal)."""
-
-    def __init__(self, total: int, stream=None, enabled: bool | None = None):
-        import sys
-        self.stream = stream or sys.stderr
-        self.enabled = self.stream.isatty() if enabled is None else enabled
-        self.total, self.finished = total, 0
-        self.active: dict[str, float] = {}
-        self._lines = 0
-        self._last = 0.0
-
-    def __call__(self, kind, payload):
-        import time as _t
-        if kind == "start":
-            self.active[payload.name] = 0.0
-        elif kind == "progress":
-            name, frac = payload
-            if name in self.active:
-                self.active[name] = frac
-        elif kind in ("done", "skip"):
-            self.finished += 1
-            self.active.pop(payload.job.name, None)
-            mark = {"done": "ok", "skipped": "skip", "failed": "FAIL"}[payload.status]
-            self._clear()
-            line = f"[{self.finished}/{self.total}] {mark:<4} {payload.job.name}"
-            if payload.message:
-                line += f": {payload.message}"
-            print(line, file=self.stream)
-        now = _t.monotonic()
-        if self.enabled and (now - self._last > 0.1 or kind != "progress"):
-            self._last = now
-            self._draw()
-
-    def _clear(self):
-        if self.enabled and self._lines:
-            self.stream.write(f"\x1b[{self._lines}F\x1b[J")
-            self._lines = 0
-
-    def _draw(self):
-        self._clear()
-        lines = []
-        for name, frac in sorted(self.active.items()):
-            fill = int(frac * 20)
-            lines.append(f"  {name[:40]:<40} [{'#' * fill}{'.' * (20 - fill)}] {100 * frac:3.0f}%")
-        frac = self.finished / max(self.total, 1)
-        fill = int(frac * 30)
-        lines.append(f"overall [{'#' * fill}{'.' * (30 - fill)}] {self.finished}/{self.total}")
-        self.stream.write("\n".join(lines) + "\n")
-        self.stream.flush()
-        self._lines = len(lines)
-
-    def close(self):
-        if self.enabled:
-            self._draw()
-
-
-@command("batch", "render many dry files through many IRs (local pool or Dask cluster)")
-def cmd_batch(a):
-    from .render.batch import dask_executor, local_executor, plan_jobs, run_batch
+def run_batch(a):
     s = settings_from_args(a)
-    check_predelay(a, a.dry)
-    # One guard knows every dry file and response of the batch: no output or sidecar may land
-    # on any of them. The folder is created only when the first job starts.
-    guard = WriteGuard([*a.dry, *a.ir], force=a.force)
-    out_dir = guard.folder(a.out_dir)
-    jobs = plan_jobs(a.dry, a.ir, out_dir, s, guard=guard)
-    display = BatchDisplay(len(jobs), enabled=False if a.quiet else None)
-    if a.scheduler:
-        executor, progress, owner = dask_executor(a.scheduler)
-    else:
-        executor, progress, owner = local_executor(a.workers)
+    budget("--predelay", jobs.check_predelay, a.predelay, a.dry)
+    view = BatchView(len(a.dry) * len(a.ir), quiet=a.quiet)
     try:
-        with executor:
-            outcomes = run_batch(jobs, executor, force=a.force, progress=progress,
-                                 on_event=display,
-                                 before_first=lambda: guard.make_folder(out_dir))
-    finally:
-        display.close()
-        guard.close()
-        owner_close = getattr(owner, "close", None) or getattr(owner, "shutdown", None)
-        if owner_close:
-            owner_close()
-    done = sum(o.status == "done" for o in outcomes)
-    skipped = sum(o.status == "skipped" for o in outcomes)
-    failed = [o for o in outcomes if o.status == "failed"]
-    _out(f"batch: {done} rendered, {skipped} already finished, {len(failed)} failed, "
-         f"{len(jobs)} in all → {out_dir}", a)
+        with view:
+            res = jobs.run_batch(a.dry, a.ir, a.out_dir, s, workers=a.workers,
+                                 scheduler=a.scheduler, force=a.force, on_event=view)
+    except InputError as exc:
+        raise _named(exc) from None
+    failed = res.failed
+    out(f"batch: {res.count('done')} rendered, {res.count('skipped')} already finished, "
+        f"{len(failed)} failed, {len(res.outcomes)} in all → {res.out_dir}", a)
     for o in failed:
-        _note(f"failed: {o.job.name}: {o.message}")
-    if failed:
-        return 2 if all(o.exit_code == 2 for o in failed) else 1
-    return 0
+        hint = " (pass --force to replace it)" if "other inputs or settings" in o.message else ""
+        note(f"failed: {o.job.name}: {o.message}{hint}")
+    return res.exit_code
 
 
-def _cfg_batch(p):
+def configure_batch(p):
     p.add_argument("dry", nargs="+", type=Path, help="dry files")
     p.add_argument("--ir", nargs="+", type=Path, required=True, help="impulse responses")
     p.add_argument("--out-dir", type=Path, required=True, help="folder for <dry>__<ir>.wav")
-    from . import validate
-    from .cli import opt
     p.add_argument("--workers", type=opt(validate.count, "number of workers", 1, 256),
                    default=None, help="local processes, 1-256 (all cores)")
     p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
@@ -249,40 +159,20 @@ def _cfg_batch(p):
     render_options(p)
 
 
-cmd_batch.configure = _cfg_batch
-
-
-@command("live", "convolve a sound-card input with an IR in real time")
-def cmd_live(a):
-    import sys
-    from .audio import read_audio
-    from .cli import confirm_caution
-    from .errors import InputError
-    from .render.offline import resample_ir
-    from .render.mix import describe_balance
-    from .render.stream import LiveProcessor, run_live
-    from .measure.capture import load_sounddevice
-    ir, ir_rate = read_audio(a.ir, what="impulse response")
-    ins, outs = a.input_channels, a.output_channels
-    sd = load_sounddevice()
-    rate = a.rate
-    if rate is None:
-        try:
-            rate = int(sd.query_devices(a.device, "output")["default_samplerate"])
-        except Exception:
-            rate = ir_rate
-    if ir_rate != rate:
-        ir = resample_ir(ir, ir_rate, rate)
-    if a.ceiling > -1.0:
-        raise InputError(f"--ceiling {a.ceiling} dBFS is above the output cap of -1 dBFS")
-    proc = LiveProcessor(ir, rate, block=a.block, n_in=len(ins), mix=a.mix, gain_db=a.gain,
-                         ceiling_dbfs=a.ceiling, precision=a.precision,
-                         match_ir_level=not a.keep_ir_level)
-    confirm_caution(a)
+def run_live(a):
+    from ..render.mix import describe_balance
+    budget("--ceiling", jobs.check_ceiling, a.ceiling)
+    setup = jobs.prepare_live(a.ir, rate_hz=a.rate, device=a.device, block_samples=a.block,
+                              input_channels=a.input_channels,
+                              output_channels=a.output_channels, mix=a.mix, gain_db=a.gain,
+                              ceiling_dbfs=a.ceiling, precision=a.precision,
+                              match_ir_level=not a.keep_ir_level)
+    confirm_caution(a)()
+    proc, rate = setup.processor, setup.rate_hz
     n_st = len(proc.engine.stages)
-    _note(f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
-          f"routing {proc.routing.name}, wet/dry balance {describe_balance(proc.wet_dry_db)}; "
-          "Ctrl-C stops")
+    note(f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
+         f"routing {proc.routing.name}, wet/dry balance {describe_balance(proc.wet_dry_db)}; "
+         "Ctrl-C stops")
 
     def meter(st):
         if a.quiet:
@@ -291,20 +181,23 @@ def cmd_live(a):
                          f"limiter {st.limiter_db:4.1f} dB  dropouts {st.dropouts}  ")
         sys.stderr.flush()
 
-    st = run_live(proc, rate, device=a.device, input_channels=ins, output_channels=outs,
-                  duration_s=a.duration, on_meter=meter)
+    try:
+        st = jobs.run_live(setup, duration_s=a.duration, on_meter=meter)
+    except InputError as exc:
+        if "output channel" in str(exc):
+            raise InputError(f"--output-channels: {exc}") from None
+        raise
     per_block = proc.block / rate
-    _out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
-         f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
-         f"{100 * st.compute.mean_s / per_block:.1f} % / p99 "
-         f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block"
-         + (f", {st.nonfinite} non-finite blocks silenced" if st.nonfinite else ""), a)
+    out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
+        f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
+        f"{100 * st.compute.mean_s / per_block:.1f} % / p99 "
+        f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block"
+        + (f", {st.nonfinite} non-finite blocks silenced" if st.nonfinite else ""), a)
     return 0
 
 
-def _cfg_live(p):
-    from . import validate as v
-    from .cli import opt
+def configure_live(p):
+    v = validate
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("--block", type=opt(v.count, "block size", 32, 1024), default=128,
                    help="block size, 32-1024 samples (128)")
@@ -313,9 +206,9 @@ def _cfg_live(p):
     p.add_argument("--device", type=device_spec, default=None,
                    help="PortAudio device: its index, or part of its name")
     p.add_argument("--input-channels", type=opt(v.channel_list, "input channels"),
-                   default=(1,), help="1-based inputs, comma-separated (1)")
+                   default=(1,), help="inputs counting from 1, comma-separated (1)")
     p.add_argument("--output-channels", type=opt(v.channel_list, "output channels"),
-                   default=(1,), help="1-based outputs (1)")
+                   default=(1,), help="outputs counting from 1 (1)")
     p.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
                    help="wet/dry 0..1 (1), on level-matched wet and dry as for render")
     p.add_argument("--keep-ir-level", action="store_true",
@@ -335,4 +228,11 @@ def _cfg_live(p):
                    help="confirm you have read the hearing and equipment caution")
 
 
-cmd_live.configure = _cfg_live
+COMMANDS = [
+    Command("render", "render a dry recording through an impulse response",
+            configure_render, run_render),
+    Command("batch", "render many dry files through many IRs (local pool or Dask cluster)",
+            configure_batch, run_batch),
+    Command("live", "convolve a sound-card input with an IR in real time",
+            configure_live, run_live),
+]

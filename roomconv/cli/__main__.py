@@ -1,0 +1,5 @@
+import sys
+
+from roomconv.cli import main
+
+sys.exit(main())

@@ -1,0 +1,125 @@
+"""The ``analyze`` command: ISO 3382 parameters of one or many impulse responses."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from ..errors import InputError
+from ..jobs.analyze import analyze_study
+from .common import Command, note, out
+from .display import print_table, progress_bar
+
+__all__ = ["COMMANDS", "show_study"]
+
+
+def show_study(doc: dict) -> None:
+    """Per-position tables, the average with its uncertainty, the single numbers, notes."""
+    from ..analysis.report import (
+        HEADERS,
+        LEGEND,
+        band_label,
+        mean_with_spread,
+        metrics_of,
+        single_number_lines,
+        table_rows,
+    )
+    metrics = metrics_of(doc)
+    header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
+    right = range(1, len(metrics) + 1)
+    for p in doc["positions"]:
+        print_table(header, table_rows(p, metrics), right=right,
+                    title=f"{p['file']}  channel {p['channel']}")
+        for w in (w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]):
+            print(f"  ! {w}")
+    if len(doc["positions"]) > 1:
+        rows = []
+        for r in doc["average"]["bands"]:
+            u = r["t30_s"].get("uncertainty")
+            rows.append([band_label(r["band_hz"]), *(mean_with_spread(m, r) for m in
+                                                     ("edt_s", "t20_s", "t30_s")),
+                         "—" if u is None else f"{u:.3f}",
+                         *(mean_with_spread(m, r) for m in ("c80_db", "d50", "ts_ms"))])
+        print_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"],
+                    rows, right=range(1, 8),
+                    title=f"Average over {len(doc['positions'])} positions (mean ± std; "
+                          "T uncertainty per ISO 3382-2)")
+    print("Mid-frequency values:")
+    for line in single_number_lines(doc):
+        print(f"  {line}")
+    print(LEGEND)
+    for n in doc.get("notes", []):
+        print(f"note: {n}")
+    for e in doc.get("errors", []):
+        print(f"error: {e}")
+
+
+def run_analyze(a):
+    if a.study is not None:
+        return _run_study(a)
+    if not a.irs:
+        raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
+    with progress_bar("analysing", quiet=a.quiet) as progress:
+        res = analyze_study(a.irs, bands=a.bands, filtering=a.filtering,
+                            calibration=a.calibration, json_path=a.json, csv_path=a.csv,
+                            report_dir=a.report, force=a.force, progress=progress)
+    if not a.quiet:
+        show_study(res.study.document)
+    for p in res.written:
+        out(f"wrote {p}", a)
+    for e in res.errors:  # the outputs above hold the readable files; say which were not
+        note(f"skipped: {e}")
+    return 2 if res.errors else 0
+
+
+def _run_study(a):
+    """``analyze --study``: the responses a study file names; the report as HTML and PDF."""
+    from ..jobs.study import report_study
+    from ..report.pdf import pdf_engine_problem
+    if a.irs:
+        raise InputError("analyze: give either IR.wav files or --study, not both (the study "
+                         "file lists its responses)")
+    if a.report is not None:
+        problem = pdf_engine_problem()
+        if problem is not None:
+            raise InputError(f"--report: cannot write the PDF: {problem}")
+    with progress_bar("analysing", quiet=a.quiet) as progress:
+        res = report_study(a.study, bands=a.bands, filtering=a.filtering,
+                           calibration=a.calibration, json_path=a.json, csv_path=a.csv,
+                           report_dir=a.report, force=a.force, progress=progress)
+    doc = res.document
+    if not a.quiet:
+        show_study(doc)
+    g = doc["grade"]
+    out(f"measurement grade (ISO 3382-2): {g['name'] or 'below survey'}", a)
+    for p in res.written:
+        out(f"wrote {p}", a)
+    return 2 if res.errors else 0
+
+
+def configure_analyze(p):
+    p.add_argument("irs", nargs="*", type=Path, metavar="IR.wav",
+                   help="impulse responses; every channel is its own position (or --study)")
+    p.add_argument("--study", type=Path, default=None, metavar="STUDY.toml",
+                   help="a study file (see 'roomconv study init'): its responses, positions "
+                        "and details; with --report, DIR/report.html and DIR/report.pdf")
+    p.add_argument("--bands", choices=("octave", "third"), default="octave",
+                   help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands")
+    p.add_argument("--json", type=Path, default=None, metavar="OUT.json",
+                   help="write all results as JSON")
+    p.add_argument("--csv", type=Path, default=None, metavar="OUT.csv", help="write a CSV table")
+    p.add_argument("--report", type=Path, default=None, metavar="DIR",
+                   help="write DIR/report.html with tables and plots")
+    p.add_argument("--calibration", default=None, metavar="FILE.json|DB",
+                   help="strength reference for G: a file from 'roomconv calibrate' (per band), "
+                        "or one number, 10 lg(∫p² dt) of the source at 10 m in a free field in "
+                        "full-scale²·s, which gives the wideband G only")
+    p.add_argument("--filtering", choices=("auto", "forward", "reverse"), default="auto",
+                   help="band filtering: auto (default: backwards in time for decay times, "
+                        "zero-phase for C50/C80/D50/Ts, which keeps the filter's own response "
+                        "out of both); forward or reverse use one filter for everything, only "
+                        "for comparison with other methods")
+    p.add_argument("--force", action="store_true", help="replace existing outputs")
+
+
+COMMANDS = [Command("analyze", "room-acoustic parameters (ISO 3382) of impulse responses",
+                    configure_analyze, run_analyze)]
