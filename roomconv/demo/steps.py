@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from ..errors import OutputExistsError
+from ..errors import InputError, OutputExistsError
 from ..jobs.progress import ProgressCallback, silent
 from .scenario import (
     CHAIN,
@@ -61,6 +61,9 @@ def run_demo(out, *, quick: bool = False, force: bool = False,
     sc = QUICK if quick else FULL
     t_start = time.monotonic()
     out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"{out}: exists and is not a folder; give a folder for the demo's "
+                         "files")
     if out.exists() and any(out.iterdir()) and not force:
         raise OutputExistsError(f"{out}: folder is not empty (nothing was replaced)")
     make_folders(out, *(out / sub for sub in ("irs", "harmonics", "renders", "recordings")))

@@ -29,9 +29,15 @@ __all__ = ["check_predelay", "render_one", "render_many", "QueueResult", "run_ba
            "preview"]
 
 
+#: Longest pre-delay accepted, ms: a second is beyond any room's initial time gap (tens of
+#: ms) and any musical use (common practice); longer ones only cost memory and time.
+MAX_PREDELAY_MS = 1000.0
+
+
 def check_predelay(predelay_ms: float, paths: Sequence) -> None:
-    """Refuse a pre-delay whose buffer would not fit, at the rate and width of each file it
-    applies to, before any work. Unreadable files are left to the render's own refusal."""
+    """Refuse a pre-delay longer than any room's (``MAX_PREDELAY_MS``) or whose buffer would
+    not fit, at the rate and width of each file it applies to, before any work. Unreadable
+    files are left to the render's own refusal."""
     for p in paths:
         try:
             info = audio_info(p)
@@ -39,6 +45,7 @@ def check_predelay(predelay_ms: float, paths: Sequence) -> None:
             continue
         validate.seconds_budget(predelay_ms / 1000.0, info.samplerate, "this pre-delay",
                                 channels=info.channels)
+    validate.in_range(predelay_ms, "pre-delay", 0.0, MAX_PREDELAY_MS, unit="ms")
 
 
 def render_one(dry, ir, output, settings: RenderSettings, *, force: bool = False,
@@ -162,6 +169,10 @@ def run_batch(drys: Sequence, irs: Sequence, out_dir, settings: RenderSettings, 
         # The folder is created only when the first job starts.
         folder = g.folder(out_dir)
         jobs = plan_jobs(drys, irs, folder, settings, guard=g, output_name=render_output_name)
+        if jobs and all(j.problem for j in jobs):
+            # Nothing could be rendered: one refusal before any worker starts. With some
+            # good inputs the batch goes on and reports each failed job instead.
+            raise InputError(jobs[0].problem)
         if scheduler:
             executor, queue, owner = dask_executor(scheduler)
         else:

@@ -90,8 +90,10 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
     {500: 1.8, 1000: 1.6}
     """
     from ..synth.materials import OCTAVES
-    if not text:
+    if text is None:
         return {}
+    if not str(text).strip():
+        raise InputError(f"{what} is empty: give BAND:VALUE items (e.g. 500:1.8) or one value")
     out: dict[int, float]
     try:
         out = {b: float(text) for b in OCTAVES}
@@ -100,10 +102,14 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
         for item in text.split(","):
             band_text, _, val = item.partition(":")
             try:
-                out[int(float(band_text))] = float(val)
+                band = int(float(band_text))
+                value = float(val)
             except (ValueError, OverflowError):
                 raise InputError(f"{what} item '{item}' must look like BAND:VALUE "
                                  "(e.g. 500:1.8)") from None
+            if band in out:
+                raise InputError(f"{what}: the {band} Hz band is given twice")
+            out[band] = value
     for band, value in out.items():
         if band not in OCTAVES:
             raise InputError(f"{what}: {band} Hz is not an octave band "
@@ -116,8 +122,11 @@ def parse_materials(text: str | None) -> dict[str, str]:
     """'floor=carpet,walls=plaster' (walls = the four walls, all = every surface)."""
     from ..synth.room import SURFACES
     out: dict[str, str] = {}
-    if not text:
+    if text is None:
         return out
+    if not str(text).strip():
+        raise InputError("materials are empty: give SURFACE=MATERIAL items "
+                         "(e.g. floor=carpet,walls=plaster)")
     for item in text.split(","):
         surf, _, mat = item.partition("=")
         surf, mat = surf.strip(), mat.strip()

@@ -2,6 +2,7 @@
 or a stated note."""
 
 import numpy as np
+import pytest
 import soundfile as sf
 
 from roomconv.synth.generate import DEFAULT_LENGTH_CAP_S, synthesize
@@ -50,3 +51,34 @@ def test_an_output_planned_as_file_and_folder_is_refused_before_work(tmp_path):
     g2.file(tmp_path / "x")
     with pytest.raises(InputError, match="as a file and as a folder"):
         g2.folder(tmp_path / "x")
+
+
+@pytest.mark.parametrize("args, text", [
+    (["edit", "IR", "-o", "OUT", "--decay-scale", ""], "no edit"),
+    (["edit", "IR", "-o", "OUT", "--decay-scale", "1000:2,1000:3"], "given twice"),
+    (["synth", "OUT", "--room", "6x5x3", "--rt60", ""], "empty"),
+    (["synth", "OUT", "--room", "6x5x3", "--materials", ""], "empty"),
+    (["render", "DRY", "--ir", "IR", "-o", "OUT", "--predelay", "600000"], "pre-delay"),
+    (["demo", "--out", "IR", "--quick"], "not a folder"),
+])
+def test_audit_refusals_are_one_line_exit_2(tmp_path, cli, args, text):
+    rng = np.random.default_rng(1)
+    t = np.arange(24000) / 48000
+    sf.write(tmp_path / "ir.wav", rng.standard_normal(t.size) * 10 ** (-3 * t / 0.3), 48000)
+    sf.write(tmp_path / "dry.wav", 0.1 * rng.standard_normal(48000), 48000)
+    names = {"IR": tmp_path / "ir.wav", "DRY": tmp_path / "dry.wav", "OUT": tmp_path / "o.wav"}
+    before = sorted(p.name for p in tmp_path.iterdir())
+    code, _, err = cli(*[names.get(a, a) for a in args])
+    assert code == 2, err
+    assert text in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+
+
+def test_a_batch_with_no_usable_input_is_one_refusal(tmp_path, cli):
+    import os
+    os.mkfifo(tmp_path / "dry.wav")  # a pipe: refused before it is opened (it would block)
+    sf.write(tmp_path / "ir.wav", np.array([1.0, 0.5]), 48000)
+    code, _, err = cli("batch", tmp_path / "dry.wav", "--ir", tmp_path / "ir.wav", "--out-dir",
+                       tmp_path / "out")
+    assert code == 2 and len(err.strip().splitlines()) == 1, err
+    assert not (tmp_path / "out").exists()
