@@ -189,8 +189,34 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
                 raise InputError(f"the decay time at {b} Hz cannot be read from the response")
             f = factors.get(b, 1.0)
             band = np.fft.irfft(X * W[i], nfft)[:n]
-            out[:, ch] += band * np.exp(3 * _LN10 * t / T * (1 - 1 / f))
+            t_c = _noise_time(band, rate, t0, T)
+            # Up to where the decay meets the band's noise, reshape the decay; past it the
+            # response is noise, which would be raised without bound: it is carried on at
+            # the new rate from the level reached (a decay cannot be stretched below the
+            # noise it was measured in).
+            log_gain = (3 * _LN10 / T * (1 - 1 / f) * np.minimum(t, t_c)
+                        - 3 * _LN10 / (f * T) * np.maximum(t - t_c, 0.0))
+            out[:, ch] += band * np.exp(log_gain)
     return out
+
+
+def _noise_time(band: np.ndarray, rate: int, t0: int, T: float) -> float:
+    """Seconds after ``t0`` at which a decay of time ``T`` meets the band's noise floor.
+
+    The floor is the mean energy of the last 10 % of the band signal, the start the largest
+    10 ms mean; 60 dB take T seconds. With no noise (a synthetic response) the decay runs on.
+    """
+    n = max(1, int(round(0.01 * rate)))
+    m = band[t0:].size // n
+    if m < 4:
+        return float("inf")
+    env = np.mean(np.square(band[t0: t0 + m * n]).reshape(m, n), axis=1)
+    floor = float(np.mean(env[-max(1, m // 10):]))
+    peak = float(env.max())
+    if floor <= 0 or peak <= 0:
+        return float("inf")
+    drop_db = 10 * np.log10(peak / floor)
+    return max(0.0, T * drop_db / 60.0)
 
 
 def early_late_balance(

@@ -82,3 +82,25 @@ def test_a_batch_with_no_usable_input_is_one_refusal(tmp_path, cli):
                        tmp_path / "out")
     assert code == 2 and len(err.strip().splitlines()) == 1, err
     assert not (tmp_path / "out").exists()
+
+
+def test_stretching_a_decay_does_not_raise_its_noise_floor(tmp_path, cli):
+    # Outside audit: --decay-scale 2 on T = 1 s with noise 80 dB down raised the noise floor
+    # past the direct sound (peak 0.5 → 1.5). The stretched decay stops at the noise it was
+    # measured in and goes on from there at the new rate.
+    rng = np.random.default_rng(4)
+    rate = 16000
+    t = np.arange(4 * rate) / rate
+    h = rng.standard_normal(t.size) * 10 ** (-3 * t / 1.0)
+    h = 0.5 * h / np.max(np.abs(h)) + 0.5 * 10 ** (-80 / 20) * rng.standard_normal(t.size)
+    sf.write(tmp_path / "ir.wav", h, rate, subtype="FLOAT")
+    code, _, err = cli("edit", tmp_path / "ir.wav", "-o", tmp_path / "e.wav", "--decay-scale", 2)
+    assert code == 0, err
+    y, _ = sf.read(tmp_path / "e.wav")
+    # A longer decay holds more energy in its first milliseconds, so the peak may rise a
+    # little (here +0.9 dB); the noise floor must not: the last second is below the input's.
+    assert np.max(np.abs(y)) <= 1.25 * np.max(np.abs(h))
+    assert np.sqrt(np.mean(y[-rate:] ** 2)) < np.sqrt(np.mean(h[-rate:] ** 2))
+    # ... and the stretched response is still an impulse response the analysis reads.
+    code, _, err = cli("analyze", tmp_path / "e.wav", "--json", tmp_path / "e.json")
+    assert code == 0, err
