@@ -676,7 +676,8 @@ def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, r
     (rate/B)·Σ ē(t)² (ē the smoothed energy; Gaussian band-limited noise, Bendat & Piersol
     2010 — from memory). Early and late sums are propagated into each ratio; one position's
     value can differ from the room's by that much, as its decay times do (ISO 3382-2 A.2).
-    The direct sound is counted as random too, so the estimate errs on the cautious side.
+    The direct sound is deterministic: over it the smoothed energy is capped at the diffuse
+    level that follows it.
     """
     per_dof = _dof_samples(band, rate)
     L = max(1, int(round(per_dof)))
@@ -688,6 +689,16 @@ def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, r
         smooth = (c[hi] - c[lo]) / np.maximum(hi - lo, 1)
     else:
         smooth = s
+    # The direct sound is not random: cap the smoothed energy over it (2.5 ms and the band
+    # filter's spread) at the diffuse level just after it, continued back at the decay rate.
+    bw = band.bandwidth if band is not None else rate / 2.0
+    w_end = pre + int(round((DIRECT_SOUND_S + 1.0 / bw) * rate))
+    if 0 < w_end < smooth.size - L:
+        after = float(np.mean(smooth[w_end: w_end + L]))
+        back = (w_end - np.arange(w_end)) / rate
+        cap = after * np.exp(min(k, 1e4) * back) if k > 0 else np.full(w_end, after)
+        smooth = smooth.copy()
+        smooth[:w_end] = np.minimum(smooth[:w_end], cap)
     k_n = k / rate if k > 0 else 0.0  # per sample
     e_c = float(smooth[-1]) if smooth.size else 0.0
     comp_var = per_dof * e_c ** 2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
