@@ -27,9 +27,21 @@ import sys
 import time
 from concurrent.futures import ProcessPoolExecutor
 
-from benchmarks.accuracy_cases import (JND, METRICS, OCTAVE_NOMINAL, THIRD_NOMINAL, Case,
-                                       band_edges, band_inr_db, build, classify, closed_forms,
-                                       error_in_jnd, make_grid, truth_ranges)
+from benchmarks.accuracy_cases import (
+    JND,
+    METRICS,
+    OCTAVE_NOMINAL,
+    THIRD_NOMINAL,
+    Case,
+    band_edges,
+    band_inr_db,
+    build,
+    classify,
+    closed_forms,
+    error_in_jnd,
+    make_grid,
+    truth_ranges,
+)
 
 STATUSES = ("within", "within_flagged", "flagged", "null", "silent")
 HEAD = {"within": "within JND", "within_flagged": "within JND, flagged",
@@ -185,7 +197,7 @@ def table_text(counts, markdown: bool = False) -> str:
     widths = [max(len(cols[i]), *(len(r[i]) for r in rows)) for i in range(len(cols))]
     def fmt(r):
         return "  ".join(x.rjust(w) if i else x.ljust(w)
-                         for i, (x, w) in enumerate(zip(r, widths)))
+                         for i, (x, w) in enumerate(zip(r, widths, strict=True)))
     return "\n".join([fmt(cols)] + [fmt(r) for r in rows])
 
 

@@ -33,6 +33,7 @@ def fft_backends(repeats):
     with the channels as columns (one call along axis 0, all threads) and as contiguous rows
     transformed one per thread (what the offline engine does)."""
     from concurrent.futures import ThreadPoolExecutor
+
     from scipy import fft as sfft
     rng = np.random.default_rng(5)
     x = rng.standard_normal((1 << 19, 2))
@@ -130,7 +131,8 @@ def scipy_offline(x, h, routing):
     n = x.shape[0] + h.shape[0] - 1
     out = np.zeros((n, routing.n_out))
     for p in range(routing.n_paths):
-        out[:, routing.path_out[p]] += oaconvolve(x[:, routing.path_in[p]], h[:, routing.path_ir[p]])
+        out[:, routing.path_out[p]] += oaconvolve(x[:, routing.path_in[p]],
+                                                  h[:, routing.path_ir[p]])
     return out
 
 

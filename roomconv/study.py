@@ -139,9 +139,9 @@ class StudyFile:
             r["file"] = self.display_path(src.file)
             r["quality_file"] = (None if src.quality_file is None
                                  else self.display_path(src.quality_file))
-        if d["targets"] is not None:
+        if self.targets is not None:
             d["targets"]["reverberation_s"] = {
-                f"{k:g}": v for k, v in self.targets.reverberation_s.items()}  # type: ignore[union-attr]
+                f"{k:g}": v for k, v in self.targets.reverberation_s.items()}
         d["room"]["volume_m3"] = self.room.volume
         d["room"]["surface_m2"] = self.room.surface
         return d
@@ -223,6 +223,17 @@ def _nonempty(v):
     return None if v.strip() else "is empty"
 
 
+def _one_of(ids: set, table: str):
+    """A check that the value is one of ``ids``, the ids of the [[``table``]] entries."""
+
+    def check(v):
+        if v in ids:
+            return None
+        return f"{v!r} is not among the [[{table}]] ids ({', '.join(sorted(ids)) or 'none'})"
+
+    return check
+
+
 def _date_list(v, r: _Reader, k: str) -> tuple[str, ...]:
     items = v if isinstance(v, list) else [v]
     out = []
@@ -301,7 +312,8 @@ def parse_study(text: str, path) -> StudyFile:
         use=rm.get("use", str, ""),
         volume_m3=rm.get("volume_m3", float, check=_positive),
         surface_m2=rm.get("surface_m2", float, check=_positive),
-        dimensions_m=None if dims is None else tuple(float(c) for c in dims),  # type: ignore[arg-type]
+        # The check above lets through exactly three numbers.
+        dimensions_m=None if dims is None else (float(dims[0]), float(dims[1]), float(dims[2])),
         state=rm.get("state", str, "unoccupied",
                      check=lambda v: None if v in STATES else f"{v!r} is not one of "
                      + ", ".join(STATES)),
@@ -344,11 +356,8 @@ def parse_study(text: str, path) -> StudyFile:
         if not isinstance(t, dict):
             top.fail("responses", f"entry {i} is not a table", "write each as [[responses]]")
         r = _Reader(t, f"responses[{i}].", src)
-        s = r.get("source", str, required=True, check=lambda v: None if v in s_ids else
-                  f"{v!r} is not among the [[sources]] ids ({', '.join(sorted(s_ids)) or 'none'})")
-        c = r.get("receiver", str, required=True, check=lambda v: None if v in r_ids else
-                  f"{v!r} is not among the [[receivers]] ids "
-                  f"({', '.join(sorted(r_ids)) or 'none'})")
+        s = r.get("source", str, required=True, check=_one_of(s_ids, "sources"))
+        c = r.get("receiver", str, required=True, check=_one_of(r_ids, "receivers"))
         f = _path(base, r.get("file", str, required=True), r, "file")
         ch = r.get("channel", int, 1, check=lambda v: None if v >= 1 else
                    "channels count from 1")

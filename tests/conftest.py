@@ -52,7 +52,8 @@ def alsa_file_device(folder, capture: np.ndarray) -> dict:
     (folder / "alsa").mkdir()
     (folder / "alsa" / "asoundrc").write_text(f"""
 pcm.rc_play {{ type file slave.pcm "null" file "{folder}/PLAYED.raw" format "raw" }}
-pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" infile "{folder}/CAPTURE.raw" format "raw" }}
+pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" \
+infile "{folder}/CAPTURE.raw" format "raw" }}
 pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
 pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
 """)

@@ -71,9 +71,7 @@ class RoomconvApp(App):
 
     def check_action(self, action: str, parameters) -> bool | None:
         # Single-letter keys must type into inputs, not switch tabs.
-        if action in ("tab", "quit", "help", "cancel") and isinstance(self.focused, Input):
-            return False
-        return True
+        return not (action in ("tab", "quit", "help", "cancel") and isinstance(self.focused, Input))
 
     def action_tab(self, name: str) -> None:
         self.query_one("#tabs", TabbedContent).active = name
@@ -87,7 +85,7 @@ class RoomconvApp(App):
         running = [w for w in self.workers if w.is_running]
         for w in running:
             w.cancel()
-        render = self.query("RenderPane")
+        render = self.query(RenderPane)
         for pane in render:
             pane.cancel()
         self.notify(f"cancelled {len(running)} running job(s)" if running else

@@ -121,6 +121,7 @@ def filter_band(h: np.ndarray, rate: int, band: Band, *, reverse: bool = False) 
     return sosfilt(sos, h)
 
 
-def filter_bank(h: np.ndarray, rate: int, bands: list[Band], *, reverse: bool = False) -> np.ndarray:
+def filter_bank(h: np.ndarray, rate: int, bands: list[Band], *,
+                reverse: bool = False) -> np.ndarray:
     """All bands of a 1-D signal, shape (n_bands, samples)."""
     return np.stack([filter_band(h, rate, b, reverse=reverse) for b in bands])

@@ -144,7 +144,8 @@ class StrengthReference:
         if band_set is not None and self.band_set is not None and band_set != self.band_set:
             return None, (f"{label} Hz: G not evaluated: the strength reference holds "
                           f"{_set_name(self.band_set)} values and the analysis uses "
-                          f"{_set_name(band_set)} (make the reference in the same {_set_name(band_set)} set)")
+                          f"{_set_name(band_set)} (make the reference in the same "
+                          f"{_set_name(band_set)} set)")
         for nominal, value in self.bands_db.items():
             if math.isclose(float(nominal), float(band_hz), rel_tol=1e-6):
                 return float(value), None
@@ -248,7 +249,7 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
     wide, why, sigma = _direct_energy(x, rate, onset, bandwidth=None)
     if wide is None:
         raise InputError(f"the reference response is not usable: {why}")
-    uncertainty = {None: sigma}
+    uncertainty: dict[float | None, float | None] = {None: sigma}
     band_list, notes = bands_for_rate(bands, rate)
     values = {}
     notes = list(notes)

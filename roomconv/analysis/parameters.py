@@ -29,7 +29,6 @@ from .bands import Band, band_sos, bands_for_rate, filter_band
 from .decay import (
     Truncation,
     available_range_db,
-    decay_db,
     fit_decay,
     lundeby_truncation,
     onset_index,
@@ -310,7 +309,7 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     # filter's impulse-response energy lies within 1/B of its peak (common practice), and
     # more would add only noise.
     spread = 0 if band is None else min(lead, int(np.ceil(1.5 * rate / band.bandwidth)))
-    others = ()
+    others: tuple[np.ndarray, ...] = ()
     if band is not None and filtering == "auto":
         hp = np.concatenate([np.zeros(lead), h])
         others = (filter_band(hp, rate, band), xd)
@@ -393,8 +392,9 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
     if "t30" in fits and "t20" in fits:
         res.curvature_pct = 100.0 * (fits["t30"].reverberation_s / fits["t20"].reverberation_s - 1)
     curved = []
-    if res.xi_permille is not None and res.xi_permille > XI_LIMIT_PERMILLE:
-        curved.append(f"ξ {res.xi_permille:.0f} ‰ over the {res.xi_range.upper()} range")
+    xi, xi_range = res.xi_permille, res.xi_range
+    if xi is not None and xi_range is not None and xi > XI_LIMIT_PERMILLE:
+        curved.append(f"ξ {xi:.0f} ‰ over the {xi_range.upper()} range")
     if res.curvature_pct is not None and abs(res.curvature_pct) > CURVATURE_LIMIT_PCT:
         curved.append(f"curvature {res.curvature_pct:+.0f} %")
     if curved:
@@ -516,7 +516,7 @@ def _decay_noise_uncertainty(res: BandResult, x: np.ndarray, rate: int, tr: Trun
     remaining = tr.index - np.arange(tr.index)
     var = noise_energy_variance(sch - tr.compensation, remaining, nu, per_dof, noise_dof)
     d_level = 10 / np.log(10) * np.sqrt(var) / sch
-    for key, f in fits.items():
+    for key in fits:
         hi, lo = RANGES[key]
         i_hi = int(np.flatnonzero(curve <= hi)[0])
         below = np.flatnonzero(curve <= lo)
@@ -752,7 +752,7 @@ def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: 
         ends.append(r)
     names = {"c50_db": ("C50", " dB"), "c80_db": ("C80", " dB"), "d50": ("D50", ""),
              "ts_ms": ("Ts", " ms")}
-    for m, v in value.items():
+    for m in value:
         spread = abs(ends[0][m] - ends[1][m]) / 4
         jnd = JND[m][1]
         if spread > NOISE_SIGMA_CAUTION_JND * jnd:
@@ -840,7 +840,9 @@ def check_impulse_response(h: np.ndarray, rate: int) -> None:
     >>> check_impulse_response(np.sin(2 * np.pi * 440 * t), rate)
     Traceback (most recent call last):
     ...
-    roomconv.errors.InputError: this does not look like an impulse response: its level never falls 10 dB below its peak (a recording, music or noise?); extract the impulse response from the recording first
+    roomconv.errors.InputError: this does not look like an impulse response: its level never
+    falls 10 dB below its peak (a recording, music or noise?); extract the impulse response
+    from the recording first
     """
     env, m = energy_envelope(np.asarray(h, dtype=np.float64), rate, 0.01)
     if env.size < 4:

@@ -170,7 +170,8 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
         ax.errorbar([r["band_hz"] for r in avg], [r[metric]["mean"] for r in avg], yerr=err,
                     fmt="-o", color="tab:blue", capsize=3, label="average")
     colours = ("tab:green", "tab:orange", "tab:red", "tab:purple")
-    for (label, series), colour in zip((extra or {}).items(), colours):
+    # One colour each: series beyond the fourth are not drawn.
+    for (label, series), colour in zip((extra or {}).items(), colours, strict=False):
         ks = sorted(series)
         ax.plot(ks, [series[k] for k in ks], "--s", ms=4, color=colour, label=label)
     ax.set_xscale("log")
@@ -206,7 +207,8 @@ def _html_table(header, rows) -> str:
 _CSS = """body{font-family:system-ui,sans-serif;max-width:1000px;margin:2em auto;color:#222}
 table{border-collapse:collapse;font-size:13px;margin:0.5em 0}td,th{border:1px solid #ccc;
 padding:2px 6px;text-align:right}th{background:#eef}h1{font-size:1.5em}h2{margin-top:1.6em}
-.warn{color:#a40}td.flag{background:#ffe2b8;font-weight:600}td.na{color:#999}.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
+.warn{color:#a40}td.flag{background:#ffe2b8;font-weight:600}td.na{color:#999}\
+.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
 white-space:pre-wrap;font-size:12px}img{max-width:100%}"""
 
 
@@ -232,13 +234,16 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
         rows = []
         for r in doc["average"]["bands"]:
             u = r["t30_s"].get("uncertainty")
-            rows.append([band_label(r["band_hz"]), mean_with_spread("edt_s", r), mean_with_spread("t20_s", r),
-                         mean_with_spread("t30_s", r), "—" if u is None else f"{u:.3f}", mean_with_spread("c80_db", r),
-                         mean_with_spread("d50", r), mean_with_spread("ts_ms", r), str(r["t30_s"]["n"])])
+            rows.append([band_label(r["band_hz"]), mean_with_spread("edt_s", r),
+                         mean_with_spread("t20_s", r), mean_with_spread("t30_s", r),
+                         "—" if u is None else f"{u:.3f}", mean_with_spread("c80_db", r),
+                         mean_with_spread("d50", r), mean_with_spread("ts_ms", r),
+                         str(r["t30_s"]["n"])])
         out.append(f"<h2>Average over {len(doc['positions'])} positions</h2>")
         out.append(_html_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50",
                                 "Ts ms", "n"], rows))
-    out.append(f"<img alt='T30 per band' src='{_png(band_figure(doc, 't30_s', 'T30 (s)', extra_series))}'>")
+    t30_png = _png(band_figure(doc, "t30_s", "T30 (s)", extra_series))
+    out.append(f"<img alt='T30 per band' src='{t30_png}'>")
     out.append(f"<img alt='EDT per band' src='{_png(band_figure(doc, 'edt_s', 'EDT (s)'))}'>")
     out.append(f"<img alt='C80 per band' src='{_png(band_figure(doc, 'c80_db', 'C80 (dB)'))}'>")
     for p in doc["positions"]:

@@ -4,6 +4,8 @@ uncertainty of decay times, and the mid-frequency single numbers used in reports
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 
 from .bands import all_bands
@@ -77,10 +79,11 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
     out = []
     for band_hz in sorted(by_band):
         rows = by_band[band_hz]
-        entry = {"band_hz": band_hz}
+        # The JSON document's entries: numbers, counts, verdict strings and nulls.
+        entry: dict[str, Any] = {"band_hz": band_hz}
         for m in metrics:
             vals = np.array([r[m] for r in rows if r.get(m) is not None], dtype=float)
-            stat = {"mean": None, "std": None, "n": int(vals.size),
+            stat: dict[str, Any] = {"mean": None, "std": None, "n": int(vals.size),
                     "verdict": NOT_EVALUABLE if m in JND else None}
             if vals.size and m in JND:
                 flagged = any(_flagged_beyond_statistics(r, m) for r in rows

@@ -10,9 +10,10 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from ..audio import read_audio, read_json
+from ..audio import read_audio
 from ..errors import InputError, describe
 from .parameters import room_parameters
+from .spatial import single_numbers, spatial_average
 
 #: What each band-filtering choice does, for the document's settings.
 FILTERING_TEXT = {
@@ -29,7 +30,6 @@ VERDICT_TEXT = ("ok: within the ISO 3382-1 just-noticeable difference as far as 
 def reference_to_dict(ref) -> dict:
     from .calibration import reference_to_dict as to_dict
     return to_dict(ref)
-from .spatial import single_numbers, spatial_average
 
 
 @dataclass

@@ -38,12 +38,14 @@ class Parser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
 
 
-def common_options(suppress: bool = False) -> argparse.ArgumentParser:
+def common_options(suppress: bool = False) -> Parser:
     """``--debug`` and ``--quiet``, before or after the sub-command."""
     # Sub-command parsers must not reset a --debug given before the sub-command, so there
     # the options have no default of their own.
     kw: dict = {"default": argparse.SUPPRESS} if suppress else {}
-    p = argparse.ArgumentParser(add_help=False)
+    # A parent parser only lends its options; it is a Parser because the sub-command
+    # parsers it is given to are.
+    p = Parser(add_help=False)
     p.add_argument("--debug", action="store_true", help="show tracebacks on errors", **kw)
     p.add_argument("--quiet", action="store_true",
                    help="no progress bars or reports on stdout", **kw)

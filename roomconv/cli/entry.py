@@ -29,7 +29,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for cmd in command_groups():
         p = sub.add_parser(cmd.name, help=cmd.help, description=cmd.help,
-                           parents=[common_options(True)])  # type: ignore[list-item]
+                           parents=[common_options(True)])
         cmd.configure(p)
         p.set_defaults(func=cmd.run)
     return parser

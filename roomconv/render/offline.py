@@ -138,9 +138,11 @@ class RenderSettings:
             lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
             self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
-            raise InputError(f"normalization '{self.normalize}' must be one of {', '.join(NORMALIZE)}")
+            raise InputError(f"normalization '{self.normalize}' must be one of "
+                             f"{', '.join(NORMALIZE)}")
         if self.precision not in ("auto", "float64", "float32"):
-            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or float32")
+            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or "
+                             "float32")
         return self
 
     def engine_precision(self) -> str:
@@ -322,7 +324,8 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
     raise InputError(
-        "the dry signal cannot be mixed in: inputs and outputs differ in count (use a fully wet mix, 1)"
+        "the dry signal cannot be mixed in: inputs and outputs differ in count "
+        "(use a fully wet mix, 1)"
     )
 
 

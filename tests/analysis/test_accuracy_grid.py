@@ -11,11 +11,26 @@ import numpy as np
 import pytest
 
 from benchmarks import accuracy
-from benchmarks.accuracy_cases import (JND, METRICS, Case, band_edges, band_inr_db,
-                                       build, classify, closed_forms, edge_width_ratio,
-                                       energy_envelope, error_in_jnd, make_grid,
-                                       reference_band_gain, reference_filter, reference_truth,
-                                       schroeder_db, single_decay_sigma, truth_ranges)
+from benchmarks.accuracy_cases import (
+    JND,
+    METRICS,
+    Case,
+    band_edges,
+    band_inr_db,
+    build,
+    classify,
+    closed_forms,
+    edge_width_ratio,
+    energy_envelope,
+    error_in_jnd,
+    make_grid,
+    reference_band_gain,
+    reference_filter,
+    reference_truth,
+    schroeder_db,
+    single_decay_sigma,
+    truth_ranges,
+)
 
 RATE = 48000
 

@@ -16,9 +16,13 @@ import pytest
 from scipy.signal import resample_poly, sosfreqz
 
 from roomconv.analysis.bands import all_bands, band_sos, bands_for_rate
-from roomconv.analysis.calibration import (StrengthReference, parse_strength_reference,
-                                           reference_from_dict, reference_from_response,
-                                           reference_to_dict)
+from roomconv.analysis.calibration import (
+    StrengthReference,
+    parse_strength_reference,
+    reference_from_dict,
+    reference_from_response,
+    reference_to_dict,
+)
 from roomconv.errors import InputError
 from roomconv.measure.sweep import Sweep, sweep_signal
 

@@ -9,8 +9,12 @@ import pytest
 import soundfile as sf
 
 from roomconv.analysis.calibration import parse_strength_reference, reference_from_response
-from tests.analysis.test_calibration import (_sweep_recording, at_rate, band_limited_pulse,
-                                             with_noise)
+from tests.analysis.test_calibration import (
+    _sweep_recording,
+    at_rate,
+    band_limited_pulse,
+    with_noise,
+)
 
 FS = 48000
 

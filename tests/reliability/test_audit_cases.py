@@ -20,8 +20,8 @@ def test_render_refuses_a_response_at_an_absurd_sample_rate(tmp_path, cli):
 def test_a_response_cut_before_its_decay_ends_says_so():
     # A 200 m cube of concrete decays for minutes (Sabine's T = 0.161·V/A, V = 8e6 m³); the
     # default length stops at the cap, and the result's notes say so.
-    res = synthesize(RoomModel(200, 200, 200, {k: "concrete" for k in
-                                ("left", "right", "front", "back", "floor", "ceiling")}), (50, 50, 1.5),
+    walls = ("left", "right", "front", "back", "floor", "ceiling")
+    res = synthesize(RoomModel(200, 200, 200, dict.fromkeys(walls, "concrete")), (50, 50, 1.5),
                      (60, 55, 1.2), rate=16000, length_s=None)
     assert res.ir.shape[0] == round(DEFAULT_LENGTH_CAP_S * 16000)
     assert any("cut at" in n for n in res.notes)

@@ -15,6 +15,7 @@ from textual.worker import get_current_worker
 
 from roomconv.analysis.report import HEADERS, LEGEND, band_label, fmt, value_verdict
 from roomconv.errors import RoomconvError
+from tui.screens import workbench
 
 COLUMNS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db")
 
@@ -54,7 +55,7 @@ class AnalyzePane(VerticalScroll):
 
     @on(Button.Pressed, "#an-session")
     def use_session(self) -> None:
-        files = [str(p["file"]) for p in self.app.session]
+        files = [str(p["file"]) for p in workbench(self).session]
         if not files:
             self.app.notify("no positions measured yet in this session", severity="warning")
             return
@@ -89,14 +90,14 @@ class AnalyzePane(VerticalScroll):
         """The session's positions as a study file (the Study file path, else study.toml in
         the export folder); an existing file is never replaced."""
         from roomconv.jobs.study import save_session_study
-        if not self.app.session:
+        if not workbench(self).session:
             self.app.notify("no positions measured yet in this session", severity="warning")
             return
         box = self.query_one("#an-study", Input)
         path = Path(box.value.strip() or
                     Path(self.query_one("#an-export-dir", Input).value) / "study.toml")
         positions = []
-        for p in self.app.session:
+        for p in workbench(self).session:
             q = Path(p["file"]).with_name(f"{p['name']}.quality.json")
             positions.append((p["name"], p["file"], q if q.is_file() else None))
         try:

@@ -17,6 +17,7 @@ from roomconv import validate
 from roomconv.errors import InputError, RoomconvError
 from roomconv.jobs.progress import Cancelled
 from roomconv.safety import caution_text
+from tui.screens import workbench
 
 
 class MeasurePane(VerticalScroll):
@@ -177,7 +178,8 @@ class MeasurePane(VerticalScroll):
         """The next position's name, response file and quality file."""
         from roomconv.jobs.naming import position_output
         folder = Path(self.query_one("#ms-folder", Input).value)
-        name = self.query_one("#ms-name", Input).value.strip() or f"P{len(self.app.session) + 1}"
+        next_name = f"P{len(workbench(self).session) + 1}"
+        name = self.query_one("#ms-name", Input).value.strip() or next_name
         out, quality = position_output(folder, name)
         return name, out, quality
 
@@ -235,13 +237,14 @@ class MeasurePane(VerticalScroll):
     def show_position(self, name: str, res) -> None:
         """Add a measured position to the session and its table."""
         app = self.app
+        session = workbench(self).session
         q = res.quality
-        app.session.append({"name": name, "file": res.output, "quality": q})
+        session.append({"name": name, "file": res.output, "quality": q})
         row = (name, str(res.output), f"{min(q['ir']['inr_db']):.1f}",
                f"{max(q['recording']['peak_dbfs']):.1f}",
                str(sum(q["recording"]["clipped_samples"])), str(len(q["warnings"])))
         app.call_from_thread(self.query_one("#ms-positions", DataTable).add_row, *row)
-        nxt = f"P{len(app.session) + 1}"
+        nxt = f"P{len(session) + 1}"
         app.call_from_thread(setattr, self.query_one("#ms-name", Input), "value", nxt)
         app.call_from_thread(self.query_one("#ms-progress", ProgressBar).update, progress=1.0)
         app.call_from_thread(self.query_one("#ms-status", Static).update,

@@ -15,6 +15,7 @@ from roomconv.errors import RoomconvError
 from roomconv.jobs.synth import parse_triple, room_size
 from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
+from tui.screens import workbench
 
 DEFAULTS = {"left": "plaster", "right": "plaster", "front": "wood-panel", "back": "plaster",
             "floor": "carpet", "ceiling": "acoustic-tile"}
@@ -110,9 +111,9 @@ class RoomPane(VerticalScroll):
     @on(Button.Pressed, "#room-to-analyze")
     def to_analyze(self) -> None:
         out = self.query_one("#room-out", Input).value
-        self.app.send_to("analyze", out)
+        workbench(self).send_to("analyze", out)
 
     @on(Button.Pressed, "#room-to-render")
     def to_render(self) -> None:
         out = self.query_one("#room-out", Input).value
-        self.app.send_to("render", out)
+        workbench(self).send_to("render", out)
