@@ -136,8 +136,9 @@ def reverse(ir: np.ndarray) -> np.ndarray:
     return _2d(ir)[::-1].copy()
 
 
-def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
-                onset: int | None = None) -> np.ndarray:
+def scale_decay(
+    ir: np.ndarray, rate: int, factor, *, decay_times_s, onset: int | None = None
+) -> np.ndarray:
     """Stretch (factor > 1) or shrink the decay time by multiplying with an exponential.
 
     A decay of time T becomes factor·T: each band is multiplied by
@@ -176,8 +177,10 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
     W = band_weights(np.fft.rfftfreq(nfft, 1.0 / rate))
     out = np.zeros_like(x)
     if len(decay_times_s) != x.shape[1]:
-        raise InputError(f"decay times are given for {len(decay_times_s)} channel(s) but the "
-                         f"response has {x.shape[1]}")
+        raise InputError(
+            f"decay times are given for {len(decay_times_s)} channel(s) but the "
+            f"response has {x.shape[1]}"
+        )
     for ch in range(x.shape[1]):
         t0 = onset if onset is not None else int(np.argmax(np.abs(x[:, ch])))
         t = np.maximum(np.arange(n) - t0, 0) / rate
