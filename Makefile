@@ -1,4 +1,5 @@
-# The two README commands: `make demo` and `make test`. Both set up .venv first.
+# The two README commands: `make demo` and `make test` (lint, then the tests). Both set up
+# .venv first.
 PYTHON ?= python3
 VENV := .venv
 PY := $(VENV)/bin/python
@@ -17,10 +18,11 @@ venv: $(STAMP)
 demo: $(STAMP)
 	$(VENV)/bin/roomconv demo --out demo_out --force
 
-test: $(STAMP)
+# Lint first: a style or type error stops the run before the (longer) test suite.
+test: lint
 	$(PY) -m pytest -q
 
-# Style, likely bugs and types of the library (not yet part of `make test`).
+# Style, likely bugs and types of the library; `make test` runs it first.
 lint: $(STAMP)
 	$(PY) -m ruff check roomconv tui tests benchmarks demo_audio
 	$(PY) -m ruff format --check roomconv tui tests benchmarks demo_audio

@@ -27,15 +27,39 @@ import sys
 import time
 from concurrent.futures import ProcessPoolExecutor
 
-from benchmarks.accuracy_cases import (JND, METRICS, OCTAVE_NOMINAL, THIRD_NOMINAL, Case,
-                                       band_edges, band_inr_db, build, classify, closed_forms,
-                                       error_in_jnd, make_grid, truth_ranges)
+from benchmarks.accuracy_cases import (
+    JND,
+    METRICS,
+    OCTAVE_NOMINAL,
+    THIRD_NOMINAL,
+    Case,
+    band_edges,
+    band_inr_db,
+    build,
+    classify,
+    closed_forms,
+    error_in_jnd,
+    make_grid,
+    truth_ranges,
+)
 
 STATUSES = ("within", "within_flagged", "flagged", "null", "silent")
-HEAD = {"within": "within JND", "within_flagged": "within JND, flagged",
-        "flagged": "flagged", "null": "null", "silent": "silently wrong"}
-LABEL = {"edt_s": "EDT", "t20_s": "T20", "t30_s": "T30", "c50_db": "C50", "c80_db": "C80",
-         "d50": "D50", "ts_ms": "Ts"}
+HEAD = {
+    "within": "within JND",
+    "within_flagged": "within JND, flagged",
+    "flagged": "flagged",
+    "null": "null",
+    "silent": "silently wrong",
+}
+LABEL = {
+    "edt_s": "EDT",
+    "t20_s": "T20",
+    "t30_s": "T30",
+    "c50_db": "C50",
+    "c80_db": "C80",
+    "d50": "D50",
+    "ts_ms": "Ts",
+}
 
 
 def verdict_of(result, metric: str) -> str:
@@ -86,6 +110,7 @@ def evaluate_case(case: Case) -> dict:
 
     if refused is not None or crashed is not None:
         from roomconv.analysis.bands import bands_for_rate
+
         keys = [b.nominal for b in bands_for_rate(case.bands, case.rate)[0]] + ["wideband"]
         rows = [(k, None) for k in keys]
     else:
@@ -115,13 +140,21 @@ def evaluate_case(case: Case) -> dict:
             verdict = ("refused" if refused else "crashed") if res is None else verdict_of(res, m)
             span = ranges[nom][m]
             status = classify(m, value, span, verdict)
-            rec = {"case": case.index, "band": nom, "metric": m, "truth": tv,
-                   "truth_low": span[0], "truth_high": span[1],
-                   "truth_spread_jnd": abs(error_in_jnd(m, span[1], span[0])),
-                   "value": value, "verdict": verdict, "status": status,
-                   "error_jnd": None if value is None else error_in_jnd(m, value, span),
-                   "bt": None if bw is None else bw * case.t_s,
-                   "band_inr_db": band_inr_db(case, None if nom == "wideband" else nom)}
+            rec = {
+                "case": case.index,
+                "band": nom,
+                "metric": m,
+                "truth": tv,
+                "truth_low": span[0],
+                "truth_high": span[1],
+                "truth_spread_jnd": abs(error_in_jnd(m, span[1], span[0])),
+                "value": value,
+                "verdict": verdict,
+                "status": status,
+                "error_jnd": None if value is None else error_in_jnd(m, value, span),
+                "bt": None if bw is None else bw * case.t_s,
+                "band_inr_db": band_inr_db(case, None if nom == "wideband" else nom),
+            }
             if res is not None:
                 rec["warning_codes"] = list(getattr(res, "warning_codes", []) or [])
                 if value is None:
@@ -131,12 +164,17 @@ def evaluate_case(case: Case) -> dict:
             else:
                 rec["reason"] = "crashed: " + crashed
             records.append(rec)
-    return {"case": case.as_dict(), "records": records, "refused": refused, "crashed": crashed,
-            "seconds": time.perf_counter() - t_start, "analysis_seconds": t_analysis}
+    return {
+        "case": case.as_dict(),
+        "records": records,
+        "refused": refused,
+        "crashed": crashed,
+        "seconds": time.perf_counter() - t_start,
+        "analysis_seconds": t_analysis,
+    }
 
 
-def yardstick_check(cases, results, min_bt: float = 300.0, edt_max_drr_db: float = -6.0
-                    ) -> dict:
+def yardstick_check(cases, results, min_bt: float = 300.0, edt_max_drr_db: float = -6.0) -> dict:
     """Mean deviation (JND units) of the realization truths from the closed forms, over
     single-slope cases' bands with B·T ≥ ``min_bt``; guards the construction itself.
 
@@ -183,9 +221,12 @@ def table_text(counts, markdown: bool = False) -> str:
         lines += ["| " + " | ".join(r) + " |" for r in rows]
         return "\n".join(lines)
     widths = [max(len(cols[i]), *(len(r[i]) for r in rows)) for i in range(len(cols))]
+
     def fmt(r):
-        return "  ".join(x.rjust(w) if i else x.ljust(w)
-                         for i, (x, w) in enumerate(zip(r, widths)))
+        return "  ".join(
+            x.rjust(w) if i else x.ljust(w) for i, (x, w) in enumerate(zip(r, widths, strict=True))
+        )
+
     return "\n".join([fmt(cols)] + [fmt(r) for r in rows])
 
 
@@ -202,15 +243,25 @@ def breakdown_text(records, cases, markdown: bool = False) -> str:
     by_case = {c.index: c for c in cases}
     inf = float("inf")
     axes = {
-        "band INR, dB": lambda r, c: _bucket(r["band_inr_db"], [-inf, 35, 50, 65, inf],
-                                              lambda a, b: f"<{b:g}" if a == -inf else
-                                              (f"≥{a:g}" if b == inf else f"{a:g}–{b:g}")),
-        "B·T": lambda r, c: (99, "wideband") if r["bt"] is None else _bucket(
-            r["bt"], [0, 16, 50, 200, inf],
-            lambda a, b: f"≥{a:g}" if b == inf else f"{a:g}–{b:g}"),
-        "window/T": lambda r, c: _bucket(c.window_factor, [0, 2, 3.5, inf],
-                                         lambda a, b: f"≥{a:g}" if b == inf else
-                                         f"{a:g}–{b:g}"),
+        "band INR, dB": lambda r, c: _bucket(
+            r["band_inr_db"],
+            [-inf, 35, 50, 65, inf],
+            lambda a, b: f"<{b:g}" if a == -inf else (f"≥{a:g}" if b == inf else f"{a:g}–{b:g}"),
+        ),
+        "B·T": lambda r, c: (
+            (99, "wideband")
+            if r["bt"] is None
+            else _bucket(
+                r["bt"],
+                [0, 16, 50, 200, inf],
+                lambda a, b: f"≥{a:g}" if b == inf else f"{a:g}–{b:g}",
+            )
+        ),
+        "window/T": lambda r, c: _bucket(
+            c.window_factor,
+            [0, 2, 3.5, inf],
+            lambda a, b: f"≥{a:g}" if b == inf else f"{a:g}–{b:g}",
+        ),
         "rate": lambda r, c: (c.rate, f"{c.rate / 1000:g} kHz"),
         "slope": lambda r, c: (c.slope, c.slope),
         "noise": lambda r, c: (c.noise, c.noise),
@@ -237,35 +288,59 @@ def worst_text(records, cases, n: int, markdown: bool = False) -> str:
             per_case.setdefault(r["case"], []).append(r)
     if not per_case:
         return "no silently wrong values"
-    worst = sorted(((max(v, key=lambda r: abs(r["error_jnd"])), len(v))
-                    for v in per_case.values()), key=lambda rv: -abs(rv[0]["error_jnd"]))[:n]
+    worst = sorted(
+        ((max(v, key=lambda r: abs(r["error_jnd"])), len(v)) for v in per_case.values()),
+        key=lambda rv: -abs(rv[0]["error_jnd"]),
+    )[:n]
     out = []
     for r, count in worst:
         band = "wideband" if r["band"] == "wideband" else f"{r['band']:g} Hz"
-        unit = "s" if r["metric"].endswith("_s") else ("ms" if r["metric"] == "ts_ms" else
-                                                       ("dB" if r["metric"].endswith("db") else ""))
-        truth = (f"{r['truth']:.3f}" if r["truth_low"] == r["truth_high"] else
-                 f"{r['truth_low']:.3f}…{r['truth_high']:.3f}")
-        line = (f"{LABEL[r['metric']]} {band}: {r['value']:.3f} {unit} (truth {truth}, "
-                f"{r['error_jnd']:+.1f} JND; band INR {r['band_inr_db']:.0f} dB"
-                + (f", B·T {r['bt']:.0f}" if r["bt"] else "") + ") — "
-                + by_case[r["case"]].describe()
-                + f"; {count} silently wrong value(s) in this case")
+        unit = (
+            "s"
+            if r["metric"].endswith("_s")
+            else ("ms" if r["metric"] == "ts_ms" else ("dB" if r["metric"].endswith("db") else ""))
+        )
+        truth = (
+            f"{r['truth']:.3f}"
+            if r["truth_low"] == r["truth_high"]
+            else f"{r['truth_low']:.3f}…{r['truth_high']:.3f}"
+        )
+        line = (
+            f"{LABEL[r['metric']]} {band}: {r['value']:.3f} {unit} (truth {truth}, "
+            f"{r['error_jnd']:+.1f} JND; band INR {r['band_inr_db']:.0f} dB"
+            + (f", B·T {r['bt']:.0f}" if r["bt"] else "")
+            + ") — "
+            + by_case[r["case"]].describe()
+            + f"; {count} silently wrong value(s) in this case"
+        )
         out.append(("- " if markdown else "  ") + line)
     return "\n".join(out)
 
 
 def main(argv=None) -> int:
-    p = argparse.ArgumentParser(prog="python -m benchmarks.accuracy", description=__doc__,
-                                formatter_class=argparse.RawDescriptionHelpFormatter)
+    p = argparse.ArgumentParser(
+        prog="python -m benchmarks.accuracy",
+        description=__doc__,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     p.add_argument("--seed", type=int, default=2026, help="grid seed (default 2026)")
-    p.add_argument("--cases", type=int, default=None,
-                   help="number of responses (default 160; 40 with --quick)")
+    p.add_argument(
+        "--cases", type=int, default=None, help="number of responses (default 160; 40 with --quick)"
+    )
     p.add_argument("--quick", action="store_true", help="a smaller grid, T up to 3 s")
-    p.add_argument("--case", type=int, action="append", default=None,
-                   help="run only this case index (repeatable)")
-    p.add_argument("--jobs", type=int, default=min(2, os.cpu_count() or 1),
-                   help="worker processes (default: up to 2)")
+    p.add_argument(
+        "--case",
+        type=int,
+        action="append",
+        default=None,
+        help="run only this case index (repeatable)",
+    )
+    p.add_argument(
+        "--jobs",
+        type=int,
+        default=min(2, os.cpu_count() or 1),
+        help="worker processes (default: up to 2)",
+    )
     p.add_argument("--worst", type=int, default=10, help="silently wrong cases to list")
     p.add_argument("--markdown", action="store_true", help="print the tables as Markdown")
     p.add_argument("--json", metavar="OUT", help="write every value's record to this file")
@@ -283,14 +358,17 @@ def main(argv=None) -> int:
     if a.case:
         bad = [i for i in a.case if not 0 <= i < n]
         if bad:
-            print(f"--case {bad[0]}: no such case (the grid has {n}, numbered 0–{n - 1}; "
-                  "give the same --seed/--cases/--quick as the run that listed it)",
-                  file=sys.stderr)
+            print(
+                f"--case {bad[0]}: no such case (the grid has {n}, numbered 0–{n - 1}; "
+                "give the same --seed/--cases/--quick as the run that listed it)",
+                file=sys.stderr,
+            )
             return 2
         cases = [grid[i] for i in a.case]
     if a.json:
         from roomconv.audio import check_output
         from roomconv.errors import InputError
+
         try:
             check_output(a.json, force=a.force)
         except InputError as exc:
@@ -317,16 +395,20 @@ def main(argv=None) -> int:
     counts = tally(records)
 
     md = a.markdown
-    print(("### " if md else "") + f"Accuracy of the analysis: {len(cases)} synthetic responses, "
-          f"{len(records)} values (seed {a.seed}{', quick' if a.quick else ''})")
+    print(
+        ("### " if md else "") + f"Accuracy of the analysis: {len(cases)} synthetic responses, "
+        f"{len(records)} values (seed {a.seed}{', quick' if a.quick else ''})"
+    )
     print()
     print(table_text(counts, md))
     print()
     spread = [r for r in records if r["truth_spread_jnd"] > 1.0]
-    print(f"Values whose truth depends on the band filter's shape by more than a JND (small "
-          f"B·T; scored against the whole range): {len(spread)}, of which "
-          f"{sum(r['verdict'] == 'ok' and r['value'] is not None for r in spread)} "
-          "came with verdict ok.")
+    print(
+        f"Values whose truth depends on the band filter's shape by more than a JND (small "
+        f"B·T; scored against the whole range): {len(spread)}, of which "
+        f"{sum(r['verdict'] == 'ok' and r['value'] is not None for r in spread)} "
+        "came with verdict ok."
+    )
     refused = [r for r in results if r["refused"]]
     if refused:
         print(f"Refused responses (InputError; all their values counted null): {len(refused)}")
@@ -335,23 +417,36 @@ def main(argv=None) -> int:
         print(f"Responses on which the analysis crashed (values counted null): {len(crashed)}")
         for r in crashed[: a.worst]:
             print(("- " if md else "  ") + Case(**r["case"]).describe() + " — " + r["crashed"])
-    print(("**" if md else "") + "Silently wrong values by condition (silent/values)"
-          + ("**" if md else "") + ":")
+    print(
+        ("**" if md else "")
+        + "Silently wrong values by condition (silent/values)"
+        + ("**" if md else "")
+        + ":"
+    )
     print(breakdown_text(records, cases, md))
     print()
-    rerun = f"--seed {a.seed}" + (" --quick" if a.quick else "") + (
-        f" --cases {a.cases}" if a.cases is not None else "")
-    print(("**" if md else "") + f"Worst silently wrong cases ({counts['all']['silent']} values "
-          f"in all; rerun one with {rerun} --case N -v)" + ("**" if md else "") + ":")
+    rerun = (
+        f"--seed {a.seed}"
+        + (" --quick" if a.quick else "")
+        + (f" --cases {a.cases}" if a.cases is not None else "")
+    )
+    print(
+        ("**" if md else "") + f"Worst silently wrong cases ({counts['all']['silent']} values "
+        f"in all; rerun one with {rerun} --case N -v)" + ("**" if md else "") + ":"
+    )
     print(worst_text(records, cases, a.worst, md))
     print()
     ys = yardstick_check(cases, results)
-    print("Yardstick: mean deviation of the realization truths from the closed forms "
-          "(single slope, B·T ≥ 300; EDT where DRR ≤ −6 dB), in JND: " + ", ".join(
-              f"{LABEL[m]} {v:+.2f} (n={k})" for m, (v, k) in ys.items() if k))
+    print(
+        "Yardstick: mean deviation of the realization truths from the closed forms "
+        "(single slope, B·T ≥ 300; EDT where DRR ≤ −6 dB), in JND: "
+        + ", ".join(f"{LABEL[m]} {v:+.2f} (n={k})" for m, (v, k) in ys.items() if k)
+    )
     cpu = sum(r["seconds"] for r in results)
-    print(f"Run time: {wall:.0f} s wall, {cpu:.0f} s in the workers ({a.jobs} job(s)); "
-          f"analysis {sum(r['analysis_seconds'] for r in results):.0f} s of it.")
+    print(
+        f"Run time: {wall:.0f} s wall, {cpu:.0f} s in the workers ({a.jobs} job(s)); "
+        f"analysis {sum(r['analysis_seconds'] for r in results):.0f} s of it."
+    )
 
     if a.verbose:
         for res in results:
@@ -359,14 +454,24 @@ def main(argv=None) -> int:
             print(Case(**res["case"]).describe())
             for r in res["records"]:
                 v = "None" if r["value"] is None else f"{r['value']:.4g}"
-                print(f"  {r['band']!s:>8} {LABEL[r['metric']]:>4} value {v:>9} truth "
-                      f"{r['truth']:.4g}  {r['verdict']:<13} {r['status']}"
-                      + (f"  ({r['reason'][:120]})" if r.get("reason") else ""))
+                print(
+                    f"  {r['band']!s:>8} {LABEL[r['metric']]:>4} value {v:>9} truth "
+                    f"{r['truth']:.4g}  {r['verdict']:<13} {r['status']}"
+                    + (f"  ({r['reason'][:120]})" if r.get("reason") else "")
+                )
     if a.json:
         from roomconv.audio import write_json
-        write_json(a.json, {"seed": a.seed, "cases": [r["case"] for r in results],
-                            "jnd": {m: list(v) for m, v in JND.items()},
-                            "records": records}, force=a.force)
+
+        write_json(
+            a.json,
+            {
+                "seed": a.seed,
+                "cases": [r["case"] for r in results],
+                "jnd": {m: list(v) for m, v in JND.items()},
+                "records": records,
+            },
+            force=a.force,
+        )
         print(f"wrote {a.json}")
     if a.strict and counts["all"]["silent"]:
         return 1

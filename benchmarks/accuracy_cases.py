@@ -96,19 +96,69 @@ LN10 = math.log(10.0)
 
 #: Nominal mid-band frequencies and their band numbers x (f_m = 1000·G^(x/b)), IEC 61260-1:2014
 #: Annex E tables (nominal values) — the band numbers are counted from 1 kHz.
-OCTAVE_NOMINAL = {31.5: -5, 63: -4, 125: -3, 250: -2, 500: -1, 1000: 0, 2000: 1, 4000: 2,
-                  8000: 3, 16000: 4}
-THIRD_NOMINAL = {nom: i - 16 for i, nom in enumerate(
-    (25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250,
-     1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000, 10000, 12500, 16000, 20000))}
+OCTAVE_NOMINAL = {
+    31.5: -5,
+    63: -4,
+    125: -3,
+    250: -2,
+    500: -1,
+    1000: 0,
+    2000: 1,
+    4000: 2,
+    8000: 3,
+    16000: 4,
+}
+THIRD_NOMINAL = {
+    nom: i - 16
+    for i, nom in enumerate(
+        (
+            25,
+            31.5,
+            40,
+            50,
+            63,
+            80,
+            100,
+            125,
+            160,
+            200,
+            250,
+            315,
+            400,
+            500,
+            630,
+            800,
+            1000,
+            1250,
+            1600,
+            2000,
+            2500,
+            3150,
+            4000,
+            5000,
+            6300,
+            8000,
+            10000,
+            12500,
+            16000,
+            20000,
+        )
+    )
+}
 
 #: ISO 3382-1:2009 evaluation ranges, dB (A.2.1: EDT 0 to −10; T20 −5 to −25; T30 −5 to −35).
 RANGES = {"edt_s": (0.0, -10.0), "t20_s": (-5.0, -25.0), "t30_s": (-5.0, -35.0)}
 #: Just-noticeable differences, ISO 3382-1:2009 Table A.1 (from memory): decay times 5 %
 #: relative; C50/C80 1 dB; D50 0.05; Ts 10 ms.
-JND = {"edt_s": ("rel", 0.05), "t20_s": ("rel", 0.05), "t30_s": ("rel", 0.05),
-       "c50_db": ("abs", 1.0), "c80_db": ("abs", 1.0), "d50": ("abs", 0.05),
-       "ts_ms": ("abs", 10.0)}
+JND = {
+    "edt_s": ("rel", 0.05),
+    "t20_s": ("rel", 0.05),
+    "t30_s": ("rel", 0.05),
+    "c50_db": ("abs", 1.0),
+    "c80_db": ("abs", 1.0),
+    "d50": ("abs", 0.05),
+    "ts_ms": ("abs", 10.0),
+}
 METRICS = tuple(JND)
 
 #: The clean reference runs until its envelope is this far below its start (100 dB past T30).
@@ -126,16 +176,16 @@ class Case:
     index: int
     seed: int
     rate: int
-    bands: str            #: "octave" or "third"
-    slope: str            #: "single" or "double"
-    t_s: float            #: the longest decay time (single: T; double: the late T2)
-    t_early_s: float      #: double: the early T1 (< t_s); single: equal to t_s
-    knee_db: float        #: double: level of the knee below the start, dB; single: 0 (none)
-    inr_db: float         #: impulse-to-noise ratio in the 1 kHz octave band, dB
-    noise: str            #: "white" or "pink"
+    bands: str  #: "octave" or "third"
+    slope: str  #: "single" or "double"
+    t_s: float  #: the longest decay time (single: T; double: the late T2)
+    t_early_s: float  #: double: the early T1 (< t_s); single: equal to t_s
+    knee_db: float  #: double: level of the knee below the start, dB; single: 0 (none)
+    inr_db: float  #: impulse-to-noise ratio in the 1 kHz octave band, dB
+    noise: str  #: "white" or "pink"
     window_factor: float  #: the window after the onset is this many times t_s
-    drr_db: float         #: direct-to-reverberant energy ratio, dB
-    predelay_s: float     #: the onset's time in the measured response
+    drr_db: float  #: direct-to-reverberant energy ratio, dB
+    predelay_s: float  #: the onset's time in the measured response
 
     @property
     def onset(self) -> int:
@@ -146,11 +196,16 @@ class Case:
         return int(round(self.window_factor * self.t_s * self.rate))
 
     def describe(self) -> str:
-        slope = (f"T={self.t_s:.3g} s" if self.slope == "single" else
-                 f"T1={self.t_early_s:.3g} s T2={self.t_s:.3g} s knee {self.knee_db:.0f} dB")
-        return (f"case {self.index}: {self.rate} Hz {self.bands} {self.slope} {slope}, "
-                f"INR {self.inr_db:.0f} dB {self.noise}, window {self.window_factor:.2f}×T, "
-                f"DRR {self.drr_db:+.0f} dB, seed {self.seed}")
+        slope = (
+            f"T={self.t_s:.3g} s"
+            if self.slope == "single"
+            else f"T1={self.t_early_s:.3g} s T2={self.t_s:.3g} s knee {self.knee_db:.0f} dB"
+        )
+        return (
+            f"case {self.index}: {self.rate} Hz {self.bands} {self.slope} {slope}, "
+            f"INR {self.inr_db:.0f} dB {self.noise}, window {self.window_factor:.2f}×T, "
+            f"DRR {self.drr_db:+.0f} dB, seed {self.seed}"
+        )
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -179,10 +234,17 @@ def _level(u: float, levels):
     return levels[min(int(u * len(levels)), len(levels) - 1)]
 
 
-def make_grid(n: int = 160, seed: int = 2026, *, t_range=(0.2, 8.0), inr_range=(20.0, 90.0),
-              window_range=(1.2, 6.0), rates=(44100, 48000, 96000),
-              band_sets=("octave", "third"), max_window_samples: int = MAX_WINDOW_SAMPLES
-              ) -> list[Case]:
+def make_grid(
+    n: int = 160,
+    seed: int = 2026,
+    *,
+    t_range=(0.2, 8.0),
+    inr_range=(20.0, 90.0),
+    window_range=(1.2, 6.0),
+    rates=(44100, 48000, 96000),
+    band_sets=("octave", "third"),
+    max_window_samples: int = MAX_WINDOW_SAMPLES,
+) -> list[Case]:
     """The stratified grid of cases (see the module docstring for how it is chosen)."""
     rng = np.random.default_rng(seed)
     u = latin_hypercube(n, 11, rng)
@@ -191,26 +253,40 @@ def make_grid(n: int = 160, seed: int = 2026, *, t_range=(0.2, 8.0), inr_range=(
         row = u[i]
         t = math.exp(math.log(t_range[0]) + row[0] * math.log(t_range[1] / t_range[0]))
         inr = inr_range[0] + row[1] * (inr_range[1] - inr_range[0])
-        wf = math.exp(math.log(window_range[0]) + row[2] * math.log(window_range[1] /
-                                                                    window_range[0]))
+        wf = math.exp(
+            math.log(window_range[0]) + row[2] * math.log(window_range[1] / window_range[0])
+        )
         rate = _level(row[3], rates)
         bands = _level(row[4], band_sets)
         slope = _level(row[5], ("single", "double"))
         noise = _level(row[6], ("white", "pink"))
         if slope == "double":
-            t_early = t / (1.5 + 1.5 * row[7])      # the early slope 1.5–3 times steeper
-            knee = -8.0 - 17.0 * row[8]             # knee 8–25 dB down
+            t_early = t / (1.5 + 1.5 * row[7])  # the early slope 1.5–3 times steeper
+            knee = -8.0 - 17.0 * row[8]  # knee 8–25 dB down
         else:
             t_early, knee = t, 0.0
-        drr = -12.0 + 18.0 * row[9]                 # −12 … +6 dB
-        predelay = 0.005 + 0.02 * row[10]           # 5–25 ms
+        drr = -12.0 + 18.0 * row[9]  # −12 … +6 dB
+        predelay = 0.005 + 0.02 * row[10]  # 5–25 ms
         # Rounded down to the stored precision so that the cap holds for the stored value.
         wf = math.floor(1000 * min(wf, max_window_samples / (t * rate))) / 1000
         wf = max(window_range[0], wf)
-        cases.append(Case(i, seed * 100_000 + i, int(rate), bands, slope, float(round(t, 4)),
-                          float(round(t_early, 4)), float(round(knee, 2)),
-                          float(round(inr, 2)), noise, float(wf), float(round(drr, 2)),
-                          float(round(predelay, 4))))
+        cases.append(
+            Case(
+                i,
+                seed * 100_000 + i,
+                int(rate),
+                bands,
+                slope,
+                float(round(t, 4)),
+                float(round(t_early, 4)),
+                float(round(knee, 2)),
+                float(round(inr, 2)),
+                noise,
+                float(wf),
+                float(round(drr, 2)),
+                float(round(predelay, 4)),
+            )
+        )
     return cases
 
 
@@ -242,10 +318,10 @@ class Built:
     """One case's signals (1-D float64 arrays at ``case.rate``)."""
 
     case: Case
-    clean: np.ndarray        #: the untruncated clean response (onset at case.onset)
-    reverb: np.ndarray       #: its reverberant part alone
-    noise: np.ndarray        #: the background noise over the measured window
-    measured: np.ndarray     #: clean cut at the window, plus noise
+    clean: np.ndarray  #: the untruncated clean response (onset at case.onset)
+    reverb: np.ndarray  #: its reverberant part alone
+    noise: np.ndarray  #: the background noise over the measured window
+    measured: np.ndarray  #: clean cut at the window, plus noise
     direct_amplitude: float
 
 
@@ -262,7 +338,7 @@ def _noise_band_ms(x: np.ndarray, rate: int, lo: float, hi: float) -> float:
     spec = np.fft.rfft(x)
     f = np.fft.rfftfreq(x.size, 1 / rate)
     sel = (f >= lo) & (f <= hi)
-    return float(2.0 * np.sum(np.abs(spec[sel]) ** 2) / x.size ** 2)
+    return float(2.0 * np.sum(np.abs(spec[sel]) ** 2) / x.size**2)
 
 
 def pink_noise(n: int, rate: int, rng: np.random.Generator, f_min: float = 10.0) -> np.ndarray:
@@ -281,7 +357,7 @@ def build(case: Case) -> Built:
     n_ref = int(math.ceil(reference_length_s(case) * rate))
     t = np.arange(n_ref) / rate
     reverb_part = rng.standard_normal(n_ref) * np.sqrt(energy_envelope(case, t))
-    e_rev = float(np.sum(reverb_part ** 2))
+    e_rev = float(np.sum(reverb_part**2))
     amp = math.sqrt(e_rev * 10 ** (case.drr_db / 10))
     clean = np.zeros(i0 + n_ref)
     clean[i0:] = reverb_part
@@ -297,8 +373,9 @@ def build(case: Case) -> Built:
     # unit-variance white noise times a(0)² = 1 (Parseval).
     _, lo, hi = band_edges(INR_BAND_HZ, "octave")
     rev_band_ms = 2.0 * (hi - lo) / rate
-    noise *= math.sqrt(rev_band_ms * 10 ** (-case.inr_db / 10) / _noise_band_ms(noise, rate,
-                                                                                 lo, hi))
+    noise *= math.sqrt(
+        rev_band_ms * 10 ** (-case.inr_db / 10) / _noise_band_ms(noise, rate, lo, hi)
+    )
     cut = clean[:n_meas]
     measured = noise.copy()
     measured[: cut.size] += cut
@@ -325,8 +402,9 @@ def edge_width_ratio(fraction: int) -> float:
     return math.tanh(math.log(G10) / (2 * fraction))
 
 
-def reference_band_gain(f: np.ndarray, lo: float, hi: float, fraction: int,
-                        smooth: bool = True, edge_scale: float = 1.0) -> np.ndarray:
+def reference_band_gain(
+    f: np.ndarray, lo: float, hi: float, fraction: int, smooth: bool = True, edge_scale: float = 1.0
+) -> np.ndarray:
     """Zero-phase amplitude response of the reference band-pass at frequencies ``f``.
 
     Across each edge ``f_e`` the gain is ``cos(π/2 · s)``, ``s`` a raised-cosine step over
@@ -341,16 +419,24 @@ def reference_band_gain(f: np.ndarray, lo: float, hi: float, fraction: int,
         return ((f >= lo) & (f <= hi)).astype(float)
     r = edge_width_ratio(fraction) * edge_scale
     w_lo, w_hi = r * lo, r * hi
-    s_lo = _smooth_step((lo + w_lo / 2 - f) / w_lo)   # 1 well below lo, 0 well above
+    s_lo = _smooth_step((lo + w_lo / 2 - f) / w_lo)  # 1 well below lo, 0 well above
     s_hi = _smooth_step((f - (hi - w_hi / 2)) / w_hi)  # 0 well below hi, 1 well above
     g = np.cos(0.5 * np.pi * s_lo) * np.cos(0.5 * np.pi * s_hi)
-    g[(s_lo >= 1.0) | (s_hi >= 1.0)] = 0.0   # exactly zero, not cos(π/2) ≈ 6e-17
+    g[(s_lo >= 1.0) | (s_hi >= 1.0)] = 0.0  # exactly zero, not cos(π/2) ≈ 6e-17
     return g
 
 
-def reference_filter(x: np.ndarray, rate: int, lo: float, hi: float, fraction: int, *,
-                     smooth: bool = True, pad: int | None = None, edge_scale: float = 1.0
-                     ) -> tuple[np.ndarray, int]:
+def reference_filter(
+    x: np.ndarray,
+    rate: int,
+    lo: float,
+    hi: float,
+    fraction: int,
+    *,
+    smooth: bool = True,
+    pad: int | None = None,
+    edge_scale: float = 1.0,
+) -> tuple[np.ndarray, int]:
     """Band-limit ``x`` with the zero-phase reference band-pass; returns (y, pad).
 
     ``y`` has ``pad`` samples of room on both sides of ``x`` (``x[i]`` lands on ``y[i + pad]``)
@@ -361,10 +447,11 @@ def reference_filter(x: np.ndarray, rate: int, lo: float, hi: float, fraction: i
     n = x.size + 2 * pad
     nfft = _fast_len(n)
     buf = np.zeros(nfft)
-    buf[pad: pad + x.size] = x
+    buf[pad : pad + x.size] = x
     spec = np.fft.rfft(buf)
-    spec *= reference_band_gain(np.fft.rfftfreq(nfft, 1 / rate), lo, hi, fraction, smooth,
-                                edge_scale)
+    spec *= reference_band_gain(
+        np.fft.rfftfreq(nfft, 1 / rate), lo, hi, fraction, smooth, edge_scale
+    )
     return np.fft.irfft(spec, nfft)[:n], pad
 
 
@@ -435,8 +522,7 @@ def fit_range(curve_db: np.ndarray, rate: int, upper: float, lower: float) -> fl
     return -60.0 / slope
 
 
-def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0,
-                remove=None) -> dict:
+def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0, remove=None) -> dict:
     """All seven parameters of one band signal ``x`` whose time zero is sample ``i0``.
 
     ``remove=(slice, part)`` takes ``part²`` out of the energy over ``slice`` and
@@ -468,8 +554,9 @@ def _parameters(x: np.ndarray, rate: int, i0: int, at_onset: float = 0.0,
     return out
 
 
-def reference_truth(built: Built, nominals, *, edge_scale: float = 1.0,
-                    wideband: bool = True) -> dict:
+def reference_truth(
+    built: Built, nominals, *, edge_scale: float = 1.0, wideband: bool = True
+) -> dict:
     """Per-band truth of this realization: {nominal Hz or "wideband": {metric: value}}.
 
     ``nominals`` lists the bands wanted (nominal Hz of ``built.case.bands``); "wideband" (the
@@ -478,8 +565,11 @@ def reference_truth(built: Built, nominals, *, edge_scale: float = 1.0,
     scaled by ``edge_scale``), its spread before t0 counted at t0.
     """
     both = _band_truths(built, nominals, edge_scale)
-    truth = {"wideband": _parameters(built.clean, built.case.rate, built.case.onset)} \
-        if wideband else {}
+    truth = (
+        {"wideband": _parameters(built.clean, built.case.rate, built.case.onset)}
+        if wideband
+        else {}
+    )
     truth.update({nom: v[0] for nom, v in both.items()})
     return truth
 
@@ -506,21 +596,23 @@ def _band_truths(built: Built, nominals, edge_scale: float) -> dict:
         k0 = int(np.searchsorted(f, lo * (1 - r / 2)))
         k1 = int(np.searchsorted(f, hi * (1 + r / 2), side="right"))
         buf = np.zeros(nfft)
-        buf[pad: pad + built.reverb.size] = built.reverb
+        buf[pad : pad + built.reverb.size] = built.reverb
         spec = np.fft.rfft(buf)
         band_spec = np.zeros_like(spec)
-        band_spec[k0:k1] = spec[k0:k1] * reference_band_gain(f[k0:k1], lo, hi, fraction,
-                                                             edge_scale=edge_scale)
+        band_spec[k0:k1] = spec[k0:k1] * reference_band_gain(
+            f[k0:k1], lo, hi, fraction, edge_scale=edge_scale
+        )
         yr = np.fft.irfft(band_spec, nfft)
         i0 = pad + case.onset
         # The band-pass's impulse response on ±pad samples (its spread beyond is
         # negligible, see _pad_for), for the direct sound's band signal.
         n_short = _fast_len(2 * pad)
         centre = n_short // 2
-        gain = reference_band_gain(np.fft.rfftfreq(n_short, 1 / rate), lo, hi, fraction,
-                                   edge_scale=edge_scale)
-        ir = np.roll(np.fft.irfft(gain, n_short), centre)[centre - pad: centre + pad]
-        yd = built.direct_amplitude * ir          # the direct sound's band signal from i0 − pad
+        gain = reference_band_gain(
+            np.fft.rfftfreq(n_short, 1 / rate), lo, hi, fraction, edge_scale=edge_scale
+        )
+        ir = np.roll(np.fft.irfft(gain, n_short), centre)[centre - pad : centre + pad]
+        yd = built.direct_amplitude * ir  # the direct sound's band signal from i0 − pad
         span = slice(i0 - pad, i0 + pad)
         y = yr.copy()
         y[span] += yd

@@ -33,7 +33,9 @@ def fft_backends(repeats):
     with the channels as columns (one call along axis 0, all threads) and as contiguous rows
     transformed one per thread (what the offline engine does)."""
     from concurrent.futures import ThreadPoolExecutor
+
     from scipy import fft as sfft
+
     rng = np.random.default_rng(5)
     x = rng.standard_normal((1 << 19, 2))
     rows = np.ascontiguousarray(x.T)
@@ -41,16 +43,24 @@ def fft_backends(repeats):
 
     def by_row(r):
         return sfft.irfft(sfft.rfft(r), r.size)
-    res = interleaved({"numpy.fft columns": lambda: np.fft.irfft(np.fft.rfft(x, axis=0), axis=0),
-                       "scipy.fft columns": lambda: sfft.irfft(
-                           sfft.rfft(x, axis=0, workers=-1), axis=0, workers=-1),
-                       "scipy.fft rows, a thread each": lambda: list(pool.map(by_row, rows))},
-                      repeats)
+
+    res = interleaved(
+        {
+            "numpy.fft columns": lambda: np.fft.irfft(np.fft.rfft(x, axis=0), axis=0),
+            "scipy.fft columns": lambda: sfft.irfft(
+                sfft.rfft(x, axis=0, workers=-1), axis=0, workers=-1
+            ),
+            "scipy.fft rows, a thread each": lambda: list(pool.map(by_row, rows)),
+        },
+        repeats,
+    )
     pool.shutdown()
     base = res["numpy.fft columns"]
-    print("FFT, 2^19-point stereo round trip: " + " | ".join(
-        f"{k} {1000 * v:.1f} ms ({base / v:.2f}x)" for k, v in res.items())
-        + " (offline uses scipy.fft by rows; live, numpy.fft on small blocks)")
+    print(
+        "FFT, 2^19-point stereo round trip: "
+        + " | ".join(f"{k} {1000 * v:.1f} ms ({base / v:.2f}x)" for k, v in res.items())
+        + " (offline uses scipy.fft by rows; live, numpy.fft on small blocks)"
+    )
 
 
 def compiled_mac(repeats):
@@ -60,9 +70,15 @@ def compiled_mac(repeats):
     and an optional numba loop."""
     rng = np.random.default_rng(6)
     shapes = [(31, 129), (15, 1025)]
-    arrays = [((rng.standard_normal(s) + 1j * rng.standard_normal(s)).astype(np.complex64),
-               (rng.standard_normal(s) + 1j * rng.standard_normal(s)).astype(np.complex64),
-               np.empty(s, np.complex64), np.empty(s[1], np.complex64)) for s in shapes]
+    arrays = [
+        (
+            (rng.standard_normal(s) + 1j * rng.standard_normal(s)).astype(np.complex64),
+            (rng.standard_normal(s) + 1j * rng.standard_normal(s)).astype(np.complex64),
+            np.empty(s, np.complex64),
+            np.empty(s[1], np.complex64),
+        )
+        for s in shapes
+    ]
 
     def with_numpy():
         for X, H, prod, out in arrays:
@@ -74,6 +90,7 @@ def compiled_mac(repeats):
         for X, H, _, _ in arrays:
             for _ in range(200):
                 np.einsum("pk,pk->k", X, H)
+
     funcs = {"numpy": with_numpy, "einsum": with_einsum}
     try:
         import numba  # noqa: PLC0415 - optional, benchmark only
@@ -85,6 +102,7 @@ def compiled_mac(repeats):
                 for p in range(X.shape[0]):
                     acc += X[p, k] * H[p, k]
                 out[k] = acc
+
         for X, H, _, out in arrays:
             mac(X, H, out)  # compile outside the timing
 
@@ -92,6 +110,7 @@ def compiled_mac(repeats):
             for X, H, _, out in arrays:
                 for _ in range(200):
                     mac(X, H, out)
+
         funcs["numba"] = with_numba
     except ImportError:
         pass
@@ -102,8 +121,9 @@ def compiled_mac(repeats):
         verdict = f"numba {'saves' if d > 0 else 'costs'} {abs(d):.1f} us a callback"
     else:
         verdict = "numba not installed"
-    print(f"multiply-accumulate per live callback: {line} ({verdict}; the engine uses the "
-          "numpy path)")
+    print(
+        f"multiply-accumulate per live callback: {line} ({verdict}; the engine uses the numpy path)"
+    )
 
 
 def interleaved(funcs: dict, repeats: int) -> dict:
@@ -122,7 +142,7 @@ def ours_offline(x, h, routing, precision):
     n = x.shape[0] + h.shape[0] - 1
     out = np.empty((n, routing.n_out), dtype=np.float32 if precision == "float32" else float)
     for s in range(0, n, B):
-        conv.process(x[s:s + B], out=out[s:s + B])
+        conv.process(x[s : s + B], out=out[s : s + B])
     return out
 
 
@@ -130,7 +150,9 @@ def scipy_offline(x, h, routing):
     n = x.shape[0] + h.shape[0] - 1
     out = np.zeros((n, routing.n_out))
     for p in range(routing.n_paths):
-        out[:, routing.path_out[p]] += oaconvolve(x[:, routing.path_in[p]], h[:, routing.path_ir[p]])
+        out[:, routing.path_out[p]] += oaconvolve(
+            x[:, routing.path_in[p]], h[:, routing.path_ir[p]]
+        )
     return out
 
 
@@ -139,13 +161,20 @@ def job(name, seconds, ir_seconds, n_ir, repeats, target=True):
     x = rng.standard_normal((int(seconds * FS), 2))
     h = rng.standard_normal((int(ir_seconds * FS), n_ir)) * 0.01
     r = routing_for(2, n_ir)
-    res = interleaved({"scipy": lambda: scipy_offline(x, h, r),
-                       "ours64": lambda: ours_offline(x, h, r, "float64"),
-                       "ours32": lambda: ours_offline(x, h, r, "float32")}, repeats)
-    print(f"{name}: scipy.signal.oaconvolve {res['scipy']:.2f} s | ours float64 "
-          f"{res['ours64']:.2f} s, ratio {res['scipy'] / res['ours64']:.1f}x "
-          f"({'target >= 5x' if target else 'for information'}) | "
-          f"float32 {res['ours32']:.2f} s, ratio {res['scipy'] / res['ours32']:.1f}x")
+    res = interleaved(
+        {
+            "scipy": lambda: scipy_offline(x, h, r),
+            "ours64": lambda: ours_offline(x, h, r, "float64"),
+            "ours32": lambda: ours_offline(x, h, r, "float32"),
+        },
+        repeats,
+    )
+    print(
+        f"{name}: scipy.signal.oaconvolve {res['scipy']:.2f} s | ours float64 "
+        f"{res['ours64']:.2f} s, ratio {res['scipy'] / res['ours64']:.1f}x "
+        f"({'target >= 5x' if target else 'for information'}) | "
+        f"float32 {res['ours32']:.2f} s, ratio {res['scipy'] / res['ours32']:.1f}x"
+    )
 
 
 SCRIPT = """
@@ -161,23 +190,48 @@ def whole_process(seconds, repeats):
     rng = np.random.default_rng(1)
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
-        sf.write(tmp / "dry.wav", 0.02 * rng.standard_normal((int(seconds * FS), 2)), FS,
-                 subtype="FLOAT")
+        sf.write(
+            tmp / "dry.wav", 0.02 * rng.standard_normal((int(seconds * FS), 2)), FS, subtype="FLOAT"
+        )
         sf.write(tmp / "ir.wav", 0.01 * rng.standard_normal((4 * FS, 2)), FS, subtype="FLOAT")
         (tmp / "ref.py").write_text(SCRIPT)
 
         def ours():
-            subprocess.run([sys.executable, "-m", "roomconv", "render", str(tmp / "dry.wav"),
-                            "--ir", str(tmp / "ir.wav"), "-o", str(tmp / "a.wav"), "--force",
-                            "--quiet"], check=True)
+            subprocess.run(
+                [
+                    sys.executable,
+                    "-m",
+                    "roomconv",
+                    "render",
+                    str(tmp / "dry.wav"),
+                    "--ir",
+                    str(tmp / "ir.wav"),
+                    "-o",
+                    str(tmp / "a.wav"),
+                    "--force",
+                    "--quiet",
+                ],
+                check=True,
+            )
 
         def ref():
-            subprocess.run([sys.executable, str(tmp / "ref.py"), str(tmp / "dry.wav"),
-                            str(tmp / "ir.wav"), str(tmp / "b.wav")], check=True)
+            subprocess.run(
+                [
+                    sys.executable,
+                    str(tmp / "ref.py"),
+                    str(tmp / "dry.wav"),
+                    str(tmp / "ir.wav"),
+                    str(tmp / "b.wav"),
+                ],
+                check=True,
+            )
+
         res = interleaved({"scipy": ref, "ours": ours}, repeats)
-    print(f"whole process, {seconds:.0f} s stereo through 4 s IR: soundfile+oaconvolve script "
-          f"{res['scipy']:.2f} s | roomconv render {res['ours']:.2f} s, ratio "
-          f"{res['scipy'] / res['ours']:.1f}x (target >= 2.5x)")
+    print(
+        f"whole process, {seconds:.0f} s stereo through 4 s IR: soundfile+oaconvolve script "
+        f"{res['scipy']:.2f} s | roomconv render {res['ours']:.2f} s, ratio "
+        f"{res['scipy'] / res['ours']:.1f}x (target >= 2.5x)"
+    )
 
 
 def live(block, ir_seconds=5.0, callbacks=3000, limiting=False):
@@ -188,7 +242,7 @@ def live(block, ir_seconds=5.0, callbacks=3000, limiting=False):
     rng = np.random.default_rng(2)
     t = np.arange(int(ir_seconds * FS)) / FS
     h = rng.standard_normal(t.size) * np.exp(-6.9 * t / 2.0)
-    h /= np.sqrt(np.sum(h ** 2))
+    h /= np.sqrt(np.sum(h**2))
     proc = LiveProcessor(h, FS, block=block, fade_in_s=0.01)
     x = rng.standard_normal((block, 1)) * (1.0 if limiting else 0.1)
     for _ in range(callbacks):
@@ -207,12 +261,18 @@ def analysis(repeats):
     t = np.arange(10 * FS) / FS
     h = rng.standard_normal(t.size) * np.exp(-6.9 * t / 1.5) + 1e-4 * rng.standard_normal(t.size)
     bands, _ = bands_for_rate("third", FS)
-    res = interleaved({
-        "filters": lambda: [sosfilt(band_sos(b, FS), h) for b in bands],
-        "ours": lambda: room_parameters(h, FS, bands="third")}, repeats)
-    print(f"analysis, 10 s IR at 48 kHz, {len(bands)} third-octave bands: all parameters "
-          f"{res['ours']:.2f} s (target < 0.5 s) | scipy.signal.sosfilt of the same bands alone "
-          f"{res['filters']:.2f} s, ratio {res['filters'] / res['ours']:.2f}")
+    res = interleaved(
+        {
+            "filters": lambda: [sosfilt(band_sos(b, FS), h) for b in bands],
+            "ours": lambda: room_parameters(h, FS, bands="third"),
+        },
+        repeats,
+    )
+    print(
+        f"analysis, 10 s IR at 48 kHz, {len(bands)} third-octave bands: all parameters "
+        f"{res['ours']:.2f} s (target < 0.5 s) | scipy.signal.sosfilt of the same bands alone "
+        f"{res['filters']:.2f} s, ratio {res['filters'] / res['ours']:.2f}"
+    )
 
 
 def memory(seconds):
@@ -220,19 +280,39 @@ def memory(seconds):
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         with sf.SoundFile(tmp / "long.wav", "w", FS, 2, "PCM_16", format="RF64") as f:
-            chunk = (0.1 * rng.standard_normal((FS * 60, 2)))
+            chunk = 0.1 * rng.standard_normal((FS * 60, 2))
             for _ in range(int(seconds // 60)):
                 f.write(chunk)
         sf.write(tmp / "ir.wav", 0.01 * rng.standard_normal((4 * FS, 2)), FS, subtype="FLOAT")
-        code = ("import resource, subprocess, sys; subprocess.run(sys.argv[1:], check=True); "
-                "print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)")
-        out = subprocess.run([sys.executable, "-c", code, sys.executable, "-m", "roomconv",
-                              "render", str(tmp / "long.wav"), "--ir", str(tmp / "ir.wav"),
-                              "-o", str(tmp / "o.wav"), "--quiet"],
-                             check=True, capture_output=True, text=True)
+        code = (
+            "import resource, subprocess, sys; subprocess.run(sys.argv[1:], check=True); "
+            "print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)"
+        )
+        out = subprocess.run(
+            [
+                sys.executable,
+                "-c",
+                code,
+                sys.executable,
+                "-m",
+                "roomconv",
+                "render",
+                str(tmp / "long.wav"),
+                "--ir",
+                str(tmp / "ir.wav"),
+                "-o",
+                str(tmp / "o.wav"),
+                "--quiet",
+            ],
+            check=True,
+            capture_output=True,
+            text=True,
+        )
         rss_mb = int(out.stdout.strip().splitlines()[-1]) / 1024
-    print(f"memory, {seconds / 60:.0f} min stereo render: peak RSS {rss_mb:.0f} MB "
-          f"(target < 500 MB for 2 hours)")
+    print(
+        f"memory, {seconds / 60:.0f} min stereo render: peak RSS {rss_mb:.0f} MB "
+        f"(target < 500 MB for 2 hours)"
+    )
 
 
 def main():
@@ -247,17 +327,28 @@ def main():
     compiled_mac(reps)
     job(f"job A, {secs} s stereo through a 4 s stereo IR", secs, 4.0, 2, reps)
     job(f"job B, {secs} s true stereo through 4 IRs of 6 s", secs, 6.0, 4, reps)
-    job(f"job C, {secs} s stereo through a 35 s stereo IR (beyond one FFT: partitioned)",
-        secs, 35.0, 2, reps, target=False)
+    job(
+        f"job C, {secs} s stereo through a 35 s stereo IR (beyond one FFT: partitioned)",
+        secs,
+        35.0,
+        2,
+        reps,
+        target=False,
+    )
     whole_process(secs, reps)
     n_cb = 1500 if a.quick else 3000
     for block, limiting in ((128, False), (64, False), (128, True)):
         mean, p99, sc = live(block, callbacks=n_cb, limiting=limiting)
-        target = ("mean <= 2 %, p99 <= 10 %" if block == 128 else "mean <= 10 %") \
-            if not limiting else "for information: limiter reducing on every block"
-        print(f"live, 5 s mono IR, {block}-sample blocks{', limiting' if limiting else ''}: "
-              f"compute mean {100 * mean:.1f} %, p99 {100 * p99:.1f} % of a block ({target}) "
-              f"| scipy oaconvolve of the same audio offline: {100 * sc:.1f} % of a block")
+        target = (
+            ("mean <= 2 %, p99 <= 10 %" if block == 128 else "mean <= 10 %")
+            if not limiting
+            else "for information: limiter reducing on every block"
+        )
+        print(
+            f"live, 5 s mono IR, {block}-sample blocks{', limiting' if limiting else ''}: "
+            f"compute mean {100 * mean:.1f} %, p99 {100 * p99:.1f} % of a block ({target}) "
+            f"| scipy oaconvolve of the same audio offline: {100 * sc:.1f} % of a block"
+        )
     analysis(reps)
     memory(7200 if a.long else (120 if a.quick else 1200))
 

@@ -46,13 +46,22 @@ def pluck(freq: float, dur: float, rng: np.random.Generator, brightness: float =
 
 
 def plucks(rng):
-    notes = [(220.0, 0.0), (277.2, 0.45), (329.6, 0.9), (440.0, 1.35), (329.6, 1.8),
-             (370.0, 2.4), (293.7, 2.85), (246.9, 3.3), (220.0, 3.9)]
+    notes = [
+        (220.0, 0.0),
+        (277.2, 0.45),
+        (329.6, 0.9),
+        (440.0, 1.35),
+        (329.6, 1.8),
+        (370.0, 2.4),
+        (293.7, 2.85),
+        (246.9, 3.3),
+        (220.0, 3.9),
+    ]
     out = np.zeros(int(5.5 * RATE))
     for f, t in notes:
         s = pluck(f, 1.5, rng)
         i = int(t * RATE)
-        seg = out[i:i + s.size]
+        seg = out[i : i + s.size]
         seg += s[: seg.size]
     return out
 
@@ -64,11 +73,12 @@ def claps(rng):
         n = int(0.12 * RATE)
         tt = np.arange(n) / RATE
         # A clap is a few micro-bursts a millisecond or so apart, then a fast decay.
-        env = sum(np.exp(-np.maximum(tt - j * 0.0011, 0) / 0.0007) * (tt >= j * 0.0011)
-                  for j in range(3)) + 0.6 * np.exp(-tt / 0.02)
+        env = sum(
+            np.exp(-np.maximum(tt - j * 0.0011, 0) / 0.0007) * (tt >= j * 0.0011) for j in range(3)
+        ) + 0.6 * np.exp(-tt / 0.02)
         burst = sosfilt(sos, rng.standard_normal(n)) * env
         i = int(t * RATE)
-        out[i:i + n] += burst * (0.8 + 0.2 * (k % 3))
+        out[i : i + n] += burst * (0.8 + 0.2 * (k % 3))
     return out
 
 

@@ -1180,12 +1180,15 @@ class WriteGuard:
         ident = _identity(p)
         self._check_against(p, ident)
         if any(_same(ident, _identity(f)) for f in self._folders):
-            raise InputError(describe(_short(p), "is planned as a folder and as a file by this "
-                                      "run", "give the two outputs different names"))
-        if st is not None and not (self.force or exists_ok):
-            raise OutputExistsError(
-                describe(_short(p), "exists already", "nothing was replaced")
+            raise InputError(
+                describe(
+                    _short(p),
+                    "is planned as a folder and as a file by this run",
+                    "give the two outputs different names",
+                )
             )
+        if st is not None and not (self.force or exists_ok):
+            raise OutputExistsError(describe(_short(p), "exists already", "nothing was replaced"))
         self._outputs.append((p, ident))
         if str(folder) not in _SWEPT and folder.is_dir():
             _SWEPT.add(str(folder))
@@ -1233,8 +1236,13 @@ class WriteGuard:
             if _same(ident, sid):
                 raise InputError(describe(_short(p), "is also an input"))
         if any(_same(ident, oid) for _, oid in self._outputs):
-            raise InputError(describe(_short(p), "is planned as a file and as a folder by this "
-                                      "run", "give the two outputs different names"))
+            raise InputError(
+                describe(
+                    _short(p),
+                    "is planned as a file and as a folder by this run",
+                    "give the two outputs different names",
+                )
+            )
         if st is None:
             parent = p.parent if str(p.parent) else Path(".")
             anc = parent

@@ -13,8 +13,15 @@ from numpy.typing import ArrayLike, NDArray
 
 from .errors import InputError
 
-__all__ = ["db_to_gain", "gain_to_db", "cosine_step", "raised_cosine", "resample",
-           "energy_envelope", "envelope_inr"]
+__all__ = [
+    "db_to_gain",
+    "gain_to_db",
+    "cosine_step",
+    "raised_cosine",
+    "resample",
+    "energy_envelope",
+    "envelope_inr",
+]
 
 
 def db_to_gain(db: ArrayLike) -> NDArray[np.float64] | float:
@@ -226,8 +233,9 @@ def energy_envelope(h: np.ndarray, rate: int, interval_s: float = 0.01) -> tuple
     return np.mean(np.square(h[: m * n]).reshape(m, n), axis=1), n
 
 
-def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
-                 tail_fraction: float = 0.1) -> tuple[float, float]:
+def envelope_inr(
+    h: np.ndarray, rate: int, interval_s: float = 0.01, tail_fraction: float = 0.1
+) -> tuple[float, float]:
     """Impulse-to-noise ratio (INR) of a 1-D response from its smoothed energy envelope.
 
     The noise is the mean energy of the last ``tail_fraction`` of the response, the peak the
@@ -259,7 +267,7 @@ def envelope_inr(h: np.ndarray, rate: int, interval_s: float = 0.01,
     60.0
     """
     env, _ = energy_envelope(h, rate, interval_s)
-    tail = env[-max(1, int(round(tail_fraction * env.size))):]
+    tail = env[-max(1, int(round(tail_fraction * env.size))) :]
     noise = float(np.mean(tail))
     peak = float(np.max(env))
     if noise <= 0:

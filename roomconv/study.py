@@ -17,9 +17,20 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["StudyFile", "Room", "Equipment", "SweepSettings", "Point", "Response",
-           "Targets", "load_study", "parse_study", "template_text", "session_study_text",
-           "STATES"]
+__all__ = [
+    "StudyFile",
+    "Room",
+    "Equipment",
+    "SweepSettings",
+    "Point",
+    "Response",
+    "Targets",
+    "load_study",
+    "parse_study",
+    "template_text",
+    "session_study_text",
+    "STATES",
+]
 
 STATES = ("unoccupied", "occupied")
 TARGET_BASES = ("t20", "t30", "edt")
@@ -137,11 +148,13 @@ class StudyFile:
         d["path"] = str(self.path)
         for r, src in zip(d["responses"], self.responses, strict=True):
             r["file"] = self.display_path(src.file)
-            r["quality_file"] = (None if src.quality_file is None
-                                 else self.display_path(src.quality_file))
-        if d["targets"] is not None:
+            r["quality_file"] = (
+                None if src.quality_file is None else self.display_path(src.quality_file)
+            )
+        if self.targets is not None:
             d["targets"]["reverberation_s"] = {
-                f"{k:g}": v for k, v in self.targets.reverberation_s.items()}  # type: ignore[union-attr]
+                f"{k:g}": v for k, v in self.targets.reverberation_s.items()
+            }
         d["room"]["volume_m3"] = self.room.volume
         d["room"]["surface_m2"] = self.room.surface
         return d
@@ -205,8 +218,11 @@ class _Reader:
     def done(self):
         extra = sorted(set(self.t) - self.used)
         if extra:
-            self.fail(extra[0], "unknown key",
-                      "check its spelling against 'roomconv study init' or remove it")
+            self.fail(
+                extra[0],
+                "unknown key",
+                "check its spelling against 'roomconv study init' or remove it",
+            )
 
 
 def _positive(v):
@@ -216,11 +232,23 @@ def _positive(v):
 def _range(lo, hi):
     def check(v):
         return None if lo <= v <= hi else f"{v:g} is outside {lo:g}…{hi:g}"
+
     return check
 
 
 def _nonempty(v):
     return None if v.strip() else "is empty"
+
+
+def _one_of(ids: set, table: str):
+    """A check that the value is one of ``ids``, the ids of the [[``table``]] entries."""
+
+    def check(v):
+        if v in ids:
+            return None
+        return f"{v!r} is not among the [[{table}]] ids ({', '.join(sorted(ids)) or 'none'})"
+
+    return check
 
 
 def _date_list(v, r: _Reader, k: str) -> tuple[str, ...]:
@@ -259,14 +287,28 @@ def _points(doc: dict, name: str, src: str) -> tuple[Point, ...]:
         if pid in seen:
             r.fail("id", f"{pid!r} is used twice", "give every position its own id")
         seen.add(pid)
-        xy = r.get("xy_m", list, check=lambda v: None if len(v) == 2 and all(
-            isinstance(c, int | float) and not isinstance(c, bool) for c in v)
-            else "must be two numbers [x, y]")
+        xy = r.get(
+            "xy_m",
+            list,
+            check=lambda v: (
+                None
+                if len(v) == 2
+                and all(isinstance(c, int | float) and not isinstance(c, bool) for c in v)
+                else "must be two numbers [x, y]"
+            ),
+        )
         h = r.get("height_m", float, check=_range(0.0, 100.0))
         note = r.get("note", str, "")
         r.done()
-        out.append(Point(pid, None if xy is None else float(xy[0]),
-                         None if xy is None else float(xy[1]), h, note))
+        out.append(
+            Point(
+                pid,
+                None if xy is None else float(xy[0]),
+                None if xy is None else float(xy[1]),
+                h,
+                note,
+            )
+        )
     return tuple(out)
 
 
@@ -278,8 +320,9 @@ def parse_study(text: str, path) -> StudyFile:
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{src}: not valid TOML ({exc}); compare it with "
-                         "'roomconv study init'") from None
+        raise InputError(
+            f"{src}: not valid TOML ({exc}); compare it with 'roomconv study init'"
+        ) from None
     base = path.parent
     top = _Reader(doc, "", src)
 
@@ -293,18 +336,29 @@ def parse_study(text: str, path) -> StudyFile:
     st.done()
 
     rm = _Reader(top.get("room", dict, required=True), "room.", src)
-    dims = rm.get("dimensions_m", list, check=lambda v: None if len(v) == 3 and all(
-        isinstance(c, int | float) and not isinstance(c, bool) and c > 0 for c in v)
-        else "must be three positive numbers [length, width, height]")
+    dims = rm.get(
+        "dimensions_m",
+        list,
+        check=lambda v: (
+            None
+            if len(v) == 3
+            and all(isinstance(c, int | float) and not isinstance(c, bool) and c > 0 for c in v)
+            else "must be three positive numbers [length, width, height]"
+        ),
+    )
     room = Room(
         name=rm.get("name", str, required=True, check=_nonempty),
         use=rm.get("use", str, ""),
         volume_m3=rm.get("volume_m3", float, check=_positive),
         surface_m2=rm.get("surface_m2", float, check=_positive),
-        dimensions_m=None if dims is None else tuple(float(c) for c in dims),  # type: ignore[arg-type]
-        state=rm.get("state", str, "unoccupied",
-                     check=lambda v: None if v in STATES else f"{v!r} is not one of "
-                     + ", ".join(STATES)),
+        # The check above lets through exactly three numbers.
+        dimensions_m=None if dims is None else (float(dims[0]), float(dims[1]), float(dims[2])),
+        state=rm.get(
+            "state",
+            str,
+            "unoccupied",
+            check=lambda v: None if v in STATES else f"{v!r} is not one of " + ", ".join(STATES),
+        ),
         furnished=rm.get("furnished", bool),
         temperature_c=rm.get("temperature_c", float, check=_range(-30.0, 60.0)),
         humidity_pct=rm.get("humidity_pct", float, check=_range(0.0, 100.0)),
@@ -326,16 +380,23 @@ def parse_study(text: str, path) -> StudyFile:
         rate_hz=sw.get("rate_hz", int, check=lambda v: None if v > 0 else "must be positive"),
     )
     if sweep.f_low_hz and sweep.f_high_hz and sweep.f_low_hz >= sweep.f_high_hz:
-        sw.fail("f_low_hz", f"{sweep.f_low_hz:g} Hz is not below f_high_hz "
-                f"({sweep.f_high_hz:g} Hz)", "swap or correct them")
+        sw.fail(
+            "f_low_hz",
+            f"{sweep.f_low_hz:g} Hz is not below f_high_hz ({sweep.f_high_hz:g} Hz)",
+            "swap or correct them",
+        )
     sw.done()
 
     top.used.update({"sources", "receivers"})
     sources = _points(doc, "sources", src)
     receivers = _points(doc, "receivers", src)
 
-    items = top.get("responses", list, required=True,
-                    todo="list each measured response as a [[responses]] table")
+    items = top.get(
+        "responses",
+        list,
+        required=True,
+        todo="list each measured response as a [[responses]] table",
+    )
     if not items:
         top.fail("responses", "is empty", "list at least one [[responses]] table")
     s_ids, r_ids = {p.id for p in sources}, {p.id for p in receivers}
@@ -344,14 +405,10 @@ def parse_study(text: str, path) -> StudyFile:
         if not isinstance(t, dict):
             top.fail("responses", f"entry {i} is not a table", "write each as [[responses]]")
         r = _Reader(t, f"responses[{i}].", src)
-        s = r.get("source", str, required=True, check=lambda v: None if v in s_ids else
-                  f"{v!r} is not among the [[sources]] ids ({', '.join(sorted(s_ids)) or 'none'})")
-        c = r.get("receiver", str, required=True, check=lambda v: None if v in r_ids else
-                  f"{v!r} is not among the [[receivers]] ids "
-                  f"({', '.join(sorted(r_ids)) or 'none'})")
+        s = r.get("source", str, required=True, check=_one_of(s_ids, "sources"))
+        c = r.get("receiver", str, required=True, check=_one_of(r_ids, "receivers"))
         f = _path(base, r.get("file", str, required=True), r, "file")
-        ch = r.get("channel", int, 1, check=lambda v: None if v >= 1 else
-                   "channels count from 1")
+        ch = r.get("channel", int, 1, check=lambda v: None if v >= 1 else "channels count from 1")
         q = r.get("quality_file", str)
         r.done()
         if (s, c, f, ch) in combos:
@@ -363,34 +420,72 @@ def parse_study(text: str, path) -> StudyFile:
     targets = None
     if "targets" in doc:
         tg = _Reader(top.get("targets", dict), "targets.", src)
-        basis = tg.get("basis", str, "t30", check=lambda v: None if v in TARGET_BASES else
-                       f"{v!r} is not one of {', '.join(TARGET_BASES)}")
-        per_band = tg.get("reverberation_s", dict, required=True,
-                          todo='give seconds per band, e.g. { "500" = 1.2, "1000" = 1.2 }')
+        basis = tg.get(
+            "basis",
+            str,
+            "t30",
+            check=lambda v: (
+                None if v in TARGET_BASES else f"{v!r} is not one of {', '.join(TARGET_BASES)}"
+            ),
+        )
+        per_band = tg.get(
+            "reverberation_s",
+            dict,
+            required=True,
+            todo='give seconds per band, e.g. { "500" = 1.2, "1000" = 1.2 }',
+        )
         bands: dict[float, float] = {}
         for k, v in per_band.items():
             try:
                 b = float(k)
             except ValueError:
-                tg.fail("reverberation_s", f"band {k!r} is not a frequency in Hz",
-                        'use keys such as "500"')
+                tg.fail(
+                    "reverberation_s",
+                    f"band {k!r} is not a frequency in Hz",
+                    'use keys such as "500"',
+                )
             if isinstance(v, bool) or not isinstance(v, int | float) or not v > 0:
-                tg.fail("reverberation_s", f"band {k}: {v!r} is not a positive time in s",
-                        "give seconds, e.g. 1.2")
+                tg.fail(
+                    "reverberation_s",
+                    f"band {k}: {v!r} is not a positive time in s",
+                    "give seconds, e.g. 1.2",
+                )
             bands[b] = float(v)
-        tol = tg.get("tolerance_pct", list, [-20, 20], check=lambda v: None if len(v) == 2 and all(
-            isinstance(c, int | float) and not isinstance(c, bool) for c in v) and
-            -100 < v[0] <= 0 <= v[1] else "must be [lower, upper] with lower ≤ 0 ≤ upper, in %")
+        tol = tg.get(
+            "tolerance_pct",
+            list,
+            [-20, 20],
+            check=lambda v: (
+                None
+                if len(v) == 2
+                and all(isinstance(c, int | float) and not isinstance(c, bool) for c in v)
+                and -100 < v[0] <= 0 <= v[1]
+                else "must be [lower, upper] with lower ≤ 0 ≤ upper, in %"
+            ),
+        )
         origin = tg.get("source", str, "")
         tg.done()
-        targets = Targets(basis, dict(sorted(bands.items())), (float(tol[0]), float(tol[1])),
-                          origin)
+        targets = Targets(
+            basis, dict(sorted(bands.items())), (float(tol[0]), float(tol[1])), origin
+        )
     top.used.add("targets")
     top.done()
-    return StudyFile(path=path, title=title, client=client, project_number=number,
-                     author=author, dates=dates, notes=notes, room=room, equipment=equipment,
-                     sweep=sweep, sources=sources, receivers=receivers,
-                     responses=tuple(responses), targets=targets)
+    return StudyFile(
+        path=path,
+        title=title,
+        client=client,
+        project_number=number,
+        author=author,
+        dates=dates,
+        notes=notes,
+        room=room,
+        equipment=equipment,
+        sweep=sweep,
+        sources=sources,
+        receivers=receivers,
+        responses=tuple(responses),
+        targets=targets,
+    )
 
 
 def load_study(path) -> StudyFile:
@@ -404,8 +499,9 @@ def load_study(path) -> StudyFile:
     """
     p = Path(path)
     if not p.is_file():
-        raise InputError(f"{p}: study file not found; check the path or create one with "
-                         "'roomconv study init'")
+        raise InputError(
+            f"{p}: study file not found; check the path or create one with 'roomconv study init'"
+        )
     try:
         text = p.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as exc:
@@ -413,8 +509,10 @@ def load_study(path) -> StudyFile:
     return parse_study(text, p)
 
 
-_POSITIONS_NOTE = ("# Positions: plan coordinates in metres from a corner you name in the "
-                   "notes,\n# and the height above the floor.")
+_POSITIONS_NOTE = (
+    "# Positions: plan coordinates in metres from a corner you name in the "
+    "notes,\n# and the height above the floor."
+)
 
 
 def template_text(title: str = "Acoustic measurements") -> str:
@@ -432,15 +530,25 @@ def session_study_text(title: str, positions, folder) -> str:
     or None) becomes a receiver of one source S1, with paths relative to ``folder`` (where
     the study file goes). Coordinates are left for the user to fill in."""
     folder = Path(folder)
-    parts = [_head(title).rstrip("\n"), "", _POSITIONS_NOTE,
-             "# Written from a workbench session: every response is assigned to source S1;",
-             "# correct the source ids where the source was moved.",
-             "[[sources]]", 'id = "S1"', ""]
+    parts = [
+        _head(title).rstrip("\n"),
+        "",
+        _POSITIONS_NOTE,
+        "# Written from a workbench session: every response is assigned to source S1;",
+        "# correct the source ids where the source was moved.",
+        "[[sources]]",
+        'id = "S1"',
+        "",
+    ]
     for name, _file, _q in positions:
         parts += ["[[receivers]]", f"id = {_toml_str(name)}", ""]
     for name, file, quality in positions:
-        parts += ["[[responses]]", 'source = "S1"', f"receiver = {_toml_str(name)}",
-                  f"file = {_toml_str(os.path.relpath(Path(file).resolve(), folder.resolve()))}"]
+        parts += [
+            "[[responses]]",
+            'source = "S1"',
+            f"receiver = {_toml_str(name)}",
+            f"file = {_toml_str(os.path.relpath(Path(file).resolve(), folder.resolve()))}",
+        ]
         if quality is not None:
             rel = os.path.relpath(Path(quality).resolve(), folder.resolve())
             parts.append(f"quality_file = {_toml_str(rel)}")
@@ -450,7 +558,7 @@ def session_study_text(title: str, positions, folder) -> str:
 
 def _head(title: str) -> str:
     today = _dt.date.today().isoformat()
-    return f'''# Room acoustic measurement study, read by `roomconv analyze --study FILE`.
+    return f"""# Room acoustic measurement study, read by `roomconv analyze --study FILE`.
 # Paths are relative to this file. Keys not listed here are refused, so a typo is caught.
 
 [study]
@@ -489,10 +597,10 @@ level_dbfs = -12.0
 repeats = 2
 silence_s = 3.0
 rate_hz = 48000
-'''
+"""
 
 
-_TEMPLATE_POSITIONS = '''
+_TEMPLATE_POSITIONS = """
 {_POSITIONS_NOTE}
 [[sources]]
 id = "S1"
@@ -527,4 +635,4 @@ file = "S1R2.wav"
 # reverberation_s = {{ "125" = 0.8, "250" = 0.7, "500" = 0.6, "1000" = 0.6, "2000" = 0.6 }}
 # tolerance_pct = [-20, 20]
 # source = ""               # where the target comes from (a standard, a brief)
-'''
+"""

@@ -12,15 +12,23 @@ from roomconv.cli import main
 @pytest.fixture
 def cli(capsys):
     """Run ``roomconv ARGS`` in-process; returns (exit_code, stdout, stderr)."""
+
     def run(*args):
         code = main([str(a) for a in args])
         out = capsys.readouterr()
         return code, out.out, out.err
+
     return run
 
 
-def band_limited_room(rate: int, rt: float = 0.3, length_s: float = 0.6, seed: int = 1,
-                      band=(100.0, 8000.0), direct_at: int = 200) -> np.ndarray:
+def band_limited_room(
+    rate: int,
+    rt: float = 0.3,
+    length_s: float = 0.6,
+    seed: int = 1,
+    band=(100.0, 8000.0),
+    direct_at: int = 200,
+) -> np.ndarray:
     """A small synthetic room response of our own: direct sound plus exponentially decaying
     noise, band-limited so that a sweep wider than ``band`` captures all of it."""
     rng = np.random.default_rng(seed)
@@ -37,7 +45,7 @@ def rel_error_db(estimate: np.ndarray, truth: np.ndarray) -> float:
     n = max(estimate.size, truth.size)
     e = np.pad(estimate, (0, n - estimate.size))
     t = np.pad(truth, (0, n - truth.size))
-    return float(10 * np.log10(np.sum((e - t) ** 2) / np.sum(t ** 2)))
+    return float(10 * np.log10(np.sum((e - t) ** 2) / np.sum(t**2)))
 
 
 def alsa_file_device(folder, capture: np.ndarray) -> dict:
@@ -48,11 +56,13 @@ def alsa_file_device(folder, capture: np.ndarray) -> dict:
     PortAudio initialises).
     """
     import os
+
     np.asarray(capture, dtype="<f4").tofile(folder / "CAPTURE.raw")
     (folder / "alsa").mkdir()
     (folder / "alsa" / "asoundrc").write_text(f"""
 pcm.rc_play {{ type file slave.pcm "null" file "{folder}/PLAYED.raw" format "raw" }}
-pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" infile "{folder}/CAPTURE.raw" format "raw" }}
+pcm.rc_cap {{ type file slave.pcm "null" file "/dev/null" \
+infile "{folder}/CAPTURE.raw" format "raw" }}
 pcm.rc_duplex {{ type asym playback.pcm "rc_play" capture.pcm "rc_cap" }}
 pcm.!default {{ type plug slave {{ pcm "rc_duplex" format FLOAT_LE channels 1 }} }}
 """)

@@ -54,8 +54,9 @@ def _imports(mod: str, path: Path, known: dict) -> set[str]:
                 anchor = anchor[: len(anchor) - (node.level - 1)]
                 base = ".".join(anchor + ([base] if base else []))
             # "from pkg import mod" imports the module; "from pkg import name" the package.
-            names = [f"{base}.{a.name}" if f"{base}.{a.name}" in known else base
-                     for a in node.names]
+            names = [
+                f"{base}.{a.name}" if f"{base}.{a.name}" in known else base for a in node.names
+            ]
         for n in names:
             target = _resolve(n, known)
             if target is not None and target != mod:
@@ -119,37 +120,63 @@ def _within(mod: str, packages) -> bool:
 
 
 def test_the_workbench_imports_no_command_line_module():
-    bad = {m: sorted(t for t in deps if _within(t, ("roomconv.cli",)))
-           for m, deps in _graph().items() if _within(m, ("tui",))}
+    bad = {
+        m: sorted(t for t in deps if _within(t, ("roomconv.cli",)))
+        for m, deps in _graph().items()
+        if _within(m, ("tui",))
+    }
     assert {m: d for m, d in bad.items() if d} == {}
 
 
 def test_numerics_import_neither_front_ends_nor_the_job_layer():
     up = (*FRONT_ENDS, "roomconv.jobs")
-    bad = {m: sorted(t for t in deps if _within(t, up))
-           for m, deps in _graph().items() if _within(m, NUMERICS)}
+    bad = {
+        m: sorted(t for t in deps if _within(t, up))
+        for m, deps in _graph().items()
+        if _within(m, NUMERICS)
+    }
     assert {m: d for m, d in bad.items() if d} == {}
 
 
 def test_the_job_layer_imports_no_front_end():
-    bad = {m: sorted(t for t in deps if _within(t, FRONT_ENDS))
-           for m, deps in _graph().items() if _within(m, ("roomconv.jobs",))}
+    bad = {
+        m: sorted(t for t in deps if _within(t, FRONT_ENDS))
+        for m, deps in _graph().items()
+        if _within(m, ("roomconv.jobs",))
+    }
     assert {m: d for m, d in bad.items() if d} == {}
 
 
 def test_synth_does_not_import_analysis_and_measure_and_analysis_stay_apart():
     g = _graph()
-    pairs = [("roomconv.synth", "roomconv.analysis"), ("roomconv.analysis", "roomconv.measure"),
-             ("roomconv.measure", "roomconv.analysis")]
+    pairs = [
+        ("roomconv.synth", "roomconv.analysis"),
+        ("roomconv.analysis", "roomconv.measure"),
+        ("roomconv.measure", "roomconv.analysis"),
+    ]
     for src, dst in pairs:
-        bad = {m: sorted(t for t in deps if _within(t, (dst,)))
-               for m, deps in g.items() if _within(m, (src,))}
+        bad = {
+            m: sorted(t for t in deps if _within(t, (dst,)))
+            for m, deps in g.items()
+            if _within(m, (src,))
+        }
         assert {m: d for m, d in bad.items() if d} == {}, (src, dst)
 
 
 #: Calls that write files; front ends leave them to the job layer.
-WRITERS = {"write_audio", "write_json", "write_text", "write_provenance", "WriteGuard",
-           "mkdir", "make_folder", "write_bytes", "write", "atomic_path", "check_output"}
+WRITERS = {
+    "write_audio",
+    "write_json",
+    "write_text",
+    "write_provenance",
+    "WriteGuard",
+    "mkdir",
+    "make_folder",
+    "write_bytes",
+    "write",
+    "atomic_path",
+    "check_output",
+}
 
 
 def _writes(path: Path) -> list[str]:
@@ -160,24 +187,36 @@ def _writes(path: Path) -> list[str]:
             f = node.func
             name = f.attr if isinstance(f, ast.Attribute) else getattr(f, "id", "")
             # sys.stderr.write / print-like stream writes are not files.
-            stream = (isinstance(f, ast.Attribute) and isinstance(f.value, ast.Attribute)
-                      and f.value.attr in ("stderr", "stdout"))
+            stream = (
+                isinstance(f, ast.Attribute)
+                and isinstance(f.value, ast.Attribute)
+                and f.value.attr in ("stderr", "stdout")
+            )
             if name in WRITERS and not stream:
                 found.append(f"{label}:{node.lineno} {name}")
-            if name == "open" and any(isinstance(a, ast.Constant) and isinstance(a.value, str)
-                                      and set(a.value) & set("wax+") for a in node.args[1:]):
+            if name == "open" and any(
+                isinstance(a, ast.Constant)
+                and isinstance(a.value, str)
+                and set(a.value) & set("wax+")
+                for a in node.args[1:]
+            ):
                 found.append(f"{label}:{node.lineno} open for writing")
     return found
 
 
 def test_front_ends_write_no_file_themselves():
-    files = [*(ROOT / "tui").rglob("*.py"), *(ROOT / "roomconv" / "cli").rglob("*.py"),
-             *(ROOT / "roomconv" / "demo").rglob("*.py")]
+    files = [
+        *(ROOT / "tui").rglob("*.py"),
+        *(ROOT / "roomconv" / "cli").rglob("*.py"),
+        *(ROOT / "roomconv" / "demo").rglob("*.py"),
+    ]
     assert [w for p in files for w in _writes(p)] == []
 
 
 def test_the_writer_scan_finds_a_write(tmp_path):
     probe = tmp_path / "probe.py"
-    probe.write_text("import soundfile as sf\nsf.write('x.wav', [0.0], 8000)\n"
-                     "open('y.txt', 'w')\nimport sys\nsys.stderr.write('note')\n")
+    probe.write_text(
+        "import soundfile as sf\nsf.write('x.wav', [0.0], 8000)\n"
+        "open('y.txt', 'w')\nimport sys\nsys.stderr.write('note')\n"
+    )
     assert len(_writes(probe)) == 2

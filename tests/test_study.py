@@ -15,7 +15,7 @@ def test_template_loads_as_it_stands(tmp_path):
     s = parse_study(template_text("Hall A"), tmp_path / "study.toml")
     assert s.title == "Hall A"
     assert [r.label for r in s.responses] == ["S1-R1", "S1-R2"]
-    assert s.responses[0].file == tmp_path / "S1R1.wav"      # relative to the study file
+    assert s.responses[0].file == tmp_path / "S1R1.wav"  # relative to the study file
 
 
 def test_init_writes_the_template_and_refuses_to_clobber(tmp_path, cli):
@@ -37,27 +37,30 @@ def test_dimensions_give_volume_and_surface(tmp_path):
     assert s.dates == ("2026-11-30", "2026-12-01")
 
 
-@pytest.mark.parametrize(("old", "new", "key"), [
-    ('humidity_pct = 45', 'humidity = 45', "room.humidity"),
-    ('humidity_pct = 45', 'humidity_pct = 130', "room.humidity_pct"),
-    ('dimensions_m = [12.0, 8.0, 4.0]', 'dimensions_m = [12.0, 8.0]', "room.dimensions_m"),
-    ('dimensions_m = [12.0, 8.0, 4.0]', 'volume_m3 = -3', "room.volume_m3"),
-    ('state = "unoccupied"', 'state = "empty"', "room.state"),
-    ('title = "Harbour Room acceptance test"', 'titel = "x"', "study.title"),
-    ('dates = [2026-11-30, "2026-12-01"]', 'dates = ["30/11/2026"]', "study.dates"),
-    ('receiver = "R2"', 'receiver = "R9"', "responses[2].receiver"),
-    ('file = "irs/S1R3.wav"', 'file = "irs/S1R3.wav"\nchanel = 2', "responses[3].chanel"),
-    ('f_low_hz = 20', 'f_low_hz = 30000', "sweep.f_low_hz"),
-    ('height_m = 1.5', 'height_m = "tall"', "sources[1].height_m"),
-    ('tolerance_pct = [-10, 10]', 'tolerance_pct = [10, -10]', "targets.tolerance_pct"),
-    ('"250" = 0.9', '"low" = 0.9', "targets.reverberation_s"),
-    ('[equipment]', '[equipment]\namplifier = "x"', "equipment.amplifier"),
-    ('[sweep]', 'colour = "red"\n[sweep]', "equipment.colour"),
-    ('[study]', 'extra = 1\n[study]', "extra"),
-    ('file = "irs/S1R1.wav"', 'file = "irs/missing.wav"', "responses[1].file"),
-    ('file = "irs/S1R2.wav"', 'file = "irs/S1R2.wav"\nchannel = 3', "responses[2].channel"),
-    ('[room]', '[room\n', "not valid TOML"),
-])
+@pytest.mark.parametrize(
+    ("old", "new", "key"),
+    [
+        ("humidity_pct = 45", "humidity = 45", "room.humidity"),
+        ("humidity_pct = 45", "humidity_pct = 130", "room.humidity_pct"),
+        ("dimensions_m = [12.0, 8.0, 4.0]", "dimensions_m = [12.0, 8.0]", "room.dimensions_m"),
+        ("dimensions_m = [12.0, 8.0, 4.0]", "volume_m3 = -3", "room.volume_m3"),
+        ('state = "unoccupied"', 'state = "empty"', "room.state"),
+        ('title = "Harbour Room acceptance test"', 'titel = "x"', "study.title"),
+        ('dates = [2026-11-30, "2026-12-01"]', 'dates = ["30/11/2026"]', "study.dates"),
+        ('receiver = "R2"', 'receiver = "R9"', "responses[2].receiver"),
+        ('file = "irs/S1R3.wav"', 'file = "irs/S1R3.wav"\nchanel = 2', "responses[3].chanel"),
+        ("f_low_hz = 20", "f_low_hz = 30000", "sweep.f_low_hz"),
+        ("height_m = 1.5", 'height_m = "tall"', "sources[1].height_m"),
+        ("tolerance_pct = [-10, 10]", "tolerance_pct = [10, -10]", "targets.tolerance_pct"),
+        ('"250" = 0.9', '"low" = 0.9', "targets.reverberation_s"),
+        ("[equipment]", '[equipment]\namplifier = "x"', "equipment.amplifier"),
+        ("[sweep]", 'colour = "red"\n[sweep]', "equipment.colour"),
+        ("[study]", "extra = 1\n[study]", "extra"),
+        ('file = "irs/S1R1.wav"', 'file = "irs/missing.wav"', "responses[1].file"),
+        ('file = "irs/S1R2.wav"', 'file = "irs/S1R2.wav"\nchannel = 3', "responses[2].channel"),
+        ("[room]", "[room\n", "not valid TOML"),
+    ],
+)
 def test_bad_study_is_exit_2_naming_the_key(tmp_path, cli, old, new, key):
     assert old in STUDY
     path = write_study(tmp_path, STUDY.replace(old, new, 1))

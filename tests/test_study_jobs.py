@@ -22,9 +22,9 @@ def test_report_study_reads_each_response_s_decay_time(tmp_path):
         assert band["t30_s"] == pytest.approx(t, rel=0.05), i
 
 
-def test_without_a_pdf_engine_the_html_alone_is_written_and_the_reason_noted(tmp_path,
-                                                                             monkeypatch):
+def test_without_a_pdf_engine_the_html_alone_is_written_and_the_reason_noted(tmp_path, monkeypatch):
     import roomconv.report.pdf as pdf
+
     monkeypatch.setattr(pdf, "pdf_engine_problem", lambda: "WeasyPrint is not installed")
     path = write_study(tmp_path)
     with pytest.raises(InputError, match="WeasyPrint"):
@@ -41,8 +41,12 @@ def test_an_existing_report_is_refused_before_the_analysis(tmp_path, monkeypatch
     (tmp_path / "rep").mkdir()
     (tmp_path / "rep" / "report.pdf").write_bytes(b"earlier")
     import roomconv.report as report
-    monkeypatch.setattr(report, "analyse_study",
-                        lambda *a, **k: pytest.fail("analysed before the outputs were checked"))
+
+    monkeypatch.setattr(
+        report,
+        "analyse_study",
+        lambda *a, **k: pytest.fail("analysed before the outputs were checked"),
+    )
     with pytest.raises(OutputExistsError):
         report_study(path, report_dir=tmp_path / "rep")
     assert (tmp_path / "rep" / "report.pdf").read_bytes() == b"earlier"
@@ -51,11 +55,11 @@ def test_an_existing_report_is_refused_before_the_analysis(tmp_path, monkeypatch
 def test_session_study_loads_back_and_is_never_replaced(tmp_path):
     write_study(tmp_path)
     files = [tmp_path / "irs" / f"S1R{i}.wav" for i in (1, 2)]
-    path = save_session_study(tmp_path / "new" / "session.toml",
-                              [("P1", files[0], None), ("P2", files[1], None)])
+    path = save_session_study(
+        tmp_path / "new" / "session.toml", [("P1", files[0], None), ("P2", files[1], None)]
+    )
     study = load_study(path)
-    assert [(r.receiver, r.file) for r in study.responses] == [("P1", files[0]),
-                                                              ("P2", files[1])]
+    assert [(r.receiver, r.file) for r in study.responses] == [("P1", files[0]), ("P2", files[1])]
     before = path.read_text()
     with pytest.raises(OutputExistsError):
         save_session_study(path, [("P1", files[0], None)])
@@ -68,5 +72,6 @@ def test_study_files_must_be_toml_and_valid_before_they_are_written(tmp_path):
     with pytest.raises(InputError):
         write_study_file(tmp_path / "bad.toml", "[room\n")
     assert not (tmp_path / "bad.toml").exists() and not (tmp_path / "study.txt").exists()
-    assert load_study(init_study(tmp_path / "t.toml", title="Our test room")).title == \
-        "Our test room"
+    assert (
+        load_study(init_study(tmp_path / "t.toml", title="Our test room")).title == "Our test room"
+    )

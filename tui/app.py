@@ -71,9 +71,7 @@ class RoomconvApp(App):
 
     def check_action(self, action: str, parameters) -> bool | None:
         # Single-letter keys must type into inputs, not switch tabs.
-        if action in ("tab", "quit", "help", "cancel") and isinstance(self.focused, Input):
-            return False
-        return True
+        return not (action in ("tab", "quit", "help", "cancel") and isinstance(self.focused, Input))
 
     def action_tab(self, name: str) -> None:
         self.query_one("#tabs", TabbedContent).active = name
@@ -87,11 +85,10 @@ class RoomconvApp(App):
         running = [w for w in self.workers if w.is_running]
         for w in running:
             w.cancel()
-        render = self.query("RenderPane")
+        render = self.query(RenderPane)
         for pane in render:
             pane.cancel()
-        self.notify(f"cancelled {len(running)} running job(s)" if running else
-                    "nothing is running")
+        self.notify(f"cancelled {len(running)} running job(s)" if running else "nothing is running")
 
     def send_to(self, tab: str, path: str) -> None:
         """Hand a file to another tab (Room → Analyze / Render)."""
@@ -109,6 +106,7 @@ def terminal_problem(stdin=None, stdout=None, env=None) -> str | None:
     would wait for input that never comes."""
     import os
     import sys
+
     stdin = sys.stdin if stdin is None else stdin
     stdout = sys.stdout if stdout is None else stdout
     env = os.environ if env is None else env
@@ -118,6 +116,7 @@ def terminal_problem(stdin=None, stdout=None, env=None) -> str | None:
             return stream is not None and stream.isatty()
         except (AttributeError, ValueError):
             return False
+
     if not tty(stdin):
         return "standard input is not a terminal"
     if not tty(stdout):
@@ -137,13 +136,19 @@ def main(argv: list[str] | None = None) -> int:
         print("usage: roomconv-tui\n\nThe roomconv terminal workbench (no options).")
         return 0
     if args:
-        print(f"roomconv-tui: error: unrecognized arguments: {' '.join(args)} (the workbench "
-              "takes no options)", file=sys.stderr)
+        print(
+            f"roomconv-tui: error: unrecognized arguments: {' '.join(args)} (the workbench "
+            "takes no options)",
+            file=sys.stderr,
+        )
         return 2
     problem = terminal_problem()
     if problem:
-        print(f"roomconv-tui: error: {problem}; the workbench needs an interactive terminal "
-              "(use the roomconv sub-commands in scripts and pipes)", file=sys.stderr)
+        print(
+            f"roomconv-tui: error: {problem}; the workbench needs an interactive terminal "
+            "(use the roomconv sub-commands in scripts and pipes)",
+            file=sys.stderr,
+        )
         return 2
     RoomconvApp().run()
     return 0

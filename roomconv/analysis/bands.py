@@ -19,9 +19,38 @@ G = 10.0 ** (3.0 / 10.0)
 REFERENCE_HZ = 1000.0
 
 NOMINAL_OCTAVE = (31.5, 63, 125, 250, 500, 1000, 2000, 4000, 8000, 16000)
-NOMINAL_THIRD = (25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800,
-                 1000, 1250, 1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000, 10000, 12500,
-                 16000, 20000)
+NOMINAL_THIRD = (
+    25,
+    31.5,
+    40,
+    50,
+    63,
+    80,
+    100,
+    125,
+    160,
+    200,
+    250,
+    315,
+    400,
+    500,
+    630,
+    800,
+    1000,
+    1250,
+    1600,
+    2000,
+    2500,
+    3150,
+    4000,
+    5000,
+    6300,
+    8000,
+    10000,
+    12500,
+    16000,
+    20000,
+)
 #: Highest usable upper band edge as a fraction of the Nyquist frequency.
 NYQUIST_MARGIN = 0.9
 
@@ -60,8 +89,9 @@ def all_bands(kind: str = "octave") -> list[Band]:
     """Every band of the set, whether or not a given sample rate can hold it."""
     if kind not in ("octave", "third"):
         raise InputError(f"unknown band set '{kind}' (use octave or third)")
-    fraction, nominals, first = (1, NOMINAL_OCTAVE, -5) if kind == "octave" else \
-        (3, NOMINAL_THIRD, -16)
+    fraction, nominals, first = (
+        (1, NOMINAL_OCTAVE, -5) if kind == "octave" else (3, NOMINAL_THIRD, -16)
+    )
     out = []
     for i, nom in enumerate(nominals):
         fm = exact_midband(first + i, fraction)
@@ -70,8 +100,9 @@ def all_bands(kind: str = "octave") -> list[Band]:
     return out
 
 
-def bands_for_rate(kind: str, rate: int, *, low: float | None = None,
-                   high: float | None = None) -> tuple[list[Band], list[str]]:
+def bands_for_rate(
+    kind: str, rate: int, *, low: float | None = None, high: float | None = None
+) -> tuple[list[Band], list[str]]:
     """Bands that fit below the Nyquist limit (and within ``low``..``high`` nominal Hz).
 
     Returns the bands and notes naming the ones skipped.
@@ -81,8 +112,10 @@ def bands_for_rate(kind: str, rate: int, *, low: float | None = None,
         if low is not None and b.nominal < low or high is not None and b.nominal > high:
             continue
         if b.upper >= NYQUIST_MARGIN * rate / 2:
-            notes.append(f"{b.label} Hz band skipped: its upper edge {b.upper:.0f} Hz is too close "
-                         f"to the Nyquist frequency at {rate} Hz")
+            notes.append(
+                f"{b.label} Hz band skipped: its upper edge {b.upper:.0f} Hz is too close "
+                f"to the Nyquist frequency at {rate} Hz"
+            )
             continue
         kept.append(b)
     if not kept:
@@ -121,6 +154,8 @@ def filter_band(h: np.ndarray, rate: int, band: Band, *, reverse: bool = False) 
     return sosfilt(sos, h)
 
 
-def filter_bank(h: np.ndarray, rate: int, bands: list[Band], *, reverse: bool = False) -> np.ndarray:
+def filter_bank(
+    h: np.ndarray, rate: int, bands: list[Band], *, reverse: bool = False
+) -> np.ndarray:
     """All bands of a 1-D signal, shape (n_bands, samples)."""
     return np.stack([filter_band(h, rate, b, reverse=reverse) for b in bands])

@@ -93,8 +93,9 @@ class StrengthReference:
     notes: tuple = field(default=(), compare=False)
     uncertainty_db: dict = field(default_factory=dict, compare=False, hash=False)
 
-    def lookup(self, band_hz, rate_hz: int, *, band_set: str | None = None
-               ) -> tuple[float | None, str | None]:
+    def lookup(
+        self, band_hz, rate_hz: int, *, band_set: str | None = None
+    ) -> tuple[float | None, str | None]:
         """The reference level for one band of a response at ``rate_hz``.
 
         Parameters
@@ -128,29 +129,39 @@ class StrengthReference:
             band_hz = band_hz.nominal
         if band_hz is None:
             if self.wideband_db is None:
-                return None, ("wideband G not evaluated: the strength reference has no wideband "
-                              "value")
+                return None, (
+                    "wideband G not evaluated: the strength reference has no wideband value"
+                )
             if self.rate_hz is not None and int(rate_hz) != int(self.rate_hz):
-                return None, (f"wideband G not evaluated: the strength reference was measured at "
-                              f"{self.rate_hz} Hz and the response is at {rate_hz} Hz, so their "
-                              "wideband energies span different bandwidths (use the per-band "
-                              f"G, or measure the reference at {rate_hz} Hz)")
+                return None, (
+                    f"wideband G not evaluated: the strength reference was measured at "
+                    f"{self.rate_hz} Hz and the response is at {rate_hz} Hz, so their "
+                    "wideband energies span different bandwidths (use the per-band "
+                    f"G, or measure the reference at {rate_hz} Hz)"
+                )
             return float(self.wideband_db), None
         label = _label(float(band_hz))
         if not self.bands_db:
-            return None, (f"{label} Hz: G not evaluated: a single broadband calibration number "
-                          "applies only to the wideband G (make a per-band reference with "
-                          "roomconv calibrate)")
+            return None, (
+                f"{label} Hz: G not evaluated: a single broadband calibration number "
+                "applies only to the wideband G (make a per-band reference with "
+                "roomconv calibrate)"
+            )
         if band_set is not None and self.band_set is not None and band_set != self.band_set:
-            return None, (f"{label} Hz: G not evaluated: the strength reference holds "
-                          f"{_set_name(self.band_set)} values and the analysis uses "
-                          f"{_set_name(band_set)} (make the reference in the same {_set_name(band_set)} set)")
+            return None, (
+                f"{label} Hz: G not evaluated: the strength reference holds "
+                f"{_set_name(self.band_set)} values and the analysis uses "
+                f"{_set_name(band_set)} (make the reference in the same "
+                f"{_set_name(band_set)} set)"
+            )
         for nominal, value in self.bands_db.items():
             if math.isclose(float(nominal), float(band_hz), rel_tol=1e-6):
                 return float(value), None
         held = sorted(float(k) for k in self.bands_db)
-        return None, (f"{label} Hz: G not evaluated: the strength reference has no value for "
-                      f"this band (it holds {_label(held[0])}-{_label(held[-1])} Hz)")
+        return None, (
+            f"{label} Hz: G not evaluated: the strength reference has no value for "
+            f"this band (it holds {_label(held[0])}-{_label(held[-1])} Hz)"
+        )
 
 
 #: Plausible levels of 10·lg(∫p₁₀² dt / FS²·s): a full-scale unit impulse at 8 kHz is
@@ -161,8 +172,9 @@ LEVEL_MIN_DB, LEVEL_MAX_DB = -200.0, 200.0
 MAX_DISTANCE_M = 100.0
 
 
-def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
-                            bands: str = "octave") -> StrengthReference:
+def reference_from_response(
+    h: np.ndarray, rate: int, *, distance_m: float, bands: str = "octave"
+) -> StrengthReference:
     """Strength reference from a free-field impulse response of the source.
 
     The direct sound of each band is integrated with its noise subtracted, over the span where
@@ -231,9 +243,11 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
     if not (isinstance(rate, (int, np.integer)) and rate > 0):
         raise InputError(f"sample rate {rate!r} is not a positive whole number of Hz")
     if not (np.isfinite(distance_m) and 0 < distance_m <= MAX_DISTANCE_M):
-        raise InputError(f"distance {distance_m!r} m is not a distance above 0 m and at most "
-                         f"{MAX_DISTANCE_M:g} m (a free-field reference is measured at a few "
-                         "metres)")
+        raise InputError(
+            f"distance {distance_m!r} m is not a distance above 0 m and at most "
+            f"{MAX_DISTANCE_M:g} m (a free-field reference is measured at a few "
+            "metres)"
+        )
     if bands not in BAND_SETS:
         raise InputError(f"unknown band set '{bands}' (use octave or third)")
     if not np.all(np.isfinite(x)):
@@ -248,30 +262,44 @@ def reference_from_response(h: np.ndarray, rate: int, *, distance_m: float,
     wide, why, sigma = _direct_energy(x, rate, onset, bandwidth=None)
     if wide is None:
         raise InputError(f"the reference response is not usable: {why}")
-    uncertainty = {None: sigma}
+    uncertainty: dict[float | None, float | None] = {None: sigma}
     band_list, notes = bands_for_rate(bands, rate)
     values = {}
     notes = list(notes)
     for b in band_list:
-        e, why, sigma = _direct_energy(filter_band(x, rate, b), rate, onset,
-                                       bandwidth=b.bandwidth)
+        e, why, sigma = _direct_energy(filter_band(x, rate, b), rate, onset, bandwidth=b.bandwidth)
         if e is None:
             notes.append(f"{b.label} Hz band left out: {why}")
             continue
         values[float(b.nominal)] = 10.0 * math.log10(e) + scale_db
         uncertainty[float(b.nominal)] = sigma
     d_txt = f"{distance_m:g} m"
-    method = (f"free-field reference at {d_txt}" if distance_m == REFERENCE_DISTANCE_M else
-              f"free-field reference at {d_txt}, scaled to 10 m by the inverse-square law")
-    return StrengthReference(wideband_db=10.0 * math.log10(wide) + scale_db, bands_db=values,
-                             band_set=bands, rate_hz=rate, method=method, notes=tuple(notes),
-                             uncertainty_db=uncertainty)
+    method = (
+        f"free-field reference at {d_txt}"
+        if distance_m == REFERENCE_DISTANCE_M
+        else f"free-field reference at {d_txt}, scaled to 10 m by the inverse-square law"
+    )
+    return StrengthReference(
+        wideband_db=10.0 * math.log10(wide) + scale_db,
+        bands_db=values,
+        band_set=bands,
+        rate_hz=rate,
+        method=method,
+        notes=tuple(notes),
+        uncertainty_db=uncertainty,
+    )
 
 
-def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
-                                 reverberation_s: dict, surface_m2: float | None = None,
-                                 bands: str = "octave", speed_of_sound: float = 343.0
-                                 ) -> StrengthReference:
+def reverberation_room_reference(
+    responses,
+    rate: int,
+    *,
+    volume_m3: float,
+    reverberation_s: dict,
+    surface_m2: float | None = None,
+    bands: str = "octave",
+    speed_of_sound: float = 343.0,
+) -> StrengthReference:
     """Strength reference from impulse responses of the source in a reverberation room.
 
     In a diffuse field the energy of an impulse E is ∫p² dt = 4ρc·E/A, while the same source
@@ -326,19 +354,23 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
     if not items:
         raise InputError("the reverberation-room method needs at least one response")
     if len(items) < MIN_ROOM_POSITIONS:
-        raise InputError(f"the reverberation-room method needs responses at {MIN_ROOM_POSITIONS}"
-                         f" positions or more (got {len(items)}): the diffuse field varies from "
-                         "point to point")
+        raise InputError(
+            f"the reverberation-room method needs responses at {MIN_ROOM_POSITIONS}"
+            f" positions or more (got {len(items)}): the diffuse field varies from "
+            "point to point"
+        )
     if not (isinstance(rate, (int, np.integer)) and rate > 0):
         raise InputError(f"sample rate {rate!r} is not a positive whole number of Hz")
-    for name, v, lo, hi in (("room volume", volume_m3, 1.0, 1e6),
-                            ("speed of sound", speed_of_sound, 250.0, 450.0)):
+    for name, v, lo, hi in (
+        ("room volume", volume_m3, 1.0, 1e6),
+        ("speed of sound", speed_of_sound, 250.0, 450.0),
+    ):
         if not (_is_number(v) and math.isfinite(v) and lo <= v <= hi):
             raise InputError(f"{name} {v!r} is out of range (accepted: {lo:g} to {hi:g})")
-    if surface_m2 is not None and not (_is_number(surface_m2) and math.isfinite(surface_m2)
-                                       and 1.0 <= surface_m2 <= 1e6):
-        raise InputError(f"room surface {surface_m2!r} m² is out of range (accepted: 1 to "
-                         "1e6 m²)")
+    if surface_m2 is not None and not (
+        _is_number(surface_m2) and math.isfinite(surface_m2) and 1.0 <= surface_m2 <= 1e6
+    ):
+        raise InputError(f"room surface {surface_m2!r} m² is out of range (accepted: 1 to 1e6 m²)")
     if bands not in BAND_SETS:
         raise InputError(f"unknown band set '{bands}' (use octave or third)")
     for i, h in enumerate(items):
@@ -355,8 +387,10 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
             notes.append(f"{b.label} Hz band left out: no reverberation time given for it")
             continue
         if not (_is_number(t) and math.isfinite(t) and 0.05 <= t <= 60.0):
-            raise InputError(f"reverberation time {t!r} s for the {b.label} Hz band is out of "
-                             "range (accepted: 0.05 to 60 s)")
+            raise InputError(
+                f"reverberation time {t!r} s for the {b.label} Hz band is out of "
+                "range (accepted: 0.05 to 60 s)"
+            )
         levels, why = [], None
         for h in items:
             e, why = _diffuse_energy(filter_band(h, rate, b), rate, b.bandwidth, float(t))
@@ -369,51 +403,78 @@ def reverberation_room_reference(responses, rate: int, *, volume_m3: float,
         mean_db = 10.0 * math.log10(np.mean(10.0 ** (np.asarray(levels) / 10.0)))
         sem = float(np.std(levels, ddof=1) / math.sqrt(len(levels)))
         if 3.0 * sem > MAX_NOISE_ERROR_DB:
-            notes.append(f"{b.label} Hz band left out: the positions spread by "
-                         f"{np.std(levels, ddof=1):.1f} dB, leaving the mean uncertain by "
-                         f"±{3 * sem:.1f} dB (three standard errors; at most "
-                         f"{MAX_NOISE_ERROR_DB:g} dB allowed); measure at more positions")
+            notes.append(
+                f"{b.label} Hz band left out: the positions spread by "
+                f"{np.std(levels, ddof=1):.1f} dB, leaving the mean uncertain by "
+                f"±{3 * sem:.1f} dB (three standard errors; at most "
+                f"{MAX_NOISE_ERROR_DB:g} dB allowed); measure at more positions"
+            )
             continue
-        area = 24.0 * math.log(10.0) * volume_m3 / (speed_of_sound * t)   # 55.26·V/(c·T)
+        area = 24.0 * math.log(10.0) * volume_m3 / (speed_of_sound * t)  # 55.26·V/(c·T)
         level = mean_db + 10.0 * math.log10(area) - DIFFUSE_TO_10M_DB
         if surface_m2 is not None:
-            level += 10.0 * math.log10(1.0 + surface_m2 * speed_of_sound
-                                       / (8.0 * volume_m3 * b.exact))
+            level += 10.0 * math.log10(
+                1.0 + surface_m2 * speed_of_sound / (8.0 * volume_m3 * b.exact)
+            )
         values[float(b.nominal)] = level
         uncertainty[float(b.nominal)] = sem
     if surface_m2 is None:
         notes.append("Waterhouse correction not applied (give the room surface to add it)")
-    method = (f"reverberation room of {volume_m3:g} m³, {len(items)} positions, "
-              f"A = 55.26·V/(c·T) per band"
-              + (f", Waterhouse correction for {surface_m2:g} m²" if surface_m2 else ""))
+    method = (
+        f"reverberation room of {volume_m3:g} m³, {len(items)} positions, "
+        f"A = 55.26·V/(c·T) per band"
+        + (f", Waterhouse correction for {surface_m2:g} m²" if surface_m2 else "")
+    )
     if not values:
-        raise InputError("the reverberation-room method gave no band value: "
-                         + "; ".join(notes) if notes else "no band could be evaluated")
-    return StrengthReference(wideband_db=None, bands_db=values, band_set=bands, rate_hz=rate,
-                             method=method, notes=tuple(notes), uncertainty_db=uncertainty)
+        raise InputError(
+            "the reverberation-room method gave no band value: " + "; ".join(notes)
+            if notes
+            else "no band could be evaluated"
+        )
+    return StrengthReference(
+        wideband_db=None,
+        bands_db=values,
+        band_set=bands,
+        rate_hz=rate,
+        method=method,
+        notes=tuple(notes),
+        uncertainty_db=uncertainty,
+    )
 
 
 def reference_to_dict(ref: StrengthReference) -> dict:
     """The JSON layout of a strength reference (version 1)."""
-    return {"kind": KIND, "version": VERSION, "quantity": QUANTITY, "rate_hz": ref.rate_hz,
-            "band_set": ref.band_set, "method": ref.method, "wideband_db": ref.wideband_db,
-            "bands_db": {_label_key(k): float(v) for k, v in sorted(ref.bands_db.items())}}
+    return {
+        "kind": KIND,
+        "version": VERSION,
+        "quantity": QUANTITY,
+        "rate_hz": ref.rate_hz,
+        "band_set": ref.band_set,
+        "method": ref.method,
+        "wideband_db": ref.wideband_db,
+        "bands_db": {_label_key(k): float(v) for k, v in sorted(ref.bands_db.items())},
+    }
 
 
 def reference_from_dict(d, *, source: str) -> StrengthReference:
     """Validate a parsed strength-reference file; :class:`InputError` names ``source`` and the
     field."""
+
     def bad(problem, hint="re-create it with roomconv calibrate"):
         return InputError(describe(source, problem, hint))
 
     if not isinstance(d, dict):
-        raise bad(f"holds a JSON {type(d).__name__ if d is not None else 'null'}, not a strength "
-                  "reference object")
+        raise bad(
+            f"holds a JSON {type(d).__name__ if d is not None else 'null'}, not a strength "
+            "reference object"
+        )
     if "kind" not in d:
         if d and all(_is_number(v) for v in d.values()):
-            raise bad("is a calibration file from an earlier version of roomconv (band → dB "
-                      "of a per-sample sum); it cannot be converted without the sample rate",
-                      "re-create it from the reference response with roomconv calibrate")
+            raise bad(
+                "is a calibration file from an earlier version of roomconv (band → dB "
+                "of a per-sample sum); it cannot be converted without the sample rate",
+                "re-create it from the reference response with roomconv calibrate",
+            )
         raise bad("is not a strength reference (no 'kind' field)")
     if d["kind"] != KIND:
         raise bad(f"field 'kind' is {d['kind']!r}, expected {KIND!r}")
@@ -421,8 +482,10 @@ def reference_from_dict(d, *, source: str) -> StrengthReference:
     if not (isinstance(version, int) and not isinstance(version, bool)):
         raise bad(f"field 'version' is {version!r}, expected the whole number {VERSION}")
     if version != VERSION:
-        raise bad(f"field 'version' is {version}; this roomconv reads version {VERSION}",
-                  "update roomconv or re-create the file")
+        raise bad(
+            f"field 'version' is {version}; this roomconv reads version {VERSION}",
+            "update roomconv or re-create the file",
+        )
     band_set = d.get("band_set", ...)
     if band_set is ...:
         raise bad("field 'band_set' is missing (octave, third or null)")
@@ -431,8 +494,7 @@ def reference_from_dict(d, *, source: str) -> StrengthReference:
     rate = d.get("rate_hz", ...)
     if rate is ...:
         raise bad("field 'rate_hz' is missing")
-    if rate is not None and not (isinstance(rate, int) and not isinstance(rate, bool)
-                                 and rate > 0):
+    if rate is not None and not (isinstance(rate, int) and not isinstance(rate, bool) and rate > 0):
         raise bad(f"field 'rate_hz' is {rate!r}, expected a positive whole number of Hz or null")
     method = d.get("method")
     if not isinstance(method, str) or not method.strip():
@@ -454,16 +516,20 @@ def reference_from_dict(d, *, source: str) -> StrengthReference:
         try:
             nominal = float(key)
         except (TypeError, ValueError):
-            raise bad(f"field 'bands_db' has the key {key!r}, which is not a band centre in Hz"
-                      ) from None
+            raise bad(
+                f"field 'bands_db' has the key {key!r}, which is not a band centre in Hz"
+            ) from None
         if not any(math.isclose(nominal, n, rel_tol=1e-6) for n in BAND_SETS[band_set]):
-            raise bad(f"field 'bands_db' has {key!r} Hz, which is not a nominal "
-                      f"{_set_name(band_set)} centre")
+            raise bad(
+                f"field 'bands_db' has {key!r} Hz, which is not a nominal "
+                f"{_set_name(band_set)} centre"
+            )
         values[nominal] = _finite(v, f"bands_db.{key}", bad)
     if wide is None and not values:
         raise bad("holds no value at all (wideband_db is null and bands_db is empty)")
-    return StrengthReference(wideband_db=wide, bands_db=values, band_set=band_set,
-                             rate_hz=rate, method=method)
+    return StrengthReference(
+        wideband_db=wide, bands_db=values, band_set=band_set, rate_hz=rate, method=method
+    )
 
 
 def parse_strength_reference(text: str) -> StrengthReference:
@@ -479,28 +545,52 @@ def parse_strength_reference(text: str) -> StrengthReference:
         value = None
     if value is not None:
         if not (math.isfinite(value) and LEVEL_MIN_DB <= value <= LEVEL_MAX_DB):
-            raise InputError(f"strength reference {text!r} is not a finite level between "
-                             f"{LEVEL_MIN_DB:g} and {LEVEL_MAX_DB:g} dB: give dB of ∫p² dt at "
-                             "10 m, or the JSON file from roomconv calibrate")
-        return StrengthReference(wideband_db=value, bands_db={}, band_set=None, rate_hz=None,
-                                 method="a single wideband level given as a number")
+            raise InputError(
+                f"strength reference {text!r} is not a finite level between "
+                f"{LEVEL_MIN_DB:g} and {LEVEL_MAX_DB:g} dB: give dB of ∫p² dt at "
+                "10 m, or the JSON file from roomconv calibrate"
+            )
+        return StrengthReference(
+            wideband_db=value,
+            bands_db={},
+            band_set=None,
+            rate_hz=None,
+            method="a single wideband level given as a number",
+        )
     p = Path(s)
     if not p.exists():
-        raise InputError(describe(p, "strength reference file not found",
-                                  "give a level in dB or the JSON file from roomconv calibrate"))
+        raise InputError(
+            describe(
+                p,
+                "strength reference file not found",
+                "give a level in dB or the JSON file from roomconv calibrate",
+            )
+        )
     if p.is_dir():
-        raise InputError(describe(p, "is a folder, not a strength reference file",
-                                  "give the JSON file from roomconv calibrate"))
+        raise InputError(
+            describe(
+                p,
+                "is a folder, not a strength reference file",
+                "give the JSON file from roomconv calibrate",
+            )
+        )
     from ..audio import check_input_file
+
     p = check_input_file(p, "strength reference file")  # a pipe or device would block
     try:
         d = json.loads(p.read_text(encoding="utf-8"))
     except RecursionError:
-        raise InputError(describe(p, "is nested too deeply to be a strength reference",
-                                  "re-create it with roomconv calibrate")) from None
+        raise InputError(
+            describe(
+                p,
+                "is nested too deeply to be a strength reference",
+                "re-create it with roomconv calibrate",
+            )
+        ) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise InputError(describe(p, f"is not valid JSON: {exc}",
-                                  "re-create it with roomconv calibrate")) from None
+        raise InputError(
+            describe(p, f"is not valid JSON: {exc}", "re-create it with roomconv calibrate")
+        ) from None
     except OSError as exc:
         raise InputError(describe(p, f"cannot be read: {exc.strerror or exc}")) from None
     return reference_from_dict(d, source=str(p))
@@ -514,38 +604,51 @@ def _onset(x: np.ndarray) -> int:
 
 
 def _tail_noise(e: np.ndarray) -> float:
-    return float(np.mean(e[-max(1, int(round(0.1 * e.size))):]))
+    return float(np.mean(e[-max(1, int(round(0.1 * e.size))) :]))
 
 
 def _check_pulse(x: np.ndarray, rate: int, onset: int) -> None:
     """Refuse what is not an impulse response: the direct sound must be short."""
-    hint = ("a strength reference is an impulse response: extract it from the sweep "
-            "recording first with roomconv extract")
+    hint = (
+        "a strength reference is an impulse response: extract it from the sweep "
+        "recording first with roomconv extract"
+    )
     e = np.square(x)
     noise = _tail_noise(e)
     w = max(1, int(round(0.001 * rate)))
     env = uniform_filter1d(e, w, mode="constant")
     if noise > 0 and env.max() < 10 ** (MIN_BAND_INR_DB / 10) * noise:
-        raise InputError(f"the reference response's peak stands only "
-                         f"{10 * math.log10(env.max() / noise):.0f} dB above the mean of its "
-                         f"last 10 % (at least {MIN_BAND_INR_DB:.0f} dB needed): it is too noisy "
-                         f"for a reference, or not an impulse response ({hint})")
-    total, _, _ = _direct_energy(x, rate, onset, bandwidth=None, per_unit_time=False,
-                                 max_error_db=None)
+        raise InputError(
+            f"the reference response's peak stands only "
+            f"{10 * math.log10(env.max() / noise):.0f} dB above the mean of its "
+            f"last 10 % (at least {MIN_BAND_INR_DB:.0f} dB needed): it is too noisy "
+            f"for a reference, or not an impulse response ({hint})"
+        )
+    total, _, _ = _direct_energy(
+        x, rate, onset, bandwidth=None, per_unit_time=False, max_error_db=None
+    )
     pk = int(np.argmax(e))
     a = max(0, pk - int(PULSE_WINDOW_S[0] * rate))
     b = min(e.size, pk + int(PULSE_WINDOW_S[1] * rate))
     near = float(np.sum(e[a:b]) - noise * (b - a))
     if total is None or near < PULSE_SHARE * total:
         share = 0.0 if not total else max(0.0, near / total)
-        raise InputError(f"the reference response is not pulse-like: only {100 * share:.0f} % "
-                         "of its energy lies within 50 ms of its peak, as in a sweep recording, "
-                         f"music or noise ({hint})")
+        raise InputError(
+            f"the reference response is not pulse-like: only {100 * share:.0f} % "
+            "of its energy lies within 50 ms of its peak, as in a sweep recording, "
+            f"music or noise ({hint})"
+        )
 
 
-def _direct_energy(x: np.ndarray, rate: int, onset: int, *, bandwidth: float | None,
-                   per_unit_time: bool = True, max_error_db: float | None = MAX_NOISE_ERROR_DB
-                   ) -> tuple[float | None, str | None, float | None]:
+def _direct_energy(
+    x: np.ndarray,
+    rate: int,
+    onset: int,
+    *,
+    bandwidth: float | None,
+    per_unit_time: bool = True,
+    max_error_db: float | None = MAX_NOISE_ERROR_DB,
+) -> tuple[float | None, str | None, float | None]:
     """Noise-subtracted energy of the direct sound, the reason if there is none, and its
     random error (one standard deviation, dB); see :func:`reference_from_response`."""
     e = np.square(x)
@@ -553,9 +656,15 @@ def _direct_energy(x: np.ndarray, rate: int, onset: int, *, bandwidth: float | N
     w = max(1, int(round(rate * max(0.001, 1.0 / bandwidth if bandwidth else 0.0))))
     tail = max(1, int(round(0.1 * n)))
     if n - tail < onset + 4 * w:
-        return None, (f"the response is too short after the direct sound ({(n - onset) / rate:.2f}"
-                      " s) for the band filter to ring out and leave a noise-only tail; record "
-                      "a longer response"), None
+        return (
+            None,
+            (
+                f"the response is too short after the direct sound ({(n - onset) / rate:.2f}"
+                " s) for the band filter to ring out and leave a noise-only tail; record "
+                "a longer response"
+            ),
+            None,
+        )
     noise = _tail_noise(e)
     env = uniform_filter1d(e, w, mode="constant")
     k_pk = int(np.argmax(env))
@@ -563,32 +672,51 @@ def _direct_energy(x: np.ndarray, rate: int, onset: int, *, bandwidth: float | N
     if peak <= 0:
         return None, "no energy in this band", None
     if noise > 0 and peak < 10 ** (MIN_BAND_INR_DB / 10) * noise:
-        return None, (f"its direct sound is only {10 * math.log10(peak / noise):.0f} dB above the "
-                      f"noise (at least {MIN_BAND_INR_DB:.0f} dB needed)"), None
+        return (
+            None,
+            (
+                f"its direct sound is only {10 * math.log10(peak / noise):.0f} dB above the "
+                f"noise (at least {MIN_BAND_INR_DB:.0f} dB needed)"
+            ),
+            None,
+        )
     # Below 10⁻¹² of the peak the remaining energy is negligible even where there is no noise.
     thr = max(2.0 * noise, 1e-12 * peak)
     after = np.flatnonzero(env[k_pk:] <= thr)
     if after.size == 0:
-        return None, ("its energy does not fall to the noise floor before the end of the "
-                      "response; record a longer response"), None
+        return (
+            None,
+            (
+                "its energy does not fall to the noise floor before the end of the "
+                "response; record a longer response"
+            ),
+            None,
+        )
     end = min(n, k_pk + int(after[0]) + w // 2 + 1)
-    before = np.flatnonzero(env[:k_pk + 1] <= thr)
+    before = np.flatnonzero(env[: k_pk + 1] <= thr)
     start = max(0, int(before[-1]) - w // 2) if before.size else 0
     start = min(start, onset)
     energy = float(np.sum(e[start:end])) - noise * (end - start)
     if not energy > 0:
         return None, "no energy left once the noise is subtracted", None
-    sigma_rel = _noise_error(x[start:end], x[n - tail:], w, noise * (end - start)) / energy
+    sigma_rel = _noise_error(x[start:end], x[n - tail :], w, noise * (end - start)) / energy
     sigma_db = 10.0 * math.log10(1.0 + sigma_rel) if sigma_rel > 0 else 0.0
     if max_error_db is not None and 3.0 * sigma_db > max_error_db:
-        return None, (f"the noise leaves it uncertain by ±{3 * sigma_db:.1f} dB (three standard "
-                      f"deviations; at most {max_error_db:g} dB allowed); measure with more "
-                      "level or less noise"), None
+        return (
+            None,
+            (
+                f"the noise leaves it uncertain by ±{3 * sigma_db:.1f} dB (three standard "
+                f"deviations; at most {max_error_db:g} dB allowed); measure with more "
+                "level or less noise"
+            ),
+            None,
+        )
     return (energy / rate if per_unit_time else energy), None, sigma_db
 
 
-def _diffuse_energy(x: np.ndarray, rate: int, bandwidth: float, t60: float
-                    ) -> tuple[float | None, str | None]:
+def _diffuse_energy(
+    x: np.ndarray, rate: int, bandwidth: float, t60: float
+) -> tuple[float | None, str | None]:
     """∫p² dt of a reverberant band response: noise subtracted up to where the smoothed energy
     meets the noise, plus the exponential tail beyond, from T (Lundeby et al. 1995)."""
     e = np.square(x)
@@ -601,12 +729,15 @@ def _diffuse_energy(x: np.ndarray, rate: int, bandwidth: float, t60: float
     if peak <= 0:
         return None, "no energy in this band"
     if noise > 0 and peak < 10 ** (MIN_BAND_INR_DB / 10) * noise:
-        return None, (f"a response stands only {10 * math.log10(peak / noise):.0f} dB above its "
-                      f"noise (at least {MIN_BAND_INR_DB:.0f} dB needed)")
+        return None, (
+            f"a response stands only {10 * math.log10(peak / noise):.0f} dB above its "
+            f"noise (at least {MIN_BAND_INR_DB:.0f} dB needed)"
+        )
     after = np.flatnonzero(env[k_pk:] <= max(2.0 * noise, 1e-12 * peak))
     if after.size == 0 or k_pk + int(after[0]) >= n - int(round(0.1 * n)):
-        return None, ("a response does not decay into its noise before its last 10 %; record "
-                      "longer responses")
+        return None, (
+            "a response does not decay into its noise before its last 10 %; record longer responses"
+        )
     end = k_pk + int(after[0])
     energy = float(np.sum(e[:end])) - noise * end
     # e(t) ∝ exp(−6·ln10·t/T): the energy beyond t_c is e(t_c)·T/(6·ln 10) per unit time.
@@ -644,8 +775,10 @@ def _finite(v, name, bad) -> float:
     if not math.isfinite(f):
         raise bad(f"field '{name}' is not finite")
     if not LEVEL_MIN_DB <= f <= LEVEL_MAX_DB:
-        raise bad(f"field '{name}' is {f:g} dB, not a level between {LEVEL_MIN_DB:g} and "
-                  f"{LEVEL_MAX_DB:g} dB")
+        raise bad(
+            f"field '{name}' is {f:g} dB, not a level between {LEVEL_MIN_DB:g} and "
+            f"{LEVEL_MAX_DB:g} dB"
+        )
     return f
 
 

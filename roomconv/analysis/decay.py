@@ -10,8 +10,16 @@ import numpy as np
 
 from ..signal import energy_envelope
 
-__all__ = ["onset_index", "Truncation", "lundeby_truncation", "schroeder_integral", "decay_db",
-           "LineFit", "fit_decay", "available_range_db"]
+__all__ = [
+    "onset_index",
+    "Truncation",
+    "lundeby_truncation",
+    "schroeder_integral",
+    "decay_db",
+    "LineFit",
+    "fit_decay",
+    "available_range_db",
+]
 
 _LN10 = np.log(10.0)
 
@@ -58,15 +66,15 @@ def onset_index(h: np.ndarray, drop_db: float = 20.0) -> int:
 class Truncation:
     """Result of :func:`lundeby_truncation` (indices relative to the array given)."""
 
-    index: int               #: truncation point (samples): where the decay meets the noise
-    noise_energy: float      #: mean square of the background noise per sample (0: none found)
-    compensation: float      #: energy (sum of squares) the decay would add after ``index``
-    slope_db_s: float        #: late-decay slope, dB/s (negative; NaN when not found)
-    inr_db: float            #: impulse-to-noise ratio: peak of the smoothed envelope over noise
-    converged: bool          #: the crossing point settled (or no noise floor was reached)
-    noise_limited: bool      #: a noise floor was reached inside the response
-    noise_start: int         #: first sample of the stretch the noise was read from
-    reason: str = ""         #: why the search gave up, when it did
+    index: int  #: truncation point (samples): where the decay meets the noise
+    noise_energy: float  #: mean square of the background noise per sample (0: none found)
+    compensation: float  #: energy (sum of squares) the decay would add after ``index``
+    slope_db_s: float  #: late-decay slope, dB/s (negative; NaN when not found)
+    inr_db: float  #: impulse-to-noise ratio: peak of the smoothed envelope over noise
+    converged: bool  #: the crossing point settled (or no noise floor was reached)
+    noise_limited: bool  #: a noise floor was reached inside the response
+    noise_start: int  #: first sample of the stretch the noise was read from
+    reason: str = ""  #: why the search gave up, when it did
 
 
 def _db(x: np.ndarray | float, ref: float) -> np.ndarray:
@@ -100,9 +108,15 @@ def _envelope(h: np.ndarray, rate: int, interval_s: float):
     return env, t
 
 
-def lundeby_truncation(h: np.ndarray, rate: int, *, interval_s: float = 0.01,
-                       min_interval_s: float = 0.001, bandwidth_hz: float | None = None,
-                       max_iter: int = 12) -> Truncation:
+def lundeby_truncation(
+    h: np.ndarray,
+    rate: int,
+    *,
+    interval_s: float = 0.01,
+    min_interval_s: float = 0.001,
+    bandwidth_hz: float | None = None,
+    max_iter: int = 12,
+) -> Truncation:
     """Iterative truncation point, noise level and late-energy compensation.
 
     ``h`` starts at the onset. The steps of Lundeby et al. (1995), as numbered there:
@@ -171,8 +185,17 @@ def lundeby_truncation(h: np.ndarray, rate: int, *, interval_s: float = 0.01,
     peak_i = int(np.argmax(env))
     peak = float(env[peak_i]) if env.size else 0.0
     if env.size < 3 or peak <= 0:
-        return Truncation(n, 0.0, 0.0, float("nan"), float("nan"), False, False, n,
-                          "the response is too short for a noise-floor search")
+        return Truncation(
+            n,
+            0.0,
+            0.0,
+            float("nan"),
+            float("nan"),
+            False,
+            False,
+            n,
+            "the response is too short for a noise-floor search",
+        )
 
     # Step 2: noise from the last 10 %.
     i_noise = int((1 - NOISE_MIN_FRACTION) * n)
@@ -181,8 +204,17 @@ def lundeby_truncation(h: np.ndarray, rate: int, *, interval_s: float = 0.01,
         return _no_floor(h, rate, env, t_env, peak_i, peak, n)
     inr = float(_db(peak, noise))
     if inr < FIRST_FIT_ABOVE_NOISE_DB + 1:
-        return Truncation(n, noise, 0.0, float("nan"), inr, False, True, i_noise,
-                          f"the decay rises only {inr:.1f} dB above the noise")
+        return Truncation(
+            n,
+            noise,
+            0.0,
+            float("nan"),
+            inr,
+            False,
+            True,
+            i_noise,
+            f"the decay rises only {inr:.1f} dB above the noise",
+        )
 
     # Steps 3–4: first line from the peak to the first interval within 10 dB of the noise.
     env_db = _db(env, peak)
@@ -191,8 +223,17 @@ def lundeby_truncation(h: np.ndarray, rate: int, *, interval_s: float = 0.01,
     stop = max(stop, peak_i + 2)  # a pulse: peak and next interval still give a slope
     slope, icpt = _fit_line(t_env[peak_i:stop], env_db[peak_i:stop])
     if not slope < 0:
-        return Truncation(n, noise, 0.0, float("nan"), inr, False, True, i_noise,
-                          "the envelope does not decay from its peak")
+        return Truncation(
+            n,
+            noise,
+            0.0,
+            float("nan"),
+            inr,
+            False,
+            True,
+            i_noise,
+            "the envelope does not decay from its peak",
+        )
     cross = (noise_db - icpt) / slope
     if _still_decaying(e2, rate, i_noise, slope, bw):
         return _no_floor(h, rate, env, t_env, peak_i, peak, n)
@@ -240,12 +281,22 @@ def lundeby_truncation(h: np.ndarray, rate: int, *, interval_s: float = 0.01,
     idx = int(np.clip(round(cross * rate), min(n, int(round(step_s * rate)) * (peak_i + 1)), n))
     k = -slope * _LN10 / 10.0  # energy decay rate, 1/s
     compensation = noise * rate / k
-    return Truncation(idx, noise, compensation, slope, float(_db(peak, noise)), converged, True,
-                      i_noise, "" if converged else "the crossing point did not settle")
+    return Truncation(
+        idx,
+        noise,
+        compensation,
+        slope,
+        float(_db(peak, noise)),
+        converged,
+        True,
+        i_noise,
+        "" if converged else "the crossing point did not settle",
+    )
 
 
-def _still_decaying(e2: np.ndarray, rate: int, start: int, slope_db_s: float,
-                    bandwidth_hz: float) -> bool:
+def _still_decaying(
+    e2: np.ndarray, rate: int, start: int, slope_db_s: float, bandwidth_hz: float
+) -> bool:
     """True when the stretch read as noise is still falling like the decay, not flat.
 
     Compares the mean energy of the two halves of the stretch: noise gives equal means within
@@ -275,7 +326,7 @@ def _no_floor(h, rate, env, t_env, peak_i, peak, n) -> Truncation:
     is of it), and its energy past the end is the compensation.
     """
     env_db = _db(env, peak)
-    end_db = float(np.mean(env_db[-max(1, env.size // 20):]))
+    end_db = float(np.mean(env_db[-max(1, env.size // 20) :]))
     i_hi = _first_below(env_db, end_db + LATE_FIT_RANGE_DB, peak_i)
     i_hi = min(i_hi, max(peak_i, env.size - 3))
     slope = float("nan")
@@ -290,8 +341,13 @@ def _no_floor(h, rate, env, t_env, peak_i, peak, n) -> Truncation:
     return Truncation(n, 0.0, comp, slope, -e_end_db, True, False, n)
 
 
-def schroeder_integral(h: np.ndarray, *, truncation: int | None = None,
-                       compensation: float = 0.0, noise_energy: float = 0.0) -> np.ndarray:
+def schroeder_integral(
+    h: np.ndarray,
+    *,
+    truncation: int | None = None,
+    compensation: float = 0.0,
+    noise_energy: float = 0.0,
+) -> np.ndarray:
     """Backward-integrated energy E(t) = Σ_{τ≥t}^{truncation} (h²(τ) − noise) + compensation.
 
     ``noise_energy`` (mean square of the background noise) is subtracted from every sample
@@ -347,7 +403,7 @@ class LineFit:
 
     slope_db_s: float
     intercept_db: float
-    r: float                #: correlation coefficient of the fit
+    r: float  #: correlation coefficient of the fit
     reverberation_s: float  #: −60 / slope
 
 

@@ -29,15 +29,25 @@ from .bands import Band, band_sos, bands_for_rate, filter_band
 from .decay import (
     Truncation,
     available_range_db,
-    decay_db,
     fit_decay,
     lundeby_truncation,
     onset_index,
     schroeder_integral,
 )
 
-__all__ = ["RANGES", "METRICS", "JND", "BandResult", "analyse_response", "room_parameters",
-           "check_impulse_response", "OK", "CAUTION", "NOT_EVALUABLE", "FILTERINGS"]
+__all__ = [
+    "RANGES",
+    "METRICS",
+    "JND",
+    "BandResult",
+    "analyse_response",
+    "room_parameters",
+    "check_impulse_response",
+    "OK",
+    "CAUTION",
+    "NOT_EVALUABLE",
+    "FILTERINGS",
+]
 
 OK, CAUTION, NOT_EVALUABLE = "ok", "caution", "not evaluable"
 _LN10 = float(np.log(10.0))
@@ -63,9 +73,16 @@ XI_LIMIT_PERMILLE = 10.0
 CURVATURE_LIMIT_PCT = 10.0
 #: Just-noticeable differences (ISO 3382-1:2009, Table A.1 — from memory): ("relative", 5 %)
 #: or ("absolute", value in the parameter's unit).
-JND = {"edt_s": ("relative", 0.05), "t20_s": ("relative", 0.05), "t30_s": ("relative", 0.05),
-       "c80_db": ("absolute", 1.0), "c50_db": ("absolute", 1.0), "d50": ("absolute", 0.05),
-       "ts_ms": ("absolute", 10.0), "g_db": ("absolute", 1.0)}
+JND = {
+    "edt_s": ("relative", 0.05),
+    "t20_s": ("relative", 0.05),
+    "t30_s": ("relative", 0.05),
+    "c80_db": ("absolute", 1.0),
+    "c50_db": ("absolute", 1.0),
+    "d50": ("absolute", 0.05),
+    "ts_ms": ("absolute", 10.0),
+    "g_db": ("absolute", 1.0),
+}
 #: A response that ends less than this below its peak, with no noise floor found in it, gives
 #: no energy ratios: its late energy is indistinguishable from noise or a cut (common practice;
 #: the ratios need the decay well below the early energy).
@@ -75,8 +92,18 @@ NOISE_BIAS_FRACTION_OF_JND = 0.5
 
 DECAY_METRICS = ("edt_s", "t20_s", "t30_s")
 RATIO_METRICS = ("c50_db", "c80_db", "d50", "ts_ms")
-METRICS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db",
-           "xi_permille", "curvature_pct")
+METRICS = (
+    "edt_s",
+    "t20_s",
+    "t30_s",
+    "c50_db",
+    "c80_db",
+    "d50",
+    "ts_ms",
+    "inr_db",
+    "xi_permille",
+    "curvature_pct",
+)
 #: Values that get a verdict of their own.
 JUDGED = DECAY_METRICS + RATIO_METRICS + ("g_db",)
 
@@ -154,11 +181,11 @@ class BandResult:
         if with_g:
             d["g_db"] = self.g_db
         d["verdict"] = self.verdict
-        d["verdicts"] = {k: v for k, v in self.value_verdicts.items()
-                         if with_g or k != "g_db"}
+        d["verdicts"] = {k: v for k, v in self.value_verdicts.items() if with_g or k != "g_db"}
         d["warning_codes"] = list(self.warning_codes)
-        d["warning_codes_by_value"] = {k: list(v) for k, v in self.value_codes.items()
-                                       if v and (with_g or k != "g_db")}
+        d["warning_codes_by_value"] = {
+            k: list(v) for k, v in self.value_codes.items() if v and (with_g or k != "g_db")
+        }
         d["warnings"] = list(self.warnings)
         return d
 
@@ -208,14 +235,20 @@ def zero_phase_band(h: np.ndarray, rate: int, band: Band) -> np.ndarray:
     x = np.concatenate([np.zeros(pad), np.asarray(h, dtype=np.float64), np.zeros(pad)])
     y = sosfilt(sos, x)
     y = sosfilt(sos, y[::-1])[::-1]
-    return y[pad: pad + len(h)]
+    return y[pad : pad + len(h)]
 
 
-def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
-                     onset: int | None = None, filtering: str = "auto",
-                     strength_reference_db: float | None = None,
-                     strength_missing: str | None = None,
-                     label: str | None = None) -> BandResult:
+def analyse_response(
+    h: np.ndarray,
+    rate: int,
+    *,
+    band: Band | None = None,
+    onset: int | None = None,
+    filtering: str = "auto",
+    strength_reference_db: float | None = None,
+    strength_missing: str | None = None,
+    label: str | None = None,
+) -> BandResult:
     """All parameters of one response in one band (``band=None``: wideband, unfiltered).
 
     Parameters
@@ -264,8 +297,9 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     (1.0, 'ok')
     """
     if filtering not in FILTERINGS:
-        raise InputError(f"unknown band filtering '{filtering}' (use one of "
-                         f"{', '.join(FILTERINGS)})")
+        raise InputError(
+            f"unknown band filtering '{filtering}' (use one of {', '.join(FILTERINGS)})"
+        )
     label = label or _label(band)
     h = np.asarray(h, dtype=np.float64)
     res = BandResult(band_hz=band.nominal if band else None)
@@ -284,23 +318,36 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
         # At least ten periods of the band's lower edge, and 100 ms.
         min_len = max(min_len, int(10 * rate / band.lower))
     if x.size < min_len:
-        res.flag(JUDGED, NOT_EVALUABLE, "too_short",
-                 f"{label}: the response is too short after its onset ({x.size / rate:.3f} s; "
-                 f"this band needs {min_len / rate:.3f} s)")
+        res.flag(
+            JUDGED,
+            NOT_EVALUABLE,
+            "too_short",
+            f"{label}: the response is too short after its onset ({x.size / rate:.3f} s; "
+            f"this band needs {min_len / rate:.3f} s)",
+        )
         res.finish(with_g)
         return res
 
     bw = band.bandwidth if band else rate / 2.0
-    tr = lundeby_truncation(x, rate, interval_s=max(0.01, 1.5 / bw),
-                            min_interval_s=max(0.001, 1.0 / bw), bandwidth_hz=bw)
+    tr = lundeby_truncation(
+        x,
+        rate,
+        interval_s=max(0.01, 1.5 / bw),
+        min_interval_s=max(0.001, 1.0 / bw),
+        bandwidth_hz=bw,
+    )
     res.inr_db = _finite(tr.inr_db)
     res.truncation_s = tr.index / rate
     if tr.noise_limited and tr.noise_energy > 0:
         res.noise_db = float(10 * np.log10(tr.noise_energy / np.max(np.square(x))))
     if not tr.converged:
-        res.flag(JUDGED, CAUTION, "truncation_unsettled",
-                 f"{label}: the noise-floor search did not settle ({tr.reason or 'no reason'});"
-                 " values that depend on the late decay may be off")
+        res.flag(
+            JUDGED,
+            CAUTION,
+            "truncation_unsettled",
+            f"{label}: the noise-floor search did not settle ({tr.reason or 'no reason'});"
+            " values that depend on the late decay may be off",
+        )
 
     pre_energy = 0.0
     if band is not None and filtering != "forward":
@@ -310,7 +357,7 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     # filter's impulse-response energy lies within 1/B of its peak (common practice), and
     # more would add only noise.
     spread = 0 if band is None else min(lead, int(np.ceil(1.5 * rate / band.bandwidth)))
-    others = ()
+    others: tuple[np.ndarray, ...] = ()
     if band is not None and filtering == "auto":
         hp = np.concatenate([np.zeros(lead), h])
         others = (filter_band(hp, rate, band), xd)
@@ -318,8 +365,12 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
     if strength_reference_db is not None:
         _strength(res, xd, rate, onset, tr, band, strength_reference_db, lead)
     elif strength_missing is not None:
-        res.flag(("g_db",), NOT_EVALUABLE, "g_no_reference", f"{label}: G not evaluated: "
-                 f"{strength_missing}")
+        res.flag(
+            ("g_db",),
+            NOT_EVALUABLE,
+            "g_no_reference",
+            f"{label}: G not evaluated: {strength_missing}",
+        )
     res.finish(with_g)
     return res
 
@@ -329,8 +380,9 @@ def analyse_response(h: np.ndarray, rate: int, *, band: Band | None = None,
 DIRECT_SOUND_S = 0.0025
 
 
-def _direct_energy_before_onset(h: np.ndarray, onset: int, lead: int, band: Band,
-                                rate: int) -> float:
+def _direct_energy_before_onset(
+    h: np.ndarray, onset: int, lead: int, band: Band, rate: int
+) -> float:
     """The band energy of the direct sound that a filter run backwards puts before the onset.
 
     The direct sound (``DIRECT_SOUND_S`` of the broadband response from its onset) is filtered
@@ -340,22 +392,34 @@ def _direct_energy_before_onset(h: np.ndarray, onset: int, lead: int, band: Band
     """
     w = max(1, int(round(DIRECT_SOUND_S * rate)))
     snippet = np.zeros(lead + w)
-    part = np.asarray(h[onset: onset + w], dtype=np.float64)
-    snippet[lead: lead + part.size] = part
+    part = np.asarray(h[onset : onset + w], dtype=np.float64)
+    snippet[lead : lead + part.size] = part
     y = filter_band(snippet, rate, band, reverse=True)
     return float(np.sum(np.square(y[:lead])))
 
 
-def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band: Band | None,
-                 filtering: str, label: str, pre_energy: float = 0.0) -> None:
+def _decay_times(
+    res: BandResult,
+    x: np.ndarray,
+    rate: int,
+    tr: Truncation,
+    band: Band | None,
+    filtering: str,
+    label: str,
+    pre_energy: float = 0.0,
+) -> None:
     """EDT, T20, T30 from the compensated Schroeder curve; ξ and curvature; validity.
 
     ``pre_energy`` (the direct sound's band energy a backwards filter put before the onset)
     counts in the total the curve is normalized to, so the curve starts below 0 dB by the
     share of the direct sound, as with a forward filter a few samples later.
     """
-    sch = schroeder_integral(x, truncation=tr.index, compensation=tr.compensation,
-                             noise_energy=tr.noise_energy if tr.noise_limited else 0.0)
+    sch = schroeder_integral(
+        x,
+        truncation=tr.index,
+        compensation=tr.compensation,
+        noise_energy=tr.noise_energy if tr.noise_limited else 0.0,
+    )
     with np.errstate(divide="ignore"):
         curve = 10 * np.log10(np.maximum(sch, 1e-300) / (sch[0] + pre_energy))
     res.curve_db = curve
@@ -366,22 +430,34 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
         metric = f"{key}_s"
         need = -lo + RANGE_MARGIN_DB
         if reach < -lo + RANGE_MARGIN_CAUTION_DB:
-            res.flag((metric,), NOT_EVALUABLE, f"{key}_range_not_reached",
-                     f"{label}: {key.upper()} not evaluated: the decay covers {reach:.0f} dB "
-                     f"before {limit}; its range needs {need:.0f} dB (ISO 3382-1)")
+            res.flag(
+                (metric,),
+                NOT_EVALUABLE,
+                f"{key}_range_not_reached",
+                f"{label}: {key.upper()} not evaluated: the decay covers {reach:.0f} dB "
+                f"before {limit}; its range needs {need:.0f} dB (ISO 3382-1)",
+            )
             continue
         f = fit_decay(curve, rate, hi, lo)
         if f is None:
-            res.flag((metric,), NOT_EVALUABLE, f"{key}_range_not_reached",
-                     f"{label}: {key.upper()} not evaluated: the decay does not reach "
-                     f"{lo:.0f} dB before {limit}")
+            res.flag(
+                (metric,),
+                NOT_EVALUABLE,
+                f"{key}_range_not_reached",
+                f"{label}: {key.upper()} not evaluated: the decay does not reach "
+                f"{lo:.0f} dB before {limit}",
+            )
             continue
         fits[key] = f
         setattr(res, metric, f.reverberation_s)
         if reach < need:
-            res.flag((metric,), CAUTION, f"{key}_noise_margin",
-                     f"{label}: {key.upper()}: {limit} lies only {reach + lo:.0f} dB below the "
-                     f"end of its range, not the {RANGE_MARGIN_DB:.0f} dB ISO 3382-1 asks")
+            res.flag(
+                (metric,),
+                CAUTION,
+                f"{key}_noise_margin",
+                f"{label}: {key.upper()}: {limit} lies only {reach + lo:.0f} dB below the "
+                f"end of its range, not the {RANGE_MARGIN_DB:.0f} dB ISO 3382-1 asks",
+            )
 
     _decay_noise_uncertainty(res, x, rate, tr, band, sch, curve, fits, label)
 
@@ -393,15 +469,20 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
     if "t30" in fits and "t20" in fits:
         res.curvature_pct = 100.0 * (fits["t30"].reverberation_s / fits["t20"].reverberation_s - 1)
     curved = []
-    if res.xi_permille is not None and res.xi_permille > XI_LIMIT_PERMILLE:
-        curved.append(f"ξ {res.xi_permille:.0f} ‰ over the {res.xi_range.upper()} range")
+    xi, xi_range = res.xi_permille, res.xi_range
+    if xi is not None and xi_range is not None and xi > XI_LIMIT_PERMILLE:
+        curved.append(f"ξ {xi:.0f} ‰ over the {xi_range.upper()} range")
     if res.curvature_pct is not None and abs(res.curvature_pct) > CURVATURE_LIMIT_PCT:
         curved.append(f"curvature {res.curvature_pct:+.0f} %")
     if curved:
-        res.flag(("t20_s", "t30_s"), CAUTION, "curved_decay",
-                 f"{label}: the decay is not a straight line ({', '.join(curved)}; ISO 3382-2 "
-                 f"Annex B limits {XI_LIMIT_PERMILLE:.0f} ‰ and {CURVATURE_LIMIT_PCT:.0f} %): "
-                 "one decay time does not describe it")
+        res.flag(
+            ("t20_s", "t30_s"),
+            CAUTION,
+            "curved_decay",
+            f"{label}: the decay is not a straight line ({', '.join(curved)}; ISO 3382-2 "
+            f"Annex B limits {XI_LIMIT_PERMILLE:.0f} ‰ and {CURVATURE_LIMIT_PCT:.0f} %): "
+            "one decay time does not describe it",
+        )
 
     _statistical_uncertainty(res, band, rate, label)
 
@@ -410,15 +491,23 @@ def _decay_times(res: BandResult, x: np.ndarray, rate: int, tr: Truncation, band
         bt = band.bandwidth * t_any
         limit_bt = MIN_BT if filtering == "forward" else MIN_BT_REVERSED
         if bt < limit_bt:
-            res.flag(DECAY_METRICS, CAUTION, "low_bt",
-                     f"{label}: B·T = {bt:.1f} is below {limit_bt:.0f}: the band filter's own "
-                     "decay may lengthen the decay times")
+            res.flag(
+                DECAY_METRICS,
+                CAUTION,
+                "low_bt",
+                f"{label}: B·T = {bt:.1f} is below {limit_bt:.0f}: the band filter's own "
+                "decay may lengthen the decay times",
+            )
         elif bt < MIN_BT and res.edt_s is not None:
             # Backwards filtering keeps T20/T30 down to B·T = 4, but EDT's first 10 dB still
             # hold the filter's treatment of the onset (what counts as direct sound).
-            res.flag(("edt_s",), CAUTION, "low_bt",
-                     f"{label}: B·T = {bt:.1f} is below {MIN_BT:.0f}: EDT's first 10 dB depend "
-                     "on how the band filter treats the onset")
+            res.flag(
+                ("edt_s",),
+                CAUTION,
+                "low_bt",
+                f"{label}: B·T = {bt:.1f} is below {MIN_BT:.0f}: EDT's first 10 dB depend "
+                "on how the band filter treats the onset",
+            )
 
 
 #: ISO 3382-2:2008, A.2 (from memory): σ(T) = k·T·sqrt((1 + c/n)/(N·B·T)) for N positions and
@@ -430,8 +519,13 @@ DECAYS_PER_POSITION_IR = 10
 STATISTICAL = "statistical_uncertainty"
 
 
-def decay_time_sigma(metric: str, t_s: float, bandwidth_hz: float, positions: int = 1,
-                     decays_per_position: int = DECAYS_PER_POSITION_IR) -> float:
+def decay_time_sigma(
+    metric: str,
+    t_s: float,
+    bandwidth_hz: float,
+    positions: int = 1,
+    decays_per_position: int = DECAYS_PER_POSITION_IR,
+) -> float:
     """Relative standard uncertainty of a decay time from the randomness of the diffuse
     decay itself (ISO 3382-2:2008, A.2 — from memory; EDT extended, see
     ``STATISTICAL_CONSTANTS``).
@@ -442,8 +536,7 @@ def decay_time_sigma(metric: str, t_s: float, bandwidth_hz: float, positions: in
     0.0295
     """
     k, c = STATISTICAL_CONSTANTS[metric]
-    return float(k * np.sqrt((1 + c / decays_per_position)
-                             / (positions * bandwidth_hz * t_s)))
+    return float(k * np.sqrt((1 + c / decays_per_position) / (positions * bandwidth_hz * t_s)))
 
 
 def _statistical_uncertainty(res: BandResult, band: Band | None, rate: int, label: str) -> None:
@@ -457,10 +550,14 @@ def _statistical_uncertainty(res: BandResult, band: Band | None, rate: int, labe
             continue
         sigma = decay_time_sigma(m, v, bw)
         if sigma > NOISE_SIGMA_CAUTION_JND * JND[m][1]:
-            res.flag((m,), CAUTION, STATISTICAL,
-                     f"{label}: {m[:-2].upper()} at one position is uncertain by ±"
-                     f"{100 * sigma:.0f} % (ISO 3382-2 for B·T = {bw * v:.0f}), more than half "
-                     "its JND; average several positions")
+            res.flag(
+                (m,),
+                CAUTION,
+                STATISTICAL,
+                f"{label}: {m[:-2].upper()} at one position is uncertain by ±"
+                f"{100 * sigma:.0f} % (ISO 3382-2 for B·T = {bw * v:.0f}), more than half "
+                "its JND; average several positions",
+            )
 
 
 #: A value whose noise-induced standard uncertainty exceeds this fraction of its JND gets a
@@ -477,8 +574,13 @@ def _dof_samples(band: Band | None, rate: int) -> float:
     return max(1.0, rate / bw)
 
 
-def noise_energy_variance(signal: np.ndarray | float, samples: np.ndarray | float, noise: float,
-                          per_dof: float, noise_dof: float) -> np.ndarray:
+def noise_energy_variance(
+    signal: np.ndarray | float,
+    samples: np.ndarray | float,
+    noise: float,
+    per_dof: float,
+    noise_dof: float,
+) -> np.ndarray:
     """Variance of a noise-corrected energy sum over a window, from the noise alone.
 
     A window of ``samples`` holds the signal energy ``signal`` (noise removed) and the
@@ -495,14 +597,22 @@ def noise_energy_variance(signal: np.ndarray | float, samples: np.ndarray | floa
     """
     signal = np.maximum(np.asarray(signal, dtype=np.float64), 0.0)
     samples = np.asarray(samples, dtype=np.float64)
-    random = per_dof * (4.0 * noise * signal + 2.0 * noise ** 2 * samples)
+    random = per_dof * (4.0 * noise * signal + 2.0 * noise**2 * samples)
     level = (noise * samples) ** 2 / max(noise_dof, 1.0)
     return random + level
 
 
-def _decay_noise_uncertainty(res: BandResult, x: np.ndarray, rate: int, tr: Truncation,
-                             band: Band | None, sch: np.ndarray, curve: np.ndarray, fits: dict,
-                             label: str) -> None:
+def _decay_noise_uncertainty(
+    res: BandResult,
+    x: np.ndarray,
+    rate: int,
+    tr: Truncation,
+    band: Band | None,
+    sch: np.ndarray,
+    curve: np.ndarray,
+    fits: dict,
+    label: str,
+) -> None:
     """Flag decay times the background noise makes uncertain beyond their JND.
 
     The level error of the Schroeder curve at each end of a range, δL = 4.34·σ_E/E, moves
@@ -516,14 +626,15 @@ def _decay_noise_uncertainty(res: BandResult, x: np.ndarray, rate: int, tr: Trun
     remaining = tr.index - np.arange(tr.index)
     var = noise_energy_variance(sch - tr.compensation, remaining, nu, per_dof, noise_dof)
     d_level = 10 / np.log(10) * np.sqrt(var) / sch
-    for key, f in fits.items():
+    for key in fits:
         hi, lo = RANGES[key]
         i_hi = int(np.flatnonzero(curve <= hi)[0])
         below = np.flatnonzero(curve <= lo)
         i_lo = int(below[0]) if below.size else curve.size - 1
         sigma = float(np.hypot(d_level[i_hi], d_level[i_lo])) / (hi - lo)
-        _judge_sigma(res, f"{key}_s", key.upper(), sigma, JND[f"{key}_s"][1], "%", label,
-                     relative=True)
+        _judge_sigma(
+            res, f"{key}_s", key.upper(), sigma, JND[f"{key}_s"][1], "%", label, relative=True
+        )
 
 
 def _noise_bound(x: np.ndarray, tr: Truncation) -> tuple[float, int]:
@@ -535,26 +646,52 @@ def _noise_bound(x: np.ndarray, tr: Truncation) -> tuple[float, int]:
     return float(np.mean(np.square(x[start:]))) if x.size > start else 0.0, start
 
 
-def _judge_sigma(res: BandResult, metric: str, name: str, sigma: float, jnd: float, unit: str,
-                 label: str, *, relative: bool = False) -> None:
+def _judge_sigma(
+    res: BandResult,
+    metric: str,
+    name: str,
+    sigma: float,
+    jnd: float,
+    unit: str,
+    label: str,
+    *,
+    relative: bool = False,
+) -> None:
     if not np.isfinite(sigma) or sigma <= NOISE_SIGMA_CAUTION_JND * jnd:
         return
     shown = f"±{100 * sigma:.0f} %" if relative else f"±{sigma:.2g}{unit}"
     jnd_shown = f"{100 * jnd:.0f} %" if relative else f"{jnd:g}{unit}"
     if sigma > NOISE_SIGMA_NULL_JND * jnd:
-        res.flag((metric,), NOT_EVALUABLE, f"{metric.split('_')[0]}_noise_uncertain",
-                 f"{label}: {name} not evaluated: the background noise makes it uncertain by "
-                 f"{shown} (one standard deviation), over {NOISE_SIGMA_NULL_JND:g} times its "
-                 f"JND of {jnd_shown}")
+        res.flag(
+            (metric,),
+            NOT_EVALUABLE,
+            f"{metric.split('_')[0]}_noise_uncertain",
+            f"{label}: {name} not evaluated: the background noise makes it uncertain by "
+            f"{shown} (one standard deviation), over {NOISE_SIGMA_NULL_JND:g} times its "
+            f"JND of {jnd_shown}",
+        )
     else:
-        res.flag((metric,), CAUTION, f"{metric.split('_')[0]}_noise_uncertain",
-                 f"{label}: {name}: the background noise makes it uncertain by {shown} (one "
-                 f"standard deviation), more than half its JND of {jnd_shown}")
+        res.flag(
+            (metric,),
+            CAUTION,
+            f"{metric.split('_')[0]}_noise_uncertain",
+            f"{label}: {name}: the background noise makes it uncertain by {shown} (one "
+            f"standard deviation), more than half its JND of {jnd_shown}",
+        )
 
 
-def _ratio_noise_uncertainty(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int,
-                             rate: int, noise: float, comp: float, band: Band | None,
-                             noise_dof: float, label: str) -> None:
+def _ratio_noise_uncertainty(
+    res: BandResult,
+    e: np.ndarray,
+    t: np.ndarray,
+    pre: int,
+    rate: int,
+    noise: float,
+    comp: float,
+    band: Band | None,
+    noise_dof: float,
+    label: str,
+) -> None:
     """Flag C50, C80, D50 and Ts the background noise makes uncertain beyond half a JND."""
     per_dof = _dof_samples(band, rate)
     s = np.maximum(e - noise, 0.0)
@@ -572,24 +709,33 @@ def _ratio_noise_uncertainty(res: BandResult, e: np.ndarray, t: np.ndarray, pre:
         if early <= 0 or late <= 0:
             continue
         v_e, v_l = var(slice(0, n)), var(slice(n, None))
-        sig_c = k10 * np.sqrt(v_e / early ** 2 + v_l / late ** 2)
+        sig_c = k10 * np.sqrt(v_e / early**2 + v_l / late**2)
         _judge_sigma(res, cname, cname[:3].upper(), float(sig_c), JND[cname][1], " dB", label)
         if dname:
             d = early / total
-            sig_d = d * (1 - d) * np.sqrt(v_e / early ** 2 + v_l / late ** 2)
+            sig_d = d * (1 - d) * np.sqrt(v_e / early**2 + v_l / late**2)
             _judge_sigma(res, dname, "D50", float(sig_d), JND[dname][1], "", label)
     moment = float(np.sum(t * s))
     if moment > 0:
-        v_m = per_dof * float(np.sum(t ** 2 * (4 * noise * s + 2 * noise ** 2)))
+        v_m = per_dof * float(np.sum(t**2 * (4 * noise * s + 2 * noise**2)))
         v_m += (noise * float(np.sum(t))) ** 2 / max(noise_dof, 1.0)
         v_t = var(slice(None))
         ts = 1000 * moment / total
-        sig_ts = ts * np.sqrt(v_m / moment ** 2 + v_t / total ** 2)
+        sig_ts = ts * np.sqrt(v_m / moment**2 + v_t / total**2)
         _judge_sigma(res, "ts_ms", "Ts", float(sig_ts), JND["ts_ms"][1], " ms", label)
 
 
-def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: Truncation,
-                   band: Band | None, label: str, pre: int = 0, others=()) -> None:
+def _energy_ratios(
+    res: BandResult,
+    xr: np.ndarray,
+    rate: int,
+    onset: int,
+    tr: Truncation,
+    band: Band | None,
+    label: str,
+    pre: int = 0,
+    others=(),
+) -> None:
     """C50, C80, D50 and Ts from the broadband onset, noise subtracted, the late decay
     beyond the truncation point added (Lundeby's compensation), and their noise bias.
 
@@ -607,21 +753,29 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
     if not tr.noise_limited and np.isfinite(tr.inr_db) and tr.inr_db < MIN_END_DROP_DB:
         # No noise floor was found, yet the response ends barely below its peak: its end is
         # noise or a cut, and the late energy cannot be told from it.
-        res.flag(RATIO_METRICS, NOT_EVALUABLE, "late_energy_unknown",
-                 f"{label}: the response ends only {tr.inr_db:.0f} dB below its peak and no "
-                 "noise floor could be separated: C50, C80, D50 and Ts not evaluated")
+        res.flag(
+            RATIO_METRICS,
+            NOT_EVALUABLE,
+            "late_energy_unknown",
+            f"{label}: the response ends only {tr.inr_db:.0f} dB below its peak and no "
+            "noise floor could be separated: C50, C80, D50 and Ts not evaluated",
+        )
         return
     if tr.index < int(round(0.08 * rate)):
-        res.flag(RATIO_METRICS, NOT_EVALUABLE, "short_for_clarity",
-                 f"{label}: the decay meets the noise less than 80 ms after the onset: "
-                 "C50, C80, D50 and Ts not evaluated")
+        res.flag(
+            RATIO_METRICS,
+            NOT_EVALUABLE,
+            "short_for_clarity",
+            f"{label}: the decay meets the noise less than 80 ms after the onset: "
+            "C50, C80, D50 and Ts not evaluated",
+        )
         return
     noise = 0.0
     comp = 0.0
     noise_dof = 1.0
     k = -tr.slope_db_s * np.log(10) / 10 if np.isfinite(tr.slope_db_s) else 0.0
     if tr.noise_limited:
-        tail = np.square(xr[onset + tr.noise_start:])
+        tail = np.square(xr[onset + tr.noise_start :])
         noise = float(np.mean(tail)) if tail.size else 0.0
         noise_dof = tail.size / _dof_samples(band, rate)
         comp = noise * rate / k if k > 0 else 0.0
@@ -631,17 +785,29 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
             comp = _end_energy(xr[onset:stop], rate, tr.slope_db_s) / k * rate
         bound, nstart = _noise_bound(xr[onset:], tr)
         if bound > 0:  # judge the uncertainty against the most noise there could be
-            _ratio_noise_uncertainty(res, e, (np.arange(e.size) - pre) / rate, pre, rate,
-                                     bound, comp, band,
-                                     (xr.size - onset - nstart) / _dof_samples(band, rate),
-                                     label)
+            _ratio_noise_uncertainty(
+                res,
+                e,
+                (np.arange(e.size) - pre) / rate,
+                pre,
+                rate,
+                bound,
+                comp,
+                band,
+                (xr.size - onset - nstart) / _dof_samples(band, rate),
+                label,
+            )
     t = (np.arange(e.size) - pre) / rate
     corrected = _ratios(e - noise, t, comp, k, tr.index / rate, pre, rate)
     raw = _ratios(e, t, comp, k, tr.index / rate, pre, rate)
     if corrected is None:
-        res.flag(RATIO_METRICS, NOT_EVALUABLE, "clarity_undefined",
-                 f"{label}: no energy left after 50 ms once the noise is removed: C50, C80, "
-                 "D50 and Ts are not defined")
+        res.flag(
+            RATIO_METRICS,
+            NOT_EVALUABLE,
+            "clarity_undefined",
+            f"{label}: no energy left after 50 ms once the noise is removed: C50, C80, "
+            "D50 and Ts are not defined",
+        )
         return
     for m, v in corrected.items():
         setattr(res, m, v)
@@ -660,14 +826,27 @@ def _energy_ratios(res: BandResult, xr: np.ndarray, rate: int, onset: int, tr: T
         if bias > NOISE_BIAS_FRACTION_OF_JND * jnd:
             name = {"c50_db": "C50", "c80_db": "C80", "d50": "D50", "ts_ms": "Ts"}[m]
             unit = {"c50_db": " dB", "c80_db": " dB", "d50": "", "ts_ms": " ms"}[m]
-            res.flag((m,), CAUTION, f"{m.split('_')[0]}_noise_bias",
-                     f"{label}: {name}: the background noise moves it by {bias:.2g}{unit} "
-                     f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
-                     "correction is only as good as the noise estimate")
+            res.flag(
+                (m,),
+                CAUTION,
+                f"{m.split('_')[0]}_noise_bias",
+                f"{label}: {name}: the background noise moves it by {bias:.2g}{unit} "
+                f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
+                "correction is only as good as the noise estimate",
+            )
 
 
-def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, rate: int,
-                      comp: float, k: float, band: Band | None, label: str) -> None:
+def _ratio_statistics(
+    res: BandResult,
+    e: np.ndarray,
+    t: np.ndarray,
+    pre: int,
+    rate: int,
+    comp: float,
+    k: float,
+    band: Band | None,
+    label: str,
+) -> None:
     """Caution on C50, C80, D50 and Ts whose single-position statistical uncertainty exceeds
     half the JND.
 
@@ -694,14 +873,14 @@ def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, r
     bw = band.bandwidth if band is not None else rate / 2.0
     w_end = pre + int(round((DIRECT_SOUND_S + 1.0 / bw) * rate))
     if 0 < w_end < smooth.size - L:
-        after = float(np.mean(smooth[w_end: w_end + L]))
+        after = float(np.mean(smooth[w_end : w_end + L]))
         back = (w_end - np.arange(w_end)) / rate
         cap = after * np.exp(min(k, 1e4) * back) if k > 0 else np.full(w_end, after)
         smooth = smooth.copy()
         smooth[:w_end] = np.minimum(smooth[:w_end], cap)
     k_n = k / rate if k > 0 else 0.0  # per sample
     e_c = float(smooth[-1]) if smooth.size else 0.0
-    comp_var = per_dof * e_c ** 2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
+    comp_var = per_dof * e_c**2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
 
     def var(sl):
         return per_dof * float(np.sum(np.square(smooth[sl])))
@@ -715,7 +894,7 @@ def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, r
         early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
         if early <= 0 or late <= 0 or getattr(res, cname) is None:
             continue
-        rel2 = var(slice(0, n)) / early ** 2 + (var(slice(n, None)) + comp_var) / late ** 2
+        rel2 = var(slice(0, n)) / early**2 + (var(slice(n, None)) + comp_var) / late**2
         _judge_statistics(res, cname, cname[:3].upper(), k10 * np.sqrt(rel2), " dB", label)
         if dname and res.d50 is not None:
             d = early / total
@@ -725,22 +904,36 @@ def _ratio_statistics(res: BandResult, e: np.ndarray, t: np.ndarray, pre: int, r
         if moment > 0:
             v_m = per_dof * float(np.sum(np.square(t * smooth)))
             v_t = var(slice(None)) + comp_var
-            sigma = res.ts_ms * np.sqrt(v_m / moment ** 2 + v_t / total ** 2)
+            sigma = res.ts_ms * np.sqrt(v_m / moment**2 + v_t / total**2)
             _judge_statistics(res, "ts_ms", "Ts", sigma, " ms", label)
 
 
-def _judge_statistics(res: BandResult, metric: str, name: str, sigma: float, unit: str,
-                      label: str) -> None:
+def _judge_statistics(
+    res: BandResult, metric: str, name: str, sigma: float, unit: str, label: str
+) -> None:
     jnd = JND[metric][1]
     if np.isfinite(sigma) and sigma > NOISE_SIGMA_CAUTION_JND * jnd:
-        res.flag((metric,), CAUTION, STATISTICAL,
-                 f"{label}: {name} at one position is uncertain by ±{sigma:.2g}{unit} (the "
-                 f"randomness of a diffuse decay in this band), more than half its JND of "
-                 f"{jnd:g}{unit}; average several positions")
+        res.flag(
+            (metric,),
+            CAUTION,
+            STATISTICAL,
+            f"{label}: {name} at one position is uncertain by ±{sigma:.2g}{unit} (the "
+            f"randomness of a diffuse decay in this band), more than half its JND of "
+            f"{jnd:g}{unit}; average several positions",
+        )
 
 
-def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: int,
-                        tr: Truncation, pre: int, k: float, label: str) -> None:
+def _filter_sensitivity(
+    res: BandResult,
+    value: dict,
+    others,
+    rate: int,
+    onset: int,
+    tr: Truncation,
+    pre: int,
+    k: float,
+    label: str,
+) -> None:
     """Flag energy ratios that the band filter's own time response moves by more than half
     a JND. A forward filter delays the band's energy and a backwards one advances it by
     the filter's group delay, so their difference is about twice the shift a filter's
@@ -750,10 +943,10 @@ def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: 
     times)."""
     ends = []
     for x in others:
-        e = np.square(x[onset - pre: onset + tr.index])
+        e = np.square(x[onset - pre : onset + tr.index])
         noise = 0.0
         if tr.noise_limited:
-            tail = np.square(x[onset + tr.noise_start:])
+            tail = np.square(x[onset + tr.noise_start :])
             noise = float(np.mean(tail)) if tail.size else 0.0
         comp = noise * rate / k if (tr.noise_limited and k > 0) else 0.0
         t = (np.arange(e.size) - pre) / rate
@@ -761,17 +954,25 @@ def _filter_sensitivity(res: BandResult, value: dict, others, rate: int, onset: 
         if r is None:
             return
         ends.append(r)
-    names = {"c50_db": ("C50", " dB"), "c80_db": ("C80", " dB"), "d50": ("D50", ""),
-             "ts_ms": ("Ts", " ms")}
-    for m, v in value.items():
+    names = {
+        "c50_db": ("C50", " dB"),
+        "c80_db": ("C80", " dB"),
+        "d50": ("D50", ""),
+        "ts_ms": ("Ts", " ms"),
+    }
+    for m in value:
         spread = abs(ends[0][m] - ends[1][m]) / 4
         jnd = JND[m][1]
         if spread > NOISE_SIGMA_CAUTION_JND * jnd:
             name, unit = names[m]
-            res.flag((m,), CAUTION, f"{m.split('_')[0]}_filter_sensitive",
-                     f"{label}: {name}: the band filter's own time response can move it by "
-                     f"±{spread:.2g}{unit} (its bandwidth is narrow for the 50/80 ms limits), "
-                     f"more than half its JND of {jnd:g}{unit}")
+            res.flag(
+                (m,),
+                CAUTION,
+                f"{m.split('_')[0]}_filter_sensitive",
+                f"{label}: {name}: the band filter's own time response can move it by "
+                f"±{spread:.2g}{unit} (its bandwidth is narrow for the 50/80 ms limits), "
+                f"more than half its JND of {jnd:g}{unit}",
+            )
 
 
 def _end_energy(x: np.ndarray, rate: int, slope_db_s: float) -> float:
@@ -780,8 +981,9 @@ def _end_energy(x: np.ndarray, rate: int, slope_db_s: float) -> float:
     return float(np.mean(np.square(x[-n:])))
 
 
-def _ratios(e: np.ndarray, t: np.ndarray, comp: float, k: float, t_c: float, pre: int,
-            rate: int) -> dict | None:
+def _ratios(
+    e: np.ndarray, t: np.ndarray, comp: float, k: float, t_c: float, pre: int, rate: int
+) -> dict | None:
     """C50, C80, D50, Ts from per-sample energies ``e`` at times ``t`` (s, 0 at the onset);
     ``comp`` energy of an exponential tail of rate ``k`` starting at ``t_c``."""
     n50 = pre + int(round(0.05 * rate))
@@ -794,14 +996,24 @@ def _ratios(e: np.ndarray, t: np.ndarray, comp: float, k: float, t_c: float, pre
     moment = float(np.sum(t * e))
     if comp > 0 and k > 0:
         moment += comp * (t_c + 1.0 / k)  # ∫ t·e(t_c)·exp(−k(t−t_c)) dt over [t_c, ∞)
-    return {"c50_db": float(10 * np.log10(early50 / late50)),
-            "c80_db": float(10 * np.log10(early80 / late80)),
-            "d50": early50 / total,
-            "ts_ms": 1000.0 * moment / total}
+    return {
+        "c50_db": float(10 * np.log10(early50 / late50)),
+        "c80_db": float(10 * np.log10(early80 / late80)),
+        "d50": early50 / total,
+        "ts_ms": 1000.0 * moment / total,
+    }
 
 
-def _strength(res: BandResult, xd: np.ndarray, rate: int, onset: int, tr: Truncation,
-              band: Band | None, reference_db: float, pre: int = 0) -> None:
+def _strength(
+    res: BandResult,
+    xd: np.ndarray,
+    rate: int,
+    onset: int,
+    tr: Truncation,
+    band: Band | None,
+    reference_db: float,
+    pre: int = 0,
+) -> None:
     """G = 10·lg(∫p² dt) − L_ref, the band energy from the single-pass filter (any direction
     gives the same total), noise removed and the late decay added.
 
@@ -809,12 +1021,16 @@ def _strength(res: BandResult, xd: np.ndarray, rate: int, onset: int, tr: Trunca
     ----------
     ISO 3382-1:2009, A.2.2 (sound strength G) — from memory.
     """
-    e = np.square(xd[onset - pre: onset + tr.index])
+    e = np.square(xd[onset - pre : onset + tr.index])
     noise = tr.noise_energy if tr.noise_limited else 0.0
     total = float(e.sum()) - noise * e.size + tr.compensation
     if total <= 0:
-        res.flag(("g_db",), NOT_EVALUABLE, "g_no_energy",
-                 f"{_label(band)}: G not evaluated: no energy above the noise")
+        res.flag(
+            ("g_db",),
+            NOT_EVALUABLE,
+            "g_no_energy",
+            f"{_label(band)}: G not evaluated: no energy above the noise",
+        )
         return
     res.g_db = float(10 * np.log10(total / rate)) - reference_db
 
@@ -851,7 +1067,9 @@ def check_impulse_response(h: np.ndarray, rate: int) -> None:
     >>> check_impulse_response(np.sin(2 * np.pi * 440 * t), rate)
     Traceback (most recent call last):
     ...
-    roomconv.errors.InputError: this does not look like an impulse response: its level never falls 10 dB below its peak (a recording, music or noise?); extract the impulse response from the recording first
+    roomconv.errors.InputError: this does not look like an impulse response: its level never
+    falls 10 dB below its peak (a recording, music or noise?); extract the impulse response
+    from the recording first
     """
     env, m = energy_envelope(np.asarray(h, dtype=np.float64), rate, 0.01)
     if env.size < 4:
@@ -859,28 +1077,38 @@ def check_impulse_response(h: np.ndarray, rate: int) -> None:
     peak_i = int(np.argmax(env))
     env_db = 10 * np.log10(np.maximum(env[peak_i:], 1e-300) / env[peak_i])
     hull = np.maximum.accumulate(env_db[::-1])[::-1]
-    floor = float(np.mean(env_db[-max(1, env_db.size // 20):]))
+    floor = float(np.mean(env_db[-max(1, env_db.size // 20) :]))
     fall = -floor
     if fall < MIN_FALL_DB:
-        raise InputError("this does not look like an impulse response: its level never falls "
-                         f"{MIN_FALL_DB:.0f} dB below its peak (a recording, music or noise?); "
-                         "extract the impulse response from the recording first")
+        raise InputError(
+            "this does not look like an impulse response: its level never falls "
+            f"{MIN_FALL_DB:.0f} dB below its peak (a recording, music or noise?); "
+            "extract the impulse response from the recording first"
+        )
     below_a = np.flatnonzero(hull < -fall / 3)
     below_b = np.flatnonzero(hull < -2 * fall / 3)
     t_a = int(below_a[0]) if below_a.size else env_db.size
     t_b = int(below_b[0]) if below_b.size else env_db.size
     held_s = t_a * m / rate
     if held_s > SUSTAIN_MIN_S and t_a > SUSTAIN_RATIO * max(1, t_b - t_a):
-        raise InputError(f"this does not look like an impulse response: it stays within "
-                         f"{fall / 3:.0f} dB of its peak for {held_s:.2f} s, then falls in "
-                         f"{(t_b - t_a) * m / rate:.2f} s (a sweep recording, music or noise?); "
-                         "extract the impulse response from the recording first")
+        raise InputError(
+            f"this does not look like an impulse response: it stays within "
+            f"{fall / 3:.0f} dB of its peak for {held_s:.2f} s, then falls in "
+            f"{(t_b - t_a) * m / rate:.2f} s (a sweep recording, music or noise?); "
+            "extract the impulse response from the recording first"
+        )
 
 
-def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
-                    filtering: str = "auto", strength_reference=None,
-                    low: float | None = None, high: float | None = None
-                    ) -> tuple[list[BandResult], BandResult, list[str]]:
+def room_parameters(
+    h: np.ndarray,
+    rate: int,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    strength_reference=None,
+    low: float | None = None,
+    high: float | None = None,
+) -> tuple[list[BandResult], BandResult, list[str]]:
     """Per-band and wideband parameters of a 1-D response.
 
     Parameters
@@ -936,9 +1164,19 @@ def room_parameters(h: np.ndarray, rate: int, *, bands: str = "octave",
     results = []
     for b in band_list:
         level, why = ref(b)
-        results.append(analyse_response(h, rate, band=b, onset=onset, filtering=filtering,
-                                        strength_reference_db=level, strength_missing=why))
+        results.append(
+            analyse_response(
+                h,
+                rate,
+                band=b,
+                onset=onset,
+                filtering=filtering,
+                strength_reference_db=level,
+                strength_missing=why,
+            )
+        )
     level, why = ref(None)
-    wide = analyse_response(h, rate, onset=onset, filtering=filtering,
-                            strength_reference_db=level, strength_missing=why)
+    wide = analyse_response(
+        h, rate, onset=onset, filtering=filtering, strength_reference_db=level, strength_missing=why
+    )
     return results, wide, notes

@@ -14,9 +14,19 @@ import numpy as np
 from ..safety import caution_text
 from .parameters import CAUTION, METRICS, NOT_EVALUABLE, OK
 
-HEADERS = {"edt_s": "EDT s", "t20_s": "T20 s", "t30_s": "T30 s", "c50_db": "C50 dB",
-           "c80_db": "C80 dB", "d50": "D50", "ts_ms": "Ts ms", "inr_db": "INR dB",
-           "xi_permille": "ξ ‰", "curvature_pct": "Curvature %", "g_db": "G dB"}
+HEADERS = {
+    "edt_s": "EDT s",
+    "t20_s": "T20 s",
+    "t30_s": "T30 s",
+    "c50_db": "C50 dB",
+    "c80_db": "C80 dB",
+    "d50": "D50",
+    "ts_ms": "Ts ms",
+    "inr_db": "INR dB",
+    "xi_permille": "ξ ‰",
+    "curvature_pct": "Curvature %",
+    "g_db": "G dB",
+}
 #: The single numbers in words (mean of the 500 Hz and 1 kHz octaves, or the six
 #: third-octaves 400 Hz–1.25 kHz).
 SINGLE_NUMBER_NAMES = {
@@ -31,11 +41,23 @@ SINGLE_NUMBER_NAMES = {
 }
 #: Marks beside a value in text tables: flagged values are visibly flagged.
 MARK = {OK: "", CAUTION: "*", NOT_EVALUABLE: ""}
-LEGEND = ("* caution: the value is given but a check failed (see the warnings); — not "
-          "evaluable (the warnings say why)")
-_FMT = {"edt_s": "{:.2f}", "t20_s": "{:.2f}", "t30_s": "{:.2f}", "c50_db": "{:+.1f}",
-        "c80_db": "{:+.1f}", "d50": "{:.2f}", "ts_ms": "{:.0f}", "inr_db": "{:.0f}",
-        "xi_permille": "{:.1f}", "curvature_pct": "{:+.1f}", "g_db": "{:+.1f}"}
+LEGEND = (
+    "* caution: the value is given but a check failed (see the warnings); — not "
+    "evaluable (the warnings say why)"
+)
+_FMT = {
+    "edt_s": "{:.2f}",
+    "t20_s": "{:.2f}",
+    "t30_s": "{:.2f}",
+    "c50_db": "{:+.1f}",
+    "c80_db": "{:+.1f}",
+    "d50": "{:.2f}",
+    "ts_ms": "{:.0f}",
+    "inr_db": "{:.0f}",
+    "xi_permille": "{:.1f}",
+    "curvature_pct": "{:+.1f}",
+    "g_db": "{:+.1f}",
+}
 
 
 def fmt(metric: str, value) -> str:
@@ -70,8 +92,9 @@ def marked(row: dict, metric: str) -> str:
 def table_rows(position: dict, metrics) -> list[list[str]]:
     rows = []
     for r in position["bands"] + [position["wideband"]]:
-        rows.append([band_label(r["band_hz"])] + [marked(r, m) for m in metrics]
-                    + [r.get("verdict", "")])
+        rows.append(
+            [band_label(r["band_hz"])] + [marked(r, m) for m in metrics] + [r.get("verdict", "")]
+        )
     return rows
 
 
@@ -106,15 +129,22 @@ def csv_text(doc: dict) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     judged = [m for m in metrics if m in _JUDGED]
-    w.writerow(["file", "channel", "band_hz"] + list(metrics) + ["verdict"]
-               + [f"{m}_verdict" for m in judged] + ["warning_codes", "warnings"])
+    w.writerow(
+        ["file", "channel", "band_hz"]
+        + list(metrics)
+        + ["verdict"]
+        + [f"{m}_verdict" for m in judged]
+        + ["warning_codes", "warnings"]
+    )
     for p in doc["positions"]:
         for r in p["bands"] + [p["wideband"]]:
-            w.writerow([p["file"], p["channel"],
-                        "wideband" if r["band_hz"] is None else r["band_hz"]]
-                       + ["" if r.get(m) is None else f"{r[m]:.6g}" for m in metrics]
-                       + [r.get("verdict", "")] + [value_verdict(r, m) for m in judged]
-                       + [" ".join(r.get("warning_codes", [])), " | ".join(r["warnings"])])
+            w.writerow(
+                [p["file"], p["channel"], "wideband" if r["band_hz"] is None else r["band_hz"]]
+                + ["" if r.get(m) is None else f"{r[m]:.6g}" for m in metrics]
+                + [r.get("verdict", "")]
+                + [value_verdict(r, m) for m in judged]
+                + [" ".join(r.get("warning_codes", [])), " | ".join(r["warnings"])]
+            )
     for r in doc["average"]["bands"]:
         row = ["average", "", r["band_hz"]]
         row += ["" if r[m]["mean"] is None else f"{r[m]['mean']:.6g}" for m in metrics]
@@ -134,16 +164,23 @@ def _png(fig) -> str:
 
 def decay_figure(results, rate: int, title: str):
     from matplotlib.figure import Figure  # lazy: only reports need matplotlib
+
     fig = Figure(figsize=(8, 4.2))
     ax = fig.add_subplot(111)
     import matplotlib
+
     cmap = matplotlib.colormaps["viridis"]
     for i, r in enumerate(results):
         if r.curve_db is None:
             continue
         t = np.arange(r.curve_db.size) / rate
-        ax.plot(t, r.curve_db, lw=1.2, color=cmap(i / max(1, len(results) - 1)),
-                label=band_label(r.band_hz))
+        ax.plot(
+            t,
+            r.curve_db,
+            lw=1.2,
+            color=cmap(i / max(1, len(results) - 1)),
+            label=band_label(r.band_hz),
+        )
     ax.set_ylim(-70, 2)
     ax.set_xlabel("time after onset (s)")
     ax.set_ylabel("decay (dB)")
@@ -158,6 +195,7 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
     """Per-band values of ``metric`` at every position, the average with error bars, and
     optional extra series {label: {band_hz: value}} (e.g. a prediction)."""
     from matplotlib.figure import Figure
+
     fig = Figure(figsize=(8, 3.6))
     ax = fig.add_subplot(111)
     for p in doc["positions"]:
@@ -167,10 +205,18 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
     avg = [r for r in doc["average"]["bands"] if r[metric]["mean"] is not None]
     if avg:
         err = [r[metric].get("uncertainty") or r[metric]["std"] or 0 for r in avg]
-        ax.errorbar([r["band_hz"] for r in avg], [r[metric]["mean"] for r in avg], yerr=err,
-                    fmt="-o", color="tab:blue", capsize=3, label="average")
+        ax.errorbar(
+            [r["band_hz"] for r in avg],
+            [r[metric]["mean"] for r in avg],
+            yerr=err,
+            fmt="-o",
+            color="tab:blue",
+            capsize=3,
+            label="average",
+        )
     colours = ("tab:green", "tab:orange", "tab:red", "tab:purple")
-    for (label, series), colour in zip((extra or {}).items(), colours):
+    # One colour each: series beyond the fourth are not drawn.
+    for (label, series), colour in zip((extra or {}).items(), colours, strict=False):
         ks = sorted(series)
         ax.plot(ks, [series[k] for k in ks], "--s", ms=4, color=colour, label=label)
     ax.set_xscale("log")
@@ -188,8 +234,10 @@ def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
 
 def _cell(c: str) -> str:
     if c.endswith("*"):
-        return (f"<td class='flag' title='caution: see the warnings below'>"
-                f"{html.escape(c[:-1])}&nbsp;⚠</td>")
+        return (
+            f"<td class='flag' title='caution: see the warnings below'>"
+            f"{html.escape(c[:-1])}&nbsp;⚠</td>"
+        )
     if c == "—":
         return "<td class='na' title='not evaluable: see the warnings below'>—</td>"
     if c == CAUTION:
@@ -206,12 +254,19 @@ def _html_table(header, rows) -> str:
 _CSS = """body{font-family:system-ui,sans-serif;max-width:1000px;margin:2em auto;color:#222}
 table{border-collapse:collapse;font-size:13px;margin:0.5em 0}td,th{border:1px solid #ccc;
 padding:2px 6px;text-align:right}th{background:#eef}h1{font-size:1.5em}h2{margin-top:1.6em}
-.warn{color:#a40}td.flag{background:#ffe2b8;font-weight:600}td.na{color:#999}.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
+.warn{color:#a40}td.flag{background:#ffe2b8;font-weight:600}td.na{color:#999}\
+.caution{background:#fff4e0;border:1px solid #e0a040;padding:0.6em;
 white-space:pre-wrap;font-size:12px}img{max-width:100%}"""
 
 
-def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
-                extra_series: dict | None = None, cautions: bool = True) -> str:
+def html_report(
+    study,
+    *,
+    title: str = "Room acoustic parameters",
+    sections=(),
+    extra_series: dict | None = None,
+    cautions: bool = True,
+) -> str:
     """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first.
 
     ``cautions`` ends the page with the playback caution, for pages that also offer sound
@@ -219,26 +274,45 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
     doc = study.document
     metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
-    out = [f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
-           f"</title><style>{_CSS}</style></head><body><h1>{html.escape(title)}</h1>",
-           f"<p>roomconv {html.escape(doc['roomconv_version'])}; {doc['settings']['bands']} "
-           f"bands; {html.escape(doc['settings']['decay_method'])}.</p>"]
+    out = [
+        f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
+        f"</title><style>{_CSS}</style></head><body><h1>{html.escape(title)}</h1>",
+        f"<p>roomconv {html.escape(doc['roomconv_version'])}; {doc['settings']['bands']} "
+        f"bands; {html.escape(doc['settings']['decay_method'])}.</p>",
+    ]
     for heading, body in sections:
         out.append(f"<h2>{html.escape(heading)}</h2>{body}")
-    out.append("<h2>Headline figures</h2><ul>" + "".join(
-        f"<li>{html.escape(line)}</li>" for line in single_number_lines(doc)) + "</ul>")
+    out.append(
+        "<h2>Headline figures</h2><ul>"
+        + "".join(f"<li>{html.escape(line)}</li>" for line in single_number_lines(doc))
+        + "</ul>"
+    )
     out.append(f"<p>{html.escape(LEGEND.replace('*', '⚠'))}</p>")
     if len(doc["positions"]) > 1:
         rows = []
         for r in doc["average"]["bands"]:
             u = r["t30_s"].get("uncertainty")
-            rows.append([band_label(r["band_hz"]), mean_with_spread("edt_s", r), mean_with_spread("t20_s", r),
-                         mean_with_spread("t30_s", r), "—" if u is None else f"{u:.3f}", mean_with_spread("c80_db", r),
-                         mean_with_spread("d50", r), mean_with_spread("ts_ms", r), str(r["t30_s"]["n"])])
+            rows.append(
+                [
+                    band_label(r["band_hz"]),
+                    mean_with_spread("edt_s", r),
+                    mean_with_spread("t20_s", r),
+                    mean_with_spread("t30_s", r),
+                    "—" if u is None else f"{u:.3f}",
+                    mean_with_spread("c80_db", r),
+                    mean_with_spread("d50", r),
+                    mean_with_spread("ts_ms", r),
+                    str(r["t30_s"]["n"]),
+                ]
+            )
         out.append(f"<h2>Average over {len(doc['positions'])} positions</h2>")
-        out.append(_html_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50",
-                                "Ts ms", "n"], rows))
-    out.append(f"<img alt='T30 per band' src='{_png(band_figure(doc, 't30_s', 'T30 (s)', extra_series))}'>")
+        out.append(
+            _html_table(
+                ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms", "n"], rows
+            )
+        )
+    t30_png = _png(band_figure(doc, "t30_s", "T30 (s)", extra_series))
+    out.append(f"<img alt='T30 per band' src='{t30_png}'>")
     out.append(f"<img alt='EDT per band' src='{_png(band_figure(doc, 'edt_s', 'EDT (s)'))}'>")
     out.append(f"<img alt='C80 per band' src='{_png(band_figure(doc, 'c80_db', 'C80 (dB)'))}'>")
     for p in doc["positions"]:
@@ -254,7 +328,6 @@ def html_report(study, *, title: str = "Room acoustic parameters", sections=(),
     for e in doc.get("errors", []):
         out.append(f"<p class='warn'>error: {html.escape(e)}</p>")
     if cautions:
-        out.append("<h2>Cautions</h2><div class='caution'>"
-                   f"{html.escape(caution_text())}</div>")
+        out.append(f"<h2>Cautions</h2><div class='caution'>{html.escape(caution_text())}</div>")
     out.append("</body></html>")
     return "\n".join(out)

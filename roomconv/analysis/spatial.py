@@ -4,6 +4,8 @@ uncertainty of decay times, and the mid-frequency single numbers used in reports
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 
 from .bands import all_bands
@@ -19,13 +21,24 @@ from .parameters import (
     decay_time_sigma,
 )
 
-__all__ = ["DECAYS_PER_POSITION_IR", "JND", "decay_time_uncertainty", "spatial_average",
-           "single_numbers", "position_single_numbers", "SINGLE_NUMBERS"]
+__all__ = [
+    "DECAYS_PER_POSITION_IR",
+    "JND",
+    "decay_time_uncertainty",
+    "spatial_average",
+    "single_numbers",
+    "position_single_numbers",
+    "SINGLE_NUMBERS",
+]
 
 
-
-def decay_time_uncertainty(t: float, bandwidth_hz: float, positions: int, kind: str,
-                           decays_per_position: int = DECAYS_PER_POSITION_IR) -> float:
+def decay_time_uncertainty(
+    t: float,
+    bandwidth_hz: float,
+    positions: int,
+    kind: str,
+    decays_per_position: int = DECAYS_PER_POSITION_IR,
+) -> float:
     """Standard deviation of a spatially averaged T20 or T30.
 
     σ(T20) = 0.88·T·sqrt((1 + 1.90/n) / (N·B·T)),  σ(T30) = 0.55·T·sqrt((1 + 1.52/n) / (N·B·T)),
@@ -61,8 +74,9 @@ def _bandwidth(band_hz: float, kind: str) -> float | None:
     return None
 
 
-def spatial_average(positions: list[list[dict]], kind: str = "octave",
-                    with_g: bool = False) -> list[dict]:
+def spatial_average(
+    positions: list[list[dict]], kind: str = "octave", with_g: bool = False
+) -> list[dict]:
     """Average per band over positions (each a list of band dicts from ``as_dict``).
 
     Null values are left out of a mean; ``n`` says how many were used. The mean's
@@ -77,14 +91,20 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
     out = []
     for band_hz in sorted(by_band):
         rows = by_band[band_hz]
-        entry = {"band_hz": band_hz}
+        # The JSON document's entries: numbers, counts, verdict strings and nulls.
+        entry: dict[str, Any] = {"band_hz": band_hz}
         for m in metrics:
             vals = np.array([r[m] for r in rows if r.get(m) is not None], dtype=float)
-            stat = {"mean": None, "std": None, "n": int(vals.size),
-                    "verdict": NOT_EVALUABLE if m in JND else None}
+            stat: dict[str, Any] = {
+                "mean": None,
+                "std": None,
+                "n": int(vals.size),
+                "verdict": NOT_EVALUABLE if m in JND else None,
+            }
             if vals.size and m in JND:
-                flagged = any(_flagged_beyond_statistics(r, m) for r in rows
-                              if r.get(m) is not None)
+                flagged = any(
+                    _flagged_beyond_statistics(r, m) for r in rows if r.get(m) is not None
+                )
                 bw = _bandwidth(band_hz, kind) if band_hz is not None else None
                 if m in ("edt_s", "t20_s", "t30_s") and bw:
                     # The average's own statistical uncertainty, with N positions.
@@ -97,8 +117,9 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
                 stat["std"] = float(vals.std(ddof=1)) if vals.size > 1 else None
             if m in ("t20_s", "t30_s") and vals.size:
                 bw = _bandwidth(band_hz, kind)
-                stat["uncertainty"] = (decay_time_uncertainty(stat["mean"], bw, vals.size, m[:3])
-                                       if bw else None)
+                stat["uncertainty"] = (
+                    decay_time_uncertainty(stat["mean"], bw, vals.size, m[:3]) if bw else None
+                )
             entry[m] = stat
         out.append(entry)
     return out
@@ -106,9 +127,16 @@ def spatial_average(positions: list[list[dict]], kind: str = "octave",
 
 #: Mid-frequency single numbers: key → parameter (ISO 3382-1:2009, A.3 and Table A.1: the
 #: mean of the 500 Hz and 1 kHz octaves — from memory).
-SINGLE_NUMBERS = {"edt_mid_s": "edt_s", "t20_mid_s": "t20_s", "t30_mid_s": "t30_s",
-                  "c50_mid_db": "c50_db", "c80_mid_db": "c80_db", "d50_mid": "d50",
-                  "ts_mid_ms": "ts_ms", "g_mid_db": "g_db"}
+SINGLE_NUMBERS = {
+    "edt_mid_s": "edt_s",
+    "t20_mid_s": "t20_s",
+    "t30_mid_s": "t30_s",
+    "c50_mid_db": "c50_db",
+    "c80_mid_db": "c80_db",
+    "d50_mid": "d50",
+    "ts_mid_ms": "ts_ms",
+    "g_mid_db": "g_db",
+}
 
 
 def single_numbers(average: list[dict], kind: str = "octave", *, with_verdicts: bool = False):
@@ -129,8 +157,7 @@ def single_numbers(average: list[dict], kind: str = "octave", *, with_verdicts: 
         ok = len(vals) == len(mids)
         out[key] = float(np.mean(vals)) if ok else None
         marks = [r[m].get("verdict") or OK for r in rows]
-        verdicts[key] = (NOT_EVALUABLE if not ok else
-                         CAUTION if CAUTION in marks else OK)
+        verdicts[key] = NOT_EVALUABLE if not ok else CAUTION if CAUTION in marks else OK
     return (out, verdicts) if with_verdicts else out
 
 
@@ -144,7 +171,13 @@ def position_single_numbers(bands: list[dict], kind: str = "octave") -> dict:
     >>> round(position_single_numbers(rows)["t30_mid_s"], 3)
     1.1
     """
-    as_average = [{"band_hz": r["band_hz"],
-                   **{m: {"mean": r.get(m)} for m in SINGLE_NUMBERS.values()
-                      if m != "g_db" or "g_db" in r}} for r in bands]
+    as_average = [
+        {
+            "band_hz": r["band_hz"],
+            **{
+                m: {"mean": r.get(m)} for m in SINGLE_NUMBERS.values() if m != "g_db" or "g_db" in r
+            },
+        }
+        for r in bands
+    ]
     return single_numbers(as_average, kind)

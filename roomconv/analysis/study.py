@@ -10,26 +10,29 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from ..audio import read_audio, read_json
+from ..audio import read_audio
 from ..errors import InputError, describe
 from .parameters import room_parameters
+from .spatial import single_numbers, spatial_average
 
 #: What each band-filtering choice does, for the document's settings.
 FILTERING_TEXT = {
     "auto": "decay times: band filter run backwards in time; C50, C80, D50, Ts: zero-phase "
-            "band filter; G: single-pass band energy",
+    "band filter; G: single-pass band energy",
     "forward": "one forward band filter for every parameter",
     "reverse": "one band filter run backwards in time for every parameter",
 }
-VERDICT_TEXT = ("ok: within the ISO 3382-1 just-noticeable difference as far as the checks "
-                "can tell; caution: given, but see the warning; not evaluable: no value, the "
-                "warning says why")
+VERDICT_TEXT = (
+    "ok: within the ISO 3382-1 just-noticeable difference as far as the checks "
+    "can tell; caution: given, but see the warning; not evaluable: no value, the "
+    "warning says why"
+)
 
 
 def reference_to_dict(ref) -> dict:
     from .calibration import reference_to_dict as to_dict
+
     return to_dict(ref)
-from .spatial import single_numbers, spatial_average
 
 
 @dataclass
@@ -48,11 +51,13 @@ def parse_calibration(text: str | None):
     if text is None:
         return None
     from .calibration import parse_strength_reference
+
     return parse_strength_reference(text)
 
 
-def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
-                   calibration=None, progress=None) -> Study:
+def analyse_arrays(
+    items, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+) -> Study:
     """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`.
 
     ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
@@ -62,9 +67,13 @@ def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
     for name, data, rate in items:
         for ch in range(data.shape[1]):
             try:
-                res, wide, n = room_parameters(data[:, ch], rate, bands=bands,
-                                               filtering=filtering,
-                                               strength_reference=calibration)
+                res, wide, n = room_parameters(
+                    data[:, ch],
+                    rate,
+                    bands=bands,
+                    filtering=filtering,
+                    strength_reference=calibration,
+                )
             except InputError as exc:
                 errors.append(describe(name, f"channel {ch + 1}: {exc}"))
                 continue
@@ -73,9 +82,15 @@ def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
                     progress.update(1)
             notes += [x for x in n if x not in notes]
             with_g = calibration is not None
-            positions.append({"file": str(name), "channel": ch + 1, "rate": rate,
-                              "bands": [r.as_dict(with_g) for r in res],
-                              "wideband": wide.as_dict(with_g)})
+            positions.append(
+                {
+                    "file": str(name),
+                    "channel": ch + 1,
+                    "rate": rate,
+                    "bands": [r.as_dict(with_g) for r in res],
+                    "wideband": wide.as_dict(with_g),
+                }
+            )
             curves[(str(name), ch + 1)] = (res, wide, rate)
     if not positions:
         raise InputError("no response could be analysed: " + "; ".join(errors))
@@ -84,17 +99,23 @@ def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
     sn, sn_verdicts = single_numbers(avg, bands, with_verdicts=True)
     doc = {
         "positions": positions,
-        "average": {"bands": avg, "single_numbers": sn, "single_number_verdicts": sn_verdicts,
-                    "positions": len(positions)},
-        "settings": {"bands": bands, "filtering": filtering,
-                     "calibration": None if calibration is None
-                     else reference_to_dict(calibration),
-                     "decay_method": "Schroeder integral with Lundeby truncation, noise "
-                                     "subtraction and tail compensation",
-                     "band_filtering": FILTERING_TEXT[filtering],
-                     "onset": "first sample of the broadband response within 20 dB of its "
-                              "peak, for every band",
-                     "verdicts": VERDICT_TEXT},
+        "average": {
+            "bands": avg,
+            "single_numbers": sn,
+            "single_number_verdicts": sn_verdicts,
+            "positions": len(positions),
+        },
+        "settings": {
+            "bands": bands,
+            "filtering": filtering,
+            "calibration": None if calibration is None else reference_to_dict(calibration),
+            "decay_method": "Schroeder integral with Lundeby truncation, noise "
+            "subtraction and tail compensation",
+            "band_filtering": FILTERING_TEXT[filtering],
+            "onset": "first sample of the broadband response within 20 dB of its "
+            "peak, for every band",
+            "verdicts": VERDICT_TEXT,
+        },
         "notes": notes,
         "errors": errors,
         "roomconv_version": __version__,
@@ -102,8 +123,9 @@ def analyse_arrays(items, *, bands: str = "octave", filtering: str = "auto",
     return Study(doc, curves, errors)
 
 
-def analyse_files(paths, *, bands: str = "octave", filtering: str = "auto",
-                  calibration=None, progress=None) -> Study:
+def analyse_files(
+    paths, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+) -> Study:
     """Read each IR file and analyse every channel as its own position.
 
     A file that cannot be read is reported in ``errors`` and the rest go on; if none can be
@@ -122,9 +144,9 @@ def analyse_files(paths, *, bands: str = "octave", filtering: str = "auto",
         items.append((Path(p), data, rate))
     if not items:
         raise InputError("no response could be analysed: " + "; ".join(errors))
-    study = analyse_arrays(items, bands=bands, filtering=filtering,
-                           calibration=calibration, progress=progress)
+    study = analyse_arrays(
+        items, bands=bands, filtering=filtering, calibration=calibration, progress=progress
+    )
     study.errors = errors + study.errors
     study.document["errors"] = study.errors
     return study
-

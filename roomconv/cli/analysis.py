@@ -23,26 +23,38 @@ def show_study(doc: dict) -> None:
         single_number_lines,
         table_rows,
     )
+
     metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
     right = range(1, len(metrics) + 1)
     for p in doc["positions"]:
-        print_table(header, table_rows(p, metrics), right=right,
-                    title=f"{p['file']}  channel {p['channel']}")
+        print_table(
+            header,
+            table_rows(p, metrics),
+            right=right,
+            title=f"{p['file']}  channel {p['channel']}",
+        )
         for w in (w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]):
             print(f"  ! {w}")
     if len(doc["positions"]) > 1:
         rows = []
         for r in doc["average"]["bands"]:
             u = r["t30_s"].get("uncertainty")
-            rows.append([band_label(r["band_hz"]), *(mean_with_spread(m, r) for m in
-                                                     ("edt_s", "t20_s", "t30_s")),
-                         "—" if u is None else f"{u:.3f}",
-                         *(mean_with_spread(m, r) for m in ("c80_db", "d50", "ts_ms"))])
-        print_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"],
-                    rows, right=range(1, 8),
-                    title=f"Average over {len(doc['positions'])} positions (mean ± std; "
-                          "T uncertainty per ISO 3382-2)")
+            rows.append(
+                [
+                    band_label(r["band_hz"]),
+                    *(mean_with_spread(m, r) for m in ("edt_s", "t20_s", "t30_s")),
+                    "—" if u is None else f"{u:.3f}",
+                    *(mean_with_spread(m, r) for m in ("c80_db", "d50", "ts_ms")),
+                ]
+            )
+        print_table(
+            ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C80 dB", "D50", "Ts ms"],
+            rows,
+            right=range(1, 8),
+            title=f"Average over {len(doc['positions'])} positions (mean ± std; "
+            "T uncertainty per ISO 3382-2)",
+        )
     print("Mid-frequency values:")
     for line in single_number_lines(doc):
         print(f"  {line}")
@@ -59,9 +71,17 @@ def run_analyze(a):
     if not a.irs:
         raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
     with progress_bar("analysing", quiet=a.quiet) as progress:
-        res = analyze_study(a.irs, bands=a.bands, filtering=a.filtering,
-                            calibration=a.calibration, json_path=a.json, csv_path=a.csv,
-                            report_dir=a.report, force=a.force, progress=progress)
+        res = analyze_study(
+            a.irs,
+            bands=a.bands,
+            filtering=a.filtering,
+            calibration=a.calibration,
+            json_path=a.json,
+            csv_path=a.csv,
+            report_dir=a.report,
+            force=a.force,
+            progress=progress,
+        )
     if not a.quiet:
         show_study(res.study.document)
     for p in res.written:
@@ -75,17 +95,28 @@ def _run_study(a):
     """``analyze --study``: the responses a study file names; the report as HTML and PDF."""
     from ..jobs.study import report_study
     from ..report.pdf import pdf_engine_problem
+
     if a.irs:
-        raise InputError("analyze: give either IR.wav files or --study, not both (the study "
-                         "file lists its responses)")
+        raise InputError(
+            "analyze: give either IR.wav files or --study, not both (the study "
+            "file lists its responses)"
+        )
     if a.report is not None:
         problem = pdf_engine_problem()
         if problem is not None:
             raise InputError(f"--report: cannot write the PDF: {problem}")
     with progress_bar("analysing", quiet=a.quiet) as progress:
-        res = report_study(a.study, bands=a.bands, filtering=a.filtering,
-                           calibration=a.calibration, json_path=a.json, csv_path=a.csv,
-                           report_dir=a.report, force=a.force, progress=progress)
+        res = report_study(
+            a.study,
+            bands=a.bands,
+            filtering=a.filtering,
+            calibration=a.calibration,
+            json_path=a.json,
+            csv_path=a.csv,
+            report_dir=a.report,
+            force=a.force,
+            progress=progress,
+        )
     doc = res.document
     if not a.quiet:
         show_study(doc)
@@ -97,29 +128,63 @@ def _run_study(a):
 
 
 def configure_analyze(p):
-    p.add_argument("irs", nargs="*", type=Path, metavar="IR.wav",
-                   help="impulse responses; every channel is its own position (or --study)")
-    p.add_argument("--study", type=Path, default=None, metavar="STUDY.toml",
-                   help="a study file (see 'roomconv study init'): its responses, positions "
-                        "and details; with --report, DIR/report.html and DIR/report.pdf")
-    p.add_argument("--bands", choices=("octave", "third"), default="octave",
-                   help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands")
-    p.add_argument("--json", type=Path, default=None, metavar="OUT.json",
-                   help="write all results as JSON")
+    p.add_argument(
+        "irs",
+        nargs="*",
+        type=Path,
+        metavar="IR.wav",
+        help="impulse responses; every channel is its own position (or --study)",
+    )
+    p.add_argument(
+        "--study",
+        type=Path,
+        default=None,
+        metavar="STUDY.toml",
+        help="a study file (see 'roomconv study init'): its responses, positions "
+        "and details; with --report, DIR/report.html and DIR/report.pdf",
+    )
+    p.add_argument(
+        "--bands",
+        choices=("octave", "third"),
+        default="octave",
+        help="octave (31.5 Hz-16 kHz) or third-octave (25 Hz-20 kHz) bands",
+    )
+    p.add_argument(
+        "--json", type=Path, default=None, metavar="OUT.json", help="write all results as JSON"
+    )
     p.add_argument("--csv", type=Path, default=None, metavar="OUT.csv", help="write a CSV table")
-    p.add_argument("--report", type=Path, default=None, metavar="DIR",
-                   help="write DIR/report.html with tables and plots")
-    p.add_argument("--calibration", default=None, metavar="FILE.json|DB",
-                   help="strength reference for G: a file from 'roomconv calibrate' (per band), "
-                        "or one number, 10 lg(∫p² dt) of the source at 10 m in a free field in "
-                        "full-scale²·s, which gives the wideband G only")
-    p.add_argument("--filtering", choices=("auto", "forward", "reverse"), default="auto",
-                   help="band filtering: auto (default: backwards in time for decay times, "
-                        "zero-phase for C50/C80/D50/Ts, which keeps the filter's own response "
-                        "out of both); forward or reverse use one filter for everything, only "
-                        "for comparison with other methods")
+    p.add_argument(
+        "--report",
+        type=Path,
+        default=None,
+        metavar="DIR",
+        help="write DIR/report.html with tables and plots",
+    )
+    p.add_argument(
+        "--calibration",
+        default=None,
+        metavar="FILE.json|DB",
+        help="strength reference for G: a file from 'roomconv calibrate' (per band), "
+        "or one number, 10 lg(∫p² dt) of the source at 10 m in a free field in "
+        "full-scale²·s, which gives the wideband G only",
+    )
+    p.add_argument(
+        "--filtering",
+        choices=("auto", "forward", "reverse"),
+        default="auto",
+        help="band filtering: auto (default: backwards in time for decay times, "
+        "zero-phase for C50/C80/D50/Ts, which keeps the filter's own response "
+        "out of both); forward or reverse use one filter for everything, only "
+        "for comparison with other methods",
+    )
     p.add_argument("--force", action="store_true", help="replace existing outputs")
 
 
-COMMANDS = [Command("analyze", "room-acoustic parameters (ISO 3382) of impulse responses",
-                    configure_analyze, run_analyze)]
+COMMANDS = [
+    Command(
+        "analyze",
+        "room-acoustic parameters (ISO 3382) of impulse responses",
+        configure_analyze,
+        run_analyze,
+    )
+]

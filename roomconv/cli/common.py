@@ -11,8 +11,18 @@ from pathlib import Path
 from .. import safety
 from ..errors import InputError
 
-__all__ = ["Command", "Parser", "common_options", "opt", "budget", "device_spec", "out", "note",
-           "confirm_caution", "settings_of"]
+__all__ = [
+    "Command",
+    "Parser",
+    "common_options",
+    "opt",
+    "budget",
+    "device_spec",
+    "out",
+    "note",
+    "confirm_caution",
+    "settings_of",
+]
 
 
 class Command:
@@ -38,26 +48,31 @@ class Parser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
 
 
-def common_options(suppress: bool = False) -> argparse.ArgumentParser:
+def common_options(suppress: bool = False) -> Parser:
     """``--debug`` and ``--quiet``, before or after the sub-command."""
     # Sub-command parsers must not reset a --debug given before the sub-command, so there
     # the options have no default of their own.
     kw: dict = {"default": argparse.SUPPRESS} if suppress else {}
-    p = argparse.ArgumentParser(add_help=False)
+    # A parent parser only lends its options; it is a Parser because the sub-command
+    # parsers it is given to are.
+    p = Parser(add_help=False)
     p.add_argument("--debug", action="store_true", help="show tracebacks on errors", **kw)
-    p.add_argument("--quiet", action="store_true",
-                   help="no progress bars or reports on stdout", **kw)
+    p.add_argument(
+        "--quiet", action="store_true", help="no progress bars or reports on stdout", **kw
+    )
     return p
 
 
 def opt(check, *cargs, **ckw):
     """An argparse ``type=`` built from a :mod:`roomconv.validate` check; argparse puts the
     option's name in front of the check's message."""
+
     def conv(text):
         try:
             return check(text, *cargs, **ckw)
         except InputError as exc:
             raise argparse.ArgumentTypeError(str(exc)) from None
+
     conv.__name__ = getattr(check, "__name__", "value")
     return conv
 
@@ -91,21 +106,26 @@ def note(msg: str) -> None:
 def confirm_caution(args):
     """A confirmation callable for the jobs that play sound: shows the hearing and equipment
     caution, then requires ``--yes`` or a typed 'yes' on a terminal."""
+
     def confirm() -> None:
         print(safety.caution_text(), file=sys.stderr)
         if args.yes:
             return
         if not sys.stdin.isatty():
-            raise InputError("sound would be played: read the caution above and pass --yes "
-                             "to confirm (no terminal to ask on)")
+            raise InputError(
+                "sound would be played: read the caution above and pass --yes "
+                "to confirm (no terminal to ask on)"
+            )
         reply = input("Type 'yes' to play the signal: ").strip().lower()
         if reply != "yes":
             raise InputError("measurement cancelled: the caution was not confirmed")
+
     return confirm
 
 
 def settings_of(args) -> dict:
     """The options of a run as plain values, for a provenance sidecar."""
     skip = {"func", "debug", "quiet", "force"}
-    return {k: (str(v) if isinstance(v, Path) else v) for k, v in vars(args).items()
-            if k not in skip}
+    return {
+        k: (str(v) if isinstance(v, Path) else v) for k, v in vars(args).items() if k not in skip
+    }

@@ -12,6 +12,7 @@ __all__ = ["COMMANDS"]
 
 def run_demo_command(a):
     from ..demo import run_demo
+
     with progress_bar("demo", quiet=a.quiet) as progress:
         summary = run_demo(a.out, quick=a.quick, force=a.force, progress=progress, log=note)
     if a.quiet:
@@ -19,19 +20,42 @@ def run_demo_command(a):
 
     def fmt(v, f):
         return "—" if v is None else f.format(v)
-    rows = [[name, fmt(v["t30_mid_s"], "{:.2f}"), fmt(v["edt_mid_s"], "{:.2f}"),
-             fmt(v["c80_mid_db"], "{:+.1f}"), fmt(v["d50_mid"], "{:.2f}"),
-             summary["quality"][name]] for name, v in summary["positions"].items()]
+
+    rows = [
+        [
+            name,
+            fmt(v["t30_mid_s"], "{:.2f}"),
+            fmt(v["edt_mid_s"], "{:.2f}"),
+            fmt(v["c80_mid_db"], "{:+.1f}"),
+            fmt(v["d50_mid"], "{:.2f}"),
+            summary["quality"][name],
+        ]
+        for name, v in summary["positions"].items()
+    ]
     avg = summary["average"]
-    rows.append(["average", fmt(avg["t30_mid_s"], "{:.2f}"), fmt(avg["edt_mid_s"], "{:.2f}"),
-                 fmt(avg["c80_mid_db"], "{:+.1f}"), fmt(avg["d50_mid"], "{:.2f}"), ""])
-    print_table(["position", "T30 s", "EDT s", "C80 dB", "D50", "quality"], rows,
-                title="Quillmere Hall (demo) — mid-frequency figures (500 Hz / 1 kHz)",
-                right=(1, 2, 3, 4))
+    rows.append(
+        [
+            "average",
+            fmt(avg["t30_mid_s"], "{:.2f}"),
+            fmt(avg["edt_mid_s"], "{:.2f}"),
+            fmt(avg["c80_mid_db"], "{:+.1f}"),
+            fmt(avg["d50_mid"], "{:.2f}"),
+            "",
+        ]
+    )
+    print_table(
+        ["position", "T30 s", "EDT s", "C80 dB", "D50", "quality"],
+        rows,
+        title="Quillmere Hall (demo) — mid-frequency figures (500 Hz / 1 kHz)",
+        right=(1, 2, 3, 4),
+    )
     dev = summary["t30_vs_eyring_pct"]
     if dev:
-        out(f"measured T30 against the Eyring prediction: {dev[0]:+.1f} % to {dev[1]:+.1f} % "
-            "across bands", a)
+        out(
+            f"measured T30 against the Eyring prediction: {dev[0]:+.1f} % to {dev[1]:+.1f} % "
+            "across bands",
+            a,
+        )
     out(f"done in {summary['seconds']:.1f} s; files:", a)
     for p in summary["files"]:
         out(f"  {p}", a)
@@ -44,5 +68,8 @@ def configure_demo(p):
     p.add_argument("--force", action="store_true", help="overwrite the demo's earlier files")
 
 
-COMMANDS = [Command("demo", "run the built-in room study on our own demo hall",
-                    configure_demo, run_demo_command)]
+COMMANDS = [
+    Command(
+        "demo", "run the built-in room study on our own demo hall", configure_demo, run_demo_command
+    )
+]

@@ -17,6 +17,7 @@ PIPE_WIDTH = 160
 
 def _stderr_console():
     from rich.console import Console
+
     return Console(file=sys.stderr)
 
 
@@ -33,22 +34,34 @@ def progress_bar(label: str, *, quiet: bool = False) -> Iterator:
         TextColumn,
         TimeRemainingColumn,
     )
+
     console = _stderr_console()
     live = console.is_terminal and not quiet
-    with Progress(TextColumn("{task.description}"), BarColumn(), TaskProgressColumn(),
-                  TimeRemainingColumn(), console=console, transient=True,
-                  disable=not live) as bar:
+    with Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        TaskProgressColumn(),
+        TimeRemainingColumn(),
+        console=console,
+        transient=True,
+        disable=not live,
+    ) as bar:
         task = bar.add_task(label, total=1.0)
 
         def update(stage: str, fraction: float, message: str | None = None) -> None:
-            bar.update(task, completed=max(0.0, min(1.0, fraction)),
-                       description=f"{label} · {stage}" if stage else label)
+            bar.update(
+                task,
+                completed=max(0.0, min(1.0, fraction)),
+                description=f"{label} · {stage}" if stage else label,
+            )
             if message:
                 if live:
-                    bar.console.print(f"roomconv: {message}", markup=False, highlight=False,
-                                      soft_wrap=True)
+                    bar.console.print(
+                        f"roomconv: {message}", markup=False, highlight=False, soft_wrap=True
+                    )
                 else:
                     print(f"roomconv: {message}", file=sys.stderr)
+
         yield update
 
 
@@ -58,12 +71,18 @@ class BatchView:
 
     def __init__(self, total: int, *, quiet: bool = False):
         from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn
+
         self.console = _stderr_console()
         self.live = self.console.is_terminal and not quiet
         self.total, self.finished = total, 0
-        self.bars = Progress(TextColumn("{task.description}"), BarColumn(),
-                             TaskProgressColumn(), console=self.console, transient=True,
-                             disable=not self.live)
+        self.bars = Progress(
+            TextColumn("{task.description}"),
+            BarColumn(),
+            TaskProgressColumn(),
+            console=self.console,
+            transient=True,
+            disable=not self.live,
+        )
         self.overall = self.bars.add_task(f"all jobs (0/{total})", total=max(total, 1))
         self.tasks: dict[str, Any] = {}
 
@@ -90,25 +109,40 @@ class BatchView:
             line = f"[{self.finished}/{self.total}] {word} {payload.job.name}"
             if payload.message:
                 line += f": {payload.message}"
-            self.bars.update(self.overall, completed=self.finished,
-                             description=f"all jobs ({self.finished}/{self.total})")
+            self.bars.update(
+                self.overall,
+                completed=self.finished,
+                description=f"all jobs ({self.finished}/{self.total})",
+            )
             if self.live:
                 self.bars.console.print(line, markup=False, highlight=False, soft_wrap=True)
             else:
                 print(line, file=sys.stderr)
 
 
-def print_table(headers: Sequence[str], rows: Sequence[Sequence[str]], *,
-                title: str | None = None, right: Sequence[int] = ()) -> None:
+def print_table(
+    headers: Sequence[str],
+    rows: Sequence[Sequence[str]],
+    *,
+    title: str | None = None,
+    right: Sequence[int] = (),
+) -> None:
     """A table on stdout; columns whose index is in ``right`` are right-aligned."""
     from rich import box
     from rich.console import Console
     from rich.table import Table
+
     console = Console(file=sys.stdout)
     if not console.is_terminal:
         console = Console(file=sys.stdout, width=PIPE_WIDTH, no_color=True)
-    t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", highlight=False,
-              pad_edge=False, show_edge=False)
+    t = Table(
+        title=title,
+        box=box.SIMPLE_HEAD,
+        title_justify="left",
+        highlight=False,
+        pad_edge=False,
+        show_edge=False,
+    )
     for k, h in enumerate(headers):
         t.add_column(h, justify="right" if k in right else "left", no_wrap=True)
     for r in rows:

@@ -17,19 +17,30 @@ __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
 
 def command_groups() -> list:
     """Every command, in the order ``--help`` lists them (registered here, not on import)."""
-    return [*measure.COMMANDS, *analysis.COMMANDS, *calibrate.COMMANDS, *synth.COMMANDS,
-            *render.COMMANDS, *study.COMMANDS, *demo.COMMANDS, *workbench.COMMANDS]
+    return [
+        *measure.COMMANDS,
+        *analysis.COMMANDS,
+        *calibrate.COMMANDS,
+        *synth.COMMANDS,
+        *render.COMMANDS,
+        *study.COMMANDS,
+        *demo.COMMANDS,
+        *workbench.COMMANDS,
+    ]
 
 
 def build_parser() -> argparse.ArgumentParser:
     parser = Parser(
-        prog="roomconv", parents=[common_options()],
-        description="Measure, analyse, synthesize and render through room impulse responses.")
+        prog="roomconv",
+        parents=[common_options()],
+        description="Measure, analyse, synthesize and render through room impulse responses.",
+    )
     parser.add_argument("--version", action="version", version=f"roomconv {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for cmd in command_groups():
-        p = sub.add_parser(cmd.name, help=cmd.help, description=cmd.help,
-                           parents=[common_options(True)])  # type: ignore[list-item]
+        p = sub.add_parser(
+            cmd.name, help=cmd.help, description=cmd.help, parents=[common_options(True)]
+        )
         cmd.configure(p)
         p.set_defaults(func=cmd.run)
     return parser
@@ -49,6 +60,7 @@ _STOP_SIGNALS = ("SIGINT", "SIGTERM", "SIGHUP")
 
 def _ignore_stop_signals() -> None:
     import signal
+
     for name in _STOP_SIGNALS:
         sig = getattr(signal, name, None)
         if sig is not None:
@@ -66,6 +78,7 @@ def _install_signal_handlers() -> dict:
     128+n."""
     import signal
     import threading
+
     if threading.current_thread() is not threading.main_thread():
         return {}
     old = {}
@@ -78,6 +91,7 @@ def _install_signal_handlers() -> dict:
 
 def _restore_signal_handlers(old: dict) -> None:
     import signal
+
     for sig, handler in old.items():
         signal.signal(sig, handler)
 
@@ -92,6 +106,7 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     from .. import audio
+
     audio.reset_run_state()
     # The terminal workbench keeps its own key and signal handling.
     old = _install_signal_handlers() if args.command != "tui" else {}
@@ -110,11 +125,13 @@ def main(argv: list[str] | None = None) -> int:
 def _roll_back() -> None:
     """A command that fails half-way leaves none of its own files: what it wrote new goes."""
     from .. import audio
+
     audio.end_run(failed=True)
 
 
 def _run(args) -> int:
     import signal
+
     try:
         return int(args.func(args) or 0)
     except RoomconvError as exc:
@@ -128,14 +145,21 @@ def _run(args) -> int:
     except KeyboardInterrupt as exc:
         signum = getattr(exc, "signum", signal.SIGINT)
         from .. import audio
+
         audio.end_run()
-        print(f"roomconv: interrupted by {signal.Signals(signum).name}; unfinished files "
-              "removed, finished outputs kept", file=sys.stderr)
+        print(
+            f"roomconv: interrupted by {signal.Signals(signum).name}; unfinished files "
+            "removed, finished outputs kept",
+            file=sys.stderr,
+        )
         return 128 + int(signum)
     except Exception as exc:  # noqa: BLE001 - the last line of defence for users
         if args.debug:
             traceback.print_exc()
         _roll_back()
-        print(f"roomconv: internal error: {type(exc).__name__}: {exc} "
-              "(run again with --debug for details and report it)", file=sys.stderr)
+        print(
+            f"roomconv: internal error: {type(exc).__name__}: {exc} "
+            "(run again with --debug for details and report it)",
+            file=sys.stderr,
+        )
         return 1

@@ -17,41 +17,79 @@ __all__ = ["COMMANDS", "render_options", "settings_from_args", "describe_report"
 def render_options(p):
     v = validate
     g = p.add_argument_group("rendering")
-    g.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
-                   help="wet/dry: 0 dry only … 1 wet only (1). The response is first scaled "
-                        "to unit energy per output, so wet and dry are level-matched for "
-                        "broadband sound and the mix alone sets their balance "
-                        "(20·log10(mix/(1−mix)) dB, printed); see --keep-ir-level")
-    g.add_argument("--keep-ir-level", action="store_true",
-                   help="use the response at its own level (no unit-energy scaling); the "
-                        "wet/dry balance then also depends on the file's level")
-    g.add_argument("--predelay", type=opt(v.non_negative, "pre-delay", unit="ms"), default=0.0,
-                   metavar="MS",
-                   help="delay of the wet signal, ms (0; limited by a 2 GiB memory budget)")
-    g.add_argument("--gain", type=opt(v.in_range, "output gain", -100.0, 60.0, unit="dB"),
-                   default=0.0, metavar="DB", help="output gain, -100 to +60 dB (0)")
-    g.add_argument("--normalize", choices=("none", "peak", "truepeak", "loudness"),
-                   default=None,
-                   help="normalize the output (none; --target alone implies loudness)")
-    g.add_argument("--target", type=opt(v.in_range, "normalization target", -100.0, 0.0),
-                   default=None, metavar="VALUE",
-                   help="normalization target: dBFS (peak, -1), dBTP (truepeak, -1) or LUFS "
-                        "(loudness, -23); -100 to 0, loudness -60 to 0. Loudness is measured "
-                        "again after the gain and corrected until within ±0.05 LU. Given "
-                        "without --normalize it implies --normalize loudness (and says so)")
-    g.add_argument("--subtype", default="FLOAT",
-                   help="output sample format: FLOAT (default), DOUBLE, PCM_24, PCM_16 …; "
-                        "integer formats get TPDF dither")
-    g.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
-                   help="engine precision: auto = float32 (about -130 dB error, faster) "
-                        "unless --subtype DOUBLE, which computes in float64")
-    g.add_argument("--outputs", type=opt(v.count, "number of outputs", 1, 64), default=None,
-                   metavar="M",
-                   help="general matrix routing: the IR holds inputs×M channels, input-major")
-    g.add_argument("--shared", action="store_true",
-                   help="use the IR's first channel for every input")
-    g.add_argument("--no-tail", action="store_true",
-                   help="cut the output at the dry file's length (the tail is kept by default)")
+    g.add_argument(
+        "--mix",
+        type=opt(v.in_range, "wet/dry mix", 0.0, 1.0),
+        default=1.0,
+        help="wet/dry: 0 dry only … 1 wet only (1). The response is first scaled "
+        "to unit energy per output, so wet and dry are level-matched for "
+        "broadband sound and the mix alone sets their balance "
+        "(20·log10(mix/(1−mix)) dB, printed); see --keep-ir-level",
+    )
+    g.add_argument(
+        "--keep-ir-level",
+        action="store_true",
+        help="use the response at its own level (no unit-energy scaling); the "
+        "wet/dry balance then also depends on the file's level",
+    )
+    g.add_argument(
+        "--predelay",
+        type=opt(v.non_negative, "pre-delay", unit="ms"),
+        default=0.0,
+        metavar="MS",
+        help="delay of the wet signal, ms (0; limited by a 2 GiB memory budget)",
+    )
+    g.add_argument(
+        "--gain",
+        type=opt(v.in_range, "output gain", -100.0, 60.0, unit="dB"),
+        default=0.0,
+        metavar="DB",
+        help="output gain, -100 to +60 dB (0)",
+    )
+    g.add_argument(
+        "--normalize",
+        choices=("none", "peak", "truepeak", "loudness"),
+        default=None,
+        help="normalize the output (none; --target alone implies loudness)",
+    )
+    g.add_argument(
+        "--target",
+        type=opt(v.in_range, "normalization target", -100.0, 0.0),
+        default=None,
+        metavar="VALUE",
+        help="normalization target: dBFS (peak, -1), dBTP (truepeak, -1) or LUFS "
+        "(loudness, -23); -100 to 0, loudness -60 to 0. Loudness is measured "
+        "again after the gain and corrected until within ±0.05 LU. Given "
+        "without --normalize it implies --normalize loudness (and says so)",
+    )
+    g.add_argument(
+        "--subtype",
+        default="FLOAT",
+        help="output sample format: FLOAT (default), DOUBLE, PCM_24, PCM_16 …; "
+        "integer formats get TPDF dither",
+    )
+    g.add_argument(
+        "--precision",
+        choices=("auto", "float64", "float32"),
+        default="auto",
+        help="engine precision: auto = float32 (about -130 dB error, faster) "
+        "unless --subtype DOUBLE, which computes in float64",
+    )
+    g.add_argument(
+        "--outputs",
+        type=opt(v.count, "number of outputs", 1, 64),
+        default=None,
+        metavar="M",
+        help="general matrix routing: the IR holds inputs×M channels, input-major",
+    )
+    g.add_argument(
+        "--shared", action="store_true", help="use the IR's first channel for every input"
+    )
+    g.add_argument(
+        "--no-tail",
+        action="store_true",
+        help="cut the output at the dry file's length (the tail is kept by default)",
+    )
     g.add_argument("--no-dither", action="store_true", help="no dither for integer formats")
     g.add_argument("--force", action="store_true", help="replace existing outputs")
 
@@ -59,6 +97,7 @@ def render_options(p):
 def settings_from_args(a):
     """The render settings from the options; ``--target`` alone implies loudness."""
     from ..render.offline import LOUDNESS_TARGET_MIN, RenderSettings
+
     normalize = a.normalize
     if normalize is None:
         normalize = "none"
@@ -66,25 +105,46 @@ def settings_from_args(a):
             # A target nobody acts on would be silently ignored; loudness is what a bare
             # target most often means, and the note says so.
             normalize = "loudness"
-            note(f"--target {a.target:g} without --normalize: normalizing loudness to "
-                 f"{a.target:g} LUFS")
+            note(
+                f"--target {a.target:g} without --normalize: normalizing loudness to "
+                f"{a.target:g} LUFS"
+            )
     elif normalize == "none" and a.target is not None:
         raise InputError("--target: given with --normalize none; drop one of the two")
     if normalize == "loudness" and a.target is not None:
-        budget("--target", validate.in_range, a.target, "loudness target",
-               LOUDNESS_TARGET_MIN, 0.0, unit="LUFS")
-    return RenderSettings(mix=a.mix, predelay_ms=a.predelay, gain_db=a.gain,
-                          normalize=normalize, target=a.target, subtype=a.subtype.upper(),
-                          precision=a.precision, outputs=a.outputs, shared=a.shared,
-                          keep_tail=not a.no_tail, dither=not a.no_dither,
-                          match_ir_level=not a.keep_ir_level).check()
+        budget(
+            "--target",
+            validate.in_range,
+            a.target,
+            "loudness target",
+            LOUDNESS_TARGET_MIN,
+            0.0,
+            unit="LUFS",
+        )
+    return RenderSettings(
+        mix=a.mix,
+        predelay_ms=a.predelay,
+        gain_db=a.gain,
+        normalize=normalize,
+        target=a.target,
+        subtype=a.subtype.upper(),
+        precision=a.precision,
+        outputs=a.outputs,
+        shared=a.shared,
+        keep_tail=not a.no_tail,
+        dither=not a.no_dither,
+        match_ir_level=not a.keep_ir_level,
+    ).check()
 
 
 def describe_report(r) -> str:
     """One line on what a render wrote."""
     from ..render.mix import describe_balance
-    parts = [f"wrote {r.output}: {r.channels} channel(s), {r.frames / r.rate:.2f} s at "
-             f"{r.rate} Hz, routing {r.routing}, peak {r.peak_dbfs:+.1f} dBFS"]
+
+    parts = [
+        f"wrote {r.output}: {r.channels} channel(s), {r.frames / r.rate:.2f} s at "
+        f"{r.rate} Hz, routing {r.routing}, peak {r.peak_dbfs:+.1f} dBFS"
+    ]
     if r.true_peak_dbtp is not None:
         parts.append(f"true peak {r.true_peak_dbtp:+.1f} dBTP")
     if r.loudness_lufs is not None:
@@ -135,13 +195,24 @@ def run_batch(a):
     view = BatchView(len(a.dry) * len(a.ir), quiet=a.quiet)
     try:
         with view:
-            res = jobs.run_batch(a.dry, a.ir, a.out_dir, s, workers=a.workers,
-                                 scheduler=a.scheduler, force=a.force, on_event=view)
+            res = jobs.run_batch(
+                a.dry,
+                a.ir,
+                a.out_dir,
+                s,
+                workers=a.workers,
+                scheduler=a.scheduler,
+                force=a.force,
+                on_event=view,
+            )
     except InputError as exc:
         raise _named(exc) from None
     failed = res.failed
-    out(f"batch: {res.count('done')} rendered, {res.count('skipped')} already finished, "
-        f"{len(failed)} failed, {len(res.outcomes)} in all → {res.out_dir}", a)
+    out(
+        f"batch: {res.count('done')} rendered, {res.count('skipped')} already finished, "
+        f"{len(failed)} failed, {len(res.outcomes)} in all → {res.out_dir}",
+        a,
+    )
     for o in failed:
         hint = " (pass --force to replace it)" if "other inputs or settings" in o.message else ""
         note(f"failed: {o.job.name}: {o.message}{hint}")
@@ -152,33 +223,54 @@ def configure_batch(p):
     p.add_argument("dry", nargs="+", type=Path, help="dry files")
     p.add_argument("--ir", nargs="+", type=Path, required=True, help="impulse responses")
     p.add_argument("--out-dir", type=Path, required=True, help="folder for <dry>__<ir>.wav")
-    p.add_argument("--workers", type=opt(validate.count, "number of workers", 1, 256),
-                   default=None, help="local processes, 1-256 (all cores)")
-    p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
-                   help="run on a Dask distributed cluster instead of local processes")
+    p.add_argument(
+        "--workers",
+        type=opt(validate.count, "number of workers", 1, 256),
+        default=None,
+        help="local processes, 1-256 (all cores)",
+    )
+    p.add_argument(
+        "--scheduler",
+        default=None,
+        metavar="tcp://HOST:PORT",
+        help="run on a Dask distributed cluster instead of local processes",
+    )
     render_options(p)
 
 
 def run_live(a):
     from ..render.mix import describe_balance
+
     budget("--ceiling", jobs.check_ceiling, a.ceiling)
-    setup = jobs.prepare_live(a.ir, rate_hz=a.rate, device=a.device, block_samples=a.block,
-                              input_channels=a.input_channels,
-                              output_channels=a.output_channels, mix=a.mix, gain_db=a.gain,
-                              ceiling_dbfs=a.ceiling, precision=a.precision,
-                              match_ir_level=not a.keep_ir_level)
+    setup = jobs.prepare_live(
+        a.ir,
+        rate_hz=a.rate,
+        device=a.device,
+        block_samples=a.block,
+        input_channels=a.input_channels,
+        output_channels=a.output_channels,
+        mix=a.mix,
+        gain_db=a.gain,
+        ceiling_dbfs=a.ceiling,
+        precision=a.precision,
+        match_ir_level=not a.keep_ir_level,
+    )
     confirm_caution(a)()
     proc, rate = setup.processor, setup.rate_hz
     n_st = len(proc.engine.stages)
-    note(f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
-         f"routing {proc.routing.name}, wet/dry balance {describe_balance(proc.wet_dry_db)}; "
-         "Ctrl-C stops")
+    note(
+        f"live: {proc.block}-sample blocks at {rate} Hz, {n_st} stage{'s' if n_st > 1 else ''}, "
+        f"routing {proc.routing.name}, wet/dry balance {describe_balance(proc.wet_dry_db)}; "
+        "Ctrl-C stops"
+    )
 
     def meter(st):
         if a.quiet:
             return
-        sys.stderr.write(f"\rin {st.in_peak_dbfs:6.1f} dBFS  out {st.out_peak_dbfs:6.1f} dBFS  "
-                         f"limiter {st.limiter_db:4.1f} dB  dropouts {st.dropouts}  ")
+        sys.stderr.write(
+            f"\rin {st.in_peak_dbfs:6.1f} dBFS  out {st.out_peak_dbfs:6.1f} dBFS  "
+            f"limiter {st.limiter_db:4.1f} dB  dropouts {st.dropouts}  "
+        )
         sys.stderr.flush()
 
     try:
@@ -188,51 +280,102 @@ def run_live(a):
             raise InputError(f"--output-channels: {exc}") from None
         raise
     per_block = proc.block / rate
-    out(f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
+    out(
+        f"\nlive: {st.frames / rate:.1f} s processed, {st.dropouts} dropouts, peak out "
         f"{st.out_peak_dbfs:.1f} dBFS, limiter max {st.limiter_db:.1f} dB, compute mean "
         f"{100 * st.compute.mean_s / per_block:.1f} % / p99 "
         f"{100 * st.compute.percentile_s(99) / per_block:.1f} % of a block"
-        + (f", {st.nonfinite} non-finite blocks silenced" if st.nonfinite else ""), a)
+        + (f", {st.nonfinite} non-finite blocks silenced" if st.nonfinite else ""),
+        a,
+    )
     return 0
 
 
 def configure_live(p):
     v = validate
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
-    p.add_argument("--block", type=opt(v.count, "block size", 32, 1024), default=128,
-                   help="block size, 32-1024 samples (128)")
-    p.add_argument("--rate", type=opt(v.sample_rate), default=None,
-                   help=f"sample rate, {v.RATE_MIN}-{v.RATE_MAX} Hz (the device's default)")
-    p.add_argument("--device", type=device_spec, default=None,
-                   help="PortAudio device: its index, or part of its name")
-    p.add_argument("--input-channels", type=opt(v.channel_list, "input channels"),
-                   default=(1,), help="inputs counting from 1, comma-separated (1)")
-    p.add_argument("--output-channels", type=opt(v.channel_list, "output channels"),
-                   default=(1,), help="outputs counting from 1 (1)")
-    p.add_argument("--mix", type=opt(v.in_range, "wet/dry mix", 0.0, 1.0), default=1.0,
-                   help="wet/dry 0..1 (1), on level-matched wet and dry as for render")
-    p.add_argument("--keep-ir-level", action="store_true",
-                   help="use the response at its own level (no unit-energy scaling)")
-    p.add_argument("--gain", type=opt(v.in_range, "output gain", -100.0, 20.0, unit="dB"),
-                   default=-6.0, help="output gain, -100 to +20 dB (-6); the output is "
-                                      "limited to the ceiling anyway")
-    p.add_argument("--ceiling", type=opt(v.in_range, "limiter ceiling", -60.0, -1.0,
-                                         unit="dBFS"),
-                   default=-1.0, help="limiter ceiling, -60 to -1 dBFS (-1)")
-    p.add_argument("--precision", choices=("auto", "float64", "float32"), default="auto",
-                   help="engine precision: auto = float32, as the sound card stream is "
-                        "float32 (about -135 dB error); float64 is exact to about -300 dB")
-    p.add_argument("--duration", type=opt(v.positive, "live duration", 86400.0, unit="s"),
-                   default=None, help="stop after S seconds (at most 86400)")
-    p.add_argument("--yes", action="store_true",
-                   help="confirm you have read the hearing and equipment caution")
+    p.add_argument(
+        "--block",
+        type=opt(v.count, "block size", 32, 1024),
+        default=128,
+        help="block size, 32-1024 samples (128)",
+    )
+    p.add_argument(
+        "--rate",
+        type=opt(v.sample_rate),
+        default=None,
+        help=f"sample rate, {v.RATE_MIN}-{v.RATE_MAX} Hz (the device's default)",
+    )
+    p.add_argument(
+        "--device",
+        type=device_spec,
+        default=None,
+        help="PortAudio device: its index, or part of its name",
+    )
+    p.add_argument(
+        "--input-channels",
+        type=opt(v.channel_list, "input channels"),
+        default=(1,),
+        help="inputs counting from 1, comma-separated (1)",
+    )
+    p.add_argument(
+        "--output-channels",
+        type=opt(v.channel_list, "output channels"),
+        default=(1,),
+        help="outputs counting from 1 (1)",
+    )
+    p.add_argument(
+        "--mix",
+        type=opt(v.in_range, "wet/dry mix", 0.0, 1.0),
+        default=1.0,
+        help="wet/dry 0..1 (1), on level-matched wet and dry as for render",
+    )
+    p.add_argument(
+        "--keep-ir-level",
+        action="store_true",
+        help="use the response at its own level (no unit-energy scaling)",
+    )
+    p.add_argument(
+        "--gain",
+        type=opt(v.in_range, "output gain", -100.0, 20.0, unit="dB"),
+        default=-6.0,
+        help="output gain, -100 to +20 dB (-6); the output is limited to the ceiling anyway",
+    )
+    p.add_argument(
+        "--ceiling",
+        type=opt(v.in_range, "limiter ceiling", -60.0, -1.0, unit="dBFS"),
+        default=-1.0,
+        help="limiter ceiling, -60 to -1 dBFS (-1)",
+    )
+    p.add_argument(
+        "--precision",
+        choices=("auto", "float64", "float32"),
+        default="auto",
+        help="engine precision: auto = float32, as the sound card stream is "
+        "float32 (about -135 dB error); float64 is exact to about -300 dB",
+    )
+    p.add_argument(
+        "--duration",
+        type=opt(v.positive, "live duration", 86400.0, unit="s"),
+        default=None,
+        help="stop after S seconds (at most 86400)",
+    )
+    p.add_argument(
+        "--yes", action="store_true", help="confirm you have read the hearing and equipment caution"
+    )
 
 
 COMMANDS = [
-    Command("render", "render a dry recording through an impulse response",
-            configure_render, run_render),
-    Command("batch", "render many dry files through many IRs (local pool or Dask cluster)",
-            configure_batch, run_batch),
-    Command("live", "convolve a sound-card input with an IR in real time",
-            configure_live, run_live),
+    Command(
+        "render", "render a dry recording through an impulse response", configure_render, run_render
+    ),
+    Command(
+        "batch",
+        "render many dry files through many IRs (local pool or Dask cluster)",
+        configure_batch,
+        run_batch,
+    ),
+    Command(
+        "live", "convolve a sound-card input with an IR in real time", configure_live, run_live
+    ),
 ]

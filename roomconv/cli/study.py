@@ -14,27 +14,41 @@ __all__ = ["COMMANDS"]
 def run_study(a):
     if a.action == "init":
         init_study(a.path, title=a.title, force=a.force)
-        out(f"wrote {a.path}: fill it in, then 'roomconv analyze --study {a.path} "
-            "--report DIR'", a)
+        out(f"wrote {a.path}: fill it in, then 'roomconv analyze --study {a.path} --report DIR'", a)
         return 0
     res = check_study(a.path)
     s = res.study
-    out(f"{a.path}: {s.title}; room {s.room.name}; {len(s.sources)} source(s), "
-        f"{len(s.receivers)} receiver(s), {len(s.responses)} response(s)", a)
+    out(
+        f"{a.path}: {s.title}; room {s.room.name}; {len(s.sources)} source(s), "
+        f"{len(s.receivers)} receiver(s), {len(s.responses)} response(s)",
+        a,
+    )
     if res.missing:
-        raise InputError(f"{a.path}: responses not found: {', '.join(res.missing)}; check the "
-                         "paths (relative to the study file)")
+        raise InputError(
+            f"{a.path}: responses not found: {', '.join(res.missing)}; check the "
+            "paths (relative to the study file)"
+        )
     return 0
 
 
 def configure_study(p):
-    p.add_argument("action", choices=("init", "check"),
-                   help="init: write a template; check: validate a study file and its paths")
+    p.add_argument(
+        "action",
+        choices=("init", "check"),
+        help="init: write a template; check: validate a study file and its paths",
+    )
     p.add_argument("path", type=Path, metavar="STUDY.toml", help="the study file")
-    p.add_argument("--title", default="Acoustic measurements",
-                   help="title written into the template (init)")
+    p.add_argument(
+        "--title", default="Acoustic measurements", help="title written into the template (init)"
+    )
     p.add_argument("--force", action="store_true", help="replace an existing file (init)")
 
 
-COMMANDS = [Command("study", "write a commented study file to fill in (init), or check one "
-                             "(check)", configure_study, run_study)]
+COMMANDS = [
+    Command(
+        "study",
+        "write a commented study file to fill in (init), or check one (check)",
+        configure_study,
+        run_study,
+    )
+]

@@ -10,6 +10,7 @@ __all__ = ["COMMANDS"]
 def run_tui(a):
     # Imported here: the workbench needs Textual, which the other commands do not load.
     from tui.app import main as tui_main
+
     return tui_main([])
 
 

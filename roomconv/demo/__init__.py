@@ -8,5 +8,14 @@ each a call into :mod:`roomconv.jobs`; the ``demo`` command presents the summary
 from .scenario import CHAIN, FULL, QUICK, RATE_HZ, SEED, Scenario, demo_clip, quillmere_hall
 from .steps import run_demo
 
-__all__ = ["CHAIN", "FULL", "QUICK", "RATE_HZ", "SEED", "Scenario", "demo_clip", "quillmere_hall",
-           "run_demo"]
+__all__ = [
+    "CHAIN",
+    "FULL",
+    "QUICK",
+    "RATE_HZ",
+    "SEED",
+    "Scenario",
+    "demo_clip",
+    "quillmere_hall",
+    "run_demo",
+]

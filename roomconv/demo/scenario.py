@@ -12,8 +12,18 @@ import numpy as np
 
 from ..signal import db_to_gain
 
-__all__ = ["Scenario", "FULL", "QUICK", "RATE_HZ", "SEED", "quillmere_hall", "pink_noise",
-           "demo_clip", "SOURCE_CLIPS", "CHAIN"]
+__all__ = [
+    "Scenario",
+    "FULL",
+    "QUICK",
+    "RATE_HZ",
+    "SEED",
+    "quillmere_hall",
+    "pink_noise",
+    "demo_clip",
+    "SOURCE_CLIPS",
+    "CHAIN",
+]
 
 #: The dry clips' source folder in a checkout (demo_audio/, beside the script that made them).
 #: A built wheel carries the same files as the package data ``roomconv.demo_audio``.
@@ -32,11 +42,18 @@ class Scenario:
     clips: tuple
 
 
-FULL = Scenario(sources=((4.0, 7.5, 1.6), (4.0, 4.0, 1.6)),
-                receivers=((12.0, 5.0, 1.2), (17.5, 10.0, 1.2), (22.5, 6.5, 1.2)),
-                sweep_s=5.0, clips=("plucks.wav", "claps.wav", "speech.wav"))
-QUICK = Scenario(sources=((4.0, 7.5, 1.6),), receivers=((12.0, 5.0, 1.2), (17.5, 10.0, 1.2)),
-                 sweep_s=3.0, clips=("plucks.wav",))
+FULL = Scenario(
+    sources=((4.0, 7.5, 1.6), (4.0, 4.0, 1.6)),
+    receivers=((12.0, 5.0, 1.2), (17.5, 10.0, 1.2), (22.5, 6.5, 1.2)),
+    sweep_s=5.0,
+    clips=("plucks.wav", "claps.wav", "speech.wav"),
+)
+QUICK = Scenario(
+    sources=((4.0, 7.5, 1.6),),
+    receivers=((12.0, 5.0, 1.2), (17.5, 10.0, 1.2)),
+    sweep_s=3.0,
+    clips=("plucks.wav",),
+)
 
 
 @dataclass(frozen=True)
@@ -81,14 +98,26 @@ def quillmere_hall():
     """26 × 15 × 6 m (2,340 m³): plastered walls, a glazed side wall, a timber-panelled stage
     wall and timber floor, 220 m² of upholstered seating (empty), plaster ceiling."""
     from ..synth.room import Patch, RoomModel
-    return RoomModel(26.0, 15.0, 6.0,
-                     {"left": "plaster", "right": "glass-heavy", "front": "wood-panel",
-                      "back": "plaster", "floor": "wood-floor", "ceiling": "plaster"},
-                     patches=(Patch("floor", "seats-upholstered-empty", 220.0),))
+
+    return RoomModel(
+        26.0,
+        15.0,
+        6.0,
+        {
+            "left": "plaster",
+            "right": "glass-heavy",
+            "front": "wood-panel",
+            "back": "plaster",
+            "floor": "wood-floor",
+            "ceiling": "plaster",
+        },
+        patches=(Patch("floor", "seats-upholstered-empty", 220.0),),
+    )
 
 
-def pink_noise(n: int, rng: np.random.Generator, level_dbfs: float,
-               rate_hz: int = RATE_HZ) -> np.ndarray:
+def pink_noise(
+    n: int, rng: np.random.Generator, level_dbfs: float, rate_hz: int = RATE_HZ
+) -> np.ndarray:
     """Stationary pink (1/f) noise with an HVAC-like low-frequency bump, at an RMS level."""
     nfft = 1 << int(np.ceil(np.log2(n)))
     f = np.fft.rfftfreq(nfft, 1.0 / rate_hz)

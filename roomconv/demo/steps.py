@@ -52,28 +52,40 @@ class _Run:
         self.progress(stage, self.done / self.total, None)
 
 
-def run_demo(out, *, quick: bool = False, force: bool = False,
-             progress: ProgressCallback = silent, log=print) -> dict:
+def run_demo(
+    out, *, quick: bool = False, force: bool = False, progress: ProgressCallback = silent, log=print
+) -> dict:
     """Run the whole study into ``out``; returns a summary dict (also written as
     ``summary.json``). ``log`` receives notes (a missing clip)."""
     from ..jobs.guard import make_folders, write_document
     from ..measure.sweep import Sweep
+
     sc = QUICK if quick else FULL
     t_start = time.monotonic()
     out = Path(out)
     if out.exists() and not out.is_dir():
-        raise InputError(f"{out}: exists and is not a folder; give a folder for the demo's "
-                         "files")
+        raise InputError(f"{out}: exists and is not a folder; give a folder for the demo's files")
     if out.exists() and any(out.iterdir()) and not force:
         raise OutputExistsError(f"{out}: folder is not empty (nothing was replaced)")
     make_folders(out, *(out / sub for sub in ("irs", "harmonics", "renders", "recordings")))
-    sweep = Sweep(rate=RATE_HZ, f_low=20, f_high=20000, duration=sc.sweep_s,
-                  level_dbfs=CHAIN.sweep_level_dbfs, silence_pre=CHAIN.silence_pre_s,
-                  silence_post=CHAIN.silence_post_s)
+    sweep = Sweep(
+        rate=RATE_HZ,
+        f_low=20,
+        f_high=20000,
+        duration=sc.sweep_s,
+        level_dbfs=CHAIN.sweep_level_dbfs,
+        silence_pre=CHAIN.silence_pre_s,
+        silence_post=CHAIN.silence_post_s,
+    )
     n_pos = len(sc.sources) * len(sc.receivers)
-    run = _Run(sc, out, force, progress,
-               {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
-               total=n_pos * 2 + 3 + len(sc.clips) + 1)
+    run = _Run(
+        sc,
+        out,
+        force,
+        progress,
+        {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
+        total=n_pos * 2 + 3 + len(sc.clips) + 1,
+    )
     room = quillmere_hall()
     truths = true_responses(run, room)
     qualities = measure_positions(run, truths, sweep)
@@ -91,11 +103,13 @@ def run_demo(out, *, quick: bool = False, force: bool = False,
 def true_responses(run: _Run, room) -> dict:
     """1. The hall's own responses at every position (what a real hall would be)."""
     from ..synth.generate import synthesize
+
     truths = {}
     for si, src in enumerate(run.scenario.sources, 1):
         for ri, rcv in enumerate(run.scenario.receivers, 1):
-            res = synthesize(room, src, rcv, rate=RATE_HZ, seed=SEED + 10 * si + ri,
-                             length_s=CHAIN.true_length_s)
+            res = synthesize(
+                room, src, rcv, rate=RATE_HZ, seed=SEED + 10 * si + ri, length_s=CHAIN.true_length_s
+            )
             truths[(si, ri)] = res.ir[:, 0]
             run.step(f"hall S{si}R{ri}")
     return truths
@@ -107,23 +121,33 @@ def measure_positions(run: _Run, truths: dict, sweep) -> dict:
     from ..jobs.measure import measure_position
     from ..measure.capture import SimulatedDevice
     from ..measure.sweep import sweep_signal
+
     rng = np.random.default_rng(SEED)
     n_rec = sweep_signal(sweep).size + int(0.5 * RATE_HZ)
     qualities = {}
     for (si, ri), h in truths.items():
         name = f"S{si}R{ri}"
-        device = SimulatedDevice(h, latency_samples=CHAIN.latency_samples, loopback=True,
-                                 distortion=CHAIN.distortion,
-                                 noise=pink_noise(n_rec, rng, CHAIN.noise_dbfs))
+        device = SimulatedDevice(
+            h,
+            latency_samples=CHAIN.latency_samples,
+            loopback=True,
+            distortion=CHAIN.distortion,
+            noise=pink_noise(n_rec, rng, CHAIN.noise_dbfs),
+        )
         first = (si, ri) == (1, 1)
         res = measure_position(
-            run.out / "irs" / f"{name}.wav", sweep, simulated_device=device,
-            reference_channel=2, length_s=CHAIN.measured_length_s,
+            run.out / "irs" / f"{name}.wav",
+            sweep,
+            simulated_device=device,
+            reference_channel=2,
+            length_s=CHAIN.measured_length_s,
             harmonics_dir=run.out / "harmonics" if first else None,
             save_recording=run.out / "recordings" / f"{name}_recording.wav" if first else None,
             json_path=run.out / "irs" / f"{name}.quality.json",
-            harmonic_provenance=True, force=run.force,
-            settings={**run.settings, "position": name})
+            harmonic_provenance=True,
+            force=run.force,
+            settings={**run.settings, "position": name},
+        )
         qualities[name] = res.quality
         run.step(f"measure {name}")
     return qualities
@@ -133,6 +157,7 @@ def analyse_positions(run: _Run, room, qualities: dict):
     """3. ISO 3382 analysis of every measured position, compared with the prediction."""
     from ..jobs.analyze import analyze_study
     from ..synth.room import eyring, sabine
+
     files = [run.out / "irs" / f"{n}.wav" for n in qualities]
     study = analyze_study(files, bands="octave").study
     # Files are named relative to the demo folder, as the report shows them.
@@ -142,17 +167,25 @@ def analyse_positions(run: _Run, room, qualities: dict):
     pred_e, pred_s = eyring(room), sabine(room)
     doc = study.document
     doc["settings"].update(run.settings)
-    doc["prediction"] = {"eyring_s": {str(b): v for b, v in pred_e.items()},
-                         "sabine_s": {str(b): v for b, v in pred_s.items()}}
+    doc["prediction"] = {
+        "eyring_s": {str(b): v for b, v in pred_e.items()},
+        "sabine_s": {str(b): v for b, v in pred_s.items()},
+    }
     doc["quality"] = {n: _verdict(q) for n, q in qualities.items()}
     comparison = []
     for r in doc["average"]["bands"]:
         b = int(r["band_hz"]) if r["band_hz"] >= 63 else None
         m = r["t30_s"]["mean"]
         if b in pred_e and m is not None:
-            comparison.append({"band_hz": r["band_hz"], "measured_t30_s": m,
-                               "eyring_s": pred_e[b], "sabine_s": pred_s[b],
-                               "deviation_pct": 100 * (m / pred_e[b] - 1)})
+            comparison.append(
+                {
+                    "band_hz": r["band_hz"],
+                    "measured_t30_s": m,
+                    "eyring_s": pred_e[b],
+                    "sabine_s": pred_s[b],
+                    "deviation_pct": 100 * (m / pred_e[b] - 1),
+                }
+            )
     doc["measured_vs_predicted"] = comparison
     run.step("analyse")
     return study, comparison
@@ -161,17 +194,31 @@ def analyse_positions(run: _Run, room, qualities: dict):
 def stereo_pairs(run: _Run, room) -> dict:
     """4. A measured stereo pair (two microphones of source 1) and its synthetic twin."""
     from ..jobs.synth import pair_responses, synthesize_room
+
     sc = run.scenario
-    measured = pair_responses(run.out / "irs" / "S1R1.wav", run.out / "irs" / "S1R2.wav",
-                              run.out / "irs" / "measured.wav", force=run.force,
-                              settings={**run.settings,
-                                        "what": "S1R1 (left) and S1R2 (right) as a pair"})
+    measured = pair_responses(
+        run.out / "irs" / "S1R1.wav",
+        run.out / "irs" / "S1R2.wav",
+        run.out / "irs" / "measured.wav",
+        force=run.force,
+        settings={**run.settings, "what": "S1R1 (left) and S1R2 (right) as a pair"},
+    )
     predicted = run.out / "irs" / "predicted.wav"
-    synthesize_room(predicted, room, source_m=sc.sources[0], receiver_m=sc.receivers[0],
-                    rate_hz=RATE_HZ, stereo=f"spaced:{CHAIN.pair_spacing_m:g}", seed=SEED,
-                    length_s=CHAIN.measured_length_s, force=run.force,
-                    settings={**run.settings, "what": "synthetic prediction, spaced pair "
-                              f"{CHAIN.pair_spacing_m:g} m at R1"})
+    synthesize_room(
+        predicted,
+        room,
+        source_m=sc.sources[0],
+        receiver_m=sc.receivers[0],
+        rate_hz=RATE_HZ,
+        stereo=f"spaced:{CHAIN.pair_spacing_m:g}",
+        seed=SEED,
+        length_s=CHAIN.measured_length_s,
+        force=run.force,
+        settings={
+            **run.settings,
+            "what": f"synthetic prediction, spaced pair {CHAIN.pair_spacing_m:g} m at R1",
+        },
+    )
     run.step("stereo pairs")
     return {"measured": measured, "predicted": predicted}
 
@@ -181,8 +228,10 @@ def render_clips(run: _Run, pairs: dict) -> list:
     from ..jobs.naming import render_output_name
     from ..jobs.render import render_one
     from ..render.offline import RenderSettings
-    rs = RenderSettings(mix=CHAIN.mix, normalize="truepeak", target=-1.0, subtype="PCM_24",
-                        match_ir_level=True)
+
+    rs = RenderSettings(
+        mix=CHAIN.mix, normalize="truepeak", target=-1.0, subtype="PCM_24", match_ir_level=True
+    )
     renders = []
     for clip in run.scenario.clips:
         dry = demo_clip(clip)
@@ -203,14 +252,23 @@ def write_report(run: _Run, room, sweep, study, comparison, renders) -> None:
     """6. results.json, results.csv and report.html, with one provenance sidecar each."""
     from ..jobs.analyze import write_study
     from ..synth.room import eyring, sabine
-    sections = _report_sections(room, sweep, study.document["quality"], comparison, renders,
-                                run.out)
-    extra = {"Eyring prediction": {float(b): v for b, v in eyring(room).items()},
-             "Sabine prediction": {float(b): v for b, v in sabine(room).items()}}
-    write_study(study, json_path=run.out / "results.json", csv_path=run.out / "results.csv",
-                report_file=run.out / "report.html",
-                report_options={"title": TITLE, "sections": sections, "extra_series": extra},
-                provenance={**run.settings, "sweep": sweep.to_dict()}, force=run.force)
+
+    sections = _report_sections(
+        room, sweep, study.document["quality"], comparison, renders, run.out
+    )
+    extra = {
+        "Eyring prediction": {float(b): v for b, v in eyring(room).items()},
+        "Sabine prediction": {float(b): v for b, v in sabine(room).items()},
+    }
+    write_study(
+        study,
+        json_path=run.out / "results.json",
+        csv_path=run.out / "results.csv",
+        report_file=run.out / "report.html",
+        report_options={"title": TITLE, "sections": sections, "extra_series": extra},
+        provenance={**run.settings, "sweep": sweep.to_dict()},
+        force=run.force,
+    )
     client_report(run, room, sweep)
     run.step("report")
 
@@ -219,23 +277,32 @@ def client_report(run: _Run, room, sweep) -> list[Path]:
     """6b. The study file and the client report (report/report.html and .pdf) from it, as a
     consultant sends them; the HTML alone, saying why, where no PDF engine is installed."""
     from ..jobs.study import report_study, write_study_file
-    study_file = write_study_file(run.out / "study.toml", _study_text(run.scenario, room, sweep),
-                                  force=run.force)
-    res = report_study(study_file, report_dir=run.out / "report", force=run.force,
-                       require_pdf=False)
+
+    study_file = write_study_file(
+        run.out / "study.toml", _study_text(run.scenario, room, sweep), force=run.force
+    )
+    res = report_study(
+        study_file, report_dir=run.out / "report", force=run.force, require_pdf=False
+    )
     run.notes.extend(f"note: {n}" for n in res.notes)
     return [study_file, *res.written]
 
 
 def _study_text(sc: Scenario, room, sweep) -> str:
-    pts = "".join(f'\n[[sources]]\nid = "S{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
-                  for i, (x, y, z) in enumerate(sc.sources, 1))
-    pts += "".join(f'\n[[receivers]]\nid = "R{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
-                   for i, (x, y, z) in enumerate(sc.receivers, 1))
-    resp = "".join(f'\n[[responses]]\nsource = "S{si}"\nreceiver = "R{ri}"\n'
-                   f'file = "irs/S{si}R{ri}.wav"\nquality_file = "irs/S{si}R{ri}.quality.json"\n'
-                   for si in range(1, len(sc.sources) + 1)
-                   for ri in range(1, len(sc.receivers) + 1))
+    pts = "".join(
+        f'\n[[sources]]\nid = "S{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+        for i, (x, y, z) in enumerate(sc.sources, 1)
+    )
+    pts += "".join(
+        f'\n[[receivers]]\nid = "R{i}"\nxy_m = [{x:g}, {y:g}]\nheight_m = {z:g}\n'
+        for i, (x, y, z) in enumerate(sc.receivers, 1)
+    )
+    resp = "".join(
+        f'\n[[responses]]\nsource = "S{si}"\nreceiver = "R{ri}"\n'
+        f'file = "irs/S{si}R{ri}.wav"\nquality_file = "irs/S{si}R{ri}.quality.json"\n'
+        for si in range(1, len(sc.sources) + 1)
+        for ri in range(1, len(sc.receivers) + 1)
+    )
     # Everything below is the demo's own invented scenario, including the client's target.
     return f"""# Quillmere Hall: a fictional hall, measured in simulation by `roomconv demo`.
 [study]
@@ -286,73 +353,125 @@ source = "the (fictional) client's brief"
 
 def _verdict(q: dict) -> dict:
     from ..measure.quality import REQUIRED_INR_DB
+
     inr = min(q["ir"]["inr_db"])
     clipped = sum(q["recording"]["clipped_samples"])
     if clipped:
         v = "fail: clipped recording"
     elif inr >= REQUIRED_INR_DB["t30"]:
-        v = ("pass: T30 evaluable (impulse-to-noise ratio (INR) "
-             f"≥ {REQUIRED_INR_DB['t30']:.0f} dB)")
+        v = f"pass: T30 evaluable (impulse-to-noise ratio (INR) ≥ {REQUIRED_INR_DB['t30']:.0f} dB)"
     elif inr >= REQUIRED_INR_DB["t20"]:
         v = "limited: T20 only"
     else:
         v = "fail: too noisy for decay times"
-    return {"verdict": v, "inr_db": inr, "clipped_samples": clipped,
-            "latency_samples": q.get("reference_latency_samples"),
-            "warnings": q.get("warnings", [])}
+    return {
+        "verdict": v,
+        "inr_db": inr,
+        "clipped_samples": clipped,
+        "latency_samples": q.get("reference_latency_samples"),
+        "warnings": q.get("warnings", []),
+    }
 
 
 def _report_sections(room, sweep, verdicts, comparison, renders, out):
     from ..analysis.report import _html_table
+
     surf = [[s, room.surfaces[s], f"{room.surface_area(s):.0f}"] for s in room.surfaces]
     surf += [[f"{p.surface} (part)", p.material, f"{p.area_m2:.0f}"] for p in room.patches]
-    desc = (f"<p>Quillmere Hall is a fictional multi-purpose hall invented for this demo: "
-            f"{room.length:g} × {room.width:g} × {room.height:g} m, V = {room.volume:.0f} m³, "
-            f"S = {room.total_area:.0f} m², 20 °C, 50 % RH. It is synthesized by roomconv's "
-            "image-source model with a diffuse tail whose decay time varies smoothly with "
-            "frequency and is fitted so that octave-band filters read the Eyring "
-            "prediction.</p>"
-            + _html_table(["surface", "material", "area m²"], surf))
+    desc = (
+        f"<p>Quillmere Hall is a fictional multi-purpose hall invented for this demo: "
+        f"{room.length:g} × {room.width:g} × {room.height:g} m, V = {room.volume:.0f} m³, "
+        f"S = {room.total_area:.0f} m², 20 °C, 50 % RH. It is synthesized by roomconv's "
+        "image-source model with a diffuse tail whose decay time varies smoothly with "
+        "frequency and is fitted so that octave-band filters read the Eyring "
+        "prediction.</p>" + _html_table(["surface", "material", "area m²"], surf)
+    )
     a2, a3 = CHAIN.distortion
-    chain = (f"<p>Exponential sweep {sweep.f_low:g} Hz–{sweep.f_high / 1000:g} kHz, "
-             f"{sweep.duration:g} s at {sweep.level_dbfs:g} dBFS, {sweep.silence_post:g} s of "
-             "silence after it; a simulated loudspeaker with 2nd/3rd-order distortion "
-             f"(x + {a2:g}x² + {a3:g}x³), a sound card with {CHAIN.latency_samples} samples "
-             "of latency and a loopback reference channel, and pink HVAC-like background "
-             f"noise at {CHAIN.noise_dbfs:g} dBFS. Each recording is deconvolved with the "
-             "sweep's analytic inverse and divided by the loopback response.</p>")
-    rows = [[n, v["verdict"], f"{v['inr_db']:.1f}", str(v["clipped_samples"]),
-             str(v["latency_samples"])] for n, v in verdicts.items()]
-    quality = _html_table(["position", "verdict", "INR dB", "clipped", "latency removed"],
-                          rows)
-    comp = ("<p>T30 averaged over the measured positions against Eyring's formula per octave "
-            "band (deviation relative to Eyring). The synthetic hall decays at that prediction "
-            "as an octave filter reads it, so the deviation shows what the measuring chain "
-            "(sweep, distortion, noise, deconvolution) and the few positions add; the ISO "
-            "3382-1 just-noticeable difference of T is 5 %.</p>") + _html_table(
+    chain = (
+        f"<p>Exponential sweep {sweep.f_low:g} Hz–{sweep.f_high / 1000:g} kHz, "
+        f"{sweep.duration:g} s at {sweep.level_dbfs:g} dBFS, {sweep.silence_post:g} s of "
+        "silence after it; a simulated loudspeaker with 2nd/3rd-order distortion "
+        f"(x + {a2:g}x² + {a3:g}x³), a sound card with {CHAIN.latency_samples} samples "
+        "of latency and a loopback reference channel, and pink HVAC-like background "
+        f"noise at {CHAIN.noise_dbfs:g} dBFS. Each recording is deconvolved with the "
+        "sweep's analytic inverse and divided by the loopback response.</p>"
+    )
+    rows = [
+        [
+            n,
+            v["verdict"],
+            f"{v['inr_db']:.1f}",
+            str(v["clipped_samples"]),
+            str(v["latency_samples"]),
+        ]
+        for n, v in verdicts.items()
+    ]
+    quality = _html_table(["position", "verdict", "INR dB", "clipped", "latency removed"], rows)
+    comp = (
+        "<p>T30 averaged over the measured positions against Eyring's formula per octave "
+        "band (deviation relative to Eyring). The synthetic hall decays at that prediction "
+        "as an octave filter reads it, so the deviation shows what the measuring chain "
+        "(sweep, distortion, noise, deconvolution) and the few positions add; the ISO "
+        "3382-1 just-noticeable difference of T is 5 %.</p>"
+    ) + _html_table(
         ["band", "measured T30 s", "Eyring s", "Sabine s", "deviation %"],
-        [[f"{c['band_hz']:g}", f"{c['measured_t30_s']:.2f}", f"{c['eyring_s']:.2f}",
-          f"{c['sabine_s']:.2f}", f"{c['deviation_pct']:+.1f}"] for c in comparison])
-    rend = "<ul>" + "".join(
-        f"<li>{html.escape(str(p.relative_to(out)))}: peak {r.peak_dbfs:+.1f} dBFS, true peak "
-        f"{r.true_peak_dbtp:+.1f} dBTP</li>" for p, r in renders) + "</ul>"
-    return [("The room", desc), ("Measurement chain", chain), ("Data quality", quality),
-            ("Measured against predicted reverberation time", comp),
-            ("Listening (A/B: measured vs predicted)", rend)]
+        [
+            [
+                f"{c['band_hz']:g}",
+                f"{c['measured_t30_s']:.2f}",
+                f"{c['eyring_s']:.2f}",
+                f"{c['sabine_s']:.2f}",
+                f"{c['deviation_pct']:+.1f}",
+            ]
+            for c in comparison
+        ],
+    )
+    rend = (
+        "<ul>"
+        + "".join(
+            f"<li>{html.escape(str(p.relative_to(out)))}: peak {r.peak_dbfs:+.1f} dBFS, true peak "
+            f"{r.true_peak_dbtp:+.1f} dBTP</li>"
+            for p, r in renders
+        )
+        + "</ul>"
+    )
+    return [
+        ("The room", desc),
+        ("Measurement chain", chain),
+        ("Data quality", quality),
+        ("Measured against predicted reverberation time", comp),
+        ("Listening (A/B: measured vs predicted)", rend),
+    ]
 
 
 def _summary(doc, seconds, out) -> dict:
     from ..analysis.spatial import position_single_numbers
+
     keys = ("t30_mid_s", "edt_mid_s", "c80_mid_db", "d50_mid")
     per_pos = {}
     for p in doc["positions"]:
         sn = position_single_numbers(p["bands"], doc["settings"]["bands"])
         per_pos[Path(p["file"]).stem] = {k: sn[k] for k in keys}
     dev = [c["deviation_pct"] for c in doc["measured_vs_predicted"]]
-    return {"positions": per_pos, "average": doc["average"]["single_numbers"],
-            "quality": {n: q["verdict"] for n, q in doc["quality"].items()},
-            "t30_vs_eyring_pct": [min(dev), max(dev)] if dev else None,
-            "files": [str(out / n) for n in ("report", "study.toml", "report.html",
-                                             "results.json", "results.csv", "irs",
-                                             "harmonics", "renders")],
-            "seconds": seconds, "output": str(out), "roomconv_version": __version__}
+    return {
+        "positions": per_pos,
+        "average": doc["average"]["single_numbers"],
+        "quality": {n: q["verdict"] for n, q in doc["quality"].items()},
+        "t30_vs_eyring_pct": [min(dev), max(dev)] if dev else None,
+        "files": [
+            str(out / n)
+            for n in (
+                "report",
+                "study.toml",
+                "report.html",
+                "results.json",
+                "results.csv",
+                "irs",
+                "harmonics",
+                "renders",
+            )
+        ],
+        "seconds": seconds,
+        "output": str(out),
+        "roomconv_version": __version__,
+    }

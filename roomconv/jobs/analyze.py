@@ -40,9 +40,16 @@ class _Counter:
         self.progress("analyse", min(1.0, self.done / self.total), None)
 
 
-def _write(g: WriteGuard, study: Study, json_path, csv_path, report_file,
-           report_options: dict | None = None) -> list[Path]:
+def _write(
+    g: WriteGuard,
+    study: Study,
+    json_path,
+    csv_path,
+    report_file,
+    report_options: dict | None = None,
+) -> list[Path]:
     from ..analysis.report import csv_text, html_report
+
     written = []
     if json_path is not None:
         written.append(g.write_json(json_path, study.document))
@@ -53,9 +60,17 @@ def _write(g: WriteGuard, study: Study, json_path, csv_path, report_file,
     return written
 
 
-def write_study(study: Study, *, json_path=None, csv_path=None, report_file=None,
-                report_options: dict | None = None, provenance: dict | None = None,
-                inputs=(), force: bool = False) -> list[Path]:
+def write_study(
+    study: Study,
+    *,
+    json_path=None,
+    csv_path=None,
+    report_file=None,
+    report_options: dict | None = None,
+    provenance: dict | None = None,
+    inputs=(),
+    force: bool = False,
+) -> list[Path]:
     """Write a study computed earlier (and perhaps annotated by the caller).
 
     Parameters
@@ -70,6 +85,7 @@ def write_study(study: Study, *, json_path=None, csv_path=None, report_file=None
         Files no output may replace.
     """
     from ..audio import sidecar_path, write_provenance
+
     with guarded(inputs, force=force) as g:
         targets = [p for p in (json_path, csv_path, report_file) if p is not None]
         sides = []
@@ -89,10 +105,18 @@ def write_study(study: Study, *, json_path=None, csv_path=None, report_file=None
     return written
 
 
-def analyze_study(irs: Sequence, *, bands: str = "octave", filtering: str = "auto",
-                  calibration: str | None = None, json_path=None, csv_path=None,
-                  report_dir=None, force: bool = False,
-                  progress: ProgressCallback = silent) -> AnalyzeResult:
+def analyze_study(
+    irs: Sequence,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration: str | None = None,
+    json_path=None,
+    csv_path=None,
+    report_dir=None,
+    force: bool = False,
+    progress: ProgressCallback = silent,
+) -> AnalyzeResult:
     """Analyse every channel of every response as a position, average, and write the files.
 
     Parameters
@@ -126,8 +150,13 @@ def analyze_study(irs: Sequence, *, bands: str = "octave", filtering: str = "aut
                 total += audio_info(p).channels
             except Exception:  # noqa: BLE001 - unreadable files are reported by the analysis
                 total += 1
-        study = analyse_files(inputs, bands=bands, filtering=filtering, calibration=cal,
-                              progress=_Counter(total, progress))
+        study = analyse_files(
+            inputs,
+            bands=bands,
+            filtering=filtering,
+            calibration=cal,
+            progress=_Counter(total, progress),
+        )
         # A page of results alone: no playback caution (pages that offer sound add it).
         written = _write(g, study, json_path, csv_path, report_file, {"cautions": False})
     return AnalyzeResult(study, written)
@@ -137,10 +166,10 @@ def export_study(study: Study, folder, *, force: bool = False) -> list[Path]:
     """Write a study already computed as ``results.json``, ``results.csv`` and
     ``report.html`` in ``folder`` (created when missing)."""
     names = study_outputs(folder)
-    with guarded([p["file"] for p in study.document["positions"]
-                  if Path(p["file"]).is_file()], force=force) as g:
+    with guarded(
+        [p["file"] for p in study.document["positions"] if Path(p["file"]).is_file()], force=force
+    ) as g:
         g.folder(folder)
         for p in names.values():
             g.file(p)
-        return _write(g, study, names["json"], names["csv"], names["report"],
-                      {"cautions": False})
+        return _write(g, study, names["json"], names["csv"], names["report"], {"cautions": False})

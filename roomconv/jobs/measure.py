@@ -23,9 +23,18 @@ from .guard import guarded
 from .naming import harmonic_output
 from .progress import ProgressCallback, silent
 
-__all__ = ["write_sweep", "sweep_inputs", "load_sweep", "extract_recording",
-           "measure_position", "level_check", "MeasureResult", "LEVEL_CHECK_DBFS",
-           "LEVEL_CHECK_HZ", "LEVEL_CHECK_S"]
+__all__ = [
+    "write_sweep",
+    "sweep_inputs",
+    "load_sweep",
+    "extract_recording",
+    "measure_position",
+    "level_check",
+    "MeasureResult",
+    "LEVEL_CHECK_DBFS",
+    "LEVEL_CHECK_HZ",
+    "LEVEL_CHECK_S",
+]
 
 #: The level-check tone: 1 kHz for 2 s at -40 dBFS, well below the sweep's start level
 #: (common practice: check the gain structure with a quiet tone before a loud sweep).
@@ -61,8 +70,15 @@ def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
     d = read_json(side, what="sweep sidecar")
     sweep = Sweep.from_dict(d, source=side)
     if sweep.rate != rate or sweep.n_total != sig.size:
-        return sig, rate, None, (f"sidecar {side.name} does not match the WAV (rate or length "
-                                 "differ): using regularized spectral division")
+        return (
+            sig,
+            rate,
+            None,
+            (
+                f"sidecar {side.name} does not match the WAV (rate or length "
+                "differ): using regularized spectral division"
+            ),
+        )
     return sig, rate, sweep, None
 
 
@@ -86,13 +102,21 @@ def _reference_index(reference_channel: int | None, n_channels: int, what: str) 
     if reference_channel is None:
         return None
     if not 1 <= reference_channel <= n_channels:
-        raise InputError(f"reference channel {reference_channel} does not exist: {what} has "
-                         f"{n_channels} channel(s), 1 to {n_channels} (channels count from 1)")
+        raise InputError(
+            f"reference channel {reference_channel} does not exist: {what} has "
+            f"{n_channels} channel(s), 1 to {n_channels} (channels count from 1)"
+        )
     return reference_channel - 1
 
 
-def _plan(g: WriteGuard, output, harmonics_dir, json_path, save_recording=None,
-          harmonic_provenance: bool = False) -> None:
+def _plan(
+    g: WriteGuard,
+    output,
+    harmonics_dir,
+    json_path,
+    save_recording=None,
+    harmonic_provenance: bool = False,
+) -> None:
     g.file(output)
     g.file(sidecar_path(output, "provenance"))
     if json_path is not None:
@@ -107,8 +131,16 @@ def _plan(g: WriteGuard, output, harmonics_dir, json_path, save_recording=None,
         g.file(save_recording)
 
 
-def _save(g: WriteGuard, ex: Extraction, output, harmonics_dir, json_path, inputs,
-          settings: dict, harmonic_provenance: bool = False) -> list[Path]:
+def _save(
+    g: WriteGuard,
+    ex: Extraction,
+    output,
+    harmonics_dir,
+    json_path,
+    inputs,
+    settings: dict,
+    harmonic_provenance: bool = False,
+) -> list[Path]:
     sources = [p for p in inputs if Path(p).is_file()]
     written = [g.write_audio(output, ex.ir, ex.rate)]
     if harmonics_dir is not None:
@@ -116,19 +148,30 @@ def _save(g: WriteGuard, ex: Extraction, output, harmonics_dir, json_path, input
             path = harmonic_output(harmonics_dir, output, k)
             written.append(g.write_audio(path, ex.harmonics[k], ex.rate))
             if harmonic_provenance:
-                written.append(write_provenance(path, sources,
-                                                {**settings, "harmonic_order": k}, guard=g))
+                written.append(
+                    write_provenance(path, sources, {**settings, "harmonic_order": k}, guard=g)
+                )
     if json_path is not None:
         written.append(g.write_json(json_path, ex.quality))
     written.append(write_provenance(output, sources, settings, guard=g))
     return written
 
 
-def extract_recording(recording, sweep_path, output, *, reference_channel: int | None = None,
-                      length_s: float | None = None, trim: bool = False,
-                      harmonics_dir=None, json_path=None, allow_clipped: bool = False,
-                      force: bool = False, settings: dict | None = None,
-                      progress: ProgressCallback = silent) -> MeasureResult:
+def extract_recording(
+    recording,
+    sweep_path,
+    output,
+    *,
+    reference_channel: int | None = None,
+    length_s: float | None = None,
+    trim: bool = False,
+    harmonics_dir=None,
+    json_path=None,
+    allow_clipped: bool = False,
+    force: bool = False,
+    settings: dict | None = None,
+    progress: ProgressCallback = silent,
+) -> MeasureResult:
     """Deconvolve a recorded sweep on disk into an impulse response and save it.
 
     Parameters
@@ -150,37 +193,64 @@ def extract_recording(recording, sweep_path, output, *, reference_channel: int |
         rec, rate = read_audio(recording, what="recording")
         sig, s_rate, sweep, note = load_sweep(sweep_path)
         if rate != s_rate:
-            raise InputError(describe(recording, f"recorded at {rate} Hz but the sweep "
-                                      f"{Path(sweep_path).name} is at {s_rate} Hz",
-                                      "record at the sweep's sample rate"))
+            raise InputError(
+                describe(
+                    recording,
+                    f"recorded at {rate} Hz but the sweep "
+                    f"{Path(sweep_path).name} is at {s_rate} Hz",
+                    "record at the sweep's sample rate",
+                )
+            )
         ref = _reference_index(reference_channel, rec.shape[1], f"{Path(recording).name}")
         progress("extract", 0.3, None)
         try:
-            ex = extract_ir(rec, rate, sweep=sweep, excitation=None if sweep else sig,
-                            reference_channel=ref, length_s=length_s,
-                            harmonics=harmonics_dir is not None, trim=trim,
-                            allow_clipped=allow_clipped)
+            ex = extract_ir(
+                rec,
+                rate,
+                sweep=sweep,
+                excitation=None if sweep else sig,
+                reference_channel=ref,
+                length_s=length_s,
+                harmonics=harmonics_dir is not None,
+                trim=trim,
+                allow_clipped=allow_clipped,
+            )
         except InputError as exc:
             raise InputError(describe(recording, str(exc))) from None
         progress("save", 0.9, None)
-        written = _save(g, ex, output, harmonics_dir, json_path,
-                        [recording, sweep_path], settings or {})
+        written = _save(
+            g, ex, output, harmonics_dir, json_path, [recording, sweep_path], settings or {}
+        )
     progress("done", 1.0, None)
     return MeasureResult(Path(output), ex, written, [note] if note else [])
 
 
-def measure_position(output, sweep: Sweep, *, simulate=None, simulated_device=None,
-                     confirm: Callable[[], None] | None = None,
-                     device=None, output_channel: int = 1,
-                     input_channels: Sequence[int] = (1,),
-                     reference_channel: int | None = None,
-                     sim_latency_samples: int = 0, sim_noise_dbfs: float = -90.0,
-                     seed: int = 0, match_simulated_rate: bool = False,
-                     length_s: float | None = None, trim: bool = False, harmonics_dir=None,
-                     json_path=None, save_recording=None, allow_clipped: bool = False,
-                     harmonic_provenance: bool = False, force: bool = False,
-                     settings: dict | None = None,
-                     progress: ProgressCallback = silent) -> MeasureResult:
+def measure_position(
+    output,
+    sweep: Sweep,
+    *,
+    simulate=None,
+    simulated_device=None,
+    confirm: Callable[[], None] | None = None,
+    device=None,
+    output_channel: int = 1,
+    input_channels: Sequence[int] = (1,),
+    reference_channel: int | None = None,
+    sim_latency_samples: int = 0,
+    sim_noise_dbfs: float = -90.0,
+    seed: int = 0,
+    match_simulated_rate: bool = False,
+    length_s: float | None = None,
+    trim: bool = False,
+    harmonics_dir=None,
+    json_path=None,
+    save_recording=None,
+    allow_clipped: bool = False,
+    harmonic_provenance: bool = False,
+    force: bool = False,
+    settings: dict | None = None,
+    progress: ProgressCallback = silent,
+) -> MeasureResult:
     """Play ``sweep`` and record it (sound card or simulated room), extract and save.
 
     Parameters
@@ -210,12 +280,14 @@ def measure_position(output, sweep: Sweep, *, simulate=None, simulated_device=No
         Also write a provenance sidecar beside each harmonic response.
     """
     from ..measure.capture import SimulatedDevice, SoundCard, run_measurement
+
     safety.check_level(sweep.level_dbfs)
     validate.memory_budget(sim_latency_samples, "this simulated latency")
     simulated = simulate is not None or simulated_device is not None
     if not simulated and confirm is None:
-        raise InputError("sound would be played without the hearing caution being shown "
-                         "and confirmed")
+        raise InputError(
+            "sound would be played without the hearing caution being shown and confirmed"
+        )
     if not simulated:
         _reference_index(reference_channel, len(input_channels), "the recording")
     inputs = [simulate] if simulate is not None else []
@@ -230,65 +302,105 @@ def measure_position(output, sweep: Sweep, *, simulate=None, simulated_device=No
             ir, ir_rate = read_audio(simulate, what="simulated room IR")
             if ir_rate != sweep.rate:
                 if not match_simulated_rate:
-                    raise InputError(describe(simulate, f"the simulated room is at {ir_rate} "
-                                              f"Hz but the sweep at {sweep.rate} Hz",
-                                              f"measure at {ir_rate} Hz"))
+                    raise InputError(
+                        describe(
+                            simulate,
+                            f"the simulated room is at {ir_rate} "
+                            f"Hz but the sweep at {sweep.rate} Hz",
+                            f"measure at {ir_rate} Hz",
+                        )
+                    )
                 sweep = dataclasses.replace(sweep, rate=ir_rate)
             n_rec = ir.shape[1] + (reference_channel is not None)
             ref = _reference_index(reference_channel, n_rec, "the simulated recording")
-            dev = SimulatedDevice(ir, latency_samples=sim_latency_samples,
-                                  noise_dbfs=sim_noise_dbfs,
-                                  loopback=reference_channel is not None, seed=seed)
+            dev = SimulatedDevice(
+                ir,
+                latency_samples=sim_latency_samples,
+                noise_dbfs=sim_noise_dbfs,
+                loopback=reference_channel is not None,
+                seed=seed,
+            )
         else:
             ref = _reference_index(reference_channel, len(input_channels), "the recording")
-            dev = SoundCard(device=device, output_channel=output_channel,
-                            input_channels=tuple(input_channels))
+            dev = SoundCard(
+                device=device, output_channel=output_channel, input_channels=tuple(input_channels)
+            )
             assert confirm is not None
             confirm()
-        progress("play and record", 0.0, "simulated device: no sound will be played"
-                 if simulated else None)
+        progress(
+            "play and record",
+            0.0,
+            "simulated device: no sound will be played" if simulated else None,
+        )
         rec = run_measurement(dev, sweep_signal(sweep), sweep.rate, tail_s=0.5)
         progress("extract", 0.7, None)
         # Extract before writing anything, so a failed extraction leaves no recording behind.
-        ex = extract_ir(rec, sweep.rate, sweep=sweep, reference_channel=ref,
-                        length_s=length_s, harmonics=harmonics_dir is not None, trim=trim,
-                        allow_clipped=allow_clipped)
+        ex = extract_ir(
+            rec,
+            sweep.rate,
+            sweep=sweep,
+            reference_channel=ref,
+            length_s=length_s,
+            harmonics=harmonics_dir is not None,
+            trim=trim,
+            allow_clipped=allow_clipped,
+        )
         written = []
         if save_recording is not None:
             written.append(g.write_audio(save_recording, rec, sweep.rate))
-        written += _save(g, ex, output, harmonics_dir, json_path, inputs,
-                         {**(settings or {}), "sweep": sweep.to_dict()}, harmonic_provenance)
+        written += _save(
+            g,
+            ex,
+            output,
+            harmonics_dir,
+            json_path,
+            inputs,
+            {**(settings or {}), "sweep": sweep.to_dict()},
+            harmonic_provenance,
+        )
     progress("done", 1.0, None)
     return MeasureResult(Path(output), ex, written, simulated=simulated)
 
 
-def level_check(*, simulate=None, confirm: Callable[[], None] | None = None, device=None,
-                output_channel: int = 1, input_channels: Sequence[int] = (1,),
-                rate_hz: int = 48000, on_level=None) -> float:
+def level_check(
+    *,
+    simulate=None,
+    confirm: Callable[[], None] | None = None,
+    device=None,
+    output_channel: int = 1,
+    input_channels: Sequence[int] = (1,),
+    rate_hz: int = 48000,
+    on_level=None,
+) -> float:
     """Play a quiet ramped tone and return the input peak in dBFS.
 
     ``on_level(peak_dbfs, fraction)`` is called about every 0.1 s for a live meter. A sound
     card needs ``confirm`` (see :func:`measure_position`).
     """
     from ..measure.capture import SimulatedDevice, SoundCard, metered_playrec
+
     if simulate is not None:
         ir, rate_hz = read_audio(simulate, what="simulated room IR")
         dev: object = SimulatedDevice(ir, noise_dbfs=-90.0)
     else:
         if confirm is None:
-            raise InputError("sound would be played without the hearing caution being shown "
-                             "and confirmed")
-        dev = SoundCard(device=device, output_channel=output_channel,
-                        input_channels=tuple(input_channels))
+            raise InputError(
+                "sound would be played without the hearing caution being shown and confirmed"
+            )
+        dev = SoundCard(
+            device=device, output_channel=output_channel, input_channels=tuple(input_channels)
+        )
         confirm()
     t = np.arange(int(LEVEL_CHECK_S * rate_hz)) / rate_hz
-    tone = safety.apply_ramps(db_to_gain(LEVEL_CHECK_DBFS)
-                              * np.sin(2 * np.pi * LEVEL_CHECK_HZ * t), rate_hz)
+    tone = safety.apply_ramps(
+        db_to_gain(LEVEL_CHECK_DBFS) * np.sin(2 * np.pi * LEVEL_CHECK_HZ * t), rate_hz
+    )
     peaks: list[float] = []
 
     def meter(peak_db, frac):
         peaks.append(peak_db)
         if on_level is not None:
             on_level(peak_db, frac)
+
     metered_playrec(dev, tone, rate_hz, meter)
     return max(peaks) if peaks else float("-inf")

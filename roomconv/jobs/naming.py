@@ -51,5 +51,8 @@ def study_outputs(folder) -> dict[str, Path]:
     ['report.html', 'results.csv', 'results.json']
     """
     folder = Path(folder)
-    return {"json": folder / "results.json", "csv": folder / "results.csv",
-            "report": folder / "report.html"}
+    return {
+        "json": folder / "results.json",
+        "csv": folder / "results.csv",
+        "report": folder / "report.html",
+    }

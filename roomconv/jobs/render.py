@@ -24,9 +24,19 @@ from .progress import Cancelled, ProgressCallback, silent
 if TYPE_CHECKING:
     from ..render.stream import LiveProcessor
 
-__all__ = ["check_predelay", "render_one", "render_many", "QueueResult", "run_batch",
-           "BatchResult", "check_ceiling", "LiveSetup", "prepare_live", "run_live",
-           "preview"]
+__all__ = [
+    "check_predelay",
+    "render_one",
+    "render_many",
+    "QueueResult",
+    "run_batch",
+    "BatchResult",
+    "check_ceiling",
+    "LiveSetup",
+    "prepare_live",
+    "run_live",
+    "preview",
+]
 
 
 #: Longest pre-delay accepted, ms: a second is beyond any room's initial time gap (tens of
@@ -43,13 +53,21 @@ def check_predelay(predelay_ms: float, paths: Sequence) -> None:
             info = audio_info(p)
         except Exception:  # noqa: BLE001 - an unreadable input gets its own message later
             continue
-        validate.seconds_budget(predelay_ms / 1000.0, info.samplerate, "this pre-delay",
-                                channels=info.channels)
+        validate.seconds_budget(
+            predelay_ms / 1000.0, info.samplerate, "this pre-delay", channels=info.channels
+        )
     validate.in_range(predelay_ms, "pre-delay", 0.0, MAX_PREDELAY_MS, unit="ms")
 
 
-def render_one(dry, ir, output, settings: RenderSettings, *, force: bool = False,
-               progress: ProgressCallback = silent) -> RenderReport:
+def render_one(
+    dry,
+    ir,
+    output,
+    settings: RenderSettings,
+    *,
+    force: bool = False,
+    progress: ProgressCallback = silent,
+) -> RenderReport:
     """Render ``dry`` through ``ir`` into ``output`` and write its provenance sidecar.
 
     Parameters
@@ -74,8 +92,15 @@ def render_one(dry, ir, output, settings: RenderSettings, *, force: bool = False
         g.file(output)
         g.file(sidecar_path(output, "provenance"))
         stage = Path(output).name
-        rep = offline.render_file(dry, ir, output, settings, force=force, guard=g,
-                                  progress=lambda f: progress(stage, f, None))
+        rep = offline.render_file(
+            dry,
+            ir,
+            output,
+            settings,
+            force=force,
+            guard=g,
+            progress=lambda f: progress(stage, f, None),
+        )
         write_provenance(output, [dry, ir], settings.as_dict(), guard=g)
     return rep
 
@@ -91,8 +116,15 @@ class QueueResult:
     cancelled: bool = False
 
 
-def render_many(drys: Sequence, ir, out_dir, settings: RenderSettings, *,
-                force: bool = False, progress: ProgressCallback = silent) -> QueueResult:
+def render_many(
+    drys: Sequence,
+    ir,
+    out_dir,
+    settings: RenderSettings,
+    *,
+    force: bool = False,
+    progress: ProgressCallback = silent,
+) -> QueueResult:
     """Render each dry file through ``ir`` into ``out_dir``, one after the other.
 
     A file that cannot be rendered is recorded and the queue goes on; a progress callback
@@ -112,9 +144,9 @@ def render_many(drys: Sequence, ir, out_dir, settings: RenderSettings, *,
 
         def tick(_stage, frac, message=None, stage=stage):
             progress(stage, frac, message)
+
         try:
-            result.reports.append(render_one(dry, ir, out, settings, force=force,
-                                             progress=tick))
+            result.reports.append(render_one(dry, ir, out, settings, force=force, progress=tick))
         except Cancelled:
             result.cancelled = True
             break
@@ -151,9 +183,17 @@ class BatchResult:
         return 2 if all(o.exit_code == 2 for o in f) else 1
 
 
-def run_batch(drys: Sequence, irs: Sequence, out_dir, settings: RenderSettings, *,
-              workers: int | None = None, scheduler: str | None = None, force: bool = False,
-              on_event: Callable[[str, object], None] | None = None) -> BatchResult:
+def run_batch(
+    drys: Sequence,
+    irs: Sequence,
+    out_dir,
+    settings: RenderSettings,
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    force: bool = False,
+    on_event: Callable[[str, object], None] | None = None,
+) -> BatchResult:
     """Every dry file through every response into ``out_dir``, on a local process pool or a
     Dask cluster at ``scheduler``; finished jobs whose sidecar verifies are skipped (resume).
 
@@ -162,6 +202,7 @@ def run_batch(drys: Sequence, irs: Sequence, out_dir, settings: RenderSettings, 
     """
     from ..render.batch import dask_executor, local_executor, plan_jobs
     from ..render.batch import run_batch as _run
+
     settings = settings.check()
     check_predelay(settings.predelay_ms, drys)
     with guarded([*drys, *irs], force=force) as g:
@@ -179,8 +220,14 @@ def run_batch(drys: Sequence, irs: Sequence, out_dir, settings: RenderSettings, 
             executor, queue, owner = local_executor(workers)
         try:
             with executor:
-                outcomes = _run(jobs, executor, force=force, progress=queue, on_event=on_event,
-                                before_first=lambda: g.make_folder(folder))
+                outcomes = _run(
+                    jobs,
+                    executor,
+                    force=force,
+                    progress=queue,
+                    on_event=on_event,
+                    before_first=lambda: g.make_folder(folder),
+                )
         finally:
             closer = getattr(owner, "close", None) or getattr(owner, "shutdown", None)
             if closer:
@@ -191,8 +238,10 @@ def run_batch(drys: Sequence, irs: Sequence, out_dir, settings: RenderSettings, 
 def check_ceiling(ceiling_dbfs: float) -> None:
     """Refuse a limiter ceiling above the output cap every sound card output keeps."""
     if ceiling_dbfs > safety.OUTPUT_CAP_DBFS:
-        raise InputError(f"limiter ceiling {ceiling_dbfs:g} dBFS is above the output cap of "
-                         f"{safety.OUTPUT_CAP_DBFS:g} dBFS")
+        raise InputError(
+            f"limiter ceiling {ceiling_dbfs:g} dBFS is above the output cap of "
+            f"{safety.OUTPUT_CAP_DBFS:g} dBFS"
+        )
 
 
 @dataclass
@@ -207,10 +256,20 @@ class LiveSetup:
     ir_resampled_from_hz: int | None = None
 
 
-def prepare_live(ir, *, rate_hz: int | None = None, device=None, block_samples: int = 128,
-                 input_channels: Sequence[int] = (1,), output_channels: Sequence[int] = (1,),
-                 mix: float = 1.0, gain_db: float = -6.0, ceiling_dbfs: float = -1.0,
-                 precision: str = "auto", match_ir_level: bool = True) -> LiveSetup:
+def prepare_live(
+    ir,
+    *,
+    rate_hz: int | None = None,
+    device=None,
+    block_samples: int = 128,
+    input_channels: Sequence[int] = (1,),
+    output_channels: Sequence[int] = (1,),
+    mix: float = 1.0,
+    gain_db: float = -6.0,
+    ceiling_dbfs: float = -1.0,
+    precision: str = "auto",
+    match_ir_level: bool = True,
+) -> LiveSetup:
     """Load the response and build the live processor; nothing is played yet.
 
     The caller shows the hearing caution and obtains confirmation between this and
@@ -219,6 +278,7 @@ def prepare_live(ir, *, rate_hz: int | None = None, device=None, block_samples: 
     """
     from ..measure.capture import load_sounddevice
     from ..render.stream import LiveProcessor
+
     check_ceiling(ceiling_dbfs)
     data, ir_rate = read_audio(ir, what="impulse response")
     sd = load_sounddevice()
@@ -231,21 +291,35 @@ def prepare_live(ir, *, rate_hz: int | None = None, device=None, block_samples: 
     resampled = None
     if ir_rate != rate:
         data, resampled = resample_ir(data, ir_rate, rate), ir_rate
-    proc = LiveProcessor(data, rate, block=block_samples, n_in=len(input_channels), mix=mix,
-                         gain_db=gain_db, ceiling_dbfs=ceiling_dbfs, precision=precision,
-                         match_ir_level=match_ir_level)
-    return LiveSetup(proc, rate, device, tuple(input_channels), tuple(output_channels),
-                     resampled)
+    proc = LiveProcessor(
+        data,
+        rate,
+        block=block_samples,
+        n_in=len(input_channels),
+        mix=mix,
+        gain_db=gain_db,
+        ceiling_dbfs=ceiling_dbfs,
+        precision=precision,
+        match_ir_level=match_ir_level,
+    )
+    return LiveSetup(proc, rate, device, tuple(input_channels), tuple(output_channels), resampled)
 
 
-def run_live(setup: LiveSetup, *, duration_s: float | None = None, on_meter=None,
-             stop_event=None):
+def run_live(setup: LiveSetup, *, duration_s: float | None = None, on_meter=None, stop_event=None):
     """Run a prepared live convolution until ``duration_s``, the event, or an interrupt;
     returns the stream statistics."""
     from ..render.stream import run_live as _run
-    return _run(setup.processor, setup.rate_hz, device=setup.device,
-                input_channels=setup.input_channels, output_channels=setup.output_channels,
-                duration_s=duration_s, on_meter=on_meter, stop_event=stop_event)
+
+    return _run(
+        setup.processor,
+        setup.rate_hz,
+        device=setup.device,
+        input_channels=setup.input_channels,
+        output_channels=setup.output_channels,
+        duration_s=duration_s,
+        on_meter=on_meter,
+        stop_event=stop_event,
+    )
 
 
 #: Preview: the first seconds of the dry file, played this far below the render's own level
@@ -253,19 +327,27 @@ def run_live(setup: LiveSetup, *, duration_s: float | None = None, on_meter=None
 PREVIEW_S, PREVIEW_ATTENUATION_DB = 10.0, -12.0
 
 
-def preview(dry, ir, settings: RenderSettings, *, confirm: Callable[[], None],
-            seconds: float = PREVIEW_S, device=None) -> float:
+def preview(
+    dry,
+    ir,
+    settings: RenderSettings,
+    *,
+    confirm: Callable[[], None],
+    seconds: float = PREVIEW_S,
+    device=None,
+) -> float:
     """Render the first ``seconds`` of ``dry`` through ``ir`` and play them, ramped, limited
     and capped; returns the seconds played. ``confirm`` shows the hearing caution and raises
     to refuse; it runs before any sound."""
     from ..measure.capture import load_sounddevice
     from ..signal import db_to_gain
+
     x, rate = read_audio(dry, what="dry file")
     h, ir_rate = read_audio(ir, what="impulse response")
-    y = offline.render_arrays(x[: int(seconds * rate)], h, rate, settings.check(),
-                              ir_rate=ir_rate)
+    y = offline.render_arrays(x[: int(seconds * rate)], h, rate, settings.check(), ir_rate=ir_rate)
     y = safety.OutputLimiter(rate).process(
-        safety.apply_ramps(y * db_to_gain(PREVIEW_ATTENUATION_DB), rate))
+        safety.apply_ramps(y * db_to_gain(PREVIEW_ATTENUATION_DB), rate)
+    )
     y = safety.hard_cap(y)
     sd = load_sounddevice()
     confirm()

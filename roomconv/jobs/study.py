@@ -15,20 +15,27 @@ from .progress import ProgressCallback, silent
 if TYPE_CHECKING:
     from ..report import StudyResults
 
-__all__ = ["init_study", "save_session_study", "write_study_file", "check_study",
-           "StudyCheck", "report_study", "StudyReportResult"]
+__all__ = [
+    "init_study",
+    "save_session_study",
+    "write_study_file",
+    "check_study",
+    "StudyCheck",
+    "report_study",
+    "StudyReportResult",
+]
 
 
 def _refuse_non_toml(path: Path) -> None:
     if path.suffix.lower() != ".toml":
-        raise InputError(f"{path}: a study file ends in .toml; choose a name such as "
-                         "study.toml")
+        raise InputError(f"{path}: a study file ends in .toml; choose a name such as study.toml")
 
 
 def init_study(path, *, title: str = "Acoustic measurements", force: bool = False) -> Path:
     """Write a commented study-file template to ``path`` (never over a file without
     ``force``)."""
     from ..study import template_text
+
     path = Path(path)
     _refuse_non_toml(path)
     with guarded(force=force) as g:
@@ -36,8 +43,9 @@ def init_study(path, *, title: str = "Acoustic measurements", force: bool = Fals
         return g.write_text(path, template_text(title))
 
 
-def save_session_study(path, positions, *, title: str = "Workbench session",
-                       force: bool = False) -> Path:
+def save_session_study(
+    path, positions, *, title: str = "Workbench session", force: bool = False
+) -> Path:
     """Write a study file for responses measured in one session.
 
     Parameters
@@ -48,6 +56,7 @@ def save_session_study(path, positions, *, title: str = "Workbench session",
         Each becomes a receiver of source S1; paths are written relative to the study file.
     """
     from ..study import session_study_text
+
     path = Path(path)
     _refuse_non_toml(path)
     files = [p[1] for p in positions] + [p[2] for p in positions if p[2] is not None]
@@ -99,10 +108,19 @@ class _Counter:
         self.progress("analyse", min(1.0, self.done / self.total), None)
 
 
-def report_study(study_path, *, bands: str = "octave", filtering: str = "auto",
-                 calibration: str | None = None, json_path=None, csv_path=None,
-                 report_dir=None, force: bool = False, require_pdf: bool = True,
-                 progress: ProgressCallback = silent) -> StudyReportResult:
+def report_study(
+    study_path,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration: str | None = None,
+    json_path=None,
+    csv_path=None,
+    report_dir=None,
+    force: bool = False,
+    require_pdf: bool = True,
+    progress: ProgressCallback = silent,
+) -> StudyReportResult:
     """Analyse every response a study file names (each one position) and write the files.
 
     Parameters
@@ -126,6 +144,7 @@ def report_study(study_path, *, bands: str = "octave", filtering: str = "auto",
     from ..analysis.study import parse_calibration
     from ..report import analyse_study, write_report
     from ..report.pdf import pdf_engine_problem
+
     st = load_study(study_path)
     inputs = [Path(study_path)] + [r.file for r in st.responses]
     with guarded(inputs, force=force) as g:
@@ -143,8 +162,13 @@ def report_study(study_path, *, bands: str = "octave", filtering: str = "auto",
             for name in ("report.html",) + (("report.pdf",) if problem is None else ()):
                 g.file(folder / name)
         cal = parse_calibration(calibration)
-        res = analyse_study(st, bands=bands, filtering=filtering, calibration=cal,
-                            progress=_Counter(len(st.responses), progress))
+        res = analyse_study(
+            st,
+            bands=bands,
+            filtering=filtering,
+            calibration=cal,
+            progress=_Counter(len(st.responses), progress),
+        )
         doc = res.analysis.document
         written: list[Path] = []
         if json_path is not None:
@@ -156,6 +180,7 @@ def report_study(study_path, *, bands: str = "octave", filtering: str = "auto",
             written += write_report(res, report_dir, guard=g)
         elif report_dir is not None:
             from ..report import report_html
+
             g.make_folder(folder)
             written.append(g.write_text(folder / "report.html", report_html(res)))
             notes.append(f"{folder / 'report.pdf'} not written: {problem}")
@@ -166,6 +191,7 @@ def write_study_file(path, text: str, *, force: bool = False) -> Path:
     """Write a study file composed by the caller (the demo's scenario); text that would not
     load as a study file is refused before anything is written."""
     from ..study import parse_study
+
     path = Path(path)
     _refuse_non_toml(path)
     with guarded(force=force) as g:

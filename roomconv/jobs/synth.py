@@ -23,12 +23,31 @@ if TYPE_CHECKING:
     from ..synth.generate import SynthResult
     from ..synth.room import RoomModel
 
-__all__ = ["ROOM_SIDE_MAX_M", "DECAY_SCALE_MIN", "DECAY_SCALE_MAX", "PAIR_SPACING_MAX_M",
-           "parse_triple", "room_size", "position", "parse_band_values", "parse_materials",
-           "parse_patch", "parse_absorber", "build_room", "default_positions", "receivers_of",
-           "check_length", "check_decay_scale",
-           "synthesize_room", "SynthJobResult", "materials_table", "edit_response",
-           "EditResult", "measured_decay_times", "pair_responses"]
+__all__ = [
+    "ROOM_SIDE_MAX_M",
+    "DECAY_SCALE_MIN",
+    "DECAY_SCALE_MAX",
+    "PAIR_SPACING_MAX_M",
+    "parse_triple",
+    "room_size",
+    "position",
+    "parse_band_values",
+    "parse_materials",
+    "parse_patch",
+    "parse_absorber",
+    "build_room",
+    "default_positions",
+    "receivers_of",
+    "check_length",
+    "check_decay_scale",
+    "synthesize_room",
+    "SynthJobResult",
+    "materials_table",
+    "edit_response",
+    "EditResult",
+    "measured_decay_times",
+    "pair_responses",
+]
 
 #: Largest room side accepted, m: beyond any enclosed hall (common practice), and the image
 #: source and tail sizes stay within memory.
@@ -90,6 +109,7 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
     {500: 1.8, 1000: 1.6}
     """
     from ..synth.materials import OCTAVES
+
     if text is None:
         return {}
     if not str(text).strip():
@@ -105,15 +125,17 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
                 band = int(float(band_text))
                 value = float(val)
             except (ValueError, OverflowError):
-                raise InputError(f"{what} item '{item}' must look like BAND:VALUE "
-                                 "(e.g. 500:1.8)") from None
+                raise InputError(
+                    f"{what} item '{item}' must look like BAND:VALUE (e.g. 500:1.8)"
+                ) from None
             if band in out:
-                raise InputError(f"{what}: the {band} Hz band is given twice")
+                raise InputError(f"{what}: the {band} Hz band is given twice") from None
             out[band] = value
     for band, value in out.items():
         if band not in OCTAVES:
-            raise InputError(f"{what}: {band} Hz is not an octave band "
-                             f"({', '.join(map(str, OCTAVES))})")
+            raise InputError(
+                f"{what}: {band} Hz is not an octave band ({', '.join(map(str, OCTAVES))})"
+            )
         validate.positive(value, f"{what} at {band} Hz", hi)
     return out
 
@@ -121,23 +143,25 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
 def parse_materials(text: str | None) -> dict[str, str]:
     """'floor=carpet,walls=plaster' (walls = the four walls, all = every surface)."""
     from ..synth.room import SURFACES
+
     out: dict[str, str] = {}
     if text is None:
         return out
     if not str(text).strip():
-        raise InputError("materials are empty: give SURFACE=MATERIAL items "
-                         "(e.g. floor=carpet,walls=plaster)")
+        raise InputError(
+            "materials are empty: give SURFACE=MATERIAL items (e.g. floor=carpet,walls=plaster)"
+        )
     for item in text.split(","):
         surf, _, mat = item.partition("=")
         surf, mat = surf.strip(), mat.strip()
         if not mat:
             raise InputError(f"materials item '{item}' must look like SURFACE=MATERIAL")
         targets = {"walls": ["left", "right", "front", "back"], "all": list(SURFACES)}.get(
-            surf, [surf])
+            surf, [surf]
+        )
         for s in targets:
             if s not in SURFACES:
-                raise InputError(f"unknown surface '{s}' (use {', '.join(SURFACES)}, walls "
-                                 "or all)")
+                raise InputError(f"unknown surface '{s}' (use {', '.join(SURFACES)}, walls or all)")
             out[s] = mat
     return out
 
@@ -145,6 +169,7 @@ def parse_materials(text: str | None) -> dict[str, str]:
 def parse_patch(item: str):
     """``SURFACE:MATERIAL:AREA_M2`` → a :class:`~roomconv.synth.room.Patch`."""
     from ..synth.room import Patch
+
     parts = item.split(":")
     if len(parts) != 3:
         raise InputError(f"patch '{item}' must look like SURFACE:MATERIAL:AREA_M2")
@@ -154,25 +179,43 @@ def parse_patch(item: str):
 def parse_absorber(item: str):
     """``MATERIAL:AREA_M2`` → an :class:`~roomconv.synth.room.Absorber`."""
     from ..synth.room import Absorber
+
     mat, _, area = item.rpartition(":")
     if not mat:
         raise InputError(f"absorber '{item}' must look like MATERIAL:AREA_M2")
     return Absorber(mat, validate.positive(area, "absorber area", 1e6, unit="m²"))
 
 
-def build_room(size_m, *, materials: dict[str, str] | None = None, patches=(), absorbers=(),
-               temperature_c: float = 20.0, humidity_pct: float = 50.0,
-               materials_file=None):
+def build_room(
+    size_m,
+    *,
+    materials: dict[str, str] | None = None,
+    patches=(),
+    absorbers=(),
+    temperature_c: float = 20.0,
+    humidity_pct: float = 50.0,
+    materials_file=None,
+):
     """A :class:`~roomconv.synth.room.RoomModel` from plain values; ``materials_file`` adds
     materials (JSON or TOML), refused before opening when it is a folder, pipe or device."""
     from ..synth.materials import load_materials
     from ..synth.room import RoomModel
+
     L, W, H = size_m
-    extra = (load_materials(check_input_file(materials_file, "materials file"))
-             if materials_file else {})
-    return RoomModel(L, W, H, dict(materials or {}), tuple(patches), tuple(absorbers),
-                     temperature_c=temperature_c, humidity_pct=humidity_pct,
-                     extra_materials=extra)
+    extra = (
+        load_materials(check_input_file(materials_file, "materials file")) if materials_file else {}
+    )
+    return RoomModel(
+        L,
+        W,
+        H,
+        dict(materials or {}),
+        tuple(patches),
+        tuple(absorbers),
+        temperature_c=temperature_c,
+        humidity_pct=humidity_pct,
+        extra_materials=extra,
+    )
 
 
 def default_positions(room) -> tuple[tuple[float, float, float], tuple[float, float, float]]:
@@ -184,8 +227,10 @@ def default_positions(room) -> tuple[tuple[float, float, float], tuple[float, fl
 
 def _refuse_non_finite(ir, path) -> None:
     if not np.all(np.isfinite(ir)):
-        raise InputError(f"{path}: the result holds NaN or infinite samples (the settings "
-                         "push it beyond what numbers can hold); nothing written")
+        raise InputError(
+            f"{path}: the result holds NaN or infinite samples (the settings "
+            "push it beyond what numbers can hold); nothing written"
+        )
 
 
 # --- synthesize ----------------------------------------------------------------------------
@@ -193,6 +238,7 @@ def receivers_of(stereo: str | None):
     """``None``, ``"spaced:M"`` or ``"coincident:DEG"`` → the receiver layout, a spaced
     pair no wider than :data:`PAIR_SPACING_MAX_M`."""
     from ..synth.generate import Receivers
+
     receivers = Receivers.parse(stereo)
     if receivers.kind == "spaced":
         validate.in_range(receivers.value, "pair spacing", 0.0, PAIR_SPACING_MAX_M, unit="m")
@@ -202,16 +248,22 @@ def receivers_of(stereo: str | None):
 def check_length(length_s: float | None, rate_hz: int, receivers) -> None:
     """Refuse a response length whose working buffers would not fit in memory."""
     if length_s is not None:
-        validate.seconds_budget(length_s, rate_hz, "this response length",
-                                channels=SYNTH_WORKING_CHANNELS * receivers.channels)
+        validate.seconds_budget(
+            length_s,
+            rate_hz,
+            "this response length",
+            channels=SYNTH_WORKING_CHANNELS * receivers.channels,
+        )
 
 
 def check_decay_scale(factors: dict[int, float] | None) -> None:
     """Each decay-time factor within :data:`DECAY_SCALE_MIN` … :data:`DECAY_SCALE_MAX`."""
     for b, f in (factors or {}).items():
         if not DECAY_SCALE_MIN <= f <= DECAY_SCALE_MAX:
-            raise InputError(f"factor {f:g} at {b} Hz is out of range (accepted: "
-                             f"{DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g})")
+            raise InputError(
+                f"factor {f:g} at {b} Hz is out of range (accepted: "
+                f"{DECAY_SCALE_MIN:g} to {DECAY_SCALE_MAX:g})"
+            )
 
 
 @dataclass
@@ -226,11 +278,23 @@ class SynthJobResult:
     ir: np.ndarray
 
 
-def synthesize_room(output, room, *, source_m=None, receiver_m=None, rate_hz: int = 48000,
-                    stereo: str | None = None, rt60_s: dict | None = None,
-                    prediction: str = "eyring", seed: int = 0, length_s: float | None = None,
-                    peak_dbfs: float | None = None, materials_file=None, force: bool = False,
-                    settings: dict | None = None) -> SynthJobResult:
+def synthesize_room(
+    output,
+    room,
+    *,
+    source_m=None,
+    receiver_m=None,
+    rate_hz: int = 48000,
+    stereo: str | None = None,
+    rt60_s: dict | None = None,
+    prediction: str = "eyring",
+    seed: int = 0,
+    length_s: float | None = None,
+    peak_dbfs: float | None = None,
+    materials_file=None,
+    force: bool = False,
+    settings: dict | None = None,
+) -> SynthJobResult:
     """Synthesize a response of ``room`` and write it with its provenance sidecar.
 
     Parameters
@@ -253,6 +317,7 @@ def synthesize_room(output, room, *, source_m=None, receiver_m=None, rate_hz: in
         The extra materials file the room was built with (an input no output may replace).
     """
     from ..synth.generate import synthesize
+
     receivers = receivers_of(stereo)
     check_length(length_s, rate_hz, receivers)
     src, rcv = default_positions(room)
@@ -260,25 +325,46 @@ def synthesize_room(output, room, *, source_m=None, receiver_m=None, rate_hz: in
     with guarded([materials_file], force=force) as g:
         g.file(output)
         g.file(sidecar_path(output, "provenance"))
-        res = synthesize(room, src, rcv, rate=rate_hz, receivers=receivers, rt=rt60_s or {},
-                         prediction=prediction, seed=seed, length_s=length_s)
+        res = synthesize(
+            room,
+            src,
+            rcv,
+            rate=rate_hz,
+            receivers=receivers,
+            rt=rt60_s or {},
+            prediction=prediction,
+            seed=seed,
+            length_s=length_s,
+        )
         ir = res.ir
         if peak_dbfs is not None:
             if not np.any(ir):
-                raise InputError("the synthesized response is silent; its peak cannot be "
-                                 "normalized")
+                raise InputError(
+                    "the synthesized response is silent; its peak cannot be normalized"
+                )
             ir = ir * (db_to_gain(peak_dbfs) / np.max(np.abs(ir)))
         _refuse_non_finite(ir, output)
         g.write_audio(output, ir, rate_hz)
-        record = {"room_m": [room.length, room.width, room.height], "surfaces": room.surfaces,
-                  "patches": [p.__dict__ for p in room.patches], "source_m": list(src),
-                  "receiver_m": list(rcv), "stereo": stereo, "rt60_s": rt60_s or None,
-                  "seed": seed, "rate_hz": rate_hz, "prediction": prediction,
-                  "predicted_sabine_s": res.sabine, "predicted_eyring_s": res.eyring,
-                  "tail_rt_s": res.used_rt, "tail_rt_origin": res.rt_origin,
-                  "expected_octave_reading_s": res.expected_reading,
-                  "mixing_time_s": res.mixing_time_s, "tail_start_s": res.tail_start_s,
-                  **(settings or {})}
+        record = {
+            "room_m": [room.length, room.width, room.height],
+            "surfaces": room.surfaces,
+            "patches": [p.__dict__ for p in room.patches],
+            "source_m": list(src),
+            "receiver_m": list(rcv),
+            "stereo": stereo,
+            "rt60_s": rt60_s or None,
+            "seed": seed,
+            "rate_hz": rate_hz,
+            "prediction": prediction,
+            "predicted_sabine_s": res.sabine,
+            "predicted_eyring_s": res.eyring,
+            "tail_rt_s": res.used_rt,
+            "tail_rt_origin": res.rt_origin,
+            "expected_octave_reading_s": res.expected_reading,
+            "mixing_time_s": res.mixing_time_s,
+            "tail_start_s": res.tail_start_s,
+            **(settings or {}),
+        }
         write_provenance(output, [], record, guard=g)
     return SynthJobResult(Path(output), room, src, rcv, res, ir)
 
@@ -287,6 +373,7 @@ def materials_table(*, materials_file=None, json_path=None, force: bool = False)
     """The materials and their octave-band absorption coefficients, the file's added; written
     as JSON to ``json_path`` when given. Returns {name: Material}."""
     from ..synth.materials import MATERIALS, OCTAVES, load_materials
+
     table = dict(MATERIALS)
     with guarded([materials_file], force=force) as g:
         if json_path is not None:
@@ -294,9 +381,18 @@ def materials_table(*, materials_file=None, json_path=None, force: bool = False)
         if materials_file:
             table.update(load_materials(check_input_file(materials_file, "materials file")))
         if json_path is not None:
-            g.write_json(json_path, {k: {"alpha": list(m.alpha), "bands_hz": list(OCTAVES),
-                                         "source": m.source, "note": m.note}
-                                     for k, m in table.items()})
+            g.write_json(
+                json_path,
+                {
+                    k: {
+                        "alpha": list(m.alpha),
+                        "bands_hz": list(OCTAVES),
+                        "source": m.source,
+                        "note": m.note,
+                    }
+                    for k, m in table.items()
+                },
+            )
     return table
 
 
@@ -307,12 +403,14 @@ def measured_decay_times(ir: np.ndarray, rate: int) -> list[dict[int, float]]:
     """
     from ..analysis.parameters import room_parameters
     from ..synth.materials import OCTAVES
+
     out = []
     x = ir if ir.ndim == 2 else ir[:, None]
     for ch in range(x.shape[1]):
         res, wide, _ = room_parameters(x[:, ch], rate, low=63, high=8000)
-        by_band = {int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s)
-                   for r in res if r.band_hz is not None}
+        by_band = {
+            int(r.band_hz): (r.t30_s or r.t20_s or r.edt_s) for r in res if r.band_hz is not None
+        }
         times = {}
         for b in OCTAVES:
             T = by_band.get(b) or wide.t30_s or wide.t20_s
@@ -330,12 +428,20 @@ class EditResult:
     steps: list[str] = field(default_factory=list)
 
 
-def edit_response(source, output, *, trim_db: float | None = None,
-                  decay_scale: dict[int, float] | None = None,
-                  early_late_db: float | None = None, reverse: bool = False,
-                  fade_in_s: float = 0.0, fade_out_s: float = 0.0,
-                  rate_hz: int | None = None, peak_dbfs: float | None = None,
-                  force: bool = False) -> EditResult:
+def edit_response(
+    source,
+    output,
+    *,
+    trim_db: float | None = None,
+    decay_scale: dict[int, float] | None = None,
+    early_late_db: float | None = None,
+    reverse: bool = False,
+    fade_in_s: float = 0.0,
+    fade_out_s: float = 0.0,
+    rate_hz: int | None = None,
+    peak_dbfs: float | None = None,
+    force: bool = False,
+) -> EditResult:
     """Edit ``source`` into ``output`` in a fixed order: trim, decay scaling, early/late
     balance, reverse, fades, resampling, peak normalization. ``source`` is never modified.
 
@@ -343,6 +449,7 @@ def edit_response(source, output, *, trim_db: float | None = None,
     :data:`DECAY_SCALE_MIN` … :data:`DECAY_SCALE_MAX`.
     """
     from ..synth import edit
+
     check_decay_scale(decay_scale)
     with guarded([source], force=force) as g:
         g.file(output)
@@ -353,10 +460,13 @@ def edit_response(source, output, *, trim_db: float | None = None,
             ir, cut0, cut1 = edit.trim(ir, rate, threshold_db=trim_db)
             steps.append(f"trimmed {cut0} samples at the start and {cut1} at the end")
         if decay_scale:
-            ir = edit.scale_decay(ir, rate, decay_scale,
-                                  decay_times_s=measured_decay_times(ir, rate))
-            steps.append("decay times scaled by " + ", ".join(
-                f"{f:g} at {b} Hz" for b, f in sorted(decay_scale.items())))
+            ir = edit.scale_decay(
+                ir, rate, decay_scale, decay_times_s=measured_decay_times(ir, rate)
+            )
+            steps.append(
+                "decay times scaled by "
+                + ", ".join(f"{f:g} at {b} Hz" for b, f in sorted(decay_scale.items()))
+            )
         if early_late_db is not None:
             ir = edit.early_late_balance(ir, rate, early_late_db)
             steps.append(f"late part changed by {early_late_db:+g} dB")
@@ -381,15 +491,18 @@ def edit_response(source, output, *, trim_db: float | None = None,
     return EditResult(Path(output), rate, steps)
 
 
-def pair_responses(left, right, output, *, force: bool = False,
-                   settings: dict | None = None) -> Path:
+def pair_responses(
+    left, right, output, *, force: bool = False, settings: dict | None = None
+) -> Path:
     """Write the first channels of two responses as one two-channel response (left, right),
     with its provenance sidecar; the two must share a sample rate."""
     a, rate_a = read_audio(left, what="left response")
     b, rate_b = read_audio(right, what="right response")
     if rate_a != rate_b:
-        raise InputError(f"{right}: is at {rate_b} Hz but {left} at {rate_a} Hz; give "
-                         "responses at one sample rate")
+        raise InputError(
+            f"{right}: is at {rate_b} Hz but {left} at {rate_a} Hz; give "
+            "responses at one sample rate"
+        )
     n = max(a.shape[0], b.shape[0])
     pair = np.zeros((n, 2))
     pair[: a.shape[0], 0], pair[: b.shape[0], 1] = a[:, 0], b[:, 0]

@@ -79,14 +79,26 @@ class Sweep:
     repeats: int = 1
 
     def __post_init__(self):
-        for name in ("rate", "f_low", "f_high", "duration", "level_dbfs", "fade_in", "fade_out",
-                     "silence_pre", "silence_post", "repeats"):
+        for name in (
+            "rate",
+            "f_low",
+            "f_high",
+            "duration",
+            "level_dbfs",
+            "fade_in",
+            "fade_out",
+            "silence_pre",
+            "silence_post",
+            "repeats",
+        ):
             v = getattr(self, name)
             if not (isinstance(v, (int, float, np.integer, np.floating)) and np.isfinite(v)):
                 raise InputError(f"sweep {name.replace('_', ' ')} {v!r} is not a finite number")
         if self.duration + self.silence_pre + self.silence_post > MAX_SWEEP_SECONDS:
-            raise InputError(f"a sweep with its silences lasts at most {MAX_SWEEP_SECONDS:g} s "
-                             f"(got {self.duration + self.silence_pre + self.silence_post:g} s)")
+            raise InputError(
+                f"a sweep with its silences lasts at most {MAX_SWEEP_SECONDS:g} s "
+                f"(got {self.duration + self.silence_pre + self.silence_post:g} s)"
+            )
         if self.rate < 8000:
             raise InputError(f"sample rate {self.rate} Hz is too low (at least 8000 Hz)")
         if not (0 < self.f_low < self.f_high):

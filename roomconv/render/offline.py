@@ -138,9 +138,13 @@ class RenderSettings:
             lo = LOUDNESS_TARGET_MIN if self.normalize == "loudness" else -100.0
             self.target = validate.in_range(self.target, "normalization target", lo, 0.0)
         if self.normalize not in NORMALIZE:
-            raise InputError(f"normalization '{self.normalize}' must be one of {', '.join(NORMALIZE)}")
+            raise InputError(
+                f"normalization '{self.normalize}' must be one of {', '.join(NORMALIZE)}"
+            )
         if self.precision not in ("auto", "float64", "float32"):
-            raise InputError(f"engine precision '{self.precision}' must be auto, float64 or float32")
+            raise InputError(
+                f"engine precision '{self.precision}' must be auto, float64 or float32"
+            )
         return self
 
     def engine_precision(self) -> str:
@@ -322,7 +326,8 @@ def dry_routed(x: np.ndarray, n_out: int) -> np.ndarray:
     if x.shape[1] == 1:
         return np.repeat(x, n_out, axis=1)
     raise InputError(
-        "the dry signal cannot be mixed in: inputs and outputs differ in count (use a fully wet mix, 1)"
+        "the dry signal cannot be mixed in: inputs and outputs differ in count "
+        "(use a fully wet mix, 1)"
     )
 
 
@@ -392,8 +397,12 @@ def _audio_rate(rate: int, path) -> None:
     """Refuse a file whose sample rate no audio interface uses (1 Hz, 7 Hz…): rendering
     through it would resample by absurd factors or write an unplayable file."""
     if not validate.RATE_MIN <= rate <= validate.RATE_MAX:
-        raise InputError(describe(path, f"its sample rate {rate} Hz is outside "
-                                        f"{validate.RATE_MIN}–{validate.RATE_MAX} Hz"))
+        raise InputError(
+            describe(
+                path,
+                f"its sample rate {rate} Hz is outside {validate.RATE_MIN}–{validate.RATE_MAX} Hz",
+            )
+        )
 
 
 def render_file(

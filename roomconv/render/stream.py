@@ -438,8 +438,7 @@ def run_live(
         from ..errors import InputError
 
         raise InputError(
-            f"the routing gives {proc.n_out} output channel(s) but "
-            f"{n_out} were asked for"
+            f"the routing gives {proc.n_out} output channel(s) but {n_out} were asked for"
         )
     done = threading.Event()
 

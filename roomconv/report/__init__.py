@@ -9,12 +9,19 @@ from .document import report_html, single_number_rows
 from .grade import measurement_grade
 from .inputs import StudyResults, analyse_study
 
-__all__ = ["StudyResults", "analyse_study", "measurement_grade", "report_html",
-           "single_number_rows", "write_report"]
+__all__ = [
+    "StudyResults",
+    "analyse_study",
+    "measurement_grade",
+    "report_html",
+    "single_number_rows",
+    "write_report",
+]
 
 
-def write_report(res: StudyResults, folder, *, force: bool = False, inputs=(),
-                 guard=None) -> list[Path]:
+def write_report(
+    res: StudyResults, folder, *, force: bool = False, inputs=(), guard=None
+) -> list[Path]:
     """Write ``folder/report.html`` and ``folder/report.pdf`` from one page.
 
     Both outputs are planned before either is written (through ``guard``, the command's
@@ -24,6 +31,7 @@ def write_report(res: StudyResults, folder, *, force: bool = False, inputs=(),
     """
     from ..audio import WriteGuard
     from .pdf import html_to_pdf
+
     own = guard is None
     if own:
         guard = WriteGuard(inputs, force=force)

@@ -63,8 +63,7 @@ def _fmt(x, spec="{:.1f}", none="—"):
 
 
 def _mids(doc) -> tuple[float, ...]:
-    return (500, 1000) if doc["settings"]["bands"] == "octave" else (
-        400, 500, 630, 800, 1000, 1250)
+    return (500, 1000) if doc["settings"]["bands"] == "octave" else (400, 500, 630, 800, 1000, 1250)
 
 
 def _mid_text(doc) -> str:
@@ -97,11 +96,20 @@ def single_number_rows(doc: dict) -> list[dict]:
             if len(vals) == len(mids) and all(v is not None for v in vals):
                 per_pos.append(float(np.mean(vals)))
         spread = float(np.std(per_pos, ddof=1)) if len(per_pos) > 1 else None
-        out.append({"key": key, "name": name, "unit": unit, "value": value,
-                    "text": None if value is None else f.format(value),
-                    "uncertainty": u, "spread": spread, "positions": len(per_pos),
-                    "verdict": verdicts.get(key, "ok" if value is not None else "not evaluable"),
-                    "fmt": f})
+        out.append(
+            {
+                "key": key,
+                "name": name,
+                "unit": unit,
+                "value": value,
+                "text": None if value is None else f.format(value),
+                "uncertainty": u,
+                "spread": spread,
+                "positions": len(per_pos),
+                "verdict": verdicts.get(key, "ok" if value is not None else "not evaluable"),
+                "fmt": f,
+            }
+        )
     return out
 
 
@@ -130,15 +138,20 @@ def _evaluation_notes(doc: dict) -> list[str]:
     for p in doc["positions"]:
         for r in p["bands"]:
             for m in judged:
-                v = (r.get("verdicts") or {}).get(m, "ok") if r.get(m) is not None else (
-                    "not evaluable")
+                v = (
+                    (r.get("verdicts") or {}).get(m, "ok")
+                    if r.get(m) is not None
+                    else ("not evaluable")
+                )
                 counts["total"] += 1
                 if v in counts:
                     counts[v] += 1
-    lines.append(f"Of {counts['total']} band values ({len(doc['positions'])} positions × bands "
-                 f"× parameters), {counts['caution']} carry a caution and "
-                 f"{counts['not evaluable']} could not be evaluated; each is marked in the "
-                 "tables and explained in section 5.")
+    lines.append(
+        f"Of {counts['total']} band values ({len(doc['positions'])} positions × bands "
+        f"× parameters), {counts['caution']} carry a caution and "
+        f"{counts['not evaluable']} could not be evaluated; each is marked in the "
+        "tables and explained in section 5."
+    )
     # One line per kind of warning in the mid bands, naming where it occurs.
     where: dict[str, set[str]] = {}
     for p in doc["positions"]:
@@ -163,8 +176,9 @@ def target_rows(doc: dict, targets) -> list[list[str]]:
         low, high = t * (1 + lo / 100), t * (1 + hi / 100)
         stat = (avg.get(band) or {}).get(metric)
         if stat is None or stat["mean"] is None:
-            rows.append([band_label(band), f"{t:.2f}", f"{low:.2f}–{high:.2f}", "—", "—",
-                         "not evaluated"])
+            rows.append(
+                [band_label(band), f"{t:.2f}", f"{low:.2f}–{high:.2f}", "—", "—", "not evaluated"]
+            )
             continue
         m = stat["mean"]
         u = stat.get("uncertainty") or 0.0
@@ -178,8 +192,16 @@ def target_rows(doc: dict, targets) -> list[list[str]]:
                 verdict += " (at the limit, within its uncertainty)"
         if stat.get("verdict") == "caution":
             verdict += " — caution"
-        rows.append([band_label(band), f"{t:.2f}", f"{low:.2f}–{high:.2f}", f"{m:.2f}",
-                     "—" if not u else f"{u:.2f}", verdict])
+        rows.append(
+            [
+                band_label(band),
+                f"{t:.2f}",
+                f"{low:.2f}–{high:.2f}",
+                f"{m:.2f}",
+                "—" if not u else f"{u:.2f}",
+                verdict,
+            ]
+        )
     return rows
 
 
@@ -189,8 +211,10 @@ def _dl(pairs) -> str:
 
 def _figure(fig, alt: str, caption: str, narrow: bool = False) -> str:
     cls = " class='narrow'" if narrow else ""
-    return (f"<figure{cls}><img alt='{e(alt)}' src='{F.png_uri(fig)}'>"
-            f"<figcaption>{e(caption)}</figcaption></figure>")
+    return (
+        f"<figure{cls}><img alt='{e(alt)}' src='{F.png_uri(fig)}'>"
+        f"<figcaption>{e(caption)}</figcaption></figure>"
+    )
 
 
 def report_html(res: StudyResults) -> str:
@@ -199,88 +223,146 @@ def report_html(res: StudyResults) -> str:
     room = st.room
     mids = _mid_text(doc)
     g = doc["grade"]
-    out = [f"<!doctype html><html lang='en'><head><meta charset='utf-8'>"
-           f"<title>{e(st.title)}</title><style>{_CSS}</style></head><body>"]
+    out = [
+        f"<!doctype html><html lang='en'><head><meta charset='utf-8'>"
+        f"<title>{e(st.title)}</title><style>{_CSS}</style></head><body>"
+    ]
 
     # 1. Cover
-    out.append("<section class='cover'><p class='note'>Room acoustic measurement report</p>"
-               f"<h1>{e(st.title)}</h1>")
-    out.append(_dl([("Client", st.client), ("Project number", st.project_number),
-                    ("Room", room.name + (f" ({room.use})" if room.use else "")),
-                    ("Measured on", ", ".join(st.dates)), ("Author", st.author),
-                    ("Prepared with", f"roomconv {doc['roomconv_version']}")]))
+    out.append(
+        "<section class='cover'><p class='note'>Room acoustic measurement report</p>"
+        f"<h1>{e(st.title)}</h1>"
+    )
+    out.append(
+        _dl(
+            [
+                ("Client", st.client),
+                ("Project number", st.project_number),
+                ("Room", room.name + (f" ({room.use})" if room.use else "")),
+                ("Measured on", ", ".join(st.dates)),
+                ("Author", st.author),
+                ("Prepared with", f"roomconv {doc['roomconv_version']}"),
+            ]
+        )
+    )
     out.append("</section>")
 
     # 2. Summary
     rows = single_number_rows(doc)
-    out.append("<h2>1. Summary</h2><ul class='numbers'>" + "".join(
-        f"<li>{_number_line(r, mids)}</li>" for r in rows) + "</ul>")
+    out.append(
+        "<h2>1. Summary</h2><ul class='numbers'>"
+        + "".join(f"<li>{_number_line(r, mids)}</li>" for r in rows)
+        + "</ul>"
+    )
     out.append("".join(f"<p class='note'>{e(x)}</p>" for x in _evaluation_notes(doc)))
     if st.targets is not None:
         t = st.targets
         src = f" ({e(t.source)})" if t.source else ""
         out.append(f"<h3>Against the reverberation-time target{src}</h3>")
-        out.append(_html_table(["band", f"target {t.basis.upper()} s", "range s",
-                                "measured s", "u s", "result"], target_rows(doc, t)))
+        out.append(
+            _html_table(
+                ["band", f"target {t.basis.upper()} s", "range s", "measured s", "u s", "result"],
+                target_rows(doc, t),
+            )
+        )
 
     # 3. Grade
     name = g["name"] or "below survey grade"
     out.append("<h2>2. Measurement grade (ISO 3382-2)</h2>")
-    out.append(f"<p class='grade'>{e(name.capitalize())}</p><p>{g['sources']} source "
-               f"position(s), {g['receivers']} receiver position(s), {g['combinations']} "
-               "source–receiver combination(s) that gave a decay time in the mid-frequency "
-               "bands.</p>")
+    out.append(
+        f"<p class='grade'>{e(name.capitalize())}</p><p>{g['sources']} source "
+        f"position(s), {g['receivers']} receiver position(s), {g['combinations']} "
+        "source–receiver combination(s) that gave a decay time in the mid-frequency "
+        "bands.</p>"
+    )
     if g["next"]:
         out.append(f"<p>For the {e(g['next'])} grade: {e(', '.join(g['needed_for_next']))}.</p>")
-    out.append("<p class='note'>Least numbers per grade (ISO 3382-2:2008, Table 1, from "
-               "memory): survey 1 source, 2 receivers, 2 combinations; engineering 2 sources, "
-               "2 receivers, 6 combinations; precision 2 sources, 3 receivers, 12 "
-               "combinations. A grade also assumes the standard's positions and distances "
-               "(from walls, between microphones, from the source), which this count does "
-               "not check.</p>")
+    out.append(
+        "<p class='note'>Least numbers per grade (ISO 3382-2:2008, Table 1, from "
+        "memory): survey 1 source, 2 receivers, 2 combinations; engineering 2 sources, "
+        "2 receivers, 6 combinations; precision 2 sources, 3 receivers, 12 "
+        "combinations. A grade also assumes the standard's positions and distances "
+        "(from walls, between microphones, from the source), which this count does "
+        "not check.</p>"
+    )
 
     # 4. Method
     s = doc["settings"]
     sw = st.sweep
-    sweep_bits = [x for x in (
-        sw.f_low_hz and sw.f_high_hz and f"{sw.f_low_hz:g} Hz–{sw.f_high_hz:g} Hz",
-        sw.duration_s and f"{sw.duration_s:g} s", sw.level_dbfs is not None
-        and f"{sw.level_dbfs:g} dBFS", sw.repeats and f"{sw.repeats} repeat(s)",
-        sw.silence_s is not None and f"{sw.silence_s:g} s silence after each",
-        sw.rate_hz and f"{sw.rate_hz} Hz sampling") if x]
+    sweep_bits = [
+        x
+        for x in (
+            sw.f_low_hz and sw.f_high_hz and f"{sw.f_low_hz:g} Hz–{sw.f_high_hz:g} Hz",
+            sw.duration_s and f"{sw.duration_s:g} s",
+            sw.level_dbfs is not None and f"{sw.level_dbfs:g} dBFS",
+            sw.repeats and f"{sw.repeats} repeat(s)",
+            sw.silence_s is not None and f"{sw.silence_s:g} s silence after each",
+            sw.rate_hz and f"{sw.rate_hz} Hz sampling",
+        )
+        if x
+    ]
     out.append("<h2>3. Method</h2><ul>")
-    out.append("<li>Impulse responses measured with an exponential swept sine and "
-               "deconvolution (integrated impulse response method, ISO 3382-1 and "
-               "ISO 3382-2)" + (f": {e(', '.join(sweep_bits))}" if sweep_bits else "") + ".</li>")
-    out.append(f"<li>{e(s['bands'].capitalize())} band filters per IEC 61260-1; "
-               f"{e(s['band_filtering'])}.</li>")
+    out.append(
+        "<li>Impulse responses measured with an exponential swept sine and "
+        "deconvolution (integrated impulse response method, ISO 3382-1 and "
+        "ISO 3382-2)" + (f": {e(', '.join(sweep_bits))}" if sweep_bits else "") + ".</li>"
+    )
+    out.append(
+        f"<li>{e(s['bands'].capitalize())} band filters per IEC 61260-1; "
+        f"{e(s['band_filtering'])}.</li>"
+    )
     # Evaluation ranges and time limits: ISO 3382-1:2009, A.2 and A.3 (from memory).
-    out.append(f"<li>Decay curves: {e(s['decay_method'])}. Evaluation ranges (ISO 3382-1): "
-               "EDT 0 to −10 dB, T20 −5 to −25 dB, T30 −5 to −35 dB; C50, C80 and D50 at 50 ms "
-               "and 80 ms; onset: " + e(s["onset"]) + ".</li>")
-    out.append("<li>Averages are arithmetic means over the positions; the uncertainty of T20 "
-               "and T30 follows ISO 3382-2 from the bandwidth, the decay time and the number of "
-               "positions. Single numbers are means of the " + e(mids) + " bands "
-               "(ISO 3382-1, from memory).</li>")
+    out.append(
+        f"<li>Decay curves: {e(s['decay_method'])}. Evaluation ranges (ISO 3382-1): "
+        "EDT 0 to −10 dB, T20 −5 to −25 dB, T30 −5 to −35 dB; C50, C80 and D50 at 50 ms "
+        "and 80 ms; onset: " + e(s["onset"]) + ".</li>"
+    )
+    out.append(
+        "<li>Averages are arithmetic means over the positions; the uncertainty of T20 "
+        "and T30 follows ISO 3382-2 from the bandwidth, the decay time and the number of "
+        "positions. Single numbers are means of the " + e(mids) + " bands "
+        "(ISO 3382-1, from memory).</li>"
+    )
     if s.get("calibration"):
         out.append("<li>Strength G from a reference written by 'roomconv calibrate'.</li>")
     out.append("<li>Verdicts: " + e(s["verdicts"]) + ".</li></ul>")
     eq = st.equipment
-    eq_rows = [[what, name_ or "—", serial or "—"] for what, name_, serial in (
-        ("source", eq.source, eq.source_serial), ("microphone", eq.microphone,
-                                                  eq.microphone_serial),
-        ("interface", eq.interface, eq.interface_serial))]
-    out.append("<h3>Equipment</h3><div class='words'>"
-               + _html_table(["item", "type", "serial"], eq_rows) + "</div>")
-    cond = [("Room", room.name), ("Use", room.use),
-            ("Volume", _fmt(room.volume, "{:.0f} m³", "")),
-            ("Surface area", _fmt(room.surface, "{:.0f} m²", "")),
-            ("Dimensions", " × ".join(f"{d:g}" for d in room.dimensions_m) + " m"
-             if room.dimensions_m else ""),
-            ("State", room.state + ("" if room.furnished is None else
-                                    ", furnished" if room.furnished else ", unfurnished")),
-            ("Temperature", _fmt(room.temperature_c, "{:.1f} °C", "")),
-            ("Relative humidity", _fmt(room.humidity_pct, "{:.0f} %", ""))]
+    eq_rows = [
+        [what, name_ or "—", serial or "—"]
+        for what, name_, serial in (
+            ("source", eq.source, eq.source_serial),
+            ("microphone", eq.microphone, eq.microphone_serial),
+            ("interface", eq.interface, eq.interface_serial),
+        )
+    ]
+    out.append(
+        "<h3>Equipment</h3><div class='words'>"
+        + _html_table(["item", "type", "serial"], eq_rows)
+        + "</div>"
+    )
+    cond = [
+        ("Room", room.name),
+        ("Use", room.use),
+        ("Volume", _fmt(room.volume, "{:.0f} m³", "")),
+        ("Surface area", _fmt(room.surface, "{:.0f} m²", "")),
+        (
+            "Dimensions",
+            " × ".join(f"{d:g}" for d in room.dimensions_m) + " m" if room.dimensions_m else "",
+        ),
+        (
+            "State",
+            room.state
+            + (
+                ""
+                if room.furnished is None
+                else ", furnished"
+                if room.furnished
+                else ", unfurnished"
+            ),
+        ),
+        ("Temperature", _fmt(room.temperature_c, "{:.1f} °C", "")),
+        ("Relative humidity", _fmt(room.humidity_pct, "{:.0f} %", "")),
+    ]
     out.append("<h3>Room and conditions</h3>" + _dl(cond))
     if st.notes:
         out.append(f"<p>{e(st.notes)}</p>")
@@ -292,98 +374,182 @@ def report_html(res: StudyResults) -> str:
     avg_rows = []
     for r in doc["average"]["bands"]:
         u = r["t30_s"].get("uncertainty")
-        avg_rows.append([band_label(r["band_hz"]), _pm("edt_s", r), _pm("t20_s", r),
-                         _pm("t30_s", r), "—" if u is None else f"{u:.3f}", _pm("c50_db", r),
-                         _pm("c80_db", r), _pm("d50", r), _pm("ts_ms", r)]
-                        + ([_pm("g_db", r)] if "g_db" in metrics else [])
-                        + [str(r["t30_s"]["n"])])
+        avg_rows.append(
+            [
+                band_label(r["band_hz"]),
+                _pm("edt_s", r),
+                _pm("t20_s", r),
+                _pm("t30_s", r),
+                "—" if u is None else f"{u:.3f}",
+                _pm("c50_db", r),
+                _pm("c80_db", r),
+                _pm("d50", r),
+                _pm("ts_ms", r),
+            ]
+            + ([_pm("g_db", r)] if "g_db" in metrics else [])
+            + [str(r["t30_s"]["n"])]
+        )
     out.append(f"<h3>Average over {n} position(s): mean ± standard deviation</h3>")
-    out.append(_html_table(["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C50 dB", "C80 dB",
-                            "D50", "Ts ms"] + (["G dB"] if "g_db" in metrics else [])
-                           + ["n"], avg_rows))
-    out.append("<p class='note'>⚠ caution: the value is given but a check failed (section 5); "
-               "— not evaluable. n: positions with a T30.</p>")
+    out.append(
+        _html_table(
+            ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C50 dB", "C80 dB", "D50", "Ts ms"]
+            + (["G dB"] if "g_db" in metrics else [])
+            + ["n"],
+            avg_rows,
+        )
+    )
+    out.append(
+        "<p class='note'>⚠ caution: the value is given but a check failed (section 5); "
+        "— not evaluable. n: positions with a T30.</p>"
+    )
     basis = st.targets.basis if st.targets is not None else "t30"
     for m in dict.fromkeys((basis, "t30", "edt")):
-        out.append(_figure(F.decay_time_figure(doc, f"{m}_s", st.targets
-                                               if m == basis else None),
-                           f"{m.upper()} per band", f"{m.upper()} per band: average "
-                           "with its uncertainty, single positions in grey"
-                           + (", target range shaded" if st.targets is not None and m == basis
-                              else "") + "."))
-    out.append(_figure(F.ratio_figure(doc), "C80 and D50 per band",
-                       "Clarity C80 and definition D50 per band: average ± standard deviation "
-                       "over positions, single positions in grey."))
-    out.append(_figure(F.frequency_response_figure(res.irs), "frequency responses",
-                       "Magnitude of each response, 1/6-octave smoothed, relative to the "
-                       "loudest position."))
+        out.append(
+            _figure(
+                F.decay_time_figure(doc, f"{m}_s", st.targets if m == basis else None),
+                f"{m.upper()} per band",
+                f"{m.upper()} per band: average "
+                "with its uncertainty, single positions in grey"
+                + (", target range shaded" if st.targets is not None and m == basis else "")
+                + ".",
+            )
+        )
+    out.append(
+        _figure(
+            F.ratio_figure(doc),
+            "C80 and D50 per band",
+            "Clarity C80 and definition D50 per band: average ± standard deviation "
+            "over positions, single positions in grey.",
+        )
+    )
+    out.append(
+        _figure(
+            F.frequency_response_figure(res.irs),
+            "frequency responses",
+            "Magnitude of each response, 1/6-octave smoothed, relative to the loudest position.",
+        )
+    )
     plan = F.plan_figure(st)
     if plan is not None:
-        out.append(_figure(plan, "plan of positions", "Source and receiver positions.",
-                           narrow=True))
-    pos_rows = [[p.id, "source", _fmt(p.x_m, "{:.2f}"), _fmt(p.y_m, "{:.2f}"),
-                 _fmt(p.height_m, "{:.2f}"), p.note] for p in st.sources]
-    pos_rows += [[p.id, "receiver", _fmt(p.x_m, "{:.2f}"), _fmt(p.y_m, "{:.2f}"),
-                  _fmt(p.height_m, "{:.2f}"), p.note] for p in st.receivers]
+        out.append(
+            _figure(plan, "plan of positions", "Source and receiver positions.", narrow=True)
+        )
+    pos_rows = [
+        [
+            p.id,
+            "source",
+            _fmt(p.x_m, "{:.2f}"),
+            _fmt(p.y_m, "{:.2f}"),
+            _fmt(p.height_m, "{:.2f}"),
+            p.note,
+        ]
+        for p in st.sources
+    ]
+    pos_rows += [
+        [
+            p.id,
+            "receiver",
+            _fmt(p.x_m, "{:.2f}"),
+            _fmt(p.y_m, "{:.2f}"),
+            _fmt(p.height_m, "{:.2f}"),
+            p.note,
+        ]
+        for p in st.receivers
+    ]
     out.append(_html_table(["id", "kind", "x m", "y m", "height m", "note"], pos_rows))
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
     for p in doc["positions"]:
-        out.append(f"<div class='pos'><h3>Position {e(p['position'])}: source "
-                   f"{e(p['source'])}, receiver {e(p['receiver'])} ({e(p['file'])}, channel "
-                   f"{p['channel']})</h3>")
+        out.append(
+            f"<div class='pos'><h3>Position {e(p['position'])}: source "
+            f"{e(p['source'])}, receiver {e(p['receiver'])} ({e(p['file'])}, channel "
+            f"{p['channel']})</h3>"
+        )
         out.append(_html_table(header, table_rows(p, metrics)) + "</div>")
         band_res, _wide, rate = res.analysis.curves[(p["file"], p["channel"])]
         h, _ = res.irs[p["position"]]
-        out.append(_figure(F.position_figure(h, rate, band_res, p["position"]),
-                           f"energy-time and decay curves {p['position']}",
-                           f"{p['position']}: energy–time curve (2 ms average in colour) and "
-                           "band decay curves (band marks as in the terminal workbench)."))
+        out.append(
+            _figure(
+                F.position_figure(h, rate, band_res, p["position"]),
+                f"energy-time and decay curves {p['position']}",
+                f"{p['position']}: energy–time curve (2 ms average in colour) and "
+                "band decay curves (band marks as in the terminal workbench).",
+            )
+        )
 
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")
     q_rows = []
     for p in doc["positions"]:
-        inrs = [r["inr_db"] for r in p["bands"] if r.get("inr_db") is not None
-                and 125 <= r["band_hz"] <= 4000]
+        inrs = [
+            r["inr_db"]
+            for r in p["bands"]
+            if r.get("inr_db") is not None and 125 <= r["band_hz"] <= 4000
+        ]
         bad = sum(1 for r in p["bands"] if r.get("verdict") == "caution")
         na = sum(1 for r in p["bands"] if r.get("verdict") == "not evaluable")
         q = doc["quality"].get(p["position"], {})
-        q_rows.append([p["position"], _fmt(p["wideband"].get("inr_db"), "{:.0f}"),
-                       _fmt(min(inrs) if inrs else None, "{:.0f}"), str(bad), str(na),
-                       _fmt(q.get("peak_dbfs"), "{:+.1f}"),
-                       "—" if not q else str(q.get("clipped_samples")),
-                       _fmt(q.get("repeat_mismatch_db"), "{:.1f}")])
-    out.append(_html_table(["position", "INR wideband dB", "lowest INR 125–4k dB",
-                            "bands with caution", "bands not evaluable", "peak dBFS",
-                            "clipped samples", "repeat mismatch dB"], q_rows))
-    out.append("<p class='note'>INR: impulse-to-noise ratio. Peak, clipping and repeat mismatch "
-               "come from the measurement's quality file where the study names one. Needed "
-               "INR (common practice, after ISO 3382-1 evaluation ranges): EDT 20 dB, "
-               "T20 35 dB, T30 45 dB.</p>")
+        q_rows.append(
+            [
+                p["position"],
+                _fmt(p["wideband"].get("inr_db"), "{:.0f}"),
+                _fmt(min(inrs) if inrs else None, "{:.0f}"),
+                str(bad),
+                str(na),
+                _fmt(q.get("peak_dbfs"), "{:+.1f}"),
+                "—" if not q else str(q.get("clipped_samples")),
+                _fmt(q.get("repeat_mismatch_db"), "{:.1f}"),
+            ]
+        )
+    out.append(
+        _html_table(
+            [
+                "position",
+                "INR wideband dB",
+                "lowest INR 125–4k dB",
+                "bands with caution",
+                "bands not evaluable",
+                "peak dBFS",
+                "clipped samples",
+                "repeat mismatch dB",
+            ],
+            q_rows,
+        )
+    )
+    out.append(
+        "<p class='note'>INR: impulse-to-noise ratio. Peak, clipping and repeat mismatch "
+        "come from the measurement's quality file where the study names one. Needed "
+        "INR (common practice, after ISO 3382-1 evaluation ranges): EDT 20 dB, "
+        "T20 35 dB, T30 45 dB.</p>"
+    )
     for p in doc["positions"]:
-        ws = [w for r in p["bands"] + [p["wideband"]]
-              for w in r["warnings"]]
-        ws += [f"measurement: {w}" for w in doc["quality"].get(p["position"], {}).get(
-            "warnings", [])]
+        ws = [w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]]
+        ws += [
+            f"measurement: {w}" for w in doc["quality"].get(p["position"], {}).get("warnings", [])
+        ]
         if ws:
-            out.append(f"<h3>{e(p['position'])}</h3><ul>" + "".join(
-                f"<li class='flagtext'>⚠ {e(w)}</li>" for w in ws) + "</ul>")
+            out.append(
+                f"<h3>{e(p['position'])}</h3><ul>"
+                + "".join(f"<li class='flagtext'>⚠ {e(w)}</li>" for w in ws)
+                + "</ul>"
+            )
     for n_ in doc.get("notes", []):
         out.append(f"<p class='note'>Note: {e(n_)}</p>")
 
     # 7. Limits
-    out.append("<h2>6. Limits of these results</h2><ul>"
-               f"<li>The values describe the room in the state measured ({e(room.state)}"
-               + ("" if room.furnished is None else ", furnished" if room.furnished
-                  else ", unfurnished") + ") at the positions listed, on the dates given; "
-               "another occupancy, furnishing or temperature changes them.</li>"
-               "<li>Values marked ⚠ are given with a caution and values shown as — could not "
-               "be evaluated; neither should be used without reading section 5.</li>"
-               "<li>The measurement grade counts positions only; it does not confirm that the "
-               "positions, the source or the microphone meet every requirement of "
-               "ISO 3382-2.</li>"
-               "<li>These are measured results, not a design; decisions on treatment, "
-               "compliance or use rest with the responsible licensed professional and the "
-               "local codes and regulations.</li></ul>")
+    out.append(
+        "<h2>6. Limits of these results</h2><ul>"
+        f"<li>The values describe the room in the state measured ({e(room.state)}"
+        + ("" if room.furnished is None else ", furnished" if room.furnished else ", unfurnished")
+        + ") at the positions listed, on the dates given; "
+        "another occupancy, furnishing or temperature changes them.</li>"
+        "<li>Values marked ⚠ are given with a caution and values shown as — could not "
+        "be evaluated; neither should be used without reading section 5.</li>"
+        "<li>The measurement grade counts positions only; it does not confirm that the "
+        "positions, the source or the microphone meet every requirement of "
+        "ISO 3382-2.</li>"
+        "<li>These are measured results, not a design; decisions on treatment, "
+        "compliance or use rest with the responsible licensed professional and the "
+        "local codes and regulations.</li></ul>"
+    )
     out.append("</body></html>")
     return "\n".join(out)

@@ -22,8 +22,16 @@ FLAG = "#c2571a"
 #: One mark per band, in band order: the marks of the terminal workbench's decay plot.
 BAND_MARKS = "123456789abcdefghij"
 #: One colour per position, cycled.
-POSITION_COLOURS = ("#0f6e74", "#7a4e9c", "#b5651d", "#2f7d32", "#9c2f4e", "#36597a",
-                    "#6b6b20", "#a0522d")
+POSITION_COLOURS = (
+    "#0f6e74",
+    "#7a4e9c",
+    "#b5651d",
+    "#2f7d32",
+    "#9c2f4e",
+    "#36597a",
+    "#6b6b20",
+    "#a0522d",
+)
 
 
 def png_uri(fig, dpi: int = 110) -> str:
@@ -35,6 +43,7 @@ def png_uri(fig, dpi: int = 110) -> str:
 
 def _figure(w: float, h: float, ncols: int = 1):
     from matplotlib.figure import Figure  # lazy: only reports need matplotlib
+
     fig = Figure(figsize=(w, h))
     axes = [fig.add_subplot(1, ncols, i + 1) for i in range(ncols)]
     for ax in axes:
@@ -66,8 +75,14 @@ def decay_time_figure(doc: dict, metric: str, targets=None):
         tb = sorted(targets.reverberation_s)
         tv = np.array([targets.reverberation_s[b] for b in tb])
         lo, hi = targets.tolerance_pct
-        ax.fill_between(tb, tv * (1 + lo / 100), tv * (1 + hi / 100), color=TARGET,
-                        label=f"target {lo:+g} %/{hi:+g} %", zorder=0)
+        ax.fill_between(
+            tb,
+            tv * (1 + lo / 100),
+            tv * (1 + hi / 100),
+            color=TARGET,
+            label=f"target {lo:+g} %/{hi:+g} %",
+            zorder=0,
+        )
         ax.plot(tb, tv, "--", color=TARGET_EDGE, lw=1, label="target")
     for p in doc["positions"]:
         pts = [(r["band_hz"], r[metric]) for r in p["bands"] if r.get(metric) is not None]
@@ -78,13 +93,29 @@ def decay_time_figure(doc: dict, metric: str, targets=None):
         x = np.array([r["band_hz"] for r in rows])
         y = np.array([r[metric]["mean"] for r in rows])
         e = np.array([r[metric].get("uncertainty") or r[metric]["std"] or 0.0 for r in rows])
-        ax.errorbar(x, y, yerr=e, fmt="-", color=AVERAGE, capsize=3, lw=1.5,
-                    label="average ± uncertainty" if metric != "edt_s" else "average ± std")
+        ax.errorbar(
+            x,
+            y,
+            yerr=e,
+            fmt="-",
+            color=AVERAGE,
+            capsize=3,
+            lw=1.5,
+            label="average ± uncertainty" if metric != "edt_s" else "average ± std",
+        )
         ok = np.array([not _flagged(r[metric]) for r in rows])
         ax.plot(x[ok], y[ok], "o", color=AVERAGE, ms=5)
         if (~ok).any():
-            ax.plot(x[~ok], y[~ok], "o", mfc="white", mec=FLAG, mew=1.8, ms=7,
-                    label="caution (see warnings)")
+            ax.plot(
+                x[~ok],
+                y[~ok],
+                "o",
+                mfc="white",
+                mec=FLAG,
+                mew=1.8,
+                ms=7,
+                label="caution (see warnings)",
+            )
     _band_axis(ax, bands)
     ax.set_ylabel(f"{metric.split('_')[0].upper()} (s)")
     ax.set_ylim(bottom=0)
@@ -107,8 +138,15 @@ def ratio_figure(doc: dict):
         if rows:
             x = np.array([r["band_hz"] for r in rows])
             y = np.array([r[metric]["mean"] for r in rows])
-            ax.errorbar(x, y, yerr=[r[metric]["std"] or 0.0 for r in rows], fmt="-o", ms=4,
-                        color=AVERAGE, capsize=3)
+            ax.errorbar(
+                x,
+                y,
+                yerr=[r[metric]["std"] or 0.0 for r in rows],
+                fmt="-o",
+                ms=4,
+                color=AVERAGE,
+                capsize=3,
+            )
             bad = np.array([_flagged(r[metric]) for r in rows])
             if bad.any():
                 ax.plot(x[bad], y[bad], "o", mfc="white", mec=FLAG, mew=1.8, ms=7)
@@ -134,21 +172,36 @@ def position_figure(h: np.ndarray, rate: int, band_results, title: str):
     k = max(1, int(0.002 * rate))
     smooth = np.convolve(e, np.ones(k) / k, mode="same")
     with np.errstate(divide="ignore"):
-        a1.plot(t_ms[::step], 10 * np.log10(np.maximum(smooth[::step] / peak, 1e-12)), lw=1.0,
-                color=AVERAGE)
+        a1.plot(
+            t_ms[::step],
+            10 * np.log10(np.maximum(smooth[::step] / peak, 1e-12)),
+            lw=1.0,
+            color=AVERAGE,
+        )
     a1.set_ylim(-90, 3)
     a1.set_xlim(0, t_ms[-1] if t_ms.size else 1)
     a1.set_xlabel("time (ms)")
     a1.set_ylabel("energy (dB re peak)")
     a1.set_title(f"Energy–time curve, {title}", fontsize=8)
-    shown = [(i, r) for i, r in enumerate(band_results)
-             if r.curve_db is not None and r.band_hz is not None and 125 <= r.band_hz <= 4000]
+    shown = [
+        (i, r)
+        for i, r in enumerate(band_results)
+        if r.curve_db is not None and r.band_hz is not None and 125 <= r.band_hz <= 4000
+    ]
     for n, (i, r) in enumerate(shown):
         colour = POSITION_COLOURS[n % len(POSITION_COLOURS)]
         t = np.arange(r.curve_db.size) / rate
         mark = f"${BAND_MARKS[i % len(BAND_MARKS)]}$"
-        a2.plot(t, r.curve_db, lw=1.0, color=colour, marker=mark, markevery=max(1, t.size // 4),
-                ms=7, label=band_label(r.band_hz))
+        a2.plot(
+            t,
+            r.curve_db,
+            lw=1.0,
+            color=colour,
+            marker=mark,
+            markevery=max(1, t.size // 4),
+            ms=7,
+            label=band_label(r.band_hz),
+        )
         if r.t30_s is not None:
             fit = fit_decay(r.curve_db, rate, -5.0, -35.0)
             if fit is not None:
@@ -184,14 +237,16 @@ def frequency_response_figure(irs: dict):
     curves = {k: _smoothed_db(h, rate) for k, (h, rate) in irs.items()}
     top = max(float(np.max(db)) for _, db in curves.values())
     for n, (label, (f, db)) in enumerate(curves.items()):
-        ax.semilogx(f, db - top, lw=1.0, color=POSITION_COLOURS[n % len(POSITION_COLOURS)],
-                    label=label)
+        ax.semilogx(
+            f, db - top, lw=1.0, color=POSITION_COLOURS[n % len(POSITION_COLOURS)], label=label
+        )
     ax.set_xlim(20, 20000)
     low = min(float(np.min(db[(f >= 31.5) & (f <= 16000)])) for f, db in curves.values())
     ax.set_ylim(max(-60.0, np.floor((low - top) / 10) * 10 - 5), 3)
     ax.set_xticks([31.5, 63, 125, 250, 500, 1000, 2000, 4000, 8000, 16000])
-    ax.set_xticklabels(["31.5", "63", "125", "250", "500", "1k", "2k", "4k", "8k", "16k"],
-                       fontsize=7)
+    ax.set_xticklabels(
+        ["31.5", "63", "125", "250", "500", "1k", "2k", "4k", "8k", "16k"], fontsize=7
+    )
     ax.minorticks_off()
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("level (dB re loudest)")
@@ -216,8 +271,14 @@ def plan_figure(study):
                 continue
             ax.plot(p.x_m, p.y_m, marker, color=colour, ms=8)
             h = "" if p.height_m is None else f" ({p.height_m:g} m)"
-            ax.annotate(p.id + h, (p.x_m, p.y_m), textcoords="offset points", xytext=(5, 5),
-                        fontsize=7, color=INK)
+            ax.annotate(
+                p.id + h,
+                (p.x_m, p.y_m),
+                textcoords="offset points",
+                xytext=(5, 5),
+                fontsize=7,
+                color=INK,
+            )
     ax.set_aspect("equal", adjustable="datalim")
     ax.set_xlabel("x (m)")
     ax.set_ylabel("y (m)")
@@ -227,4 +288,5 @@ def plan_figure(study):
 
 def _rect(w, d):
     from matplotlib.patches import Rectangle
+
     return Rectangle((0, 0), w, d, fill=False, ec=INK, lw=1.2)

@@ -61,13 +61,19 @@ def measurement_grade(combinations) -> Grade:
         if ns >= s and nr >= r and nc >= c:
             reached = name
     names = [g[0] for g in GRADES]
-    nxt = names[0] if reached is None else (
-        names[names.index(reached) + 1] if reached != names[-1] else None)
+    nxt = (
+        names[0]
+        if reached is None
+        else (names[names.index(reached) + 1] if reached != names[-1] else None)
+    )
     needed: list[str] = []
     if nxt is not None:
         _, s, r, c = GRADES[names.index(nxt)]
-        for have, want, what in ((ns, s, "source position"), (nr, r, "receiver position"),
-                                 (nc, c, "combination")):
+        for have, want, what in (
+            (ns, s, "source position"),
+            (nr, r, "receiver position"),
+            (nc, c, "combination"),
+        ):
             if have < want:
                 k = want - have
                 needed.append(f"{k} more {what}{'s' if k > 1 else ''}")

@@ -33,35 +33,48 @@ def check_study_inputs(study: StudyFile) -> None:
     for i, r in enumerate(study.responses, 1):
         key = f"{study.path}: responses[{i}]"
         if not r.file.is_file():
-            raise InputError(f"{key}.file: {study.display_path(r.file)} not found; check the "
-                             "path (relative to the study file)")
+            raise InputError(
+                f"{key}.file: {study.display_path(r.file)} not found; check the "
+                "path (relative to the study file)"
+            )
         try:
             info = audio_info(r.file)
         except InputError as exc:
             raise InputError(f"{key}.file: {exc}") from None
         if r.channel > info.channels:
-            raise InputError(f"{key}.channel: {r.channel} but {study.display_path(r.file)} has "
-                             f"{info.channels} channel(s); give a channel from 1 to "
-                             f"{info.channels}")
+            raise InputError(
+                f"{key}.channel: {r.channel} but {study.display_path(r.file)} has "
+                f"{info.channels} channel(s); give a channel from 1 to "
+                f"{info.channels}"
+            )
         if r.quality_file is not None and not r.quality_file.is_file():
-            raise InputError(f"{key}.quality_file: {study.display_path(r.quality_file)} not "
-                             "found; check the path or leave the key out")
+            raise InputError(
+                f"{key}.quality_file: {study.display_path(r.quality_file)} not "
+                "found; check the path or leave the key out"
+            )
 
 
 def used_combinations(doc: dict) -> list[tuple[str, str]]:
     """Source–receiver combinations that gave a decay time (T20 or T30) in a mid band."""
-    mids = (500, 1000) if doc["settings"]["bands"] == "octave" else (
-        400, 500, 630, 800, 1000, 1250)
+    mids = (500, 1000) if doc["settings"]["bands"] == "octave" else (400, 500, 630, 800, 1000, 1250)
     out = []
     for p in doc["positions"]:
-        if any(r["band_hz"] in mids and (r.get("t30_s") is not None or r.get("t20_s") is not None)
-               for r in p["bands"]):
+        if any(
+            r["band_hz"] in mids and (r.get("t30_s") is not None or r.get("t20_s") is not None)
+            for r in p["bands"]
+        ):
             out.append((p["source"], p["receiver"]))
     return out
 
 
-def analyse_study(study: StudyFile, *, bands: str = "octave", filtering: str = "auto",
-                  calibration=None, progress=None) -> StudyResults:
+def analyse_study(
+    study: StudyFile,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration=None,
+    progress=None,
+) -> StudyResults:
     """Read every response the study names and analyse each as one position.
 
     The document's positions carry ``position`` (``S1-R1``), ``source``, ``receiver`` and
@@ -79,24 +92,37 @@ def analyse_study(study: StudyFile, *, bands: str = "octave", filtering: str = "
         irs[label] = (h, rate)
         if r.quality_file is not None:
             quality[label] = read_json(r.quality_file, what="measurement quality file")
-    result = analyse_arrays(items, bands=bands, filtering=filtering, calibration=calibration,
-                            progress=progress)
+    result = analyse_arrays(
+        items, bands=bands, filtering=filtering, calibration=calibration, progress=progress
+    )
     doc = result.document
     curves = {}
     for p in doc["positions"]:
         label = p["file"]
         r = by_label[label]
-        p.update({"position": label, "source": r.source, "receiver": r.receiver,
-                  "file": study.display_path(r.file), "channel": r.channel})
+        p.update(
+            {
+                "position": label,
+                "source": r.source,
+                "receiver": r.receiver,
+                "file": study.display_path(r.file),
+                "channel": r.channel,
+            }
+        )
         # Keyed as everywhere else, by the document's (file, channel).
         curves[(p["file"], p["channel"])] = result.curves[(label, 1)]
     result.curves = curves
     doc["study"] = study.as_dict()
     g = measurement_grade(used_combinations(doc))
-    doc["grade"] = {"name": g.name, "sources": g.sources, "receivers": g.receivers,
-                    "combinations": g.combinations, "next": g.next_name,
-                    "needed_for_next": list(g.needed),
-                    "basis": "ISO 3382-2:2008, Table 1 (numbers from memory)"}
+    doc["grade"] = {
+        "name": g.name,
+        "sources": g.sources,
+        "receivers": g.receivers,
+        "combinations": g.combinations,
+        "next": g.next_name,
+        "needed_for_next": list(g.needed),
+        "basis": "ISO 3382-2:2008, Table 1 (numbers from memory)",
+    }
     doc["quality"] = {k: _quality_summary(v) for k, v in quality.items()}
     return StudyResults(study, result, irs, quality)
 
@@ -104,9 +130,12 @@ def analyse_study(study: StudyFile, *, bands: str = "octave", filtering: str = "
 def _quality_summary(q: dict) -> dict:
     rec, ir = q.get("recording", {}), q.get("ir", {})
     rep = q.get("repeats") or {}
-    return {"peak_dbfs": max(rec.get("peak_dbfs") or [float("nan")]),
-            "clipped_samples": int(sum(rec.get("clipped_samples") or [0])),
-            "inr_db": min(ir.get("inr_db") or [float("nan")]),
-            "repeats": rep.get("count"), "repeat_mismatch_db": rep.get("repeat_mismatch_db"),
-            "latency_samples": q.get("reference_latency_samples"),
-            "warnings": list(q.get("warnings", []))}
+    return {
+        "peak_dbfs": max(rec.get("peak_dbfs") or [float("nan")]),
+        "clipped_samples": int(sum(rec.get("clipped_samples") or [0])),
+        "inr_db": min(ir.get("inr_db") or [float("nan")]),
+        "repeats": rep.get("count"),
+        "repeat_mismatch_db": rep.get("repeat_mismatch_db"),
+        "latency_samples": q.get("reference_latency_samples"),
+        "warnings": list(q.get("warnings", [])),
+    }

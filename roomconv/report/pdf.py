@@ -11,11 +11,12 @@ def pdf_engine_problem() -> str | None:
     try:
         import weasyprint  # noqa: F401
     except ImportError as exc:
-        return (f"WeasyPrint is not installed ({exc}); install it with "
-                "'pip install weasyprint'")
+        return f"WeasyPrint is not installed ({exc}); install it with 'pip install weasyprint'"
     except OSError as exc:  # the Pango shared libraries are missing
-        return (f"WeasyPrint cannot load the Pango library ({exc}); install the system "
-                "package libpango-1.0-0")
+        return (
+            f"WeasyPrint cannot load the Pango library ({exc}); install the system "
+            "package libpango-1.0-0"
+        )
     return None
 
 

@@ -136,8 +136,9 @@ def reverse(ir: np.ndarray) -> np.ndarray:
     return _2d(ir)[::-1].copy()
 
 
-def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
-                onset: int | None = None) -> np.ndarray:
+def scale_decay(
+    ir: np.ndarray, rate: int, factor, *, decay_times_s, onset: int | None = None
+) -> np.ndarray:
     """Stretch (factor > 1) or shrink the decay time by multiplying with an exponential.
 
     A decay of time T becomes factor·T: each band is multiplied by
@@ -176,8 +177,10 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
     W = band_weights(np.fft.rfftfreq(nfft, 1.0 / rate))
     out = np.zeros_like(x)
     if len(decay_times_s) != x.shape[1]:
-        raise InputError(f"decay times are given for {len(decay_times_s)} channel(s) but the "
-                         f"response has {x.shape[1]}")
+        raise InputError(
+            f"decay times are given for {len(decay_times_s)} channel(s) but the "
+            f"response has {x.shape[1]}"
+        )
     for ch in range(x.shape[1]):
         t0 = onset if onset is not None else int(np.argmax(np.abs(x[:, ch])))
         t = np.maximum(np.arange(n) - t0, 0) / rate
@@ -194,8 +197,9 @@ def scale_decay(ir: np.ndarray, rate: int, factor, *, decay_times_s,
             # response is noise, which would be raised without bound: it is carried on at
             # the new rate from the level reached (a decay cannot be stretched below the
             # noise it was measured in).
-            log_gain = (3 * _LN10 / T * (1 - 1 / f) * np.minimum(t, t_c)
-                        - 3 * _LN10 / (f * T) * np.maximum(t - t_c, 0.0))
+            log_gain = 3 * _LN10 / T * (1 - 1 / f) * np.minimum(t, t_c) - 3 * _LN10 / (
+                f * T
+            ) * np.maximum(t - t_c, 0.0)
             out[:, ch] += band * np.exp(log_gain)
     return out
 
@@ -210,8 +214,8 @@ def _noise_time(band: np.ndarray, rate: int, t0: int, T: float) -> float:
     m = band[t0:].size // n
     if m < 4:
         return float("inf")
-    env = np.mean(np.square(band[t0: t0 + m * n]).reshape(m, n), axis=1)
-    floor = float(np.mean(env[-max(1, m // 10):]))
+    env = np.mean(np.square(band[t0 : t0 + m * n]).reshape(m, n), axis=1)
+    floor = float(np.mean(env[-max(1, m // 10) :]))
     peak = float(env.max())
     if floor <= 0 or peak <= 0:
         return float("inf")

@@ -276,8 +276,10 @@ def synthesize(
         natural = LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S
         length_s = min(DEFAULT_LENGTH_CAP_S, natural)
         if natural > DEFAULT_LENGTH_CAP_S:
-            cut_note = (f"the response is cut at {DEFAULT_LENGTH_CAP_S:g} s, before its decay "
-                        f"ends (it would need {natural:.0f} s; give a length to choose)")
+            cut_note = (
+                f"the response is cut at {DEFAULT_LENGTH_CAP_S:g} s, before its decay "
+                f"ends (it would need {natural:.0f} s; give a length to choose)"
+            )
     n = int(round(length_s * rate))
     if n < 16:
         raise InputError("the requested length is too short")

@@ -147,25 +147,43 @@ def load_materials(path) -> dict[str, Material]:
     except OSError as exc:
         raise InputError(describe(p, f"cannot be read: {exc.strerror or exc}")) from None
     if not isinstance(data, dict):
-        raise InputError(describe(p, f"holds a {type(data).__name__}, not a table of materials",
-                                  'expected {"name": {"alpha": [...], "source": "..."}}'))
+        raise InputError(
+            describe(
+                p,
+                f"holds a {type(data).__name__}, not a table of materials",
+                'expected {"name": {"alpha": [...], "source": "..."}}',
+            )
+        )
     out = {}
     for name, row in data.items():
         if not isinstance(row, dict) or "alpha" not in row:
             raise InputError(describe(p, f"material '{name}' needs an 'alpha' list"))
         alpha = row["alpha"]
         if not isinstance(alpha, list):
-            raise InputError(describe(p, f"material '{name}': field 'alpha' must be a list of "
-                                         f"6 or {len(OCTAVES)} numbers, not {alpha!r}"))
+            raise InputError(
+                describe(
+                    p,
+                    f"material '{name}': field 'alpha' must be a list of "
+                    f"6 or {len(OCTAVES)} numbers, not {alpha!r}",
+                )
+            )
         bad = [v for v in alpha if isinstance(v, bool) or not isinstance(v, (int, float))]
         if bad:
-            raise InputError(describe(p, f"material '{name}': field 'alpha' holds {bad[0]!r}, "
-                                         "which is not a number"))
+            raise InputError(
+                describe(
+                    p, f"material '{name}': field 'alpha' holds {bad[0]!r}, which is not a number"
+                )
+            )
         vals = [float(v) for v in alpha]
         if len(vals) not in (6, len(OCTAVES)):
-            raise InputError(describe(p, f"material '{name}': field 'alpha' needs 6 (125 Hz-"
-                                         f"4 kHz) or {len(OCTAVES)} (63 Hz-8 kHz) values, got "
-                                         f"{len(vals)}"))
+            raise InputError(
+                describe(
+                    p,
+                    f"material '{name}': field 'alpha' needs 6 (125 Hz-"
+                    f"4 kHz) or {len(OCTAVES)} (63 Hz-8 kHz) values, got "
+                    f"{len(vals)}",
+                )
+            )
         src = str(row.get("source", f"user file {p.name}"))
         m = _six(name, vals, src) if len(vals) == 6 else Material(name, tuple(vals), src)
         try:

@@ -11,19 +11,46 @@ import numpy as np
 import pytest
 
 from benchmarks import accuracy
-from benchmarks.accuracy_cases import (JND, METRICS, Case, band_edges, band_inr_db,
-                                       build, classify, closed_forms, edge_width_ratio,
-                                       energy_envelope, error_in_jnd, make_grid,
-                                       reference_band_gain, reference_filter, reference_truth,
-                                       schroeder_db, single_decay_sigma, truth_ranges)
+from benchmarks.accuracy_cases import (
+    JND,
+    METRICS,
+    Case,
+    band_edges,
+    band_inr_db,
+    build,
+    classify,
+    closed_forms,
+    edge_width_ratio,
+    energy_envelope,
+    error_in_jnd,
+    make_grid,
+    reference_band_gain,
+    reference_filter,
+    reference_truth,
+    schroeder_db,
+    single_decay_sigma,
+    truth_ranges,
+)
 
 RATE = 48000
 
 
 def _case(**kw) -> Case:
-    base = dict(index=0, seed=11, rate=RATE, bands="octave", slope="single", t_s=1.0,
-                t_early_s=1.0, knee_db=0.0, inr_db=60.0, noise="white",
-                window_factor=2.0, drr_db=-6.0, predelay_s=0.01)
+    base = dict(
+        index=0,
+        seed=11,
+        rate=RATE,
+        bands="octave",
+        slope="single",
+        t_s=1.0,
+        t_early_s=1.0,
+        knee_db=0.0,
+        inr_db=60.0,
+        noise="white",
+        window_factor=2.0,
+        drr_db=-6.0,
+        predelay_s=0.01,
+    )
     base.update(kw)
     if base["slope"] == "single":
         base["t_early_s"] = base["t_s"]
@@ -31,6 +58,7 @@ def _case(**kw) -> Case:
 
 
 # --- the grid ---------------------------------------------------------------------------------
+
 
 def test_default_grid_is_stratified_and_reproducible():
     grid = make_grid()
@@ -64,14 +92,15 @@ def test_double_slope_envelope_has_its_knee_where_asked():
     e = energy_envelope(c, np.array([0.0, t_knee, t_knee + 1.0]))
     assert e[0] == pytest.approx(1.0)
     # At the knee both terms are 10^(−1.5): the sum is twice that, over the start 1 + K.
-    k = 10 ** -1.5 / math.exp(-6 * math.log(10) / 2.0 * t_knee)
-    assert e[1] == pytest.approx(2 * 10 ** -1.5 / (1 + k), rel=1e-12)
+    k = 10**-1.5 / math.exp(-6 * math.log(10) / 2.0 * t_knee)
+    assert e[1] == pytest.approx(2 * 10**-1.5 / (1 + k), rel=1e-12)
     # Well past the knee the late slope rules: 60 dB per T2 (definition of T).
     late = 10 * math.log10(e[2] / energy_envelope(c, np.array([t_knee + 0.5]))[0])
     assert late == pytest.approx(-60 * 0.5 / 2.0, abs=0.2)
 
 
 # --- the reference band-pass ------------------------------------------------------------------
+
 
 @pytest.mark.parametrize("fraction,kind,nominal", [(1, "octave", 125), (3, "third", 1000)])
 def test_reference_band_pass_gain(fraction, kind, nominal):
@@ -88,13 +117,14 @@ def test_reference_band_pass_gain(fraction, kind, nominal):
     assert np.all(g[outside] == 0.0)
     # −3 dB (|H|² = 1/2) at the exact band edges, as the nominal edge of a band filter.
     edge = reference_band_gain(np.array([lo, hi]), lo, hi, fraction)
-    np.testing.assert_allclose(edge ** 2, 0.5, atol=1e-12)
+    np.testing.assert_allclose(edge**2, 0.5, atol=1e-12)
     # Power-complementary with the next band up: |H_k|² + |H_k+1|² = 1 across the shared edge.
     ratio = 10 ** (0.3 / fraction)
     shared = np.linspace(hi * (1 - r / 2), hi * (1 + r / 2), 501)
     g_next = reference_band_gain(shared, hi, hi * ratio, fraction)
-    np.testing.assert_allclose(reference_band_gain(shared, lo, hi, fraction) ** 2 + g_next ** 2,
-                               1.0, atol=1e-12)
+    np.testing.assert_allclose(
+        reference_band_gain(shared, lo, hi, fraction) ** 2 + g_next**2, 1.0, atol=1e-12
+    )
     # Brick-wall variant: unit gain in band, zero outside.
     bw = reference_band_gain(f, lo, hi, fraction, smooth=False)
     assert np.all(bw[(f >= lo) & (f <= hi)] == 1) and np.all(bw[(f < lo) | (f > hi)] == 0)
@@ -108,10 +138,10 @@ def test_reference_filter_is_zero_phase_and_keeps_white_band_energy():
     y, pad = reference_filter(x, RATE, lo, hi, 1)
     m = pad - 1
     assert m > 400
-    np.testing.assert_allclose(y[pad - m: pad], y[pad + m: pad: -1], atol=1e-15)
+    np.testing.assert_allclose(y[pad - m : pad], y[pad + m : pad : -1], atol=1e-15)
     # Parseval: its energy is the integral of |H|², which equals the brick-wall band's
     # 2·(f2 − f1)/fs for power-complementary edges.
-    assert np.sum(y ** 2) == pytest.approx(2 * (hi - lo) / RATE, rel=1e-3)
+    assert np.sum(y**2) == pytest.approx(2 * (hi - lo) / RATE, rel=1e-3)
 
 
 def test_brick_wall_would_ring_into_the_decay():
@@ -123,11 +153,11 @@ def test_brick_wall_would_ring_into_the_decay():
     _, lo, hi = band_edges(125, "octave")
     for smooth, bound in ((False, None), (True, 1e-6)):
         y, pad = reference_filter(x, RATE, lo, hi, 1, smooth=smooth, pad=4 * RATE)
-        e = y ** 2
+        e = y**2
         k = int(0.17 * RATE)
-        tail = (e[pad + k:].sum() + e[: pad - k].sum()) / e.sum()
+        tail = (e[pad + k :].sum() + e[: pad - k].sum()) / e.sum()
         if bound is None:
-            assert tail == pytest.approx(1 / (math.pi ** 2 * (hi - lo) * 0.17), rel=0.02)
+            assert tail == pytest.approx(1 / (math.pi**2 * (hi - lo) * 0.17), rel=0.02)
         else:
             assert tail < bound
 
@@ -142,20 +172,21 @@ def test_padding_holds_the_filter_spread(edge_scale):
     x[0] = 1.0
     y, pad = reference_filter(x, RATE, lo, hi, 1, edge_scale=edge_scale, pad=4 * RATE)
     k = int(4 / w * RATE)
-    e = y ** 2
-    assert (e[pad + k:].sum() + e[: pad - k].sum()) / e.sum() < 1e-6
+    e = y**2
+    assert (e[pad + k :].sum() + e[: pad - k].sum()) / e.sum() < 1e-6
 
 
 # --- the construction -------------------------------------------------------------------------
+
 
 def test_inr_is_what_was_asked_white():
     c = _case(t_s=2.0, inr_db=37.0, window_factor=3.0)
     b = build(c)
     i0, m = c.onset, int(0.2 * RATE)
     a2 = energy_envelope(c, np.arange(m) / RATE)
-    start = np.mean(b.reverb[i0: i0 + m] ** 2) / np.mean(a2)
-    measured = 10 * math.log10(start / np.mean(b.noise ** 2))
-    assert measured == pytest.approx(37.0, abs=1.0)   # asked within 1 dB (white: any band)
+    start = np.mean(b.reverb[i0 : i0 + m] ** 2) / np.mean(a2)
+    measured = 10 * math.log10(start / np.mean(b.noise**2))
+    assert measured == pytest.approx(37.0, abs=1.0)  # asked within 1 dB (white: any band)
 
 
 @pytest.mark.parametrize("nominal", [1000, 125])
@@ -166,10 +197,10 @@ def test_inr_is_what_was_asked_pink(nominal):
     # The reverberant part's level at the onset: its carrier n = reverb/a over the whole
     # reference (many degrees of freedom), since a(0) = 1.
     a = np.sqrt(energy_envelope(c, np.arange(b.reverb.size - c.onset) / RATE))
-    carrier, pad = reference_filter(b.reverb[c.onset:] / a, RATE, lo, hi, 1)
+    carrier, pad = reference_filter(b.reverb[c.onset :] / a, RATE, lo, hi, 1)
     noi, pad_n = reference_filter(b.noise, RATE, lo, hi, 1)
-    start = np.mean(carrier[pad: pad + a.size] ** 2)
-    measured = 10 * math.log10(start / np.mean(noi[pad_n: pad_n + b.noise.size] ** 2))
+    start = np.mean(carrier[pad : pad + a.size] ** 2)
+    measured = 10 * math.log10(start / np.mean(noi[pad_n : pad_n + b.noise.size] ** 2))
     # In the 1 kHz octave as asked; at 125 Hz lower by 10·lg(B/B_1k) for equal power per
     # octave (closed form in band_inr_db). Within 1 dB.
     assert measured == pytest.approx(band_inr_db(c, nominal), abs=1.0)
@@ -186,14 +217,15 @@ def test_measured_is_the_clean_response_cut_plus_noise():
     np.testing.assert_array_equal(b.measured, b.clean[:n] + b.noise)
     assert not np.any(b.clean[: c.onset])
     # DRR: the direct sample's energy over the reverberant part's (definition of the case).
-    e_rev = np.sum(b.reverb ** 2)
-    assert 10 * math.log10(b.direct_amplitude ** 2 / e_rev) == pytest.approx(c.drr_db)
+    e_rev = np.sum(b.reverb**2)
+    assert 10 * math.log10(b.direct_amplitude**2 / e_rev) == pytest.approx(c.drr_db)
     # The clean response runs until the envelope is 135 dB down (100 dB past T30's −35 dB).
     tail = energy_envelope(c, np.array([(b.clean.size - c.onset) / RATE]))[0]
     assert 10 * math.log10(tail) <= -135 + 0.01
 
 
 # --- the reference method against closed forms -----------------------------------------------
+
 
 def test_schroeder_of_a_pure_exponential_is_linear():
     # Schroeder (1965): the backward integral of e^(−kt) is e^(−kt)/k, a straight line in dB
@@ -247,19 +279,26 @@ def test_reference_wideband_matches_closed_forms_closely():
 def test_grid_truths_sit_on_the_closed_forms():
     """Guard the yardstick over grid cases: mean deviation of the realization truths of
     single-slope bands with B·T ≥ 300 from the closed forms is small."""
-    grid = [c for c in make_grid(24, seed=5, t_range=(0.3, 1.5), rates=(44100, 48000))
-            if c.slope == "single"][:6]
+    grid = [
+        c
+        for c in make_grid(24, seed=5, t_range=(0.3, 1.5), rates=(44100, 48000))
+        if c.slope == "single"
+    ][:6]
     results = []
     for c in grid:
-        table = [125, 250, 500, 1000, 2000, 4000, 8000] if c.bands == "octave" else \
-            [500, 1000, 2000, 4000, 8000]
+        table = (
+            [125, 250, 500, 1000, 2000, 4000, 8000]
+            if c.bands == "octave"
+            else [500, 1000, 2000, 4000, 8000]
+        )
         truth = reference_truth(build(c), table)
         recs = []
         for nom in table:
             _, lo, hi = band_edges(nom, c.bands)
             for m in METRICS:
-                recs.append({"band": nom, "metric": m, "truth": truth[nom][m],
-                             "bt": (hi - lo) * c.t_s})
+                recs.append(
+                    {"band": nom, "metric": m, "truth": truth[nom][m], "bt": (hi - lo) * c.t_s}
+                )
         results.append({"case": c.as_dict(), "records": recs})
     check = accuracy.yardstick_check(grid, results, min_bt=300.0)
     for m, (mean, count) in check.items():
@@ -273,6 +312,7 @@ def test_split_direct_and_reverberant_parts_match_filtering_the_response():
     # Its values must equal those of the whole clean response through the band-pass
     # (numpy FFT) to a hundredth of a JND, in a wide band and in a narrow low one.
     from benchmarks.accuracy_cases import _parameters
+
     c = _case(t_s=0.8, drr_db=3.0, seed=21)
     b = build(c)
     truth = reference_truth(b, [125, 4000])
@@ -290,16 +330,17 @@ def test_truth_range_collapses_at_high_bt_and_opens_at_low():
     c = _case(t_s=0.3, bands="third", seed=3)
     main, ranges = truth_ranges(build(c), [50, 4000])
     assert ranges["wideband"]["t30_s"][0] == ranges["wideband"]["t30_s"][1]
-    for m in METRICS:                     # B·T = 0.3 · 922 Hz ≈ 280: one edge shape
+    for m in METRICS:  # B·T = 0.3 · 922 Hz ≈ 280: one edge shape
         lo, hi = ranges[4000][m]
         assert lo <= main[4000][m] <= hi
-        assert abs(error_in_jnd(m, hi, lo)) < 0.1, m   # direct sound's spread: < 1 ms
+        assert abs(error_in_jnd(m, hi, lo)) < 0.1, m  # direct sound's spread: < 1 ms
     for m in METRICS:
         lo, hi = ranges[50][m]
         assert lo <= main[50][m] <= hi
 
 
 # --- counting ---------------------------------------------------------------------------------
+
 
 def test_classification_follows_the_jnd():
     # JNDs of ISO 3382-1:2009 Table A.1 (from memory): 5 % for decay times, 1 dB for C80,
@@ -325,8 +366,9 @@ def test_classification_follows_the_jnd():
 def test_missing_verdicts_count_as_ok():
     bare = SimpleNamespace(band_hz=500.0)
     assert accuracy.verdict_of(bare, "c80_db") == "ok"
-    banded = SimpleNamespace(verdict="caution", value_verdicts={"edt_s": "ok", "t30": "not "
-                                                                 "evaluable"})
+    banded = SimpleNamespace(
+        verdict="caution", value_verdicts={"edt_s": "ok", "t30": "not evaluable"}
+    )
     assert accuracy.verdict_of(banded, "edt_s") == "ok"
     assert accuracy.verdict_of(banded, "t30_s") == "not evaluable"
     assert accuracy.verdict_of(banded, "c80_db") == "caution"
@@ -347,11 +389,13 @@ def test_cli_will_not_overwrite_a_json_file(tmp_path, capsys):
 
 # --- the regression grid ----------------------------------------------------------------------
 
+
 def small_grid() -> list[Case]:
     """The same construction as the full grid, smaller: 12 responses, T 0.2–0.6 s (about
     15 s on an idle machine, most of it the reference's low bands)."""
-    return make_grid(12, seed=31, t_range=(0.2, 0.6), window_range=(1.2, 6.0),
-                     max_window_samples=1 << 17)
+    return make_grid(
+        12, seed=31, t_range=(0.2, 0.6), window_range=(1.2, 6.0), max_window_samples=1 << 17
+    )
 
 
 @pytest.fixture(scope="module")
@@ -379,4 +423,5 @@ def test_small_grid_has_no_silently_wrong_value(small_grid_records):
     worst = sorted(silent, key=lambda r: -abs(r["error_jnd"]))[:5]
     assert not silent, f"{len(silent)} silently wrong, worst: " + "; ".join(
         f"case {r['case']} {r['band']} {r['metric']} {r['value']:.3g} vs {r['truth']:.3g}"
-        for r in worst)
+        for r in worst
+    )

@@ -16,8 +16,7 @@ FS = 48000
 # edition, IEC 61260-1:2014, Table 1, re-stated the limits (a wider pass-band tolerance among
 # other changes); its numbers are not checked here. The Ω break points (G^(k/8) for octaves,
 # the 1/3-octave column) are those of the same 1995 table, also from memory.
-OCTAVE_OMEGA = [1, G ** (1 / 8), G ** (1 / 4), G ** (3 / 8), G ** (1 / 2), G, G ** 2, G ** 3,
-                G ** 4]
+OCTAVE_OMEGA = [1, G ** (1 / 8), G ** (1 / 4), G ** (3 / 8), G ** (1 / 2), G, G**2, G**3, G**4]
 THIRD_OMEGA = [1, 1.02667, 1.05575, 1.08746, 1.12202, 1.29437, 1.88173, 3.05365, 5.39195]
 LOWER = [-0.3, -0.4, -0.6, -1.3, -5.0, -np.inf, -np.inf, -np.inf, -np.inf]
 UPPER = [0.3, 0.3, 0.3, 0.3, -2.0, -17.5, -42.0, -61.0, -70.0]
@@ -64,5 +63,5 @@ def test_bank_conserves_white_noise_energy(kind):
     spec = np.abs(np.fft.rfft(x)) ** 2
     f = np.fft.rfftfreq(x.size, 1 / FS)
     inside = (f >= bands[0].lower) & (f <= bands[-1].upper)
-    ratio_db = 10 * np.log10(np.sum(y ** 2) / (np.sum(spec[inside]) / x.size * 2))
+    ratio_db = 10 * np.log10(np.sum(y**2) / (np.sum(spec[inside]) / x.size * 2))
     assert abs(ratio_db) < 1.0

@@ -16,9 +16,13 @@ import pytest
 from scipy.signal import resample_poly, sosfreqz
 
 from roomconv.analysis.bands import all_bands, band_sos, bands_for_rate
-from roomconv.analysis.calibration import (StrengthReference, parse_strength_reference,
-                                           reference_from_dict, reference_from_response,
-                                           reference_to_dict)
+from roomconv.analysis.calibration import (
+    StrengthReference,
+    parse_strength_reference,
+    reference_from_dict,
+    reference_from_response,
+    reference_to_dict,
+)
 from roomconv.errors import InputError
 from roomconv.measure.sweep import Sweep, sweep_signal
 
@@ -29,8 +33,8 @@ def band_limited_pulse(rate=96000, length_s=1.0, delay_s=0.1, lo=40.0, hi=16000.
     n = int(length_s * rate)
     f = np.fft.rfftfreq(n, 1.0 / rate)
     lf = np.log2(np.maximum(f, 1e-9))
-    up = np.clip((lf - np.log2(lo / 2 ** 0.5)) / 0.5, 0, 1)
-    down = np.clip((np.log2(hi * 2 ** 0.5) - lf) / 0.5, 0, 1)
+    up = np.clip((lf - np.log2(lo / 2**0.5)) / 0.5, 0, 1)
+    down = np.clip((np.log2(hi * 2**0.5) - lf) / 0.5, 0, 1)
     spec = (0.5 - 0.5 * np.cos(np.pi * up)) * (0.5 - 0.5 * np.cos(np.pi * down))
     h = np.fft.irfft(spec * np.exp(-2j * np.pi * f * delay_s), n)
     return 0.5 * h / np.max(np.abs(h))
@@ -89,7 +93,7 @@ def test_clean_pulse_110_db_above_noise_matches_parseval(bands):
     for b in inside:
         want = 10 * math.log10(parseval_band_energy(h_clean, rate, b))
         assert ref.bands_db[b.nominal] == pytest.approx(want, abs=0.02), b.nominal
-    wide = 10 * math.log10(np.sum(h_clean ** 2) / rate)   # Parseval in time: Σx²/fs
+    wide = 10 * math.log10(np.sum(h_clean**2) / rate)  # Parseval in time: Σx²/fs
     assert ref.wideband_db == pytest.approx(wide, abs=0.01)
 
 
@@ -113,8 +117,10 @@ def test_band_values_do_not_depend_on_the_sample_rate():
     # 96 kHz in analysis.bands, which changes its own energy; there the difference must be the
     # filters' own, by Parseval (numpy.fft + scipy.signal.sosfreqz), and no more.
     h96 = band_limited_pulse()
-    refs = {r: reference_from_response(with_noise(at_rate(h96, r), -110), r, distance_m=10.0)
-            for r in (44100, 48000, 96000)}
+    refs = {
+        r: reference_from_response(with_noise(at_rate(h96, r), -110), r, distance_m=10.0)
+        for r in (44100, 48000, 96000)
+    }
     base = refs[96000]
     for rate in (44100, 48000):
         assert refs[rate].wideband_db == pytest.approx(base.wideband_db, abs=0.1)
@@ -123,8 +129,10 @@ def test_band_values_do_not_depend_on_the_sample_rate():
             if band_sos(b, rate).shape == band_sos(b, 96000).shape:
                 assert abs(got) <= 0.1, (rate, b.nominal, got)
             else:
-                want = 10 * math.log10(parseval_band_energy(at_rate(h96, rate), rate, b)
-                                       / parseval_band_energy(h96, 96000, b))
+                want = 10 * math.log10(
+                    parseval_band_energy(at_rate(h96, rate), rate, b)
+                    / parseval_band_energy(h96, 96000, b)
+                )
                 assert got == pytest.approx(want, abs=0.02), (rate, b.nominal)
 
 
@@ -171,19 +179,26 @@ def _plucks(rate=48000):
     return 0.3 * np.tile(np.concatenate(notes), 2)
 
 
-@pytest.mark.parametrize("make", [_sweep_recording, _plucks,
-                                  lambda: 0.1 * np.random.default_rng(1).standard_normal(48000)],
-                         ids=["sweep recording", "music", "noise"])
+@pytest.mark.parametrize(
+    "make",
+    [_sweep_recording, _plucks, lambda: 0.1 * np.random.default_rng(1).standard_normal(48000)],
+    ids=["sweep recording", "music", "noise"],
+)
 def test_what_is_not_an_impulse_response_is_refused(make):
     with pytest.raises(InputError, match="roomconv extract"):
         reference_from_response(make(), 48000, distance_m=3.0)
 
 
-@pytest.mark.parametrize("kw, text", [
-    (dict(distance_m=0.0), "distance"), (dict(distance_m=-3.0), "distance"),
-    (dict(distance_m=float("nan")), "distance"), (dict(distance_m=float("inf")), "distance"),
-    (dict(distance_m=10.0, bands="sixth"), "band set"),
-])
+@pytest.mark.parametrize(
+    "kw, text",
+    [
+        (dict(distance_m=0.0), "distance"),
+        (dict(distance_m=-3.0), "distance"),
+        (dict(distance_m=float("nan")), "distance"),
+        (dict(distance_m=float("inf")), "distance"),
+        (dict(distance_m=10.0, bands="sixth"), "band set"),
+    ],
+)
 def test_bad_arguments_are_refused(kw, text):
     with pytest.raises(InputError, match=text):
         reference_from_response(band_limited_pulse(48000), 48000, **kw)
@@ -191,8 +206,13 @@ def test_bad_arguments_are_refused(kw, text):
 
 # --- lookup ---------------------------------------------------------------------------------
 def _ref(**kw):
-    d = dict(wideband_db=-60.0, bands_db={500.0: -70.0, 1000.0: -69.0}, band_set="octave",
-             rate_hz=48000, method="test values of our own")
+    d = dict(
+        wideband_db=-60.0,
+        bands_db={500.0: -70.0, 1000.0: -69.0},
+        band_set="octave",
+        rate_hz=48000,
+        method="test values of our own",
+    )
     d.update(kw)
     return StrengthReference(**d)
 
@@ -200,7 +220,7 @@ def _ref(**kw):
 def test_lookup_per_band_and_wideband():
     ref = _ref()
     assert ref.lookup(500.0, 48000) == (-70.0, None)
-    assert ref.lookup(500, 96000) == (-70.0, None)      # band energies hold at any rate
+    assert ref.lookup(500, 96000) == (-70.0, None)  # band energies hold at any rate
     assert ref.lookup(None, 48000) == (-60.0, None)
     value, why = ref.lookup(2000.0, 48000)
     assert value is None and "2k Hz" in why and "no value" in why
@@ -240,47 +260,58 @@ def test_non_finite_numbers_are_refused(text):
 # --- the file -------------------------------------------------------------------------------
 def test_json_round_trip(tmp_path):
     rate = 48000
-    ref = reference_from_response(with_noise(at_rate(band_limited_pulse(), rate), -100), rate,
-                                  distance_m=4.0, bands="third")
+    ref = reference_from_response(
+        with_noise(at_rate(band_limited_pulse(), rate), -100), rate, distance_m=4.0, bands="third"
+    )
     d = reference_to_dict(ref)
     assert d["kind"] == "roomconv strength reference" and d["version"] == 1
-    assert set(d) == {"kind", "version", "quantity", "rate_hz", "band_set", "method",
-                      "wideband_db", "bands_db"}
+    assert set(d) == {
+        "kind",
+        "version",
+        "quantity",
+        "rate_hz",
+        "band_set",
+        "method",
+        "wideband_db",
+        "bands_db",
+    }
     path = tmp_path / "cal.json"
     path.write_text(json.dumps(d))
     back = parse_strength_reference(str(path))
     assert back == ref
-    assert back.lookup(1000.0, rate, band_set="third") == ref.lookup(1000.0, rate,
-                                                                    band_set="third")
+    assert back.lookup(1000.0, rate, band_set="third") == ref.lookup(1000.0, rate, band_set="third")
 
 
 def _valid():
     return reference_to_dict(_ref())
 
 
-@pytest.mark.parametrize("mutate, field", [
-    (lambda d: [d], "list"),
-    (lambda d: {"500": 72.5, "wideband": 80.1}, "earlier version"),
-    (lambda d: {k: v for k, v in d.items() if k != "kind"}, "kind"),
-    (lambda d: {**d, "kind": "something else"}, "kind"),
-    (lambda d: {**d, "version": 2}, "version"),
-    (lambda d: {**d, "version": True}, "version"),
-    (lambda d: {k: v for k, v in d.items() if k != "rate_hz"}, "rate_hz"),
-    (lambda d: {**d, "rate_hz": "48k"}, "rate_hz"),
-    (lambda d: {**d, "band_set": "sixth"}, "band_set"),
-    (lambda d: {k: v for k, v in d.items() if k != "band_set"}, "band_set"),
-    (lambda d: {**d, "method": 3}, "method"),
-    (lambda d: {k: v for k, v in d.items() if k != "wideband_db"}, "wideband_db"),
-    (lambda d: {**d, "wideband_db": "loud"}, "wideband_db"),
-    (lambda d: {**d, "wideband_db": float("nan")}, "wideband_db"),
-    (lambda d: {**d, "bands_db": [1, 2]}, "bands_db"),
-    (lambda d: {**d, "bands_db": {"500": None}}, "bands_db.500"),
-    (lambda d: {**d, "bands_db": {"500": float("inf")}}, "bands_db.500"),
-    (lambda d: {**d, "bands_db": {"hello": 1.0}}, "bands_db"),
-    (lambda d: {**d, "bands_db": {"600": 1.0}}, "bands_db"),
-    (lambda d: {**d, "band_set": None}, "band_set"),
-    (lambda d: {**d, "wideband_db": None, "bands_db": {}}, "no value"),
-])
+@pytest.mark.parametrize(
+    "mutate, field",
+    [
+        (lambda d: [d], "list"),
+        (lambda d: {"500": 72.5, "wideband": 80.1}, "earlier version"),
+        (lambda d: {k: v for k, v in d.items() if k != "kind"}, "kind"),
+        (lambda d: {**d, "kind": "something else"}, "kind"),
+        (lambda d: {**d, "version": 2}, "version"),
+        (lambda d: {**d, "version": True}, "version"),
+        (lambda d: {k: v for k, v in d.items() if k != "rate_hz"}, "rate_hz"),
+        (lambda d: {**d, "rate_hz": "48k"}, "rate_hz"),
+        (lambda d: {**d, "band_set": "sixth"}, "band_set"),
+        (lambda d: {k: v for k, v in d.items() if k != "band_set"}, "band_set"),
+        (lambda d: {**d, "method": 3}, "method"),
+        (lambda d: {k: v for k, v in d.items() if k != "wideband_db"}, "wideband_db"),
+        (lambda d: {**d, "wideband_db": "loud"}, "wideband_db"),
+        (lambda d: {**d, "wideband_db": float("nan")}, "wideband_db"),
+        (lambda d: {**d, "bands_db": [1, 2]}, "bands_db"),
+        (lambda d: {**d, "bands_db": {"500": None}}, "bands_db.500"),
+        (lambda d: {**d, "bands_db": {"500": float("inf")}}, "bands_db.500"),
+        (lambda d: {**d, "bands_db": {"hello": 1.0}}, "bands_db"),
+        (lambda d: {**d, "bands_db": {"600": 1.0}}, "bands_db"),
+        (lambda d: {**d, "band_set": None}, "band_set"),
+        (lambda d: {**d, "wideband_db": None, "bands_db": {}}, "no value"),
+    ],
+)
 def test_malformed_files_name_the_file_and_the_field(tmp_path, mutate, field):
     path = tmp_path / "bad-cal.json"
     # json.dumps writes NaN/Infinity, which json.loads reads back: the check must catch them.
@@ -295,16 +326,20 @@ def test_old_style_files_say_how_to_recreate_them(tmp_path):
     path = tmp_path / "old.json"
     path.write_text(json.dumps({"125": 70.1, "1000": 72.5, "wideband": 80.0}))
     # The library points to the command; its options are the command's own (--help).
-    with pytest.raises(InputError, match="re-create it from the reference response with "
-                                         "roomconv calibrate"):
+    with pytest.raises(
+        InputError, match="re-create it from the reference response with roomconv calibrate"
+    ):
         parse_strength_reference(str(path))
 
 
-@pytest.mark.parametrize("make, text", [
-    (lambda p: p.mkdir(), "folder"),
-    (lambda p: p.write_text("{not json"), "not valid JSON"),
-    (lambda p: None, "not found"),
-])
+@pytest.mark.parametrize(
+    "make, text",
+    [
+        (lambda p: p.mkdir(), "folder"),
+        (lambda p: p.write_text("{not json"), "not valid JSON"),
+        (lambda p: None, "not found"),
+    ],
+)
 def test_unreadable_files_are_refused(tmp_path, make, text):
     path = tmp_path / "cal.json"
     make(path)
@@ -323,10 +358,11 @@ def test_reference_from_dict_accepts_a_wideband_only_file():
 # --- the consumer's side: G = 10·lg(∫p² dt) − L_ref ---------------------------------------
 def _strength(h, rate, ref, band):
     from roomconv.analysis.bands import filter_band
+
     level, why = ref.lookup(band, rate)
     assert why is None, why
     x = h if band is None else filter_band(h, rate, band)
-    return 10 * math.log10(np.sum(x ** 2) / rate) - level
+    return 10 * math.log10(np.sum(x**2) / rate) - level
 
 
 @pytest.mark.parametrize("rate", [44100, 48000, 96000])
@@ -338,11 +374,11 @@ def test_the_source_itself_at_r_metres_has_g_of_20_lg_10_over_r(rate):
     h96 = band_limited_pulse()
     ref = reference_from_response(with_noise(at_rate(h96, 48000), -110), 48000, distance_m=3.0)
     for r in (5.0, 20.0):
-        h = at_rate(h96, rate) * (3.0 / r)         # the same source heard at r
+        h = at_rate(h96, rate) * (3.0 / r)  # the same source heard at r
         want = 20 * math.log10(10.0 / r)
         for b in bands_for_rate("octave", min(rate, 48000))[0]:
             if b.nominal > 4000 and rate != 48000:
-                continue                           # 8 kHz: the filter's order differs by rate
+                continue  # 8 kHz: the filter's order differs by rate
             assert _strength(h, rate, ref, b) == pytest.approx(want, abs=0.1), (r, b.nominal)
         if rate == 48000:
             assert _strength(h, rate, ref, None) == pytest.approx(want, abs=0.05)
@@ -357,8 +393,10 @@ def diffuse_responses(rate=16000, t60=5.0, amplitude=0.05, positions=8, length_s
     t = np.arange(n) / rate
     rng = np.random.default_rng(seed)
     env = amplitude * np.exp(-3 * math.log(10) * t / t60)
-    return [env * rng.standard_normal(n) + 1e-4 * amplitude * rng.standard_normal(n)
-            for _ in range(positions)]
+    return [
+        env * rng.standard_normal(n) + 1e-4 * amplitude * rng.standard_normal(n)
+        for _ in range(positions)
+    ]
 
 
 def test_reverberation_room_reference_against_the_diffuse_field_relation():
@@ -366,11 +404,15 @@ def test_reverberation_room_reference_against_the_diffuse_field_relation():
     # Building Acoustics, eq. 4.48), A = 55.26·V/(c·T) (Sabine), so
     # L_10 = L_rev + 10·lg(A) − 10·lg(1600π) with 10·lg(1600π) = 37.0 dB.
     from roomconv.analysis.calibration import reverberation_room_reference
+
     rate, t60, amp, volume, c = 16000, 5.0, 0.05, 200.0, 343.0
     bands = bands_for_rate("octave", rate)[0]
-    ref = reverberation_room_reference(diffuse_responses(rate, t60, amp), rate,
-                                       volume_m3=volume, reverberation_s={b.nominal: t60
-                                                                          for b in bands})
+    ref = reverberation_room_reference(
+        diffuse_responses(rate, t60, amp),
+        rate,
+        volume_m3=volume,
+        reverberation_s={b.nominal: t60 for b in bands},
+    )
     assert ref.wideband_db is None and ref.band_set == "octave"
     assert len(ref.bands_db) >= 5
     for b in bands:
@@ -378,7 +420,7 @@ def test_reverberation_room_reference_against_the_diffuse_field_relation():
             assert any(n.startswith(f"{b.label} Hz band left out") for n in ref.notes)
             continue
         _, resp = sosfreqz(band_sos(b, rate), worN=1 << 16, whole=True)
-        energy = amp ** 2 * np.mean(np.abs(resp) ** 2) * t60 / (6 * math.log(10))
+        energy = amp**2 * np.mean(np.abs(resp) ** 2) * t60 / (6 * math.log(10))
         area = 55.26 * volume / (c * t60)
         want = 10 * math.log10(energy) + 10 * math.log10(area) - 37.0
         sem = ref.uncertainty_db[b.nominal]
@@ -386,9 +428,13 @@ def test_reverberation_room_reference_against_the_diffuse_field_relation():
         # the standard error across positions bounds it. 0.02 dB: the rounded 37.0 and 55.26.
         assert ref.bands_db[b.nominal] == pytest.approx(want, abs=3 * sem + 0.02), b.nominal
     # Waterhouse correction 10·lg(1 + S·c/(8·V·f)) (ISO 3741, from memory).
-    with_s = reverberation_room_reference(diffuse_responses(rate, t60, amp), rate,
-                                          volume_m3=volume, surface_m2=210.0,
-                                          reverberation_s={b.nominal: t60 for b in bands})
+    with_s = reverberation_room_reference(
+        diffuse_responses(rate, t60, amp),
+        rate,
+        volume_m3=volume,
+        surface_m2=210.0,
+        reverberation_s={b.nominal: t60 for b in bands},
+    )
     for b in bands:
         if b.nominal in ref.bands_db:
             extra = 10 * math.log10(1 + 210.0 * c / (8 * volume * b.exact))
@@ -397,13 +443,15 @@ def test_reverberation_room_reference_against_the_diffuse_field_relation():
 
 def test_reverberation_room_needs_several_positions_and_valid_times():
     from roomconv.analysis.calibration import reverberation_room_reference
+
     resp = diffuse_responses(positions=2)
     with pytest.raises(InputError, match="3 positions"):
         reverberation_room_reference(resp, 16000, volume_m3=200.0, reverberation_s={500: 5.0})
     resp = diffuse_responses(positions=3)
     with pytest.raises(InputError, match="500 Hz"):
-        reverberation_room_reference(resp, 16000, volume_m3=200.0,
-                                     reverberation_s={500: float("nan")})
+        reverberation_room_reference(
+            resp, 16000, volume_m3=200.0, reverberation_s={500: float("nan")}
+        )
     with pytest.raises(InputError, match="room volume"):
         reverberation_room_reference(resp, 16000, volume_m3=-1.0, reverberation_s={500: 5.0})
     ref = reverberation_room_reference(resp, 16000, volume_m3=200.0, reverberation_s={500: 5.0})
@@ -427,6 +475,7 @@ def test_a_deeply_nested_file_is_refused_not_a_crash(tmp_path):
 
 def test_a_pipe_is_refused_before_it_is_opened(tmp_path):
     import os
+
     p = tmp_path / "fifo.json"
     os.mkfifo(p)
     with pytest.raises(InputError):

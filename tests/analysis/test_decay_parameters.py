@@ -73,7 +73,7 @@ def test_two_slope_decay_shows_curvature_and_nonlinearity():
     e = np.exp(-6 * LN10 * t / 0.5) + 1e-2 * np.exp(-6 * LN10 * t / 2.5)
     r = analyse_response(np.sqrt(e), FS)
     assert r.curvature_pct > 10  # ISO 3382-2, B.3: C above 10 % flags a bent decay
-    assert r.xi_permille > 10    # ISO 3382-2, B.2: ξ above 10 ‰ flags non-linearity
+    assert r.xi_permille > 10  # ISO 3382-2, B.2: ξ above 10 ‰ flags non-linearity
 
 
 def test_reverse_filtering_reduces_low_band_bias():

@@ -20,7 +20,7 @@ from roomconv.analysis.parameters import (
 from roomconv.errors import InputError
 
 LN10 = np.log(10)
-G = 10 ** 0.3  # IEC 61260-1:2014, base-10 octave ratio
+G = 10**0.3  # IEC 61260-1:2014, base-10 octave ratio
 
 
 def band(nominal, kind="third"):
@@ -44,10 +44,11 @@ def ideal_band(x, rate, b):
     A brick wall would not do: its sinc ringing decays as 1/t², not exponentially, and bends
     the Schroeder curve of any decay."""
     from scipy.signal import butter, sosfiltfilt
+
     sos = butter(3, [b.lower, b.upper], btype="bandpass", fs=rate, output="sos")
     pad = int(20 * rate / (b.upper - b.lower))
     y = sosfiltfilt(sos, np.concatenate([np.zeros(pad), x, np.zeros(pad)]), padtype=None)
-    return y[pad: pad + x.size]
+    return y[pad : pad + x.size]
 
 
 def truth(x, rate, onset, b=None):
@@ -81,8 +82,9 @@ def truth(x, rate, onset, b=None):
     return out
 
 
-def right_or_flagged(res, ref, metrics=("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50",
-                                        "ts_ms")):
+def right_or_flagged(
+    res, ref, metrics=("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms")
+):
     """The rule every value keeps: within its JND of the truth, or not 'ok', or None."""
     wrong = []
     for m in metrics:
@@ -112,9 +114,13 @@ def test_short_decay_in_a_long_window_is_truncated_at_the_noise(seed, window_s, 
     assert right_or_flagged(res, ref) == []
     # The late line only has to be the decay's order of slope (it sets the small tail
     # compensation); what matters is where it meets the noise.
-    tr = lundeby_truncation(_reverse_band(noisy, rate, b)[onset:], rate,
-                            interval_s=max(0.01, 1.5 / b.bandwidth),
-                            min_interval_s=max(0.001, 1 / b.bandwidth), bandwidth_hz=b.bandwidth)
+    tr = lundeby_truncation(
+        _reverse_band(noisy, rate, b)[onset:],
+        rate,
+        interval_s=max(0.01, 1.5 / b.bandwidth),
+        min_interval_s=max(0.001, 1 / b.bandwidth),
+        bandwidth_hz=b.bandwidth,
+    )
     assert tr.noise_limited
     assert -60 / tr.slope_db_s == pytest.approx(T, rel=0.7)
     # The decay meets noise 70 dB down at about T·70/60 (closed form for the envelope).
@@ -123,6 +129,7 @@ def test_short_decay_in_a_long_window_is_truncated_at_the_noise(seed, window_s, 
 
 def _reverse_band(x, rate, b):
     from roomconv.analysis.bands import filter_band
+
     return filter_band(x, rate, b, reverse=True)
 
 
@@ -192,7 +199,7 @@ def test_double_slope_curvature_and_nonlinearity_have_closed_forms():
     assert res.t20_s == pytest.approx(t20, rel=2e-3)
     assert res.t30_s == pytest.approx(t30, rel=2e-3)
     assert res.curvature_pct == pytest.approx(100 * (t30 / t20 - 1), abs=0.3)
-    assert res.xi_permille == pytest.approx(1000 * (1 - r30 ** 2), rel=0.02)
+    assert res.xi_permille == pytest.approx(1000 * (1 - r30**2), rel=0.02)
     assert res.xi_range == "t30"
     # ISO 3382-2 Annex B: a curvature over 10 % is not a straight decay — flagged.
     assert res.curvature_pct > 10
@@ -211,6 +218,7 @@ def test_a_clean_reference_pulse_keeps_its_energy():
     b = band(1000, "octave")
     res = analyse_response(x, rate, band=b, onset=4800, strength_reference_db=0.0)
     from scipy.signal import butter, sosfreqz
+
     sos = butter(3, [b.lower, b.upper], btype="bandpass", fs=rate, output="sos")
     _, resp = sosfreqz(sos, worN=1 << 18, whole=True)
     energy = np.mean(np.abs(resp) ** 2) / rate
@@ -224,6 +232,7 @@ def test_a_clean_pulse_at_96_khz_gives_no_division_by_zero():
     x = np.zeros(rate // 2)
     x[1000] = 1.0
     from scipy.signal import butter, sosfiltfilt
+
     x = sosfiltfilt(butter(4, [100, 10000], btype="band", fs=rate, output="sos"), x)
     res, wide, _ = room_parameters(x, rate)
     for r in res + [wide]:
@@ -242,7 +251,8 @@ def test_a_sweep_recording_is_refused_with_a_pointer_to_extraction():
     sweep = np.sin(2 * np.pi * f1 * L * (np.exp(t / L) - 1))
     room, _ = diffuse(0.3, 1.0, rate, 1)
     from scipy.signal import fftconvolve
-    rec = fftconvolve(sweep, room[:rate // 2])[: 4 * rate] * 1e-2
+
+    rec = fftconvolve(sweep, room[: rate // 2])[: 4 * rate] * 1e-2
     with pytest.raises(InputError, match="not look like an impulse response.*extract"):
         room_parameters(rec, rate)
     with pytest.raises(InputError, match="not look like an impulse response"):

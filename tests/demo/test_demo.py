@@ -14,6 +14,7 @@ from roomconv.synth.room import eyring
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from roomconv.cli import main
+
     out = tmp_path_factory.mktemp("demo") / "out"
     assert main(["demo", "--out", str(out), "--quick", "--quiet"]) == 0
     return out
@@ -46,11 +47,16 @@ def test_every_position_has_a_quality_verdict(demo):
 
 
 def test_every_output_is_present_readable_and_has_provenance(demo):
-    audio = list((demo / "irs").glob("*.wav")) + list((demo / "harmonics").glob("*.wav")) + \
-        list((demo / "renders").glob("*.wav"))
+    audio = (
+        list((demo / "irs").glob("*.wav"))
+        + list((demo / "harmonics").glob("*.wav"))
+        + list((demo / "renders").glob("*.wav"))
+    )
     assert len(list((demo / "harmonics").glob("*.wav"))) == 4
     assert {p.name for p in (demo / "renders").glob("*.wav")} == {
-        "plucks__measured.wav", "plucks__predicted.wav"}
+        "plucks__measured.wav",
+        "plucks__predicted.wav",
+    }
     for p in audio:
         x, rate = sf.read(p)
         assert rate == 48000 and x.size and np.all(np.isfinite(x))
@@ -59,8 +65,13 @@ def test_every_output_is_present_readable_and_has_provenance(demo):
         assert (demo / name).stat().st_size > 0
         assert (demo / f"{name.split('.')[0]}.provenance.json").exists(), name
     page = (demo / "report.html").read_text()
-    for heading in ("The room", "Measurement chain", "Data quality", "Measured against",
-                    "Cautions"):
+    for heading in (
+        "The room",
+        "Measurement chain",
+        "Data quality",
+        "Measured against",
+        "Cautions",
+    ):
         assert heading in page
     prov = json.loads((demo / "renders" / "plucks__measured.provenance.json").read_text())
     assert len(prov["inputs"][0]["sha256"]) == 64
@@ -76,6 +87,7 @@ def test_demo_refuses_a_non_empty_folder_without_force(tmp_path, cli):
 def test_demo_writes_the_study_report_as_html_and_pdf(demo):
     # The demo's study file loads and names every position; the report comes as both files.
     from roomconv.study import load_study
+
     study = load_study(demo / "study.toml")
     assert len(study.responses) == len(QUICK.sources) * len(QUICK.receivers)
     # ISO 32000-1:2008, 7.5.2 (from memory): a PDF file begins with "%PDF-".

@@ -47,8 +47,13 @@ def test_render_one_writes_the_convolution_and_its_provenance(tmp_path):
     h = _noise(tmp_path / "ir.wav", 0.05, 2, decay=60.0)
     calls = []
     s = RenderSettings(subtype="DOUBLE", match_ir_level=False)
-    rep = render_one(tmp_path / "dry.wav", tmp_path / "ir.wav", tmp_path / "wet.wav", s,
-                     progress=lambda st, f, m=None: calls.append((st, f)))
+    rep = render_one(
+        tmp_path / "dry.wav",
+        tmp_path / "ir.wav",
+        tmp_path / "wet.wav",
+        s,
+        progress=lambda st, f, m=None: calls.append((st, f)),
+    )
     y, _ = sf.read(tmp_path / "wet.wav")
     # Reference: scipy.signal.fftconvolve (direct FFT convolution).
     assert rel_error_db(y, fftconvolve(d, h)) < -120
@@ -64,13 +69,19 @@ def test_render_one_never_replaces_without_force_and_never_an_input(tmp_path):
     _noise(tmp_path / "ir.wav", 0.02, 2)
     (tmp_path / "wet.wav").write_bytes(b"keep")
     with pytest.raises(OutputExistsError) as err:
-        render_one(tmp_path / "dry.wav", tmp_path / "ir.wav", tmp_path / "wet.wav",
-                   RenderSettings())
+        render_one(
+            tmp_path / "dry.wav", tmp_path / "ir.wav", tmp_path / "wet.wav", RenderSettings()
+        )
     assert "--" not in str(err.value)  # the library names no command-line option
     assert (tmp_path / "wet.wav").read_bytes() == b"keep"
     with pytest.raises(InputError, match="input"):
-        render_one(tmp_path / "dry.wav", tmp_path / "ir.wav", tmp_path / "dry.wav",
-                   RenderSettings(), force=True)
+        render_one(
+            tmp_path / "dry.wav",
+            tmp_path / "ir.wav",
+            tmp_path / "dry.wav",
+            RenderSettings(),
+            force=True,
+        )
 
 
 def test_render_many_names_outputs_and_a_cancel_leaves_no_partial_file(tmp_path):
@@ -84,8 +95,10 @@ def test_render_many_names_outputs_and_a_cancel_leaves_no_partial_file(tmp_path)
         seen.append(stage)
         if stage.startswith("2/") and frac > 0:
             raise Cancelled()
-    res = render_many(drys, tmp_path / "hall.wav", tmp_path / "wet", RenderSettings(),
-                      progress=stop_in_the_second)
+
+    res = render_many(
+        drys, tmp_path / "hall.wav", tmp_path / "wet", RenderSettings(), progress=stop_in_the_second
+    )
     assert res.cancelled and len(res.reports) == 1
     assert render_output_name(drys[0], tmp_path / "hall.wav") == "take0__hall.wav"
     names = sorted(p.name for p in (tmp_path / "wet").iterdir())
@@ -105,13 +118,18 @@ def test_a_simulated_room_is_measured_at_its_own_rate_when_asked(tmp_path):
     rate = 44100
     room = band_limited_room(rate, rt=0.2, length_s=0.4) * 0.2
     sf.write(tmp_path / "room.wav", room, rate, subtype="FLOAT")
-    sweep = Sweep(rate=FS, f_low=10, f_high=20000, duration=2.0, silence_post=1.0,
-                  level_dbfs=-20.0)
+    sweep = Sweep(rate=FS, f_low=10, f_high=20000, duration=2.0, silence_post=1.0, level_dbfs=-20.0)
     with pytest.raises(InputError, match="44100 Hz"):
         measure_position(tmp_path / "a.wav", sweep, simulate=tmp_path / "room.wav")
-    res = measure_position(tmp_path / "b.wav", sweep, simulate=tmp_path / "room.wav",
-                           match_simulated_rate=True, reference_channel=2,
-                           sim_latency_samples=300, sim_noise_dbfs=-140)
+    res = measure_position(
+        tmp_path / "b.wav",
+        sweep,
+        simulate=tmp_path / "room.wav",
+        match_simulated_rate=True,
+        reference_channel=2,
+        sim_latency_samples=300,
+        sim_noise_dbfs=-140,
+    )
     ir, got_rate = sf.read(tmp_path / "b.wav")
     assert got_rate == rate
     # Ideal deconvolution returns the room itself (the loopback removes the latency).
@@ -120,19 +138,20 @@ def test_a_simulated_room_is_measured_at_its_own_rate_when_asked(tmp_path):
 
 
 def test_reference_channels_count_from_one(tmp_path):
-    s = Sweep(rate=FS, f_low=20, f_high=20000, duration=1.0, silence_post=0.5,
-              level_dbfs=-20.0)
+    s = Sweep(rate=FS, f_low=20, f_high=20000, duration=1.0, silence_post=0.5, level_dbfs=-20.0)
     write_sweep(tmp_path / "sweep.wav", s)
     played, _ = sf.read(tmp_path / "sweep.wav")
-    sf.write(tmp_path / "rec.wav", np.stack([0.5 * played, played], axis=1), FS,
-             subtype="FLOAT")
+    sf.write(tmp_path / "rec.wav", np.stack([0.5 * played, played], axis=1), FS, subtype="FLOAT")
     with pytest.raises(InputError, match="reference channel 3 does not exist.*1 to 2"):
-        extract_recording(tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "x.wav",
-                          reference_channel=3)
-    res = extract_recording(tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "y.wav",
-                            reference_channel=2)
-    extract_recording(tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "z.wav",
-                      reference_channel=1)
+        extract_recording(
+            tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "x.wav", reference_channel=3
+        )
+    res = extract_recording(
+        tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "y.wav", reference_channel=2
+    )
+    extract_recording(
+        tmp_path / "rec.wav", tmp_path / "sweep.wav", tmp_path / "z.wav", reference_channel=1
+    )
     y, _ = sf.read(tmp_path / "y.wav")
     z, _ = sf.read(tmp_path / "z.wav")
     # Channel 1 is 0.5 × channel 2. Divided by channel 2 the response is 0.5·δ, divided by
@@ -159,12 +178,16 @@ def test_library_and_job_messages_name_no_command_line_option():
     offenders = []
     for pkg in ("measure", "analysis", "synth", "render", "jobs", "demo"):
         for path in (ROOT / "roomconv" / pkg).rglob("*.py"):
-            offenders += [f"{path.name}:{line}: {text}" for line, text in _raised_texts(path)
-                          if _FLAG.search(text)]
+            offenders += [
+                f"{path.name}:{line}: {text}"
+                for line, text in _raised_texts(path)
+                if _FLAG.search(text)
+            ]
     for name in ("audio.py", "safety.py", "validate.py", "signal.py", "errors.py"):
         path = ROOT / "roomconv" / name
-        offenders += [f"{name}:{line}: {text}" for line, text in _raised_texts(path)
-                      if _FLAG.search(text)]
+        offenders += [
+            f"{name}:{line}: {text}" for line, text in _raised_texts(path) if _FLAG.search(text)
+        ]
     assert offenders == []
 
 

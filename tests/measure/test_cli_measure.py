@@ -170,11 +170,29 @@ def test_measure_against_simulated_device(tmp_path, cli):
     # that adds latency and a loopback channel.
     room = band_limited_room(FS, rt=0.2, length_s=0.4) * 0.2
     sf.write(tmp_path / "room.wav", room, FS, subtype="FLOAT")
-    code, out, err = cli("measure", tmp_path / "ir.wav", "--simulate", tmp_path / "room.wav",
-                         "--duration", 2, "--silence", 1, "--low", 10, "--high", 22000,
-                         # Channels count from 1: the room's one channel, then the loopback.
-                         "--reference-channel", 2, "--sim-latency", 512, "--sim-noise", -140,
-                         "--save-recording", tmp_path / "rec.wav")
+    code, out, err = cli(
+        "measure",
+        tmp_path / "ir.wav",
+        "--simulate",
+        tmp_path / "room.wav",
+        "--duration",
+        2,
+        "--silence",
+        1,
+        "--low",
+        10,
+        "--high",
+        22000,
+        # Channels count from 1: the room's one channel, then the loopback.
+        "--reference-channel",
+        2,
+        "--sim-latency",
+        512,
+        "--sim-noise",
+        -140,
+        "--save-recording",
+        tmp_path / "rec.wav",
+    )
     assert code == 0, err
     assert "no sound will be played" in err
     ir, _ = sf.read(tmp_path / "ir.wav")

@@ -12,8 +12,9 @@ from roomconv.synth.room import RoomModel
 def test_render_refuses_a_response_at_an_absurd_sample_rate(tmp_path, cli):
     sf.write(tmp_path / "dry.wav", 0.1 * np.random.default_rng(0).standard_normal(4800), 48000)
     sf.write(tmp_path / "ir7.wav", np.array([1.0, 0.5, 0.25]), 7)
-    code, _, err = cli("render", tmp_path / "dry.wav", "--ir", tmp_path / "ir7.wav", "-o",
-                       tmp_path / "w.wav")
+    code, _, err = cli(
+        "render", tmp_path / "dry.wav", "--ir", tmp_path / "ir7.wav", "-o", tmp_path / "w.wav"
+    )
     assert code == 2 and "ir7.wav" in err and "7 Hz" in err
     assert len(err.strip().splitlines()) == 1 and not (tmp_path / "w.wav").exists()
 
@@ -21,9 +22,14 @@ def test_render_refuses_a_response_at_an_absurd_sample_rate(tmp_path, cli):
 def test_a_response_cut_before_its_decay_ends_says_so():
     # A 200 m cube of concrete decays for minutes (Sabine's T = 0.161·V/A, V = 8e6 m³); the
     # default length stops at the cap, and the result's notes say so.
-    res = synthesize(RoomModel(200, 200, 200, {k: "concrete" for k in
-                                ("left", "right", "front", "back", "floor", "ceiling")}), (50, 50, 1.5),
-                     (60, 55, 1.2), rate=16000, length_s=None)
+    walls = ("left", "right", "front", "back", "floor", "ceiling")
+    res = synthesize(
+        RoomModel(200, 200, 200, dict.fromkeys(walls, "concrete")),
+        (50, 50, 1.5),
+        (60, 55, 1.2),
+        rate=16000,
+        length_s=None,
+    )
     assert res.ir.shape[0] == round(DEFAULT_LENGTH_CAP_S * 16000)
     assert any("cut at" in n for n in res.notes)
 
@@ -43,6 +49,7 @@ def test_an_output_planned_as_file_and_folder_is_refused_before_work(tmp_path):
 
     from roomconv.audio import WriteGuard
     from roomconv.errors import InputError
+
     g = WriteGuard()
     g.folder(tmp_path / "hh")
     with pytest.raises(InputError, match="as a folder and as a file"):
@@ -53,14 +60,17 @@ def test_an_output_planned_as_file_and_folder_is_refused_before_work(tmp_path):
         g2.folder(tmp_path / "x")
 
 
-@pytest.mark.parametrize("args, text", [
-    (["edit", "IR", "-o", "OUT", "--decay-scale", ""], "no edit"),
-    (["edit", "IR", "-o", "OUT", "--decay-scale", "1000:2,1000:3"], "given twice"),
-    (["synth", "OUT", "--room", "6x5x3", "--rt60", ""], "empty"),
-    (["synth", "OUT", "--room", "6x5x3", "--materials", ""], "empty"),
-    (["render", "DRY", "--ir", "IR", "-o", "OUT", "--predelay", "600000"], "pre-delay"),
-    (["demo", "--out", "IR", "--quick"], "not a folder"),
-])
+@pytest.mark.parametrize(
+    "args, text",
+    [
+        (["edit", "IR", "-o", "OUT", "--decay-scale", ""], "no edit"),
+        (["edit", "IR", "-o", "OUT", "--decay-scale", "1000:2,1000:3"], "given twice"),
+        (["synth", "OUT", "--room", "6x5x3", "--rt60", ""], "empty"),
+        (["synth", "OUT", "--room", "6x5x3", "--materials", ""], "empty"),
+        (["render", "DRY", "--ir", "IR", "-o", "OUT", "--predelay", "600000"], "pre-delay"),
+        (["demo", "--out", "IR", "--quick"], "not a folder"),
+    ],
+)
 def test_audit_refusals_are_one_line_exit_2(tmp_path, cli, args, text):
     rng = np.random.default_rng(1)
     t = np.arange(24000) / 48000
@@ -76,10 +86,12 @@ def test_audit_refusals_are_one_line_exit_2(tmp_path, cli, args, text):
 
 def test_a_batch_with_no_usable_input_is_one_refusal(tmp_path, cli):
     import os
+
     os.mkfifo(tmp_path / "dry.wav")  # a pipe: refused before it is opened (it would block)
     sf.write(tmp_path / "ir.wav", np.array([1.0, 0.5]), 48000)
-    code, _, err = cli("batch", tmp_path / "dry.wav", "--ir", tmp_path / "ir.wav", "--out-dir",
-                       tmp_path / "out")
+    code, _, err = cli(
+        "batch", tmp_path / "dry.wav", "--ir", tmp_path / "ir.wav", "--out-dir", tmp_path / "out"
+    )
     assert code == 2 and len(err.strip().splitlines()) == 1, err
     assert not (tmp_path / "out").exists()
 

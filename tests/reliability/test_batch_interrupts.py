@@ -89,8 +89,19 @@ def test_resume_verifies_outputs_and_redoes_damaged_or_unvouched_ones(tmp_path):
     drys = [write_noise(tmp_path / f"t{k}.wav", 1.0, seed=k) for k in range(4)]
     ir = write_noise(tmp_path / "room.wav", 0.2, seed=7, decay=20.0)
     out = tmp_path / "wet"
-    args = ["batch", *drys, "--ir", ir, "--out-dir", out, "--workers", 1, "--subtype",
-            "DOUBLE", "--quiet"]
+    args = [
+        "batch",
+        *drys,
+        "--ir",
+        ir,
+        "--out-dir",
+        out,
+        "--workers",
+        1,
+        "--subtype",
+        "DOUBLE",
+        "--quiet",
+    ]
     code, _, err = run_cli(*args)
     assert code == 0, err
     prov = json.loads((out / "t0__room.provenance.json").read_text())

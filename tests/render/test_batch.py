@@ -103,8 +103,14 @@ def test_local_pool_progress_arrives_and_an_interrupt_stops_the_pool(inputs):
     out = inputs / "stopped"
     out.mkdir()
     from roomconv.jobs.naming import render_output_name
-    jobs = plan_jobs([inputs / f"long{k}.wav" for k in range(3)], [inputs / "room0.wav"], out,
-                     RenderSettings(normalize="loudness"), output_name=render_output_name)
+
+    jobs = plan_jobs(
+        [inputs / f"long{k}.wav" for k in range(3)],
+        [inputs / "room0.wav"],
+        out,
+        RenderSettings(normalize="loudness"),
+        output_name=render_output_name,
+    )
     executor, progress, owner = local_executor(1)
     procs = []
 
@@ -162,8 +168,14 @@ def test_dask_workers_report_per_job_progress(inputs):
     sf.write(inputs / "long_take.wav", 0.1 * rng.standard_normal(40 * 48000), 48000)
     (inputs / "dask_progress").mkdir()
     from roomconv.jobs.naming import render_output_name
-    jobs = plan_jobs([inputs / "long_take.wav"], [inputs / "long_room.wav"],
-                     inputs / "dask_progress", RenderSettings(), output_name=render_output_name)
+
+    jobs = plan_jobs(
+        [inputs / "long_take.wav"],
+        [inputs / "long_room.wav"],
+        inputs / "dask_progress",
+        RenderSettings(),
+        output_name=render_output_name,
+    )
     events = []
     with distributed.LocalCluster(
         n_workers=1, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None

@@ -91,8 +91,7 @@ def write_study(folder, text: str = STUDY):
         h = rng.standard_normal(t.size) * np.exp(-6.9078 * t / rt)
         h[0] = 4.0
         h = np.concatenate([np.zeros(200), h]) + 1e-5 * rng.standard_normal(t.size + 200)
-        sf.write(folder / "irs" / f"S1R{i}.wav", 0.5 * h / np.abs(h).max(), RATE,
-                 subtype="FLOAT")
+        sf.write(folder / "irs" / f"S1R{i}.wav", 0.5 * h / np.abs(h).max(), RATE, subtype="FLOAT")
     path = folder / "study.toml"
     path.write_text(text, encoding="utf-8")
     return path
@@ -103,11 +102,22 @@ def study_run(tmp_path_factory):
     """`roomconv analyze --study ... --json --report` run once for the report tests."""
     from roomconv.cli import main
     from roomconv.report.pdf import pdf_engine_problem
+
     problem = pdf_engine_problem()
     if problem is not None:
         pytest.skip(f"no PDF engine here: {problem}")
     folder = tmp_path_factory.mktemp("study")
     path = write_study(folder)
-    code = main(["analyze", "--study", str(path), "--json", str(folder / "results.json"),
-                 "--report", str(folder / "report"), "--quiet"])
+    code = main(
+        [
+            "analyze",
+            "--study",
+            str(path),
+            "--json",
+            str(folder / "results.json"),
+            "--report",
+            str(folder / "report"),
+            "--quiet",
+        ]
+    )
     return folder, code

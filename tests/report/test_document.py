@@ -27,9 +27,15 @@ def _doc(t500=(1.0, 1.2), t1k=(1.1, 1.3), u=(0.03, 0.04)):
         for p, v in zip(positions, vals, strict=True):
             p["bands"].append({"band_hz": band, "t30_s": v})
     sn = {"t30_mid_s": (sum(t500) + sum(t1k)) / 4}
-    return {"settings": {"bands": "octave"}, "positions": positions,
-            "average": {"bands": avg, "single_numbers": sn,
-                        "single_number_verdicts": {"t30_mid_s": "ok"}}}
+    return {
+        "settings": {"bands": "octave"},
+        "positions": positions,
+        "average": {
+            "bands": avg,
+            "single_numbers": sn,
+            "single_number_verdicts": {"t30_mid_s": "ok"},
+        },
+    }
 
 
 def test_single_number_uncertainty_and_spread():
@@ -51,14 +57,17 @@ def test_single_number_without_every_band_uncertainty_has_none():
     assert row["uncertainty"] is None
 
 
-@pytest.mark.parametrize(("mean", "u", "result"), [
-    # Target 1.00 s, −10 %/+10 % → 0.90–1.10 s (plain arithmetic).
-    (1.00, 0.02, "within"),
-    (1.09, 0.02, "within (at the limit, within its uncertainty)"),
-    (1.12, 0.01, "above"),
-    (1.11, 0.02, "above (at the limit, within its uncertainty)"),
-    (0.85, 0.02, "below"),
-])
+@pytest.mark.parametrize(
+    ("mean", "u", "result"),
+    [
+        # Target 1.00 s, −10 %/+10 % → 0.90–1.10 s (plain arithmetic).
+        (1.00, 0.02, "within"),
+        (1.09, 0.02, "within (at the limit, within its uncertainty)"),
+        (1.12, 0.01, "above"),
+        (1.11, 0.02, "above (at the limit, within its uncertainty)"),
+        (0.85, 0.02, "below"),
+    ],
+)
 def test_target_comparison(mean, u, result):
     doc = {"average": {"bands": [{"band_hz": 500, "t30_s": _stat(mean, None, u)}]}}
     (row,) = target_rows(doc, Targets("t30", {500.0: 1.0}, (-10.0, 10.0)))
@@ -67,8 +76,14 @@ def test_target_comparison(mean, u, result):
 
 
 def test_target_band_without_a_value_is_not_evaluated_and_caution_is_kept():
-    doc = {"average": {"bands": [{"band_hz": 500, "t30_s": _stat(None)},
-                                 {"band_hz": 1000, "t30_s": _stat(1.0, None, 0.01, "caution")}]}}
+    doc = {
+        "average": {
+            "bands": [
+                {"band_hz": 500, "t30_s": _stat(None)},
+                {"band_hz": 1000, "t30_s": _stat(1.0, None, 0.01, "caution")},
+            ]
+        }
+    }
     rows = target_rows(doc, Targets("t30", {500.0: 1.0, 1000.0: 1.0}, (-10.0, 10.0)))
     assert rows[0][-1] == "not evaluated"
     assert rows[1][-1] == "within — caution"

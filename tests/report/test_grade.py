@@ -15,24 +15,26 @@ def _combos(sources: int, receivers: int):
     return [(f"S{s}", f"R{r}") for s in range(1, sources + 1) for r in range(1, receivers + 1)]
 
 
-@pytest.mark.parametrize(("sources", "receivers", "grade"), [
-    (1, 1, None),             # one combination: below survey (Table 1, from memory)
-    (1, 2, "survey"),         # 1 source × 2 mics = 2 combinations
-    (1, 12, "survey"),        # many mics, but engineering needs 2 sources
-    (2, 2, "survey"),         # 4 combinations < 6
-    (2, 3, "engineering"),    # 6 combinations, 2 sources, 3 mics
-    (3, 3, "engineering"),    # 9 < 12
-    (2, 6, "precision"),      # 12 combinations, 2 sources, ≥ 3 mics
-    (4, 3, "precision"),
-])
+@pytest.mark.parametrize(
+    ("sources", "receivers", "grade"),
+    [
+        (1, 1, None),  # one combination: below survey (Table 1, from memory)
+        (1, 2, "survey"),  # 1 source × 2 mics = 2 combinations
+        (1, 12, "survey"),  # many mics, but engineering needs 2 sources
+        (2, 2, "survey"),  # 4 combinations < 6
+        (2, 3, "engineering"),  # 6 combinations, 2 sources, 3 mics
+        (3, 3, "engineering"),  # 9 < 12
+        (2, 6, "precision"),  # 12 combinations, 2 sources, ≥ 3 mics
+        (4, 3, "precision"),
+    ],
+)
 def test_grade_table(sources, receivers, grade):
     assert measurement_grade(_combos(sources, receivers)).name == grade
 
 
 def test_next_grade_says_what_is_missing():
-    g = measurement_grade(_combos(2, 3))       # engineering; precision needs 12 combinations
-    assert (g.name, g.next_name, g.needed) == ("engineering", "precision",
-                                               ("6 more combinations",))
+    g = measurement_grade(_combos(2, 3))  # engineering; precision needs 12 combinations
+    assert (g.name, g.next_name, g.needed) == ("engineering", "precision", ("6 more combinations",))
     top = measurement_grade(_combos(2, 6))
     assert top.next_name is None and top.needed == ()
 

@@ -39,13 +39,12 @@ def test_report_files_and_numbers(study_run):
     # T30 of the synthetic decays: mean of 0.80, 0.85, 0.90 s (closed form: the Schroeder
     # curve of an exponential decay is a line of slope −60/T). Within the ISO 3382-1 JND of
     # 5 % (ISO 3382-1:2009, Table A.1, from memory).
-    assert doc["average"]["single_numbers"]["t30_mid_s"] == pytest.approx(
-        sum(TIMES) / 3, rel=0.05)
-    assert doc["grade"]["name"] == "survey"    # 1 source × 3 receivers (ISO 3382-2 Table 1)
+    assert doc["average"]["single_numbers"]["t30_mid_s"] == pytest.approx(sum(TIMES) / 3, rel=0.05)
+    assert doc["grade"]["name"] == "survey"  # 1 source × 3 receivers (ISO 3382-2 Table 1)
     assert doc["study"]["room"]["name"] == "Harbour Room"
     assert {p["position"] for p in doc["positions"]} == {"S1-R1", "S1-R2", "S1-R3"}
     pdf = (folder / "report" / "report.pdf").read_bytes()
-    assert pdf.startswith(b"%PDF-")           # ISO 32000-1:2008, 7.5.2, from memory
+    assert pdf.startswith(b"%PDF-")  # ISO 32000-1:2008, 7.5.2, from memory
 
 
 def test_html_is_self_contained_and_ends_with_the_limits_not_a_caution(study_run):
@@ -55,7 +54,7 @@ def test_html_is_self_contained_and_ends_with_the_limits_not_a_caution(study_run
     assert not re.search(r"""(src|href)\s*=\s*['"](?!data:)""", page)
     assert "url(" not in page and "@import" not in page and "<script" not in page
     srcs = re.findall(r"src='data:image/png;base64,([^']+)'", page)
-    assert len(srcs) >= 6            # T30, EDT, C80/D50, frequency response, plan, positions
+    assert len(srcs) >= 6  # T30, EDT, C80/D50, frequency response, plan, positions
     for s in srcs:
         _png_size(base64.b64decode(s))
     # The playback caution belongs to measurement and playback, not to a results document.
@@ -69,9 +68,13 @@ def test_flagged_values_are_visibly_flagged(study_run):
     folder, _ = study_run
     doc = json.loads((folder / "results.json").read_text())
     page = (folder / "report" / "report.html").read_text()
-    flagged = [(p["position"], r["band_hz"], m) for p in doc["positions"] for r in p["bands"]
-               for m, v in (r.get("verdicts") or {}).items()
-               if v == "caution" and r.get(m) is not None]
+    flagged = [
+        (p["position"], r["band_hz"], m)
+        for p in doc["positions"]
+        for r in p["bands"]
+        for m, v in (r.get("verdicts") or {}).items()
+        if v == "caution" and r.get(m) is not None
+    ]
     assert flagged, "the scenario has flagged values (single-position statistical uncertainty)"
     assert page.count("class='flag'") >= len(flagged)
     assert "⚠" in page
@@ -91,12 +94,20 @@ def test_targets_are_compared(study_run):
 PDFTOTEXT = shutil.which("pdftotext")
 
 
-@pytest.mark.skipif(PDFTOTEXT is None, reason="pdftotext (Debian poppler-utils) is not "
-                    "installed; .ci/run installs it where it can")
+@pytest.mark.skipif(
+    PDFTOTEXT is None,
+    reason="pdftotext (Debian poppler-utils) is not installed; .ci/run installs it where it can",
+)
 def test_pdf_text_holds_title_room_grade_and_the_json_single_numbers(study_run):
     folder, _ = study_run
-    text = _words(subprocess.run([PDFTOTEXT, "-layout", str(folder / "report" / "report.pdf"),
-                                  "-"], capture_output=True, text=True, check=True).stdout)
+    text = _words(
+        subprocess.run(
+            [PDFTOTEXT, "-layout", str(folder / "report" / "report.pdf"), "-"],
+            capture_output=True,
+            text=True,
+            check=True,
+        ).stdout
+    )
     doc = json.loads((folder / "results.json").read_text())
     assert "Harbour Room acceptance test" in text
     assert "Harbour Room" in text and "Quayside Arts Trust" in text
@@ -114,8 +125,9 @@ def test_second_run_refuses_to_clobber_and_leaves_both_files(study_run, cli):
     folder, _ = study_run
     html_before = (folder / "report" / "report.html").read_bytes()
     pdf_before = (folder / "report" / "report.pdf").read_bytes()
-    code, _, err = cli("analyze", "--study", folder / "study.toml", "--report",
-                       folder / "report", "--quiet")
+    code, _, err = cli(
+        "analyze", "--study", folder / "study.toml", "--report", folder / "report", "--quiet"
+    )
     assert code == 2 and "exists already" in err and "--force" in err
     assert (folder / "report" / "report.html").read_bytes() == html_before
     assert (folder / "report" / "report.pdf").read_bytes() == pdf_before
@@ -128,8 +140,10 @@ def test_irs_and_study_together_are_refused(tmp_path, cli):
 
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-needs_browser = pytest.mark.skipif(CHROMIUM is None, reason="no headless browser (Debian "
-                                   "chromium); .ci/run installs it where it can")
+needs_browser = pytest.mark.skipif(
+    CHROMIUM is None,
+    reason="no headless browser (Debian chromium); .ci/run installs it where it can",
+)
 
 # Observes the page from inside: errors reported to the console or the window, every image
 # decoded (complete with a natural width: HTML Living Standard, the img element, from
@@ -151,23 +165,42 @@ def _browse(page_path, tmp_path):
     probed = tmp_path / f"probed-{page_path.name}"
     probed.write_text(page_path.read_text().replace("<head>", "<head>" + _PROBE, 1))
     run = subprocess.run(
-        [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-         f"--user-data-dir={tmp_path / 'profile'}", "--host-resolver-rules=MAP * ~NOTFOUND",
-         "--virtual-time-budget=10000", "--dump-dom", probed.as_uri()],
-        capture_output=True, text=True, timeout=120)
+        [
+            CHROMIUM,
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--no-first-run",
+            f"--user-data-dir={tmp_path / 'profile'}",
+            "--host-resolver-rules=MAP * ~NOTFOUND",
+            "--virtual-time-budget=10000",
+            "--dump-dom",
+            probed.as_uri(),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     m = re.search(r'<pre id="probe">(.*?)</pre>', run.stdout, flags=re.S)
     assert m, run.stderr[-2000:]
-    return json.loads(m.group(1).replace("&amp;", "&").replace("&lt;", "<")
-                      .replace("&gt;", ">").replace("&quot;", '"'))
+    return json.loads(
+        m.group(1)
+        .replace("&amp;", "&")
+        .replace("&lt;", "<")
+        .replace("&gt;", ">")
+        .replace("&quot;", '"')
+    )
 
 
 @needs_browser
 def test_probe_catches_a_broken_image_and_a_network_request(tmp_path):
     # The check must be able to fail: a page with one bad image and one external image.
     bad = tmp_path / "bad.html"
-    bad.write_text("<!doctype html><html><head></head><body>"
-                   "<img alt='broken' src='data:image/png;base64,AAAA'>"
-                   "<img alt='remote' src='https://example.invalid/x.png'></body></html>")
+    bad.write_text(
+        "<!doctype html><html><head></head><body>"
+        "<img alt='broken' src='data:image/png;base64,AAAA'>"
+        "<img alt='remote' src='https://example.invalid/x.png'></body></html>"
+    )
     r = _browse(bad, tmp_path)
     assert "broken" in r["bad"] and "remote" in r["bad"]
     assert r["res"] == ["https://example.invalid/x.png"]
@@ -181,28 +214,47 @@ def test_report_in_a_headless_browser(study_run, tmp_path):
     assert r["images"] >= 6
     assert r["bad"] == [] and r["errs"] == [] and r["res"] == []
     shot = tmp_path / "shot.png"
-    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu",
-                    f"--user-data-dir={tmp_path / 'profile2'}", "--window-size=1280,900",
-                    "--hide-scrollbars", f"--screenshot={shot}",
-                    (folder / "report" / "report.html").as_uri()],
-                   capture_output=True, timeout=120, check=True)
+    subprocess.run(
+        [
+            CHROMIUM,
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            f"--user-data-dir={tmp_path / 'profile2'}",
+            "--window-size=1280,900",
+            "--hide-scrollbars",
+            f"--screenshot={shot}",
+            (folder / "report" / "report.html").as_uri(),
+        ],
+        capture_output=True,
+        timeout=120,
+        check=True,
+    )
     assert _png_size(shot.read_bytes()) == (1280, 900)
 
 
 def test_without_a_pdf_engine_the_report_is_refused_before_any_work(tmp_path, cli, monkeypatch):
     import roomconv.report.pdf as pdf
+
     monkeypatch.setattr(pdf, "pdf_engine_problem", lambda: "WeasyPrint is not installed")
     path = write_study(tmp_path)
-    code, _, err = cli("analyze", "--study", path, "--report", tmp_path / "rep",
-                       "--json", tmp_path / "r.json")
+    code, _, err = cli(
+        "analyze", "--study", path, "--report", tmp_path / "rep", "--json", tmp_path / "r.json"
+    )
     assert code == 2 and "--report" in err and "WeasyPrint" in err
     assert not (tmp_path / "r.json").exists() and not (tmp_path / "rep").exists()
 
 
 def test_plain_report_of_results_does_not_end_with_the_playback_caution(tmp_path, cli):
     write_study(tmp_path)
-    code, _, _ = cli("analyze", tmp_path / "irs" / "S1R1.wav", tmp_path / "irs" / "S1R2.wav",
-                     "--report", tmp_path / "rep", "--quiet")
+    code, _, _ = cli(
+        "analyze",
+        tmp_path / "irs" / "S1R1.wav",
+        tmp_path / "irs" / "S1R2.wav",
+        "--report",
+        tmp_path / "rep",
+        "--quiet",
+    )
     assert code == 0
     page = (tmp_path / "rep" / "report.html").read_text()
     assert "Reverberation time T30, mean of 500 Hz and 1 kHz" in page

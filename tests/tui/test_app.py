@@ -93,8 +93,11 @@ async def test_analyze_tab_matches_the_command_line(tmp_path):
         rows = [table.get_row_at(i) for i in range(table.row_count)]
         by_band = {r[1]: r for r in rows}
         for band in ref:
-            label = f"{band['band_hz'] / 1000:g}k" if band["band_hz"] >= 1000 else \
-                f"{band['band_hz']:g}"
+            label = (
+                f"{band['band_hz'] / 1000:g}k"
+                if band["band_hz"] >= 1000
+                else f"{band['band_hz']:g}"
+            )
             want = "—" if band["t30_s"] is None else f"{band['t30_s']:.2f}"
             if band["verdicts"]["t30_s"] == "caution":
                 want += " ⚠"  # a flagged value is flagged in the table itself
@@ -186,6 +189,7 @@ async def test_analyze_tab_writes_the_study_report(tmp_path):
     # "%PDF-" (ISO 32000-1:2008, 7.5.2, from memory).
     from roomconv.report.pdf import pdf_engine_problem
     from tests.report.conftest import write_study
+
     if pdf_engine_problem() is not None:
         pytest.skip(f"no PDF engine here: {pdf_engine_problem()}")
     study = write_study(tmp_path)
@@ -200,7 +204,7 @@ async def test_analyze_tab_writes_the_study_report(tmp_path):
         assert "Harbour Room" in (tmp_path / "out" / "report.html").read_text()
         assert app.query_one("#an-table").row_count > 0
         before = (tmp_path / "out" / "report.pdf").read_bytes()
-        await press(app, pilot, "#an-study-report")         # never over an earlier report
+        await press(app, pilot, "#an-study-report")  # never over an earlier report
         await settle(app, pilot)
         assert any("exists already" in n.message for n in app._notifications)
         assert (tmp_path / "out" / "report.pdf").read_bytes() == before
@@ -208,22 +212,25 @@ async def test_analyze_tab_writes_the_study_report(tmp_path):
 
 async def test_session_saved_as_a_study_file_loads_back(tmp_path):
     from roomconv.study import load_study
+
     a = decaying_ir(tmp_path / "P1.wav", seed=1)
     b = decaying_ir(tmp_path / "P2.wav", seed=2)
     (tmp_path / "P1.quality.json").write_text("{}")
     app = RoomconvApp()
     async with app.run_test(size=(160, 70)) as pilot:
         await pilot.press("a")
-        app.session += [{"name": "P1", "file": a, "quality": {}},
-                        {"name": "P2", "file": b, "quality": {}}]
+        app.session += [
+            {"name": "P1", "file": a, "quality": {}},
+            {"name": "P2", "file": b, "quality": {}},
+        ]
         app.query_one("#an-export-dir").value = str(tmp_path / "out")
         await press(app, pilot, "#an-save-study")
         path = tmp_path / "out" / "study.toml"
         assert app.query_one("#an-study").value == str(path)
-        study = load_study(path)          # paths relative to the study file
+        study = load_study(path)  # paths relative to the study file
         assert [(r.receiver, r.file) for r in study.responses] == [("P1", a), ("P2", b)]
         assert study.responses[0].quality_file == tmp_path / "P1.quality.json"
         before = path.read_text()
-        await press(app, pilot, "#an-save-study")          # never over an earlier file
+        await press(app, pilot, "#an-save-study")  # never over an earlier file
         assert any("exists already" in n.message for n in app._notifications)
         assert path.read_text() == before

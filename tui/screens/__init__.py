@@ -1,1 +1,22 @@
 """One module per tab of the workbench."""
+
+from __future__ import annotations
+
+from typing import Protocol, cast
+
+from textual.dom import DOMNode
+
+
+class Workbench(Protocol):
+    """What the panes use of the app they run in (``tui.app.RoomconvApp``) beyond ``App``."""
+
+    session: list[dict]
+
+    def send_to(self, tab: str, path: str) -> None: ...
+
+
+def workbench(node: DOMNode) -> Workbench:
+    """The app ``node`` runs in, as the workbench: its session and its tab hand-off.
+
+    Textual types ``node.app`` as a plain ``App``; every pane runs inside ``RoomconvApp``."""
+    return cast(Workbench, node.app)

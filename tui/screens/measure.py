@@ -17,6 +17,7 @@ from roomconv import validate
 from roomconv.errors import InputError, RoomconvError
 from roomconv.jobs.progress import Cancelled
 from roomconv.safety import caution_text
+from tui.screens import workbench
 
 
 class MeasurePane(VerticalScroll):
@@ -24,8 +25,9 @@ class MeasurePane(VerticalScroll):
         yield Static("checking sound devices…", id="ms-devices", classes="status")
         with Horizontal(classes="row"):
             yield Label("Device")
-            yield Select([("system default", "default")], value="default", allow_blank=False,
-                         id="ms-device")
+            yield Select(
+                [("system default", "default")], value="default", allow_blank=False, id="ms-device"
+            )
             yield Label("Out ch")
             yield Input("1", id="ms-out-ch", classes="narrow")
             yield Label("In ch")
@@ -76,16 +78,21 @@ class MeasurePane(VerticalScroll):
     @work(thread=True, group="devices")
     def probe_devices(self) -> None:
         from roomconv.measure.capture import list_devices
+
         devs = []
         try:
             devs = list_devices()
-            text = (f"{len(devs)} sound device(s) found; choose one below") if devs else \
-                "no sound device found: import recordings or rehearse on a simulated room"
+            text = (
+                (f"{len(devs)} sound device(s) found; choose one below")
+                if devs
+                else "no sound device found: import recordings or rehearse on a simulated room"
+            )
         except RoomconvError as exc:
             text = f"no sound card path ({exc}); import recordings or rehearse on a simulated room"
         options = [("system default", "default")] + [
-            (f"{d['index']}: {d['name']} ({d['inputs']} in / {d['outputs']} out)",
-             str(d["index"])) for d in devs]
+            (f"{d['index']}: {d['name']} ({d['inputs']} in / {d['outputs']} out)", str(d["index"]))
+            for d in devs
+        ]
         self.app.call_from_thread(self.query_one("#ms-device", Select).set_options, options)
         self.app.call_from_thread(self.query_one("#ms-devices", Static).update, text)
 
@@ -103,8 +110,7 @@ class MeasurePane(VerticalScroll):
         if not text:
             return None
         if not text.isdigit() or int(text) < 1:
-            raise InputError(f"{label}: '{text}' is not a channel number (channels count "
-                             "from 1)")
+            raise InputError(f"{label}: '{text}' is not a channel number (channels count from 1)")
         return int(text)
 
     def channels(self, selector: str, label: str) -> tuple[int, ...]:
@@ -112,11 +118,14 @@ class MeasurePane(VerticalScroll):
 
     def sweep(self):
         from roomconv.measure.sweep import Sweep
-        return Sweep(f_low=self.number("#ms-low", "Sweep start Hz"),
-                     f_high=self.number("#ms-high", "Sweep stop Hz"),
-                     duration=self.number("#ms-duration", "Duration s"),
-                     level_dbfs=self.number("#ms-level", "Level dBFS"),
-                     silence_post=self.number("#ms-silence", "Silence s"))
+
+        return Sweep(
+            f_low=self.number("#ms-low", "Sweep start Hz"),
+            f_high=self.number("#ms-high", "Sweep stop Hz"),
+            duration=self.number("#ms-duration", "Duration s"),
+            level_dbfs=self.number("#ms-level", "Level dBFS"),
+            silence_post=self.number("#ms-silence", "Silence s"),
+        )
 
     def simulated_room(self) -> str | None:
         return self.query_one("#ms-sim", Input).value.strip() or None
@@ -124,15 +133,18 @@ class MeasurePane(VerticalScroll):
     def confirm(self) -> None:
         """The caution is on screen; sound plays only once its box is ticked."""
         if not self.query_one("#ms-ack", Checkbox).value:
-            raise InputError("read the hearing and equipment caution and tick the box "
-                             "before any sound is played")
+            raise InputError(
+                "read the hearing and equipment caution and tick the box before any sound is played"
+            )
 
     def card(self) -> dict:
         """The sound card fields, as the measurement jobs take them."""
         choice = self.query_one("#ms-device", Select).value
-        return {"device": None if choice in ("default", Select.BLANK) else int(str(choice)),
-                "output_channel": self.channel("#ms-out-ch", "Out ch") or 1,
-                "input_channels": self.channels("#ms-in-ch", "In ch")}
+        return {
+            "device": None if choice in ("default", Select.BLANK) else int(str(choice)),
+            "output_channel": self.channel("#ms-out-ch", "Out ch") or 1,
+            "input_channels": self.channels("#ms-in-ch", "In ch"),
+        }
 
     @on(Button.Pressed, "#ms-level-check")
     def level_pressed(self) -> None:
@@ -142,21 +154,30 @@ class MeasurePane(VerticalScroll):
     def level_check(self) -> None:
         """A quiet 1 kHz tone, ramped, with a live input meter."""
         from roomconv.jobs.measure import LEVEL_CHECK_DBFS, level_check
+
         app = self.app
         meter = self.query_one("#ms-meter", Static)
 
         def show(peak_db, frac):
             bar = "█" * int(max(0.0, min(1.0, (peak_db + 80) / 80)) * 40)
-            app.call_from_thread(meter.update, f"input meter: {bar:<40} {peak_db:6.1f} dBFS "
-                                               f"({100 * frac:3.0f} %)")
+            app.call_from_thread(
+                meter.update, f"input meter: {bar:<40} {peak_db:6.1f} dBFS ({100 * frac:3.0f} %)"
+            )
+
         try:
             sim = self.simulated_room()
-            peak = level_check(simulate=sim, confirm=None if sim else self.confirm,
-                               on_level=show, **({} if sim else self.card()))
-            app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                 f"level check: input peak {peak:.1f} dBFS for a "
-                                 f"{LEVEL_CHECK_DBFS:g} dBFS tone; aim for the sweep to peak "
-                                 "10-20 dB below full scale at the microphone")
+            peak = level_check(
+                simulate=sim,
+                confirm=None if sim else self.confirm,
+                on_level=show,
+                **({} if sim else self.card()),
+            )
+            app.call_from_thread(
+                self.query_one("#ms-status", Static).update,
+                f"level check: input peak {peak:.1f} dBFS for a "
+                f"{LEVEL_CHECK_DBFS:g} dBFS tone; aim for the sweep to peak "
+                "10-20 dB below full scale at the microphone",
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Level check")
 
@@ -168,16 +189,19 @@ class MeasurePane(VerticalScroll):
         """The jobs' progress callback: the bar, and a notice for each message."""
         if get_current_worker().is_cancelled:
             raise Cancelled()
-        self.app.call_from_thread(self.query_one("#ms-progress", ProgressBar).update,
-                                  progress=fraction)
+        self.app.call_from_thread(
+            self.query_one("#ms-progress", ProgressBar).update, progress=fraction
+        )
         if message:
             self.app.call_from_thread(self.app.notify, message, title="Measure")
 
     def position(self) -> tuple[str, Path, Path]:
         """The next position's name, response file and quality file."""
         from roomconv.jobs.naming import position_output
+
         folder = Path(self.query_one("#ms-folder", Input).value)
-        name = self.query_one("#ms-name", Input).value.strip() or f"P{len(self.app.session) + 1}"
+        next_name = f"P{len(workbench(self).session) + 1}"
+        name = self.query_one("#ms-name", Input).value.strip() or next_name
         out, quality = position_output(folder, name)
         return name, out, quality
 
@@ -185,6 +209,7 @@ class MeasurePane(VerticalScroll):
     def measure(self) -> None:
         from roomconv.jobs.guard import make_folders
         from roomconv.jobs.measure import measure_position
+
         app = self.app
         try:
             s = self.sweep()
@@ -194,15 +219,24 @@ class MeasurePane(VerticalScroll):
             if sim is None:
                 self.confirm()
             make_folders(out.parent)
-            res = measure_position(out, s, simulate=sim, reference_channel=ref,
-                                   sim_latency_samples=256, sim_noise_dbfs=-90.0,
-                                   match_simulated_rate=True, json_path=quality,
-                                   confirm=None if sim else self.confirm,
-                                   progress=self.progress, **({} if sim else self.card()))
+            res = measure_position(
+                out,
+                s,
+                simulate=sim,
+                reference_channel=ref,
+                sim_latency_samples=256,
+                sim_noise_dbfs=-90.0,
+                match_simulated_rate=True,
+                json_path=quality,
+                confirm=None if sim else self.confirm,
+                progress=self.progress,
+                **({} if sim else self.card()),
+            )
             self.show_position(name, res)
         except Cancelled:
-            app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                 "measurement cancelled; nothing saved")
+            app.call_from_thread(
+                self.query_one("#ms-status", Static).update, "measurement cancelled; nothing saved"
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Measure")
 
@@ -214,6 +248,7 @@ class MeasurePane(VerticalScroll):
     def import_recording(self) -> None:
         from roomconv.jobs.guard import make_folders
         from roomconv.jobs.measure import extract_recording
+
         app = self.app
         try:
             rec = Path(self.query_one("#ms-rec", Input).value)
@@ -221,30 +256,39 @@ class MeasurePane(VerticalScroll):
             ref = self.channel("#ms-ref", "Loopback channel")
             name, out, quality = self.position()
             make_folders(out.parent)
-            res = extract_recording(rec, sweep, out, reference_channel=ref, json_path=quality,
-                                    progress=self.progress)
+            res = extract_recording(
+                rec, sweep, out, reference_channel=ref, json_path=quality, progress=self.progress
+            )
             for n in res.notes:
                 app.call_from_thread(app.notify, n, title="Import")
             self.show_position(name, res)
         except Cancelled:
-            app.call_from_thread(self.query_one("#ms-status", Static).update,
-                                 "import cancelled; nothing saved")
+            app.call_from_thread(
+                self.query_one("#ms-status", Static).update, "import cancelled; nothing saved"
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Import")
 
     def show_position(self, name: str, res) -> None:
         """Add a measured position to the session and its table."""
         app = self.app
+        session = workbench(self).session
         q = res.quality
-        app.session.append({"name": name, "file": res.output, "quality": q})
-        row = (name, str(res.output), f"{min(q['ir']['inr_db']):.1f}",
-               f"{max(q['recording']['peak_dbfs']):.1f}",
-               str(sum(q["recording"]["clipped_samples"])), str(len(q["warnings"])))
+        session.append({"name": name, "file": res.output, "quality": q})
+        row = (
+            name,
+            str(res.output),
+            f"{min(q['ir']['inr_db']):.1f}",
+            f"{max(q['recording']['peak_dbfs']):.1f}",
+            str(sum(q["recording"]["clipped_samples"])),
+            str(len(q["warnings"])),
+        )
         app.call_from_thread(self.query_one("#ms-positions", DataTable).add_row, *row)
-        nxt = f"P{len(app.session) + 1}"
+        nxt = f"P{len(session) + 1}"
         app.call_from_thread(setattr, self.query_one("#ms-name", Input), "value", nxt)
         app.call_from_thread(self.query_one("#ms-progress", ProgressBar).update, progress=1.0)
-        app.call_from_thread(self.query_one("#ms-status", Static).update,
-                             f"{name}: impulse-to-noise ratio (INR) "
-                             f"{min(q['ir']['inr_db']):.1f} dB; "
-                             + ("; ".join(q["warnings"][:2]) or "no warnings"))
+        app.call_from_thread(
+            self.query_one("#ms-status", Static).update,
+            f"{name}: impulse-to-noise ratio (INR) "
+            f"{min(q['ir']['inr_db']):.1f} dB; " + ("; ".join(q["warnings"][:2]) or "no warnings"),
+        )

@@ -36,8 +36,12 @@ class RenderPane(VerticalScroll):
             yield Input("0", id="rn-gain", classes="narrow")
         with Horizontal(classes="row"):
             yield Label("Normalize")
-            yield Select([(n, n) for n in ("none", "peak", "truepeak", "loudness")],
-                         value="none", allow_blank=False, id="rn-normalize")
+            yield Select(
+                [(n, n) for n in ("none", "peak", "truepeak", "loudness")],
+                value="none",
+                allow_blank=False,
+                id="rn-normalize",
+            )
         with Horizontal(classes="row"):
             yield Button("Render queue", id="rn-run", variant="primary")
             yield Button("Cancel", id="rn-cancel")
@@ -63,11 +67,14 @@ class RenderPane(VerticalScroll):
 
     def settings(self):
         from roomconv.render.offline import RenderSettings
-        return RenderSettings(mix=self.number("#rn-mix", "Wet/dry"),
-                              predelay_ms=self.number("#rn-predelay", "Pre-delay ms"),
-                              gain_db=self.number("#rn-gain", "Gain dB"),
-                              normalize=str(self.query_one("#rn-normalize", Select).value),
-                              match_ir_level=True).check()
+
+        return RenderSettings(
+            mix=self.number("#rn-mix", "Wet/dry"),
+            predelay_ms=self.number("#rn-predelay", "Pre-delay ms"),
+            gain_db=self.number("#rn-gain", "Gain dB"),
+            normalize=str(self.query_one("#rn-normalize", Select).value),
+            match_ir_level=True,
+        ).check()
 
     @on(Button.Pressed, "#rn-run")
     def run_pressed(self) -> None:
@@ -82,6 +89,7 @@ class RenderPane(VerticalScroll):
     @work(thread=True, exclusive=True, group="render")
     def render_queue(self, cancel: threading.Event) -> None:
         from roomconv.jobs.render import render_many
+
         app = self.app
         job_bar = self.query_one("#rn-job", ProgressBar)
         all_bar = self.query_one("#rn-all", ProgressBar)
@@ -107,9 +115,16 @@ class RenderPane(VerticalScroll):
             app.call_from_thread(all_bar.update, progress=(k + frac) / len(drys))
             if message:
                 app.call_from_thread(app.notify, message, severity="error", title="Render")
+
         try:
-            res = render_many(drys, ir, folder, s, progress=progress,
-                              force=self.query_one("#rn-replace", Checkbox).value)
+            res = render_many(
+                drys,
+                ir,
+                folder,
+                s,
+                progress=progress,
+                force=self.query_one("#rn-replace", Checkbox).value,
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Render")
             return
@@ -128,21 +143,29 @@ class RenderPane(VerticalScroll):
     @on(Button.Pressed, "#rn-preview")
     def preview_pressed(self) -> None:
         if not self.query_one("#rn-ack", Checkbox).value:
-            self.app.notify("read the caution and tick the box before any sound is played",
-                            severity="warning", title="Preview")
+            self.app.notify(
+                "read the caution and tick the box before any sound is played",
+                severity="warning",
+                title="Preview",
+            )
             return
         self.preview()
 
     @work(thread=True, exclusive=True, group="preview")
     def preview(self) -> None:
         from roomconv.jobs.render import preview
+
         app = self.app
         try:
             drys = shlex.split(self.query_one("#rn-dry", Input).value)
             if not drys:
                 raise InputError("Dry files: type a dry file to preview")
-            preview(drys[0], self.query_one("#rn-ir", Input).value, self.settings(),
-                    confirm=self.confirm)
+            preview(
+                drys[0],
+                self.query_one("#rn-ir", Input).value,
+                self.settings(),
+                confirm=self.confirm,
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Preview")
 

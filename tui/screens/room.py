@@ -15,9 +15,16 @@ from roomconv.errors import RoomconvError
 from roomconv.jobs.synth import parse_triple, room_size
 from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
+from tui.screens import workbench
 
-DEFAULTS = {"left": "plaster", "right": "plaster", "front": "wood-panel", "back": "plaster",
-            "floor": "carpet", "ceiling": "acoustic-tile"}
+DEFAULTS = {
+    "left": "plaster",
+    "right": "plaster",
+    "front": "wood-panel",
+    "back": "plaster",
+    "floor": "carpet",
+    "ceiling": "acoustic-tile",
+}
 
 
 class RoomPane(VerticalScroll):
@@ -35,15 +42,23 @@ class RoomPane(VerticalScroll):
             with Horizontal(classes="row"):
                 for s in (a, b):
                     yield Label(f"{s:>7}")
-                    yield Select([(n, n) for n in names], value=DEFAULTS[s], allow_blank=False,
-                                 id=f"mat-{s}")
+                    yield Select(
+                        [(n, n) for n in names], value=DEFAULTS[s], allow_blank=False, id=f"mat-{s}"
+                    )
         yield Static("", id="room-status", classes="status")
         yield DataTable(id="room-prediction")
         with Horizontal(classes="row"):
             yield Label("Stereo")
-            yield Select([("mono", "mono"), ("spaced 0.5 m", "spaced:0.5"),
-                          ("coincident 90°", "coincident:90")], value="mono",
-                         allow_blank=False, id="room-stereo")
+            yield Select(
+                [
+                    ("mono", "mono"),
+                    ("spaced 0.5 m", "spaced:0.5"),
+                    ("coincident 90°", "coincident:90"),
+                ],
+                value="mono",
+                allow_blank=False,
+                id="room-stereo",
+            )
             yield Label("Save IR as")
             yield Input("room.wav", id="room-out")
             yield Checkbox("Replace an existing file", id="room-replace")
@@ -85,34 +100,42 @@ class RoomPane(VerticalScroll):
     @work(thread=True, exclusive=True, group="room")
     def synthesize(self) -> None:
         from roomconv.jobs.synth import synthesize_room
+
         app = self.app
         try:
             room = self.room()
             src = parse_triple(self.query_one("#room-source", Input).value, "source position")
-            rcv = parse_triple(self.query_one("#room-receiver", Input).value,
-                               "receiver position")
+            rcv = parse_triple(self.query_one("#room-receiver", Input).value, "receiver position")
             out = Path(self.query_one("#room-out", Input).value)
             stereo = str(self.query_one("#room-stereo", Select).value)
-            res = synthesize_room(out, room, source_m=src, receiver_m=rcv,
-                                  stereo=None if stereo == "mono" else stereo, seed=0,
-                                  force=self.query_one("#room-replace", Checkbox).value)
+            res = synthesize_room(
+                out,
+                room,
+                source_m=src,
+                receiver_m=rcv,
+                stereo=None if stereo == "mono" else stereo,
+                seed=0,
+                force=self.query_one("#room-replace", Checkbox).value,
+            )
         except RoomconvError as exc:
             app.call_from_thread(app.notify, str(exc), severity="error", title="Room")
             return
         if get_current_worker().is_cancelled:
             return
         ir, rate = res.ir, res.result.rate
-        app.call_from_thread(self.query_one("#room-status", Static).update,
-                             f"wrote {out} ({ir.shape[1]} ch, {ir.shape[0] / rate:.2f} s)"
-                             f"; {res.result.image_count} image sources")
+        app.call_from_thread(
+            self.query_one("#room-status", Static).update,
+            f"wrote {out} ({ir.shape[1]} ch, {ir.shape[0] / rate:.2f} s)"
+            f"; {res.result.image_count} image sources",
+        )
         app.call_from_thread(app.notify, f"synthesized {out}", title="Room")
 
     @on(Button.Pressed, "#room-to-analyze")
     def to_analyze(self) -> None:
         out = self.query_one("#room-out", Input).value
-        self.app.send_to("analyze", out)
+        workbench(self).send_to("analyze", out)
 
     @on(Button.Pressed, "#room-to-render")
     def to_render(self) -> None:
         out = self.query_one("#room-out", Input).value
-        self.app.send_to("render", out)
+        workbench(self).send_to("render", out)
