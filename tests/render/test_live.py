@@ -85,6 +85,7 @@ def test_live_through_portaudio_file_device(tmp_path):
             "live",
             "--ir",
             str(tmp_path / "ir.wav"),
+            "--keep-ir-level",  # compared with the raw convolution below
             "--yes",
             "--block",
             "256",

@@ -124,6 +124,7 @@ def test_live_on_a_real_time_jack_device(jack_server, tmp_path):
             "live",
             "--ir",
             str(tmp_path / "ir.wav"),
+            "--keep-ir-level",  # compared with the raw convolution below
             "--device",
             "0",
             "--block",
