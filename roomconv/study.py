@@ -571,7 +571,7 @@ notes = ""                  # free text, shown in the report
 
 [room]
 name = "Room 1"
-use = ""                    # e.g. "lecture room", "chamber music"
+use = ""                    # e.g. "classroom", "chamber music"
 # Give the volume and surface area, or the dimensions of a rectangular room (or both).
 volume_m3 = 250.0
 surface_m2 = 250.0
