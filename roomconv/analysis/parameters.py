@@ -782,7 +782,7 @@ def _energy_ratios(
     else:
         if tr.compensation > 0 and k > 0:
             # No floor: continue the late decay of this signal from its last stretch.
-            comp = _end_energy(xr[onset:stop], rate, tr.slope_db_s) / k * rate
+            comp = _end_energy(xr[onset:stop]) / k * rate
         bound, nstart = _noise_bound(xr[onset:], tr)
         if bound > 0:  # judge the uncertainty against the most noise there could be
             _ratio_noise_uncertainty(
@@ -975,7 +975,7 @@ def _filter_sensitivity(
             )
 
 
-def _end_energy(x: np.ndarray, rate: int, slope_db_s: float) -> float:
+def _end_energy(x: np.ndarray) -> float:
     """Energy per sample of the late line at the end of ``x`` (mean of its last 5 %)."""
     n = max(1, x.size // 20)
     return float(np.mean(np.square(x[-n:])))

@@ -48,14 +48,10 @@ def decay_time_uncertainty(
     ----------
     ISO 3382-2:2008, Annex A, eqs. (A.1)–(A.2) (from memory).
     """
-    if kind == "t20":
-        k, c = 0.88, 1.90
-    elif kind == "t30":
-        k, c = 0.55, 1.52
-    else:
+    if kind not in ("t20", "t30"):
         raise ValueError("kind is t20 or t30")
-    n = decays_per_position
-    return float(k * t * np.sqrt((1 + c / n) / (positions * bandwidth_hz * t)))
+    # The constants live with the single-position check (parameters.STATISTICAL_CONSTANTS).
+    return t * decay_time_sigma(f"{kind}_s", t, bandwidth_hz, positions, decays_per_position)
 
 
 def _flagged_beyond_statistics(row: dict, metric: str) -> bool:
