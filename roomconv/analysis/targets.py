@@ -331,7 +331,9 @@ def parse_target(
             raise InputError(f"target '{s}' is unknown; known targets: {', '.join(KNOWN_TARGETS)}")
         lim, bands, src, _mem = BB93_VARIANTS[variant]
         what = "T_mf" if bands == S1260_BANDS else "mean T (125 Hz-4 kHz)"
-        return _limit(f"bb93:{variant}", f"BB93 {variant}: {what} at most {lim:g} s", lim, bands, src)
+        return _limit(
+            f"bb93:{variant}", f"BB93 {variant}: {what} at most {lim:g} s", lim, bands, src
+        )
     if not set(key) <= set("0123456789.:,e+- "):
         raise InputError(
             f"target '{s}' is unknown; give seconds (0.6), BAND:SECONDS items "

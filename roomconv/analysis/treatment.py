@@ -142,7 +142,9 @@ def eyring_time(volume_m3: float, area_m2: float, mean_alpha: float, m_per_m: fl
     """
     if mean_alpha >= 1.0:
         return 0.0
-    return SABINE_CONSTANT * volume_m3 / (-area_m2 * math.log1p(-mean_alpha) + 4 * m_per_m * volume_m3)
+    return (
+        SABINE_CONSTANT * volume_m3 / (-area_m2 * math.log1p(-mean_alpha) + 4 * m_per_m * volume_m3)
+    )
 
 
 def eyring_added_area(
@@ -338,9 +340,7 @@ def plan_bands(
     notes: list[str] = []
     installed: list[TreatmentArea] = []
     if treatments:
-        need = _mean(
-            r.added_area_eyring_m2 for r in rows if r.band_hz in sizing
-        )
+        need = _mean(r.added_area_eyring_m2 for r in rows if r.band_hz in sizing)
         for t in treatments:
             alpha = float(np.mean([t.material.at(b) for b in sizing]))
             if need is None:
