@@ -101,7 +101,13 @@ def _tolerance(text: str) -> tuple[float, float]:
 
 def _option_of(text: str, a) -> str | None:
     """The option behind a job's refusal (the job names values, not options)."""
-    if "target '" in text or "DIN 18041" in text or "S12.60" in text or "[targets]" in text:
+    if (
+        text.startswith("target")
+        or "target '" in text
+        or "DIN 18041" in text
+        or "S12.60" in text
+        or "[targets]" in text
+    ):
         return "--study" if "[targets]" in text else "--target"
     if text.startswith("room surface area") and a.area is not None:
         return "--area"
