@@ -192,3 +192,26 @@ def test_study_without_targets_needs_a_target(tmp_path, cli):
     study = write_study(tmp_path, text)
     code, _, err = cli("plan", "--study", study)
     _one_line_refusal(code, err, "--study", "[targets]", "give a target")
+
+
+def test_report_section_of_the_treatment_estimate(tmp_path):
+    # The report's section alone (the whole page is exercised by tests/report).
+    from roomconv.report import analyse_study
+    from roomconv.report.plan_section import treatment_section
+    from roomconv.study import load_study
+
+    study = load_study(write_study(tmp_path))
+    doc = analyse_study(study).analysis.document
+    figures = []
+    html = treatment_section(study, doc, lambda fig, alt, cap: figures.append(fig) or "<fig>")
+    assert "Absorption to reach the target (estimate)" in html
+    assert "licensed professional" in html and len(figures) == 1
+    # The 1 kHz row: Sabine ΔA = 0.161·V·(1/T_target − 1/T_measured) (closed form) from the
+    # analysis' own mean T30, V = 384 m³, target 0.8 s.
+    t = next(r for r in doc["average"]["bands"] if r["band_hz"] == 1000)
+    expected = 0.161 * 384 * (1 / 0.8 - 1 / t["t30_s"]["mean"])
+    assert f"<td>{expected:+.1f}</td>" in html
+    # No target in the study: no section.
+    from dataclasses import replace
+
+    assert treatment_section(replace(study, targets=None), doc, None) == ""

@@ -34,7 +34,12 @@ __all__ = [
     "BandPlan",
     "TreatmentPlan",
     "plan_bands",
+    "BASES",
+    "measured_times",
 ]
+
+#: Decay times a plan may start from.
+BASES = ("t30", "t20", "edt")
 
 #: Sabine's constant 24·ln10/c in s/m at c ≈ 343 m/s (20 °C); ISO 354:2003, 8.1.2.1 writes it
 #: 55.3/c (from memory). The value the trade quotes, and the one in the closed-form check.
@@ -439,3 +444,36 @@ def plan_bands(
         mean_check=mean_check,
         notes=notes,
     )
+
+
+def measured_times(doc, basis: str = "t30", what: str = "analysis document"):
+    """{band Hz: mean decay time or None} and {band Hz: caution text} from an analysis
+    document's average (the JSON ``analyze`` writes)."""
+    if basis not in BASES:
+        raise InputError(f"decay time '{basis}' is not one of {', '.join(BASES)}")
+    try:
+        kind = doc["settings"]["bands"]
+        rows = doc["average"]["bands"]
+        times: dict[int, float | None] = {}
+        notes: dict[int, str] = {}
+        for r in rows:
+            stat = r[f"{basis}_s"]
+            b = int(round(float(r["band_hz"])))
+            mean = stat.get("mean")
+            times[b] = None if mean is None or not math.isfinite(mean) else float(mean)
+            if stat.get("verdict") == "caution" and times[b] is not None:
+                notes[b] = (
+                    f"measured {basis.upper()} carries a caution (see the analysis warnings): "
+                    "the plan in this band is as uncertain as that value"
+                )
+    except (KeyError, TypeError, ValueError, AttributeError):
+        raise InputError(
+            f"{what}: not an analysis document with per-band averages; write one with "
+            "'roomconv analyze ... --json FILE'"
+        ) from None
+    if kind != "octave":
+        raise InputError(
+            f"{what}: holds {kind} bands; the materials table is per octave, analyse with "
+            "octave bands"
+        )
+    return times, notes

@@ -7,13 +7,20 @@ Messages name values, never command-line options (the front ends add theirs).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from .. import __version__, validate
 from ..analysis.targets import KNOWN_TARGETS, Target, parse_target, user_target
-from ..analysis.treatment import SURFACE_NAMES, Treatment, TreatmentPlan, check_room, plan_bands
+from ..analysis.treatment import (
+    BASES,
+    SURFACE_NAMES,
+    Treatment,
+    TreatmentPlan,
+    check_room,
+    measured_times,
+    plan_bands,
+)
 from ..audio import check_input_file, read_json
 from ..errors import InputError
 from .guard import guarded
@@ -31,8 +38,6 @@ __all__ = [
 
 #: Published targets carry their own tolerance; a flat or per-band one the user's.
 _NAMED = set(KNOWN_TARGETS) | {"study"}
-#: Decay times a plan may start from.
-BASES = ("t30", "t20", "edt")
 
 
 def parse_treatment(item: str, materials_file=None) -> tuple[str, str]:
@@ -56,39 +61,6 @@ def parse_treatment(item: str, materials_file=None) -> tuple[str, str]:
     extra = load_materials(materials_file) if materials_file is not None else None
     get_material(mat, extra)
     return surf, mat
-
-
-def measured_times(doc, basis: str = "t30", what: str = "analysis document"):
-    """{band Hz: mean decay time or None} and {band Hz: caution text} from an analysis
-    document's average (the JSON ``analyze`` writes)."""
-    if basis not in BASES:
-        raise InputError(f"decay time '{basis}' is not one of {', '.join(BASES)}")
-    try:
-        kind = doc["settings"]["bands"]
-        rows = doc["average"]["bands"]
-        times: dict[int, float | None] = {}
-        notes: dict[int, str] = {}
-        for r in rows:
-            stat = r[f"{basis}_s"]
-            b = int(round(float(r["band_hz"])))
-            mean = stat.get("mean")
-            times[b] = None if mean is None or not math.isfinite(mean) else float(mean)
-            if stat.get("verdict") == "caution" and times[b] is not None:
-                notes[b] = (
-                    f"measured {basis.upper()} carries a caution (see the analysis warnings): "
-                    "the plan in this band is as uncertain as that value"
-                )
-    except (KeyError, TypeError, ValueError, AttributeError):
-        raise InputError(
-            f"{what}: not an analysis document with per-band averages; write one with "
-            "'roomconv analyze ... --json FILE'"
-        ) from None
-    if kind != "octave":
-        raise InputError(
-            f"{what}: holds {kind} bands; the materials table is per octave, analyse with "
-            "octave bands"
-        )
-    return times, notes
 
 
 def target_from_study(targets) -> Target:
