@@ -215,3 +215,20 @@ def test_report_section_of_the_treatment_estimate(tmp_path):
     from dataclasses import replace
 
     assert treatment_section(replace(study, targets=None), doc, None) == ""
+
+
+def test_demo_plan_step(tmp_path):
+    # The demo's hall planned for talks: DIN 18041 A2 (speech), T_soll = 0.37·lg V − 0.14
+    # (formula seen in a manufacturer's summary of the standard), V = 2340 m³.
+    from roomconv.demo import quillmere_hall
+    from roomconv.demo.plan_step import plan_demo
+
+    _results(tmp_path / "results.json")
+    room = quillmere_hall()
+    res = plan_demo(tmp_path, room)
+    doc = json.loads((tmp_path / "plan.json").read_text())
+    assert res.written == [tmp_path / "plan.json"]
+    assert doc["target"]["name"] == "din18041:A2"
+    t_soll = 0.37 * math.log10(room.volume) - 0.14
+    assert doc["bands"][3]["target_s"] == pytest.approx(t_soll, rel=1e-9)
+    assert [a["surface"] for a in doc["installed"]] == ["back", "ceiling"]
