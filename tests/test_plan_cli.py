@@ -55,7 +55,7 @@ def test_results_plan_json_against_closed_forms(tmp_path, cli):
     assert set(by_band) == set(OCT)
     for b, tm in MEASURED.items():
         r = by_band[b]
-        assert r["target_s"] == pytest.approx(t_soll, rel=1e-9)
+        assert r["target_s"] == pytest.approx(t_soll, abs=1e-4)
         for key in ("target_min_s", "target_max_s", "treatment", "predicted_s"):
             assert key in r
         if tm is None:
@@ -230,5 +230,22 @@ def test_demo_plan_step(tmp_path):
     assert res.written == [tmp_path / "plan.json"]
     assert doc["target"]["name"] == "din18041:A2"
     t_soll = 0.37 * math.log10(room.volume) - 0.14
-    assert doc["bands"][3]["target_s"] == pytest.approx(t_soll, rel=1e-9)
+    assert doc["bands"][3]["target_s"] == pytest.approx(t_soll, abs=1e-4)
     assert [a["surface"] for a in doc["installed"]] == ["back", "ceiling"]
+
+
+def test_a_material_from_a_materials_file(tmp_path, cli):
+    # A user material of our own (felt, 0.9 everywhere): the installed area is the Eyring
+    # area at the sizing bands over α (closed form, one material).
+    (tmp_path / "mats.json").write_text(json.dumps({"felt": {"alpha": [0.9] * 8}}))
+    res = _results(tmp_path / "results.json")
+    code, _, err = cli(
+        "plan", "--results", res, "--volume", V, "--area", S, "--target", "0.6",
+        "--treat", "walls=felt", "--materials-file", tmp_path / "mats.json",
+        "--json", tmp_path / "p.json",
+    )  # fmt: skip
+    assert code == 0, err
+    doc = json.loads((tmp_path / "p.json").read_text())
+    by_band = {r["band_hz"]: r for r in doc["bands"]}
+    need = (by_band[500]["added_area_eyring_m2"] + by_band[1000]["added_area_eyring_m2"]) / 2
+    assert doc["installed"][0]["area_m2"] == pytest.approx(need / 0.9, abs=1e-3)

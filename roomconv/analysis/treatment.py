@@ -21,6 +21,7 @@ from .targets import Target
 __all__ = [
     "SABINE_CONSTANT",
     "SURFACE_NAMES",
+    "DECISION_CAUTION",
     "exact_octave_hz",
     "air_m",
     "sphere_area",
@@ -204,7 +205,14 @@ class BandPlan:
     def as_dict(self) -> dict:
         d = {k: v for k, v in self.__dict__.items() if k != "treatment"}
         d["treatment"] = [t.__dict__.copy() for t in self.treatment]
-        for k in ("added_area_sabine_m2", "added_area_eyring_m2", "predicted_s"):
+        for k in (
+            "target_s",
+            "target_min_s",
+            "target_max_s",
+            "added_area_sabine_m2",
+            "added_area_eyring_m2",
+            "predicted_s",
+        ):
             if d[k] is not None:
                 d[k] = round(d[k], 4)
         return d
@@ -341,7 +349,7 @@ def plan_bands(
             area = None if alpha <= 0 or share < 0 else share / alpha
             row.treatment.append(TreatmentArea(t.surface, t.material.name, area))
 
-    sizing = tuple(b for b in (500, 1000) if b in bands) or tuple(bands)
+    sizing: tuple[int, ...] = tuple(b for b in (500, 1000) if b in bands) or tuple(bands)
     notes: list[str] = []
     installed: list[TreatmentArea] = []
     if treatments:
@@ -404,12 +412,13 @@ def plan_bands(
         m_mean = _mean(meas) if complete and None not in meas else None
         p_mean = _mean(pred) if complete and treatments and None not in pred else None
         judged = p_mean if treatments else m_mean
+        within = None if judged is None or limit is None else bool(judged <= limit)
         mean_check = {
             "bands_hz": list(target.mean_bands),
             "limit_s": limit,
             "measured_mean_s": None if m_mean is None else round(m_mean, 4),
             "predicted_mean_s": None if p_mean is None else round(p_mean, 4),
-            "within": None if judged is None or limit is None else bool(judged <= limit),
+            "within": within,
         }
         if judged is None:
             notes.append(
@@ -419,7 +428,7 @@ def plan_bands(
             )
         for r in rows:
             if r.band_hz in target.mean_bands:
-                r.within_tolerance = mean_check["within"]
+                r.within_tolerance = within
     notes.append(
         "Sabine and Eyring assume a diffuse sound field; with the absorption on one surface "
         "(a ceiling alone) the decay is often longer than predicted"

@@ -244,7 +244,7 @@ def plan_treatment(
         extra = load_materials(materials_file) if materials_file is not None else None
         chosen = []
         for item in treatments:
-            surf, mat = parse_treatment(item)  # the material is checked below with extras
+            surf, mat = parse_treatment(item, materials_file)
             chosen.append(Treatment(surf, get_material(mat, extra), _surface_area(dims, surf)))
         # Every check on the plain values is done: only now the (slow) analysis.
         if study is not None:
