@@ -150,6 +150,9 @@ def test_job_returns_a_plan_without_writing(tmp_path):
     [
         (["--target", "din18041:A9"], ["--target", "din18041:A3", "s12.60", "bb93:sen"]),
         (["--target", "0.6", "--volume", "0"], ["--volume", "positive"]),
+        (["--target", "0.6", "--volume", "1e308", "--area", "1e308"], ["--volume", "at most"]),
+        (["--target", "0.6", "--humidity", "200"], ["--humidity", "0 to 100"]),
+        (["--target", "nan"], ["--target", "unknown"]),
         (["--target", "0.6", "--area", "100"], ["--area", "the least any room"]),
         (["--target", "0.6", "--treat", "roof=carpet"], ["--treat", "roof", "ceiling"]),
         (["--target", "0.6", "--treat", "floor=velvet"], ["--treat", "velvet"]),

@@ -49,6 +49,11 @@ SABINE_CONSTANT = 0.161
 #: Surfaces a treatment may be named on: a rectangular room's six, and the four walls.
 SURFACE_NAMES = ("floor", "ceiling", "left", "right", "front", "back", "walls")
 
+#: Largest volume and surface accepted: a room of 1000 m sides, the synthesis' own limit, and
+#: a hundred times its surface for very flat rooms (common practice: beyond any enclosure).
+VOLUME_MAX_M3 = 1.0e9
+AREA_MAX_M2 = 6.0e8
+
 #: Decision caution printed with every plan.
 DECISION_CAUTION = (
     "This plan is an estimate from diffuse-field formulas. Decisions on treatment, and on "
@@ -93,8 +98,8 @@ def sphere_area(volume_m3: float) -> float:
 
 def check_room(volume_m3, area_m2) -> tuple[float, float]:
     """Volume and surface area as floats, refused when no room could have them."""
-    v = validate.positive(volume_m3, "room volume", unit="m³")
-    s = validate.positive(area_m2, "room surface area", unit="m²")
+    v = validate.positive(volume_m3, "room volume", VOLUME_MAX_M3, unit="m³")
+    s = validate.positive(area_m2, "room surface area", AREA_MAX_M2, unit="m²")
     least = sphere_area(v)
     if s < least * (1 - 1e-9):
         raise InputError(
