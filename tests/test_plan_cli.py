@@ -185,7 +185,7 @@ def test_refusals_of_the_source(tmp_path, cli):
     (tmp_path / "junk.json").write_text('{"a": 1}')
     code, _, err = cli("plan", "--results", tmp_path / "junk.json", "--volume", V, "--area", S,
                        "--target", "0.6")  # fmt: skip
-    _one_line_refusal(code, err, "junk.json", "analyze")
+    _one_line_refusal(code, err, "junk.json", "not an analysis document")
 
 
 def test_study_without_targets_needs_a_target(tmp_path, cli):

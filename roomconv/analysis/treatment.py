@@ -483,7 +483,7 @@ def measured_times(doc, basis: str = "t30", what: str = "analysis document"):
     except (KeyError, TypeError, ValueError, AttributeError):
         raise InputError(
             f"{what}: not an analysis document with per-band averages; write one with "
-            "'roomconv analyze ... --json FILE'"
+            "the analysis and its JSON output"
         ) from None
     if kind != "octave":
         raise InputError(
