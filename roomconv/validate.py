@@ -35,6 +35,7 @@ __all__ = [
     "memory_budget",
     "seconds_budget",
     "all_finite",
+    "parse_band_values",
 ]
 
 #: Largest single buffer roomconv agrees to allocate for one signal (float64), bytes.
@@ -430,3 +431,57 @@ def all_finite(values: Iterable[float], what: str) -> None:
     """
     for v in values:
         finite(v, what)
+
+
+def parse_band_values(
+    text: str | None, what: str, bands: Iterable[int], hi: float | None = None
+) -> dict[int, float]:
+    """'500:1.8,1000:1.6' → {500: 1.8, 1000: 1.6}; a bare number applies to every band.
+
+    Parameters
+    ----------
+    text : str or None
+        ``BAND:VALUE`` items separated by commas, or one number; None gives ``{}``.
+    what : str
+        What the values mean ("reverberation time"), put at the start of a refusal.
+    bands : iterable of int
+        The bands accepted (nominal mid-band frequencies in Hz).
+    hi : float, optional
+        Largest value accepted.
+
+    Examples
+    --------
+    >>> parse_band_values("500:1.8,1000:1.6", "reverberation time", (500, 1000, 2000))
+    {500: 1.8, 1000: 1.6}
+    >>> parse_band_values("0.6", "target", (500, 1000))
+    {500: 0.6, 1000: 0.6}
+    """
+    allowed = tuple(int(b) for b in bands)
+    if text is None:
+        return {}
+    if not str(text).strip():
+        raise InputError(f"{what} is empty: give BAND:VALUE items (e.g. 500:1.8) or one value")
+    out: dict[int, float]
+    try:
+        out = {b: float(text) for b in allowed}
+    except ValueError:
+        out = {}
+        for item in text.split(","):
+            band_text, _, val = item.partition(":")
+            try:
+                band = int(float(band_text))
+                value = float(val)
+            except (ValueError, OverflowError):
+                raise InputError(
+                    f"{what} item '{item}' must look like BAND:VALUE (e.g. 500:1.8)"
+                ) from None
+            if band in out:
+                raise InputError(f"{what}: the {band} Hz band is given twice") from None
+            out[band] = value
+    for band, value in out.items():
+        if band not in allowed:
+            raise InputError(
+                f"{what}: {band} Hz is not an octave band ({', '.join(map(str, allowed))})"
+            )
+        positive(value, f"{what} at {band} Hz", hi)
+    return out

@@ -16,6 +16,7 @@ import numpy as np
 from .. import __version__
 from ..errors import InputError, OutputExistsError
 from ..jobs.progress import ProgressCallback, silent
+from .plan_step import plan_demo
 from .scenario import (
     CHAIN,
     FULL,
@@ -95,6 +96,7 @@ def run_demo(
     for n in run.notes:
         log(n)
     write_report(run, room, sweep, study, comparison, renders)
+    plan_demo(out, room, force=force)  # the hall planned for talks (plan.json)
     summary = _summary(study.document, time.monotonic() - t_start, out)
     write_document(out / "summary.json", summary, force=force)
     return summary
@@ -466,6 +468,7 @@ def _summary(doc, seconds, out) -> dict:
                 "report.html",
                 "results.json",
                 "results.csv",
+                "plan.json",
                 "irs",
                 "harmonics",
                 "renders",

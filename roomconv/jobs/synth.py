@@ -101,7 +101,8 @@ def position(text: str) -> tuple[float, float, float]:
 
 
 def parse_band_values(text: str | None, what: str, hi: float | None = None) -> dict[int, float]:
-    """'500:1.8,1000:1.6' → {500: 1.8, 1000: 1.6}; a bare number applies to every band.
+    """'500:1.8,1000:1.6' → {500: 1.8, 1000: 1.6} over the octave bands of the materials
+    table (:func:`roomconv.validate.parse_band_values`).
 
     Examples
     --------
@@ -110,34 +111,7 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
     """
     from ..synth.materials import OCTAVES
 
-    if text is None:
-        return {}
-    if not str(text).strip():
-        raise InputError(f"{what} is empty: give BAND:VALUE items (e.g. 500:1.8) or one value")
-    out: dict[int, float]
-    try:
-        out = {b: float(text) for b in OCTAVES}
-    except ValueError:
-        out = {}
-        for item in text.split(","):
-            band_text, _, val = item.partition(":")
-            try:
-                band = int(float(band_text))
-                value = float(val)
-            except (ValueError, OverflowError):
-                raise InputError(
-                    f"{what} item '{item}' must look like BAND:VALUE (e.g. 500:1.8)"
-                ) from None
-            if band in out:
-                raise InputError(f"{what}: the {band} Hz band is given twice") from None
-            out[band] = value
-    for band, value in out.items():
-        if band not in OCTAVES:
-            raise InputError(
-                f"{what}: {band} Hz is not an octave band ({', '.join(map(str, OCTAVES))})"
-            )
-        validate.positive(value, f"{what} at {band} Hz", hi)
-    return out
+    return validate.parse_band_values(text, what, OCTAVES, hi)
 
 
 def parse_materials(text: str | None) -> dict[str, str]:

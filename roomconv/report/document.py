@@ -20,6 +20,7 @@ from ..analysis.report import mean_with_spread as _pm
 from ..analysis.spatial import SINGLE_NUMBERS
 from . import figures as F
 from .inputs import StudyResults
+from .plan_section import treatment_section
 
 e = html.escape
 
@@ -265,6 +266,7 @@ def report_html(res: StudyResults) -> str:
                 target_rows(doc, t),
             )
         )
+        out.append(treatment_section(st, doc, _figure))
 
     # 3. Grade
     name = g["name"] or "below survey grade"

@@ -290,3 +290,41 @@ def _rect(w, d):
     from matplotlib.patches import Rectangle
 
     return Rectangle((0, 0), w, d, fill=False, ec=INK, lw=1.2)
+
+
+def treatment_figure(bands: list[dict], title: str = ""):
+    """Measured decay time, the target with its accepted range, and the time predicted after
+    treatment, per octave band (the ``bands`` entries of a treatment plan)."""
+    fig, (ax,) = _figure(7.5, 3.2)
+    x = [r["band_hz"] for r in bands]
+    tgt = np.array([np.nan if r["target_s"] is None else r["target_s"] for r in bands])
+    lo = np.array([0.0 if r["target_min_s"] is None else r["target_min_s"] for r in bands])
+    hi = np.array([np.nan if r["target_max_s"] is None else r["target_max_s"] for r in bands])
+    ax.fill_between(x, lo, hi, color=TARGET, label="target range", zorder=0)
+    ax.plot(x, tgt, "--", color=TARGET_EDGE, lw=1, label="target")
+    for key, colour, mark, label in (
+        ("measured_s", POSITION, "s", "measured"),
+        ("predicted_s", AVERAGE, "o", "after treatment"),
+    ):
+        pts = [(r["band_hz"], r[key]) for r in bands if r.get(key) is not None]
+        if pts:
+            ax.plot(*zip(*pts, strict=True), "-" + mark, color=colour, ms=5, label=label)
+    off = [(r["band_hz"], r["predicted_s"]) for r in bands if r.get("within_tolerance") is False]
+    off = [p for p in off if p[1] is not None]
+    if off:
+        ax.plot(
+            *zip(*off, strict=True),
+            "o",
+            mfc="white",
+            mec=FLAG,
+            mew=1.8,
+            ms=8,
+            label="outside the range",
+        )
+    _band_axis(ax, x)
+    ax.set_ylabel("T (s)")
+    ax.set_ylim(bottom=0)
+    if title:
+        ax.set_title(title, fontsize=8, loc="left", color=INK)
+    ax.legend(fontsize=7, loc="upper right")
+    return fig

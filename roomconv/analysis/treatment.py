@@ -1,0 +1,493 @@
+"""Treatment planning: the absorption area to add (or remove) per octave band to bring a
+measured reverberation time to a target, by Sabine and by Eyring, and the area of each chosen
+material that does it, with the decay time predicted after treatment.
+
+Diffuse-field formulas throughout: a plan is a first estimate, not a guarantee.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .. import validate
+from ..errors import InputError
+from ..synth.air import power_attenuation
+from ..synth.materials import Material
+from .targets import Target
+
+__all__ = [
+    "SABINE_CONSTANT",
+    "SURFACE_NAMES",
+    "DECISION_CAUTION",
+    "exact_octave_hz",
+    "air_m",
+    "sphere_area",
+    "check_room",
+    "sabine_added_area",
+    "eyring_mean_alpha",
+    "eyring_time",
+    "eyring_added_area",
+    "Treatment",
+    "TreatmentArea",
+    "BandPlan",
+    "TreatmentPlan",
+    "plan_bands",
+    "BASES",
+    "measured_times",
+]
+
+#: Decay times a plan may start from.
+BASES = ("t30", "t20", "edt")
+
+#: Sabine's constant 24·ln10/c in s/m at c ≈ 343 m/s (20 °C); ISO 354:2003, 8.1.2.1 writes it
+#: 55.3/c (from memory). The value the trade quotes, and the one in the closed-form check.
+SABINE_CONSTANT = 0.161
+
+#: Surfaces a treatment may be named on: a rectangular room's six, and the four walls.
+SURFACE_NAMES = ("floor", "ceiling", "left", "right", "front", "back", "walls")
+
+#: Largest volume and surface accepted: a room of 1000 m sides, the synthesis' own limit, and
+#: a hundred times its surface for very flat rooms (common practice: beyond any enclosure).
+VOLUME_MAX_M3 = 1.0e9
+AREA_MAX_M2 = 6.0e8
+
+#: Decision caution printed with every plan.
+DECISION_CAUTION = (
+    "This plan is an estimate from diffuse-field formulas. Decisions on treatment, and on "
+    "compliance with any standard or regulation, rest with the responsible licensed "
+    "professional and the applicable local codes."
+)
+
+
+def exact_octave_hz(band_hz: float) -> float:
+    """The exact mid-band frequency 1000·10^(3k/10) of a nominal octave band (IEC 61260-1).
+
+    Examples
+    --------
+    >>> round(exact_octave_hz(4000), 1)
+    3981.1
+    """
+    k = round(10.0 * math.log10(band_hz / 1000.0) / 3.0)
+    return 1000.0 * 10.0 ** (0.3 * k)
+
+
+def air_m(band_hz: float, temperature_c: float = 20.0, humidity_pct: float = 50.0) -> float:
+    """The air's energy attenuation m (1/m) in an octave band, for the 4mV term.
+
+    References
+    ----------
+    ISO 9613-1:1993, eqs. (3)–(5), evaluated at the band's exact mid-band frequency by
+    :func:`roomconv.synth.air.power_attenuation`; ISO 3382-2:2008, 3, for m.
+    """
+    return float(power_attenuation(exact_octave_hz(band_hz), temperature_c, humidity_pct))
+
+
+def sphere_area(volume_m3: float) -> float:
+    """The surface of a sphere of volume V, (36π V²)^(1/3): the least any room can have.
+
+    Examples
+    --------
+    >>> round(sphere_area(4 / 3 * math.pi), 6)  # unit sphere: 4π
+    12.566371
+    """
+    return float((36.0 * math.pi * volume_m3**2) ** (1.0 / 3.0))
+
+
+def check_room(volume_m3, area_m2) -> tuple[float, float]:
+    """Volume and surface area as floats, refused when no room could have them."""
+    v = validate.positive(volume_m3, "room volume", VOLUME_MAX_M3, unit="m³")
+    s = validate.positive(area_m2, "room surface area", AREA_MAX_M2, unit="m²")
+    least = sphere_area(v)
+    if s < least * (1 - 1e-9):
+        raise InputError(
+            f"room surface area {s:g} m² is less than {least:.1f} m², the least any room of "
+            f"{v:g} m³ can have (a sphere's); check the area and the volume"
+        )
+    return v, s
+
+
+def sabine_added_area(volume_m3: float, t_measured_s: float, t_target_s: float) -> float:
+    """ΔA = 0.161·V·(1/T_target − 1/T_measured): equivalent absorption area to add, m².
+
+    The air term 4mV is the same before and after, so it cancels. Negative: remove absorption.
+
+    References
+    ----------
+    Sabine, W. C. (1922). Collected Papers on Acoustics. Harvard University Press.
+    ISO 354:2003, 8.1.2.1 (equivalent absorption area from T; the constant 55.3/c).
+
+    Examples
+    --------
+    >>> round(sabine_added_area(100.0, 1.61, 0.805), 3)  # 0.161·100·(1/0.805 − 1/1.61)
+    10.0
+    """
+    return SABINE_CONSTANT * volume_m3 * (1.0 / t_target_s - 1.0 / t_measured_s)
+
+
+def eyring_mean_alpha(volume_m3: float, area_m2: float, t_s: float, m_per_m: float) -> float:
+    """ᾱ = 1 − exp(−(0.161·V/T − 4mV)/S), Eyring's equation solved for the mean absorption.
+
+    Returns NaN when no ᾱ gives ``t_s``: the time is longer than the air alone allows.
+
+    References
+    ----------
+    Eyring, C. F. (1930). Reverberation time in "dead" rooms. J. Acoust. Soc. Am. 1,
+    217–241. Kuttruff, H. Room Acoustics (5th ed., 2009), ch. 5 (the 4mV term).
+    """
+    x = (SABINE_CONSTANT * volume_m3 / t_s - 4.0 * m_per_m * volume_m3) / area_m2
+    if x <= 0:
+        return float("nan")
+    return float(-np.expm1(-x))
+
+
+def eyring_time(volume_m3: float, area_m2: float, mean_alpha: float, m_per_m: float) -> float:
+    """T = 0.161·V / (−S·ln(1 − ᾱ) + 4mV) (Eyring, 1930); 0 for ᾱ ≥ 1.
+
+    Examples
+    --------
+    >>> round(eyring_time(100.0, 130.0, 0.2, 0.0), 4)  # 16.1 / (130 · 0.22314)
+    0.555
+    """
+    if mean_alpha >= 1.0:
+        return 0.0
+    return (
+        SABINE_CONSTANT * volume_m3 / (-area_m2 * math.log1p(-mean_alpha) + 4 * m_per_m * volume_m3)
+    )
+
+
+def eyring_added_area(
+    volume_m3: float, area_m2: float, t_measured_s: float, t_target_s: float, m_per_m: float
+) -> float:
+    """ΔA = S·(ᾱ_target − ᾱ_measured) by Eyring's equation with the air term, m².
+
+    NaN when the measured or the target time is longer than the air alone allows.
+
+    References
+    ----------
+    Eyring, C. F. (1930), J. Acoust. Soc. Am. 1, 217–241; ISO 9613-1:1993 for m.
+    """
+    a_m = eyring_mean_alpha(volume_m3, area_m2, t_measured_s, m_per_m)
+    a_t = eyring_mean_alpha(volume_m3, area_m2, t_target_s, m_per_m)
+    return area_m2 * (a_t - a_m)
+
+
+@dataclass(frozen=True)
+class Treatment:
+    """A material to install on a named surface (its area is what the plan finds)."""
+
+    surface: str
+    material: Material
+    #: The surface's own area when the room's dimensions are known, m².
+    surface_area_m2: float | None = None
+
+
+@dataclass
+class TreatmentArea:
+    surface: str
+    material: str
+    area_m2: float | None
+
+
+@dataclass
+class BandPlan:
+    """One octave band of a plan (the JSON's ``bands`` entries)."""
+
+    band_hz: int
+    measured_s: float | None
+    target_s: float | None
+    target_min_s: float | None
+    target_max_s: float | None
+    added_area_sabine_m2: float | None = None
+    added_area_eyring_m2: float | None = None
+    treatment: list[TreatmentArea] = field(default_factory=list)
+    predicted_s: float | None = None
+    within_tolerance: bool | None = None
+    notes: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict:
+        d = {k: v for k, v in self.__dict__.items() if k != "treatment"}
+        d["treatment"] = [t.__dict__.copy() for t in self.treatment]
+        for k in (
+            "target_s",
+            "target_min_s",
+            "target_max_s",
+            "added_area_sabine_m2",
+            "added_area_eyring_m2",
+            "predicted_s",
+        ):
+            if d[k] is not None:
+                d[k] = round(d[k], 4)
+        return d
+
+
+@dataclass
+class TreatmentPlan:
+    """Every band of a plan, the areas to install, the target and the notes."""
+
+    bands: list[BandPlan]
+    #: One area per chosen material, sized at the sizing bands (see :func:`plan_bands`).
+    installed: list[TreatmentArea]
+    target: Target
+    volume_m3: float
+    area_m2: float
+    temperature_c: float
+    humidity_pct: float
+    sizing_bands: tuple[int, ...]
+    #: What ``within_tolerance`` judges: ``"predicted"`` with treatment, else ``"measured"``.
+    checked: str
+    #: The source's criterion on a mean over bands (S12.60, BB93), when it has one.
+    mean_check: dict | None
+    notes: list[str]
+
+
+def _mean(values) -> float | None:
+    vals = [v for v in values if v is not None and math.isfinite(v)]
+    return float(np.mean(vals)) if vals else None
+
+
+def plan_bands(
+    measured_s: dict[int, float | None],
+    target: Target,
+    volume_m3: float,
+    area_m2: float,
+    treatments: list[Treatment] | tuple[Treatment, ...] = (),
+    *,
+    temperature_c: float = 20.0,
+    humidity_pct: float = 50.0,
+    measured_notes: dict[int, str] | None = None,
+) -> TreatmentPlan:
+    """Plan a treatment band by band.
+
+    For each octave band that has both a measured time and a target: the equivalent
+    absorption area to add by Sabine (air term cancels) and by Eyring (with the air's 4mV,
+    ISO 9613-1), negative where absorption must be removed. Each chosen material gets an
+    equal share of the Eyring area; per band the area of each material that its share needs
+    (ΔA / n / α). One area per material is installed: sized from the mean Eyring area and
+    the mean α over the sizing bands (500 Hz and 1 kHz where the target has them, else all
+    its bands: mid-frequency sizing is common practice), and the decay time after treatment
+    predicted by Eyring in every band and checked against the target's range.
+
+    Parameters
+    ----------
+    measured_s : dict
+        {band Hz: measured T in s, or None where not evaluable}.
+    target : Target
+    volume_m3, area_m2 : float
+        Room volume and total surface area.
+    treatments : sequence of Treatment
+        Materials to install; none gives the areas alone.
+    temperature_c, humidity_pct : float
+        Air for ISO 9613-1.
+    measured_notes : dict, optional
+        {band Hz: text} carried into a band's notes (a measured value with a caution).
+
+    Returns
+    -------
+    TreatmentPlan
+
+    Notes
+    -----
+    The covered surface's own absorption before treatment is taken as nil, so over an
+    absorbent surface somewhat more area is needed than planned.
+
+    References
+    ----------
+    Sabine, W. C. (1922), Collected Papers on Acoustics; Eyring, C. F. (1930), J. Acoust.
+    Soc. Am. 1, 217–241; ISO 9613-1:1993; ISO 354:2003, 8.1.2.1.
+    """
+    v, s = check_room(volume_m3, area_m2)
+    measured_notes = measured_notes or {}
+    seen = set()
+    for t in treatments:
+        if t.surface in seen:
+            raise InputError(f"treatment surface '{t.surface}' is named twice; name it once")
+        seen.add(t.surface)
+    bands = sorted(set(target.target_s) & {int(b) for b in measured_s})
+    if not bands:
+        raise InputError(
+            "the measured bands ("
+            + ", ".join(f"{b:g}" for b in sorted(measured_s))
+            + " Hz) and the target's ("
+            + ", ".join(f"{b:g}" for b in sorted(target.target_s))
+            + " Hz) have none in common; give a target for the measured octave bands"
+        )
+    rows: list[BandPlan] = []
+    ms: dict[int, float] = {}
+    for b in bands:
+        m = air_m(b, temperature_c, humidity_pct)
+        ms[b] = m
+        tm, tt = measured_s.get(b), target.target_s[b]
+        row = BandPlan(b, tm, tt, target.min_s.get(b), target.max_s.get(b))
+        if b in measured_notes:
+            row.notes.append(measured_notes[b])
+        rows.append(row)
+        if tm is None or not math.isfinite(tm) or tm <= 0:
+            row.notes.append("no measured decay time in this band: nothing to plan")
+            continue
+        air_limit = SABINE_CONSTANT / (4.0 * m) if m > 0 else math.inf
+        if tm >= air_limit:
+            row.notes.append(
+                f"measured {tm:.2f} s is at or above {air_limit:.1f} s, the longest the air "
+                "alone allows: check the volume and the measurement"
+            )
+            continue
+        if tt >= air_limit:
+            row.notes.append(
+                f"target {tt:.2f} s is at or above {air_limit:.1f} s, the longest the air "
+                "alone allows: not reachable"
+            )
+            continue
+        row.added_area_sabine_m2 = sabine_added_area(v, tm, tt)
+        row.added_area_eyring_m2 = eyring_added_area(v, s, tm, tt, m)
+        if row.added_area_eyring_m2 < 0:
+            row.notes.append(
+                f"the measured time is below the target: remove about "
+                f"{-row.added_area_eyring_m2:.1f} m² of absorption (Eyring)"
+            )
+        n = len(treatments)
+        for t in treatments:
+            alpha = t.material.at(b)
+            share = row.added_area_eyring_m2 / n
+            area = None if alpha <= 0 or share < 0 else share / alpha
+            row.treatment.append(TreatmentArea(t.surface, t.material.name, area))
+
+    sizing: tuple[int, ...] = tuple(b for b in (500, 1000) if b in bands) or tuple(bands)
+    notes: list[str] = []
+    installed: list[TreatmentArea] = []
+    if treatments:
+        need = _mean(r.added_area_eyring_m2 for r in rows if r.band_hz in sizing)
+        for t in treatments:
+            alpha = float(np.mean([t.material.at(b) for b in sizing]))
+            if need is None:
+                area = None
+            elif need <= 0:
+                area = 0.0
+            elif alpha <= 0:
+                area = None
+                notes.append(
+                    f"{t.material.name} absorbs nothing at "
+                    + ", ".join(f"{b:g} Hz" for b in sizing)
+                    + ": it cannot reach the target"
+                )
+            else:
+                area = need / len(treatments) / alpha
+            installed.append(TreatmentArea(t.surface, t.material.name, area))
+            if area is not None and t.surface_area_m2 is not None and area > t.surface_area_m2:
+                notes.append(
+                    f"{area:.1f} m² of {t.material.name} is more than the "
+                    f"{t.surface_area_m2:.1f} m² of the {t.surface}: choose a more absorbent "
+                    "material or more surfaces"
+                )
+        if need is not None and need <= 0:
+            notes.append(
+                "the measured time is at or below the target at the sizing bands: absorption "
+                "must be removed, not added; no material is installed"
+            )
+        total = sum(a.area_m2 or 0.0 for a in installed)
+        if total > s:
+            notes.append(
+                f"the areas to install ({total:.1f} m²) exceed the room's surface "
+                f"({s:.1f} m²): the target is out of reach with these materials"
+            )
+        for r in rows:
+            if r.measured_s is None or r.added_area_eyring_m2 is None:
+                continue
+            a_m = eyring_mean_alpha(v, s, r.measured_s, ms[r.band_hz])
+            added = sum(
+                (a.area_m2 or 0.0) * t.material.at(r.band_hz)
+                for a, t in zip(installed, treatments, strict=True)
+            )
+            r.predicted_s = eyring_time(v, s, min(a_m + added / s, 1.0), ms[r.band_hz])
+    checked = "predicted" if treatments else "measured"
+    for r in rows:
+        value = r.predicted_s if treatments else r.measured_s
+        if value is not None and r.target_s is not None and not target.mean_bands:
+            r.within_tolerance = target.accepts(r.band_hz, value)
+    mean_check = None
+    if target.mean_bands:
+        limit = target.max_s[target.mean_bands[0]]
+        by_band = {r.band_hz: r for r in rows}
+        have = [b for b in target.mean_bands if b in by_band]
+        meas = [by_band[b].measured_s for b in have]
+        pred = [by_band[b].predicted_s for b in have]
+        complete = len(have) == len(target.mean_bands)
+        m_mean = _mean(meas) if complete and None not in meas else None
+        p_mean = _mean(pred) if complete and treatments and None not in pred else None
+        judged = p_mean if treatments else m_mean
+        within = None if judged is None or limit is None else bool(judged <= limit)
+        mean_check = {
+            "bands_hz": list(target.mean_bands),
+            "limit_s": limit,
+            "measured_mean_s": None if m_mean is None else round(m_mean, 4),
+            "predicted_mean_s": None if p_mean is None else round(p_mean, 4),
+            "within": within,
+        }
+        if judged is None:
+            notes.append(
+                "the mean over "
+                + ", ".join(f"{b:g} Hz" for b in target.mean_bands)
+                + " cannot be judged: a band is missing or not evaluable"
+            )
+        for r in rows:
+            if r.band_hz in target.mean_bands:
+                r.within_tolerance = within
+    notes.append(
+        "Sabine and Eyring assume a diffuse sound field; with the absorption on one surface "
+        "(a ceiling alone) the decay is often longer than predicted"
+    )
+    if treatments:
+        notes.append(
+            "areas assume the covered surface absorbed little before; over an absorbent "
+            "surface more area is needed"
+        )
+    notes += list(target.notes)
+    notes.append(DECISION_CAUTION)
+    return TreatmentPlan(
+        bands=rows,
+        installed=installed,
+        target=target,
+        volume_m3=v,
+        area_m2=s,
+        temperature_c=temperature_c,
+        humidity_pct=humidity_pct,
+        sizing_bands=sizing,
+        checked=checked,
+        mean_check=mean_check,
+        notes=notes,
+    )
+
+
+def measured_times(doc, basis: str = "t30", what: str = "analysis document"):
+    """{band Hz: mean decay time or None} and {band Hz: caution text} from an analysis
+    document's average (the JSON ``analyze`` writes)."""
+    if basis not in BASES:
+        raise InputError(f"decay time '{basis}' is not one of {', '.join(BASES)}")
+    try:
+        kind = doc["settings"]["bands"]
+        rows = doc["average"]["bands"]
+        times: dict[int, float | None] = {}
+        notes: dict[int, str] = {}
+        for r in rows:
+            stat = r[f"{basis}_s"]
+            b = int(round(float(r["band_hz"])))
+            mean = stat.get("mean")
+            times[b] = None if mean is None or not math.isfinite(mean) else float(mean)
+            if stat.get("verdict") == "caution" and times[b] is not None:
+                notes[b] = (
+                    f"measured {basis.upper()} carries a caution (see the analysis warnings): "
+                    "the plan in this band is as uncertain as that value"
+                )
+    except (KeyError, TypeError, ValueError, AttributeError):
+        raise InputError(
+            f"{what}: not an analysis document with per-band averages; write one with "
+            "the analysis and its JSON output"
+        ) from None
+    if kind != "octave":
+        raise InputError(
+            f"{what}: holds {kind} bands; the materials table is per octave, analyse with "
+            "octave bands"
+        )
+    return times, notes
