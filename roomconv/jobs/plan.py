@@ -229,7 +229,7 @@ def plan_treatment(
         temperature_c = 20.0 if temperature_c is None else temperature_c
         humidity_pct = 50.0 if humidity_pct is None else humidity_pct
         validate.in_range(temperature_c, "air temperature", -20.0, 50.0, unit="°C")
-        validate.in_range(humidity_pct, "relative humidity", 0.0, 100.0, unit="%")
+        validate.in_range(humidity_pct, "relative humidity", 0.0, 100.0, unit="%", lo_open=True)
         v, s = check_room(volume_m3, area_m2)
         basis = basis or "t30"
         if isinstance(target, Target):

@@ -115,6 +115,18 @@ CORPUS = [
     ("live", ["--input-channels", "a,b"], "--input-channels"),
     ("live", ["--output-channels", "0"], "--output-channels"),
     ("live", ["--mix", "-0.1"], "--mix"),
+    # plan (refused before the analysis document is read)
+    ("plan", ["--volume", "nan"], "--volume"),
+    ("plan", ["--volume", "-1"], "--volume"),
+    ("plan", ["--volume", "1e308"], "--volume"),
+    ("plan", ["--area", "0"], "--area"),
+    ("plan", ["--target", "nan"], "--target"),
+    ("plan", ["--target", "din18041:A9"], "--target"),
+    ("plan", ["--target", "500:-1"], "--target"),
+    ("plan", ["--tolerance", "x"], "--tolerance"),
+    ("plan", ["--temperature", "1e3"], "--temperature"),
+    ("plan", ["--humidity", "0"], "--humidity"),
+    ("plan", ["--treat", "ceiling=unobtainium"], "--treat"),
 ]
 
 
@@ -138,6 +150,8 @@ def _base(cmd: str, d: Path) -> list:
         "render": ["render", d / "dry.wav", "--ir", d / "ir.wav", "-o", d / "out.wav"],
         "batch": ["batch", d / "dry.wav", "--ir", d / "ir.wav", "--out-dir", d / "outdir"],
         "live": ["live", "--ir", d / "ir.wav", "--yes"],
+        "plan": ["plan", "--results", d / "ir.wav", "--volume", "200", "--area", "210"]
+        + ["--target", "0.6"],
     }[cmd]
 
 
