@@ -283,7 +283,8 @@ def octave_reading(nodes: dict, rate: int, bands=OCTAVES, *, start_s: float = 0.
             t = np.linspace(0.0, t_end, 400)
             s = np.exp(-np.outer(t, kb)) @ g
             db = 10 * np.log10(np.maximum(s / s[0], 1e-300))
-            t_end = float(t[min(np.searchsorted(-db, 35.0) + 1, t.size - 1)])
+            i35 = int(np.searchsorted(-db, 35.0))
+            t_end = float(t[min(i35 + 1, t.size - 1)])
         sel = (db <= -5) & (db >= -35)
         slope = np.polyfit(t[sel], db[sel], 1)[0]
         out[b] = float(-60.0 / slope)
