@@ -14,6 +14,8 @@ Everything here takes and returns arrays and plain dicts; nothing is printed.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 __all__ = ["harmonic_levels", "ideal_responses", "NOISE_MARGIN_DB", "describe_levels"]
@@ -227,6 +229,13 @@ def ideal_responses(sweep, length_s: float) -> tuple[np.ndarray, dict]:
     harmonics : dict
         {k: ndarray (samples_k, 1)}.
     """
+    ir, harmonics = _ideal(sweep, float(length_s))
+    return ir.copy(), {k: v.copy() for k, v in harmonics.items()}
+
+
+@functools.lru_cache(maxsize=4)
+def _ideal(sweep, length_s: float) -> tuple[np.ndarray, dict]:
+    # One deconvolution per sweep: every position of a study is measured with the same one.
     from .deconvolve import extract_ir
     from .sweep import sweep_signal
 
