@@ -23,9 +23,11 @@ integrated over a flat spectrum). A backward integral weighs each part by its T,
 leak starts at −13.0 + 10·log10(3.54/1.24) = −8.4 dB and falls at 60/3.54 = 17 dB/s, the
 band's own part at 60/1.24 = 48 dB/s: they cross 0.27 s in, at −13 dB, inside the
 −5…−35 dB range of T30; when the band's own part reaches −35 dB (0.72 s) the leak lies at
-−20.6 dB, 14 dB above it. The leak would have to start near −33 dB, 25 dB below what the
-skirt lets through, to move T30 by less than the 5 % difference limen of ISO 3382-1.
-Tried with this module's model:
+−20.6 dB, 14 dB above it. Fitting T30 to the sum of the two exponentials, the leak would
+have to start below about −27 dB (−25 dB reads +7.5 %, −28 dB +3.5 %), some 18 dB under
+what the skirt lets through, to move T30 by less than the 5 % difference limen of
+ISO 3382-1 (Annex A, from memory); at −8.4 dB the same fit reads 3.07 s.
+Tried with the same closed-form reading (for a continuous T(f), read from the emission):
 
 * pre-compensated nodes: over 125 Hz nodes of 3.0–5.0 s, 250 Hz nodes of 0.02–1.24 s and
   500 Hz nodes of 0.2–0.44 s, as long as the 125 Hz reading stays within 5 % of 3.54 s
