@@ -132,6 +132,8 @@ def _sweep_from_args(a):
 
 def format_quality(quality: dict) -> str:
     """The quality report as a short readable text block (channels counted from 1)."""
+    from ..measure.distortion import describe_levels
+
     lines = ["Quality report"]
     rec = quality.get("recording", {})
     for c, pk in enumerate(rec.get("peak_dbfs", [])):
@@ -147,6 +149,8 @@ def format_quality(quality: dict) -> str:
             f"  IR {c + 1}: impulse-to-noise ratio (INR) {inr:.1f} dB, peak at sample "
             f"{ir['peak_sample'][c]}"
         )
+    for c, lv in enumerate((quality.get("distortion") or {}).get("channels", [])):
+        lines.append(f"  IR {c + 1} harmonic distortion (dB re linear): {describe_levels(lv)}")
     if "reference_latency_samples" in quality:
         lines.append(f"  loopback latency removed: {quality['reference_latency_samples']} samples")
     if "repeats" in quality:

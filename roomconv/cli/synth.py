@@ -42,7 +42,7 @@ def show_prediction(result, a) -> None:
     reading = getattr(result, "expected_reading", {}) or {}
     headers = ["band Hz", "Sabine s", "Eyring s"]
     if used:
-        headers += ["tail s", "from", "octave reading s"]
+        headers += ["tail s", "from", "T30 analyze reads s"]
     rows = []
     for b in OCTAVES:
         row = [str(b), f"{result.sabine[b]:.2f}", f"{result.eyring[b]:.2f}"]
@@ -51,7 +51,7 @@ def show_prediction(result, a) -> None:
             if b in reading:
                 # The notes explain a band whose expected reading strays from the tail's T.
                 off = abs(reading[b] / used[b] - 1) > 0.02
-                row.append(f"{reading[b]:.2f}" + ("  (see note)" if off else ""))
+                row.append(f"{reading[b]:.2f}" + ("  (≠ tail: see note)" if off else ""))
             else:
                 row.append("")
         rows.append(row)

@@ -157,6 +157,24 @@ def _save(
     return written
 
 
+def add_distortion(ex, sweep: Sweep | None) -> None:
+    """Put the harmonic levels of each channel into the extraction's quality report (a
+    measurement without a sweep description has no separable harmonics)."""
+    from ..measure.distortion import NOISE_MARGIN_DB, harmonic_levels, ideal_responses
+
+    if sweep is None or not ex.harmonics:
+        return
+    ideal = ideal_responses(sweep, (ex.ir.shape[0] + ex.trimmed_samples) / ex.rate)
+    ex.quality["distortion"] = {
+        "reference": "dB re the linear response; floor = noise from the response's last "
+        "quarter + the method's leak for this sweep",
+        "noise_margin_db": NOISE_MARGIN_DB,
+        "channels": harmonic_levels(
+            ex.ir, ex.harmonics, ex.rate, (sweep.f_low, sweep.f_high), ideal=ideal
+        ),
+    }
+
+
 def extract_recording(
     recording,
     sweep_path,
@@ -211,12 +229,13 @@ def extract_recording(
                 excitation=None if sweep else sig,
                 reference_channel=ref,
                 length_s=length_s,
-                harmonics=harmonics_dir is not None,
+                harmonics=True,
                 trim=trim,
                 allow_clipped=allow_clipped,
             )
         except InputError as exc:
             raise InputError(describe(recording, str(exc))) from None
+        add_distortion(ex, sweep)
         progress("save", 0.9, None)
         written = _save(
             g, ex, output, harmonics_dir, json_path, [recording, sweep_path], settings or {}
@@ -341,10 +360,11 @@ def measure_position(
             sweep=sweep,
             reference_channel=ref,
             length_s=length_s,
-            harmonics=harmonics_dir is not None,
+            harmonics=True,
             trim=trim,
             allow_clipped=allow_clipped,
         )
+        add_distortion(ex, sweep)
         written = []
         if save_recording is not None:
             written.append(g.write_audio(save_recording, rec, sweep.rate))

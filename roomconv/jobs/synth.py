@@ -335,6 +335,7 @@ def synthesize_room(
             "tail_rt_s": res.used_rt,
             "tail_rt_origin": res.rt_origin,
             "expected_octave_reading_s": res.expected_reading,
+            "notes": res.notes,
             "mixing_time_s": res.mixing_time_s,
             "tail_start_s": res.tail_start_s,
             **(settings or {}),

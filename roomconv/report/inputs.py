@@ -138,4 +138,14 @@ def _quality_summary(q: dict) -> dict:
         "repeat_mismatch_db": rep.get("repeat_mismatch_db"),
         "latency_samples": q.get("reference_latency_samples"),
         "warnings": list(q.get("warnings", [])),
+        "distortion": _distortion_summary(q),
     }
+
+
+def _distortion_summary(q: dict) -> dict | None:
+    """The harmonic levels of the position's most distorted channel (highest total, or the
+    first when no channel has an order above the noise); None without harmonic figures."""
+    chans = (q.get("distortion") or {}).get("channels") or []
+    if not chans:
+        return None
+    return max(chans, key=lambda c: -1e9 if c.get("total_db") is None else c["total_db"])

@@ -7,7 +7,40 @@ tail needs a decay at every frequency: :func:`decay_curve` draws one through nod
 linear in log T against log f and held flat beyond the outer bands, and the tail applies it
 per narrow band (six per octave). Because an octave filter also hears its neighbours'
 slopes, :func:`fit_decay_nodes` adjusts the node values until a model of the octave reading
-returns the values asked for, and reports any band it cannot bring there.
+(:func:`octave_reading`, the same narrow bands and the analysis's own filter, read from
+where the tail starts) returns the values asked for, and reports any band it cannot bring
+there.
+
+When the asked value cannot be read
+-----------------------------------
+Where T changes by a factor of about three within one octave, no decay curve makes the
+octave filter read the asked value. Example: an 8 × 6 × 3 m room with a carpeted floor,
+acoustic-tile ceiling and plaster walls has Eyring T = 3.54 s at 125 Hz, 1.24 s at 250 Hz
+and 0.44 s at 500 Hz. The 250 Hz filter (Butterworth of order 3 on the exact band edges,
+as the analysis uses) passes the spectrum below its lower edge, 177.8 Hz, where the 125 Hz
+band's 3.54 s lives, at −13.0 dB relative to its pass band (its closed-form magnitude
+integrated over a flat spectrum). A backward integral weighs each part by its T, so the
+leak starts at −13.0 + 10·log10(3.54/1.24) = −8.4 dB and falls at 60/3.54 = 17 dB/s, the
+band's own part at 60/1.24 = 48 dB/s: they cross 0.27 s in, at −13 dB, inside the
+−5…−35 dB range of T30; when the band's own part reaches −35 dB (0.72 s) the leak lies at
+−20.6 dB, 14 dB above it. Fitting T30 to the sum of the two exponentials, the leak would
+have to start below about −27 dB (−25 dB reads +7.5 %, −28 dB +3.5 %), some 18 dB under
+what the skirt lets through, to move T30 by less than the 5 % difference limen of
+ISO 3382-1 (Annex A, from memory); at −8.4 dB the same fit reads 3.07 s.
+Tried with the same closed-form reading (for a continuous T(f), read from the emission):
+
+* pre-compensated nodes: over 125 Hz nodes of 3.0–5.0 s, 250 Hz nodes of 0.02–1.24 s and
+  500 Hz nodes of 0.2–0.44 s, as long as the 125 Hz reading stays within 5 % of 3.54 s
+  the 250 Hz reading never falls below 1.78 s (+43 %); a node far below the asked value
+  only adds a fast early drop (EDT 0.39 s, T30/T20 − 1 = +24 % for a 0.024 s node);
+* a stepped curve (each octave's T held up to its band edges) is worse: 3.05 s at 250 Hz,
+  because the slow decay then reaches the edge, where the filter passes −3 dB.
+
+A real room with these surfaces, measured through the same filters, would show the same
+leak: the reading is a property of octave filters meeting this T(f), not of the synthesis.
+So such a band keeps its asked value at its own centre, and the synthesis states both
+numbers: the T asked for (``used_rt``) and the T30 the analysis will read
+(``expected_reading``), and why.
 """
 
 from __future__ import annotations
@@ -182,13 +215,21 @@ def _grid(rate: int) -> np.ndarray:
     return np.geomspace(10.0, 0.49 * rate, 600)
 
 
-def octave_reading(nodes: dict, rate: int, bands=OCTAVES) -> dict:
-    """Expected octave-band T30 of noise whose decay at each frequency follows
-    :func:`decay_curve` through ``nodes``.
+def octave_reading(nodes: dict, rate: int, bands=OCTAVES, *, start_s: float = 0.0) -> dict:
+    """Expected octave-band T30 of the tail :func:`diffuse_tail` makes from ``nodes``.
 
-    Each frequency's energy decays as exp(−6 ln10·t/T(f)); through the octave filter and the
-    backward integral this is Σ_f |H(f)|²·T(f)/(6 ln10)·exp(−6 ln10·t/T(f)) in closed form,
-    and T30 is the line fitted to it from −5 to −35 dB.
+    The tail gives each narrow band i (:func:`narrow_centres`) the amplitude decay
+    exp(−k_i·t/2), k_i = 6 ln10 / T_i with T_i from :func:`decay_curve`; its crossovers
+    sum to one in amplitude, so at a frequency f shared by bands i and j the energy decays
+    as (w_i·e^(−k_i t/2) + w_j·e^(−k_j t/2))². Expanded, every term is an exponential whose
+    rate does not depend on f, so the octave filter's output energy and its backward
+    integral are sums of exponentials in closed form:
+    s(t) = Σ_ij G_ij·e^(−κ_ij t)/κ_ij, with κ_ij = (k_i + k_j)/2 and
+    G_ij = Σ_f |H(f)|²·w_i(f)·w_j(f)·df. T30 is the line fitted to s from −5 to −35 dB.
+
+    The backward integral starts where the tail does (``start_s``): what the tail would
+    hold before it is not there to be read, so its fast-decaying first part weighs less
+    against a slow neighbour's leak.
 
     Parameters
     ----------
@@ -198,6 +239,8 @@ def octave_reading(nodes: dict, rate: int, bands=OCTAVES) -> dict:
         Sample rate, Hz.
     bands : sequence of float
         Octave bands to read.
+    start_s : float
+        Where the tail's contribution to the backward integral begins, s after emission.
 
     Returns
     -------
@@ -220,30 +263,39 @@ def octave_reading(nodes: dict, rate: int, bands=OCTAVES) -> dict:
     """
     f = _grid(rate)
     df = np.gradient(f)
-    k = 6 * _LN10 / decay_curve(f, nodes)  # energy decay rate per frequency, 1/s
+    centres = narrow_centres(rate)
+    k = 6 * _LN10 / decay_curve(centres, nodes)  # energy decay rate per narrow band, 1/s
+    w = np.array([_narrow_weight(f, centres, i) for i in range(centres.size)])
+    # Own terms (i, i) and cross terms (i, i+1) counted twice; farther bands never overlap.
+    pair_w = np.concatenate([w * w, 2 * w[:-1] * w[1:]])
+    kappa = np.concatenate([k, 0.5 * (k[:-1] + k[1:])])
     out = {}
     for b in bands:
-        g = _octave_power(rate, float(b)) * df / k
-        # Frequencies the filter rejects by more than 70 dB cannot move the fit.
-        m = g > 1e-7 * g.max()
-        g, kb = g[m], k[m]
-        t_max = 3.0 * nodes[b] if b in nodes else 3.0 * max(nodes.values())
-        t = np.linspace(0.0, t_max, 200)
-        s = np.exp(-np.outer(t, kb)) @ g
-        db = 10 * np.log10(np.maximum(s / s[0], 1e-300))
-        sel = (db <= -5) & (db >= -35)
-        if np.count_nonzero(sel) < 10 or db[-1] > -35:
-            # Too slow to reach −35 dB on this grid: widen it once.
-            t = np.linspace(0.0, 3 * t_max, 600)
+        g = pair_w @ (_octave_power(rate, float(b)) * df) / kappa
+        # Terms the filter rejects by more than 70 dB cannot move the fit.
+        keep = g > 1e-7 * g.max()
+        g, kb = g[keep], kappa[keep]
+        # Energy from start_s on: each term scaled by its decay over the part not played.
+        g = g * np.exp(-kb * start_s)
+        g = g / g.max()
+        # The slowest term kept reaches −35 dB by 35/(10·log10(e)·κ_min) at the latest.
+        t_end = 35.0 / (10 * np.log10(np.e) * kb.min())
+        for _ in range(2):
+            # Coarse pass to find the −35 dB point, then a fine one up to it.
+            t = np.linspace(0.0, t_end, 400)
             s = np.exp(-np.outer(t, kb)) @ g
             db = 10 * np.log10(np.maximum(s / s[0], 1e-300))
-            sel = (db <= -5) & (db >= -35)
+            i35 = int(np.searchsorted(-db, 35.0))
+            t_end = float(t[min(i35 + 1, t.size - 1)])
+        sel = (db <= -5) & (db >= -35)
         slope = np.polyfit(t[sel], db[sel], 1)[0]
         out[b] = float(-60.0 / slope)
     return out
 
 
-def fit_decay_nodes(target: dict, rate: int, *, iterations: int = 20) -> tuple[dict, dict]:
+def fit_decay_nodes(
+    target: dict, rate: int, *, iterations: int = 20, start_s: float = 0.0
+) -> tuple[dict, dict]:
     """Node values whose curve an octave filter reads as ``target``.
 
     Starting from the target itself, each node is scaled by target / reading until every
@@ -260,6 +312,8 @@ def fit_decay_nodes(target: dict, rate: int, *, iterations: int = 20) -> tuple[d
         Sample rate, Hz.
     iterations : int
         Most updates.
+    start_s : float
+        Where the tail begins, s (see :func:`octave_reading`).
 
     Returns
     -------
@@ -283,7 +337,7 @@ def fit_decay_nodes(target: dict, rate: int, *, iterations: int = 20) -> tuple[d
     """
     bands = sorted(target)
     free = set(bands)
-    nodes, reading = _fit(target, dict(target), free, rate, iterations)
+    nodes, reading = _fit(target, dict(target), free, rate, iterations, start_s)
     # A band the fit cannot bring near its target (a much slower neighbour leaks through the
     # filter's skirts whatever its own node) keeps its node at the asked value, so the decay
     # within it stays as asked, and the others are fitted again around it.
@@ -293,13 +347,13 @@ def fit_decay_nodes(target: dict, rate: int, *, iterations: int = 20) -> tuple[d
         if not more:
             break
         stuck |= more
-        nodes, reading = _fit(target, dict(target), free - stuck, rate, iterations)
+        nodes, reading = _fit(target, dict(target), free - stuck, rate, iterations, start_s)
     return nodes, reading
 
 
-def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int):
+def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int, start_s: float):
     bands = sorted(target)
-    reading = octave_reading(nodes, rate, bands)
+    reading = octave_reading(nodes, rate, bands, start_s=start_s)
 
     def cost(r):
         return max((abs(np.log(r[b] / target[b])) for b in free), default=0.0)
@@ -316,7 +370,7 @@ def _fit(target: dict, nodes: dict, free: set, rate: int, iterations: int):
                     target[b] * _NODE_RANGE,
                 )
             )
-        reading = octave_reading(nodes, rate, bands)
+        reading = octave_reading(nodes, rate, bands, start_s=start_s)
         if cost(reading) < best[0]:
             best = (cost(reading), dict(nodes), reading)
     return best[1], best[2]

@@ -96,3 +96,12 @@ def test_demo_writes_the_study_report_as_html_and_pdf(demo):
     assert "Quillmere Hall" in page and "Measurement grade (ISO 3382-2)" in page
     # 1 source × 2 receivers: survey grade (ISO 3382-2:2008, Table 1, from memory).
     assert "<p class='grade'>Survey</p>" in page
+    # The data-quality section carries the loudspeaker's harmonic levels per position: the
+    # simulated chain's 2nd harmonic as a level, its (absent) 4th and 5th as noise bounds.
+    import re
+
+    rows = re.findall(r"<tr><td>(S1-R\d)</td>((?:<td>[^<]*</td>){5})</tr>", page)
+    assert len(rows) == len(QUICK.receivers)
+    for _, cells in rows:
+        h2, _h3, h4, h5, _total = re.findall(r"<td>([^<]*)</td>", cells)
+        assert float(h2) < 0 and "(noise)" in h4 and "(noise)" in h5

@@ -18,6 +18,67 @@ def _printed_tail(out: str) -> dict:
     return rows
 
 
+def _printed_reading(out: str) -> dict:
+    """{band: T30 the analysis is expected to read} from the table `synth` prints."""
+    rows = {}
+    for line in out.splitlines():
+        m = re.match(r"\s*(\d+)\s+[\d.]+\s+[\d.]+\s+[\d.]+\s+\w+\s+([\d.]+)", line)
+        if m:
+            rows[int(m.group(1))] = float(m.group(2))
+    return rows
+
+
+def test_steep_room_prints_what_analyze_reads(tmp_path, cli):
+    # The room of the report that prompted this: carpet and acoustic tile over plaster walls,
+    # whose Eyring T falls about threefold per octave from 125 to 500 Hz. The table's last
+    # column must be what `analyze` reads: within 5 % at 125 Hz–4 kHz and 8 % at 63 Hz and
+    # 8 kHz (the ISO 3382-1 JND of 5 %, Annex A, from memory; wider in the outer octaves).
+    # Three seeds are averaged as three positions: at 500 Hz the slow part of the decay is
+    # a leak from a narrow stretch of spectrum, and one realization scatters by about ±5 %
+    # (ISO 3382-2:2008, 6.2: the uncertainty grows as 1/sqrt(B·T) for a narrow B).
+    files, tables, readings = [], [], []
+    for seed in (0, 1, 2):
+        ir = tmp_path / f"A{seed}.wav"
+        code, out, err = cli(
+            "synth",
+            ir,
+            "--room",
+            "8x6x3",
+            "--materials",
+            "floor=carpet,ceiling=acoustic-tile,walls=plaster",
+            "--seed",
+            seed,
+        )
+        assert code == 0, err
+        files.append(ir)
+        tables.append(_printed_tail(out))
+        readings.append(_printed_reading(out))
+    assert tables[0] == tables[1] == tables[2] and readings[0] == readings[1] == readings[2]
+    table, reading = tables[0], readings[0]
+    assert sorted(reading) == [63, 125, 250, 500, 1000, 2000, 4000, 8000]
+    # The bands the filter cannot read as asked are named, with the neighbour that leaks.
+    notes = [line for line in out.splitlines() if "analyze will read" in line]
+    assert [n.split()[1] for n in notes] == ["250", "500"]
+    assert "125 Hz band's slower decay" in notes[0] and "250 Hz band's slower decay" in notes[1]
+    for b in (250, 500):
+        assert reading[b] > 1.2 * table[b][0]
+    for b in (63, 125, 1000, 2000, 4000, 8000):
+        assert reading[b] == pytest.approx(table[b][0], abs=0.011)
+    # The provenance keeps both numbers: the T asked for and the reading expected.
+    prov = json.loads((tmp_path / "A0.provenance.json").read_text())["settings"]
+    assert prov["tail_rt_s"]["250"] == pytest.approx(table[250][0], abs=0.005)
+    assert prov["expected_octave_reading_s"]["250"] == pytest.approx(reading[250], abs=0.005)
+    assert any("analyze will read" in n for n in prov["notes"])
+    js = tmp_path / "a.json"
+    code, _, err = cli("analyze", *files, "--json", js, "--quiet")
+    assert code == 0, err
+    doc = json.loads(js.read_text())
+    avg = {int(r["band_hz"]): r["t30_s"]["mean"] for r in doc["average"]["bands"]}
+    for band, expected in reading.items():
+        tol = 0.08 if band in (63, 8000) else 0.05
+        assert avg[band] == pytest.approx(expected, rel=tol), band
+
+
 def test_partial_rt60_end_to_end_through_analyze(tmp_path, cli):
     # Two stereo-spaced channels are two positions (own tail noise each), averaged by
     # `analyze`; T30 within 5 % at 125 Hz–4 kHz and 8 % at 63 Hz and 8 kHz of what `synth`
@@ -39,7 +100,7 @@ def test_partial_rt60_end_to_end_through_analyze(tmp_path, cli):
     assert [b for b, (_, o) in table.items() if o == "given"] == [250, 500, 1000, 2000, 4000]
     assert table[63] == (1.5, "held") and table[125] == (1.5, "held")
     assert table[8000] == (0.95, "held")
-    assert "octave filter will read" not in out
+    assert "analyze will read" not in out
     js = tmp_path / "a.json"
     code, _, err = cli("analyze", ir, "--json", js, "--quiet")
     assert code == 0, err
