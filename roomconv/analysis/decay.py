@@ -64,7 +64,16 @@ def onset_index(h: np.ndarray, drop_db: float = 20.0) -> int:
 
 @dataclass(frozen=True)
 class Truncation:
-    """Result of :func:`lundeby_truncation` (indices relative to the array given)."""
+    """Result of :func:`lundeby_truncation` (indices relative to the array given).
+
+    Examples
+    --------
+    >>> h = np.zeros(20)
+    >>> h[0] = 1.0
+    >>> tr = lundeby_truncation(h, 1000)  # two 10 ms intervals
+    >>> tr.noise_limited, tr.reason
+    (False, 'the response is too short for a noise-floor search')
+    """
 
     index: int  #: truncation point (samples): where the decay meets the noise
     noise_energy: float  #: mean square of the background noise per sample (0: none found)
@@ -453,13 +462,25 @@ def available_range_db(curve_db: np.ndarray) -> float:
     With the compensation of :func:`lundeby_truncation` the curve's last value is the level
     the decay had reached at the truncation point, which is where noise or the end of the
     response took over.
+
+    Examples
+    --------
+    >>> available_range_db(np.array([0.0, -20.0, -47.5]))
+    47.5
     """
     return float(-curve_db[-1]) if curve_db.size else 0.0
 
 
 @dataclass(frozen=True)
 class LineFit:
-    """A least-squares line over part of a decay curve."""
+    """A least-squares line over part of a decay curve.
+
+    Examples
+    --------
+    >>> fit = fit_decay(-60 * np.arange(3000) / 3000, 1000, -5, -25)   # 60 dB in 3 s
+    >>> round(fit.slope_db_s, 6), round(fit.reverberation_s, 6), round(fit.r, 6)
+    (-20.0, 3.0, -1.0)
+    """
 
     slope_db_s: float
     intercept_db: float
