@@ -38,6 +38,33 @@ TARGET_BASES = ("t20", "t30", "edt")
 
 @dataclass(frozen=True)
 class Room:
+    """The room of a study, as the study file describes it.
+
+    Attributes
+    ----------
+    name, use : str
+        The room's name and its use (e.g. ``"classroom"``).
+    volume_m3 : float, optional
+        Volume, m³ (else from ``dimensions_m``).
+    surface_m2 : float, optional
+        Total surface, m² (else from ``dimensions_m``).
+    dimensions_m : (float, float, float), optional
+        Length, width and height of a rectangular room, m.
+    state : {"unoccupied", "occupied"}
+        Occupancy during the measurement.
+    furnished : bool, optional
+    temperature_c : float, optional
+        Air temperature, °C.
+    humidity_pct : float, optional
+        Relative humidity, %.
+
+    Examples
+    --------
+    >>> r = Room("Hall B", dimensions_m=(10.0, 8.0, 4.0))
+    >>> r.volume, r.surface
+    (320.0, 304.0)
+    """
+
     name: str
     use: str = ""
     volume_m3: float | None = None
@@ -60,6 +87,7 @@ class Room:
 
     @property
     def surface(self) -> float | None:
+        """The surface as given, else from the dimensions of a rectangular room (m²)."""
         if self.surface_m2 is not None:
             return self.surface_m2
         if self.dimensions_m is not None:
@@ -70,6 +98,10 @@ class Room:
 
 @dataclass(frozen=True)
 class Equipment:
+    """The measuring equipment: model names and serial numbers of the loudspeaker, the
+    microphone and the audio interface (free text, for the report).
+    """
+
     source: str = ""
     source_serial: str = ""
     microphone: str = ""
@@ -80,6 +112,24 @@ class Equipment:
 
 @dataclass(frozen=True)
 class SweepSettings:
+    """The sweep the study was measured with, as recorded in the study file.
+
+    Attributes
+    ----------
+    f_low_hz, f_high_hz : float, optional
+        Start and end frequencies, Hz.
+    duration_s : float, optional
+        Sweep length, s.
+    level_dbfs : float, optional
+        Playback level, dBFS.
+    repeats : int, optional
+        Sweeps played back to back and averaged.
+    silence_s : float, optional
+        Silence recorded after the sweep, s.
+    rate_hz : int, optional
+        Sample rate, Hz.
+    """
+
     f_low_hz: float | None = None
     f_high_hz: float | None = None
     duration_s: float | None = None
@@ -112,6 +162,7 @@ class Response:
 
     @property
     def label(self) -> str:
+        """``"<source>-<receiver>"``, the response's name in tables and figures."""
         return f"{self.source}-{self.receiver}"
 
 
@@ -127,6 +178,14 @@ class Targets:
 
 @dataclass(frozen=True)
 class StudyFile:
+    """A study file, read and checked: the job, the room, the equipment, the positions and
+    the responses measured between them, and the targets.
+
+    ``path`` is the study file itself; response files are absolute paths (relative ones in
+    the file are taken from its folder). See :func:`load_study` and
+    :func:`template_text`.
+    """
+
     path: Path
     title: str
     client: str = ""
@@ -160,6 +219,7 @@ class StudyFile:
         return d
 
     def display_path(self, p: Path) -> str:
+        """``p`` relative to the study file's folder when inside it, else as it is."""
         try:
             return str(p.relative_to(self.path.parent))
         except ValueError:

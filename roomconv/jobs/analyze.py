@@ -26,6 +26,7 @@ class AnalyzeResult:
 
     @property
     def errors(self) -> list[str]:
+        """The responses that could not be read or analysed, one message each."""
         return self.study.errors
 
 

@@ -16,6 +16,18 @@ __all__ = ["calibrate_free_field", "calibrate_reverberation_room", "CalibrationR
 
 @dataclass
 class CalibrationResult:
+    """What a calibration job wrote and found.
+
+    Attributes
+    ----------
+    output : Path
+        The strength-reference JSON file written.
+    reference : StrengthReference
+        The reference itself (:class:`roomconv.analysis.calibration.StrengthReference`).
+    notes : list of str
+        Bands left out and why, and other remarks for the user.
+    """
+
     output: Path
     reference: object  #: :class:`roomconv.analysis.calibration.StrengthReference`
     notes: list[str]

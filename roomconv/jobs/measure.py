@@ -94,6 +94,8 @@ class MeasureResult:
 
     @property
     def quality(self) -> dict:
+        """The extraction's quality figures, JSON-ready (see
+        :class:`~roomconv.measure.deconvolve.Extraction`)."""
         return self.extraction.quality
 
 

@@ -168,10 +168,12 @@ class BatchResult:
     outcomes: list
 
     def count(self, status: str) -> int:
+        """How many jobs ended with ``status`` (``"done"``, ``"skipped"``, ``"failed"``...)."""
         return sum(o.status == status for o in self.outcomes)
 
     @property
     def failed(self) -> list:
+        """The outcomes of the jobs that failed."""
         return [o for o in self.outcomes if o.status == "failed"]
 
     @property

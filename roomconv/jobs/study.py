@@ -90,10 +90,12 @@ class StudyReportResult:
 
     @property
     def document(self) -> dict:
+        """The analysis' JSON document (the same layout ``analyze --json`` writes)."""
         return self.results.analysis.document
 
     @property
     def errors(self) -> list[str]:
+        """The responses that could not be read or analysed, one message each."""
         return self.results.analysis.errors
 
 

@@ -423,6 +423,18 @@ def measured_decay_times(ir: np.ndarray, rate: int) -> list[dict[int, float]]:
 
 @dataclass
 class EditResult:
+    """What :func:`edit_response` wrote.
+
+    Attributes
+    ----------
+    output : Path
+        The edited response.
+    rate_hz : int
+        Its sample rate, Hz.
+    steps : list of str
+        The edits applied, in order, in words (for the provenance sidecar).
+    """
+
     output: Path
     rate_hz: int
     steps: list[str] = field(default_factory=list)
