@@ -74,7 +74,7 @@ def extract_ir(
     harmonics: bool = True,
     trim: bool = False,
     allow_clipped: bool = False,
-    band: tuple[float, float] | None = None,
+    band_hz: tuple[float, float] | None = None,
 ) -> Extraction:
     """Deconvolve a sweep recording into impulse responses.
 
@@ -102,7 +102,7 @@ def extract_ir(
         Cut leading samples before the onset (ISO 3382-1 rule, 20 dB below peak) minus 1 ms.
     allow_clipped : bool
         Accept a recording with clipped samples (they are still reported).
-    band : (float, float), optional
+    band_hz : (float, float), optional
         Band for spectral division, Hz; default from the sweep or estimated from the excitation.
 
     Returns
@@ -144,7 +144,7 @@ def extract_ir(
     quality: dict = {"recording": _recording_quality(y, sweep, mic_channels, reference_channel)}
     warnings: list[str] = []
 
-    raw, zeros, method, (f_lo, f_hi), default_len = _deconvolve(y, rate, sweep, excitation, band)
+    raw, zeros, method, (f_lo, f_hi), default_len = _deconvolve(y, rate, sweep, excitation, band_hz)
     n_out = int(round((length_s if length_s is not None else default_len) * rate))
     if n_out < 1:
         raise InputError(f"IR length {length_s} s is too short")
