@@ -100,6 +100,11 @@ class Room:
 class Equipment:
     """The measuring equipment: model names and serial numbers of the loudspeaker, the
     microphone and the audio interface (free text, for the report).
+
+    Examples
+    --------
+    >>> Equipment(microphone="class 1 pressure microphone", microphone_serial="A-17").source
+    ''
     """
 
     source: str = ""
@@ -128,6 +133,12 @@ class SweepSettings:
         Silence recorded after the sweep, s.
     rate_hz : int, optional
         Sample rate, Hz.
+
+    Examples
+    --------
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> study.sweep.duration_s, study.sweep.rate_hz
+    (6.0, 48000)
     """
 
     f_low_hz: float | None = None
@@ -141,7 +152,13 @@ class SweepSettings:
 
 @dataclass(frozen=True)
 class Point:
-    """A source or receiver position: plan coordinates (m) and height above the floor (m)."""
+    """A source or receiver position: plan coordinates (m) and height above the floor (m).
+
+    Examples
+    --------
+    >>> Point("R1", x_m=3.0, y_m=4.0, height_m=1.2).height_m
+    1.2
+    """
 
     id: str
     x_m: float | None = None
@@ -152,7 +169,13 @@ class Point:
 
 @dataclass(frozen=True)
 class Response:
-    """One measured response: a source–receiver combination and its file (absolute path)."""
+    """One measured response: a source–receiver combination and its file (absolute path).
+
+    Examples
+    --------
+    >>> Response("S1", "R2", Path("/data/hall/S1R2.wav")).label
+    'S1-R2'
+    """
 
     source: str
     receiver: str
@@ -168,7 +191,14 @@ class Response:
 
 @dataclass(frozen=True)
 class Targets:
-    """A reverberation-time target per band with a tolerance, relative to the target."""
+    """A reverberation-time target per band with a tolerance, relative to the target.
+
+    Examples
+    --------
+    >>> t = Targets(reverberation_s={500.0: 1.1, 1000.0: 1.0}, tolerance_pct=(-10.0, 10.0))
+    >>> t.basis, t.reverberation_s[1000.0]
+    ('t30', 1.0)
+    """
 
     basis: str = "t30"
     reverberation_s: dict[float, float] = field(default_factory=dict)
@@ -184,6 +214,14 @@ class StudyFile:
     ``path`` is the study file itself; response files are absolute paths (relative ones in
     the file are taken from its folder). See :func:`load_study` and
     :func:`template_text`.
+
+    Examples
+    --------
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> study.title, [r.label for r in study.responses]
+    ('Hall B', ['S1-R1', 'S1-R2'])
+    >>> study.display_path(study.responses[0].file)
+    'S1R1.wav'
     """
 
     path: Path
@@ -374,7 +412,20 @@ def _points(doc: dict, name: str, src: str) -> tuple[Point, ...]:
 
 def parse_study(text: str, path) -> StudyFile:
     """Validate the TOML ``text`` of a study file at ``path`` (used for relative paths and
-    in messages). See :func:`load_study`."""
+    in messages). See :func:`load_study`.
+
+    Examples
+    --------
+    Relative response paths are taken from the study file's folder:
+
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> str(study.responses[0].file)
+    '/data/hall/S1R1.wav'
+    >>> parse_study("study = { titel = 'a typo' }", Path("s.toml"))
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: s.toml: study.title: is missing; ...
+    """
     path = Path(path)
     src = str(path)
     try:
@@ -556,6 +607,15 @@ def load_study(path) -> StudyFile:
     InputError
         The file is missing or unreadable, is not TOML, has an unknown key or a bad value;
         the message names the key and says what to do.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     p = Path(tmp) / "study.toml"
+    ...     _ = p.write_text(template_text("Hall B"))
+    ...     load_study(p).room.volume_m3
+    250.0
     """
     p = Path(path)
     if not p.is_file():
@@ -576,7 +636,14 @@ _POSITIONS_NOTE = (
 
 
 def template_text(title: str = "Acoustic measurements") -> str:
-    """A commented study file to fill in; it loads as it stands once its files exist."""
+    """A commented study file to fill in; it loads as it stands once its files exist.
+
+    Examples
+    --------
+    >>> text = template_text("Hall B")
+    >>> text.startswith("#"), 'title = "Hall B"' in text
+    (True, True)
+    """
     return _head(title) + _TEMPLATE_POSITIONS.format(_POSITIONS_NOTE=_POSITIONS_NOTE)
 
 
@@ -588,7 +655,14 @@ def _toml_str(text: str) -> str:
 def session_study_text(title: str, positions, folder) -> str:
     """A study file for responses measured in one session: each (name, file, quality file
     or None) becomes a receiver of one source S1, with paths relative to ``folder`` (where
-    the study file goes). Coordinates are left for the user to fill in."""
+    the study file goes). Coordinates are left for the user to fill in.
+
+    Examples
+    --------
+    >>> text = session_study_text("Session", [("R1", Path("/x/irs/R1.wav"), None)], Path("/x"))
+    >>> [str(r.file) for r in parse_study(text, Path("/x/session.toml")).responses]
+    ['/x/irs/R1.wav']
+    """
     folder = Path(folder)
     parts = [
         _head(title).rstrip("\n"),
