@@ -316,7 +316,20 @@ def check_ceiling(ceiling_dbfs: float) -> None:
 
 @dataclass
 class LiveSetup:
-    """A live convolution ready to start: the processor and the stream's settings."""
+    """A live convolution ready to start: the processor and the stream's settings.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
+    """
 
     processor: LiveProcessor
     rate_hz: int
@@ -345,6 +358,18 @@ def prepare_live(
     The caller shows the hearing caution and obtains confirmation between this and
     :func:`run_live`. ``rate_hz`` None takes the device's default rate (else the response's).
     Channels count from 1.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
     """
     from ..measure.capture import load_sounddevice
     from ..render.stream import LiveProcessor
@@ -377,7 +402,20 @@ def prepare_live(
 
 def run_live(setup: LiveSetup, *, duration_s: float | None = None, on_meter=None, stop_event=None):
     """Run a prepared live convolution until ``duration_s``, the event, or an interrupt;
-    returns the stream statistics."""
+    returns the stream statistics.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
+    """
     from ..render.stream import run_live as _run
 
     return _run(
@@ -408,7 +446,16 @@ def preview(
 ) -> float:
     """Render the first ``seconds`` of ``dry`` through ``ir`` and play them, ramped, limited
     and capped; returns the seconds played. ``confirm`` shows the hearing caution and raises
-    to refuse; it runs before any sound."""
+    to refuse; it runs before any sound.
+
+    Examples
+    --------
+    Not run here: it plays sound. ``confirm`` shows the hearing caution and raises to
+    refuse; nothing is played before it returns::
+
+        seconds = preview("vocal.wav", "hall.wav", RenderSettings(mix=0.3),
+                          confirm=ask_after_showing_the_caution)
+    """
     from ..measure.capture import load_sounddevice
     from ..signal import db_to_gain
 
