@@ -38,6 +38,33 @@ TARGET_BASES = ("t20", "t30", "edt")
 
 @dataclass(frozen=True)
 class Room:
+    """The room of a study, as the study file describes it.
+
+    Attributes
+    ----------
+    name, use : str
+        The room's name and its use (e.g. ``"classroom"``).
+    volume_m3 : float, optional
+        Volume, m³ (else from ``dimensions_m``).
+    surface_m2 : float, optional
+        Total surface, m² (else from ``dimensions_m``).
+    dimensions_m : (float, float, float), optional
+        Length, width and height of a rectangular room, m.
+    state : {"unoccupied", "occupied"}
+        Occupancy during the measurement.
+    furnished : bool, optional
+    temperature_c : float, optional
+        Air temperature, °C.
+    humidity_pct : float, optional
+        Relative humidity, %.
+
+    Examples
+    --------
+    >>> r = Room("Hall B", dimensions_m=(10.0, 8.0, 4.0))
+    >>> r.volume, r.surface
+    (320.0, 304.0)
+    """
+
     name: str
     use: str = ""
     volume_m3: float | None = None
@@ -60,6 +87,7 @@ class Room:
 
     @property
     def surface(self) -> float | None:
+        """The surface as given, else from the dimensions of a rectangular room (m²)."""
         if self.surface_m2 is not None:
             return self.surface_m2
         if self.dimensions_m is not None:
@@ -70,6 +98,15 @@ class Room:
 
 @dataclass(frozen=True)
 class Equipment:
+    """The measuring equipment: model names and serial numbers of the loudspeaker, the
+    microphone and the audio interface (free text, for the report).
+
+    Examples
+    --------
+    >>> Equipment(microphone="class 1 pressure microphone", microphone_serial="A-17").source
+    ''
+    """
+
     source: str = ""
     source_serial: str = ""
     microphone: str = ""
@@ -80,6 +117,30 @@ class Equipment:
 
 @dataclass(frozen=True)
 class SweepSettings:
+    """The sweep the study was measured with, as recorded in the study file.
+
+    Attributes
+    ----------
+    f_low_hz, f_high_hz : float, optional
+        Start and end frequencies, Hz.
+    duration_s : float, optional
+        Sweep length, s.
+    level_dbfs : float, optional
+        Playback level, dBFS.
+    repeats : int, optional
+        Sweeps played back to back and averaged.
+    silence_s : float, optional
+        Silence recorded after the sweep, s.
+    rate_hz : int, optional
+        Sample rate, Hz.
+
+    Examples
+    --------
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> study.sweep.duration_s, study.sweep.rate_hz
+    (6.0, 48000)
+    """
+
     f_low_hz: float | None = None
     f_high_hz: float | None = None
     duration_s: float | None = None
@@ -91,7 +152,13 @@ class SweepSettings:
 
 @dataclass(frozen=True)
 class Point:
-    """A source or receiver position: plan coordinates (m) and height above the floor (m)."""
+    """A source or receiver position: plan coordinates (m) and height above the floor (m).
+
+    Examples
+    --------
+    >>> Point("R1", x_m=3.0, y_m=4.0, height_m=1.2).height_m
+    1.2
+    """
 
     id: str
     x_m: float | None = None
@@ -102,7 +169,13 @@ class Point:
 
 @dataclass(frozen=True)
 class Response:
-    """One measured response: a source–receiver combination and its file (absolute path)."""
+    """One measured response: a source–receiver combination and its file (absolute path).
+
+    Examples
+    --------
+    >>> Response("S1", "R2", Path("/data/hall/S1R2.wav")).label
+    'S1-R2'
+    """
 
     source: str
     receiver: str
@@ -112,12 +185,20 @@ class Response:
 
     @property
     def label(self) -> str:
+        """``"<source>-<receiver>"``, the response's name in tables and figures."""
         return f"{self.source}-{self.receiver}"
 
 
 @dataclass(frozen=True)
 class Targets:
-    """A reverberation-time target per band with a tolerance, relative to the target."""
+    """A reverberation-time target per band with a tolerance, relative to the target.
+
+    Examples
+    --------
+    >>> t = Targets(reverberation_s={500.0: 1.1, 1000.0: 1.0}, tolerance_pct=(-10.0, 10.0))
+    >>> t.basis, t.reverberation_s[1000.0]
+    ('t30', 1.0)
+    """
 
     basis: str = "t30"
     reverberation_s: dict[float, float] = field(default_factory=dict)
@@ -127,6 +208,22 @@ class Targets:
 
 @dataclass(frozen=True)
 class StudyFile:
+    """A study file, read and checked: the job, the room, the equipment, the positions and
+    the responses measured between them, and the targets.
+
+    ``path`` is the study file itself; response files are absolute paths (relative ones in
+    the file are taken from its folder). See :func:`load_study` and
+    :func:`template_text`.
+
+    Examples
+    --------
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> study.title, [r.label for r in study.responses]
+    ('Hall B', ['S1-R1', 'S1-R2'])
+    >>> study.display_path(study.responses[0].file)
+    'S1R1.wav'
+    """
+
     path: Path
     title: str
     client: str = ""
@@ -160,6 +257,7 @@ class StudyFile:
         return d
 
     def display_path(self, p: Path) -> str:
+        """``p`` relative to the study file's folder when inside it, else as it is."""
         try:
             return str(p.relative_to(self.path.parent))
         except ValueError:
@@ -314,7 +412,20 @@ def _points(doc: dict, name: str, src: str) -> tuple[Point, ...]:
 
 def parse_study(text: str, path) -> StudyFile:
     """Validate the TOML ``text`` of a study file at ``path`` (used for relative paths and
-    in messages). See :func:`load_study`."""
+    in messages). See :func:`load_study`.
+
+    Examples
+    --------
+    Relative response paths are taken from the study file's folder:
+
+    >>> study = parse_study(template_text("Hall B"), Path("/data/hall/study.toml"))
+    >>> str(study.responses[0].file)
+    '/data/hall/S1R1.wav'
+    >>> parse_study("study = { titel = 'a typo' }", Path("s.toml"))
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: s.toml: study.title: is missing; ...
+    """
     path = Path(path)
     src = str(path)
     try:
@@ -496,6 +607,15 @@ def load_study(path) -> StudyFile:
     InputError
         The file is missing or unreadable, is not TOML, has an unknown key or a bad value;
         the message names the key and says what to do.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     p = Path(tmp) / "study.toml"
+    ...     _ = p.write_text(template_text("Hall B"))
+    ...     load_study(p).room.volume_m3
+    250.0
     """
     p = Path(path)
     if not p.is_file():
@@ -516,7 +636,14 @@ _POSITIONS_NOTE = (
 
 
 def template_text(title: str = "Acoustic measurements") -> str:
-    """A commented study file to fill in; it loads as it stands once its files exist."""
+    """A commented study file to fill in; it loads as it stands once its files exist.
+
+    Examples
+    --------
+    >>> text = template_text("Hall B")
+    >>> text.startswith("#"), 'title = "Hall B"' in text
+    (True, True)
+    """
     return _head(title) + _TEMPLATE_POSITIONS.format(_POSITIONS_NOTE=_POSITIONS_NOTE)
 
 
@@ -528,7 +655,14 @@ def _toml_str(text: str) -> str:
 def session_study_text(title: str, positions, folder) -> str:
     """A study file for responses measured in one session: each (name, file, quality file
     or None) becomes a receiver of one source S1, with paths relative to ``folder`` (where
-    the study file goes). Coordinates are left for the user to fill in."""
+    the study file goes). Coordinates are left for the user to fill in.
+
+    Examples
+    --------
+    >>> text = session_study_text("Session", [("R1", Path("/x/irs/R1.wav"), None)], Path("/x"))
+    >>> [str(r.file) for r in parse_study(text, Path("/x/session.toml")).responses]
+    ['/x/irs/R1.wav']
+    """
     folder = Path(folder)
     parts = [
         _head(title).rstrip("\n"),

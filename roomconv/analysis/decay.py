@@ -64,7 +64,16 @@ def onset_index(h: np.ndarray, drop_db: float = 20.0) -> int:
 
 @dataclass(frozen=True)
 class Truncation:
-    """Result of :func:`lundeby_truncation` (indices relative to the array given)."""
+    """Result of :func:`lundeby_truncation` (indices relative to the array given).
+
+    Examples
+    --------
+    >>> h = np.zeros(20)
+    >>> h[0] = 1.0
+    >>> tr = lundeby_truncation(h, 1000)  # two 10 ms intervals
+    >>> tr.noise_limited, tr.reason
+    (False, 'the response is too short for a noise-floor search')
+    """
 
     index: int  #: truncation point (samples): where the decay meets the noise
     noise_energy: float  #: mean square of the background noise per sample (0: none found)
@@ -181,22 +190,65 @@ def lundeby_truncation(
     e2 = np.square(h)
     bw = float(bandwidth_hz) if bandwidth_hz else rate / 2.0
     interval_s = max(interval_s, 1.0 / rate)
-    env, t_env = _envelope(h, rate, interval_s)
+    env, t_env = _envelope(h, rate, interval_s)  # step 1
     peak_i = int(np.argmax(env))
     peak = float(env[peak_i]) if env.size else 0.0
     if env.size < 3 or peak <= 0:
-        return Truncation(
-            n,
-            0.0,
-            0.0,
-            float("nan"),
-            float("nan"),
-            False,
-            False,
-            n,
-            "the response is too short for a noise-floor search",
+        return _gave_up(
+            n, 0.0, float("nan"), n, "the response is too short for a noise-floor search"
         )
+    found = _preliminary_crossing(h, e2, rate, env, t_env, peak_i, peak, bw, interval_s)
+    if isinstance(found, Truncation):
+        return found
+    found = _iterate_late_line(h, e2, rate, found, peak, min_interval_s, max_iter)
+    if isinstance(found, Truncation):
+        return found
+    return _truncate_at_crossing(h, e2, rate, found, peak, bw)
 
+
+@dataclass
+class _LateLine:
+    """Where Lundeby's search stands: the current envelope, noise estimate and decay line.
+
+    Times in s, levels in dB re the envelope's step-1 peak, indices in samples (``i_noise``)
+    or intervals (``peak_i``).
+    """
+
+    env: np.ndarray  #: the envelope in the current intervals (mean square)
+    t_env: np.ndarray  #: the intervals' centre times, s
+    peak_i: int  #: the envelope's peak interval
+    i_noise: int  #: first sample of the stretch the noise was read from
+    noise: float  #: mean square of the noise
+    slope: float  #: the line's slope, dB/s
+    cross: float  #: where the line meets the noise, s
+    step_s: float  #: the interval length, s
+    converged: bool = False
+
+
+def _gave_up(n: int, noise: float, inr_db: float, noise_start: int, reason: str) -> Truncation:
+    """No truncation: keep the whole response, uncompensated, and say why."""
+    return Truncation(n, noise, 0.0, float("nan"), inr_db, False, noise > 0, noise_start, reason)
+
+
+def _preliminary_crossing(
+    h: np.ndarray,
+    e2: np.ndarray,
+    rate: int,
+    env: np.ndarray,
+    t_env: np.ndarray,
+    peak_i: int,
+    peak: float,
+    bandwidth_hz: float,
+    interval_s: float,
+) -> Truncation | _LateLine:
+    """Steps 2–4 of Lundeby et al. (1995): the noise from the last 10 %, a first line from the
+    envelope's peak to the first interval within 10 dB of that noise, and its crossing with
+    the noise level.
+
+    Returns the search's starting point, or the final :class:`Truncation` when the response
+    has no noise floor or too little decay above it.
+    """
+    n = h.size
     # Step 2: noise from the last 10 %.
     i_noise = int((1 - NOISE_MIN_FRACTION) * n)
     noise = float(np.mean(e2[i_noise:]))
@@ -204,16 +256,8 @@ def lundeby_truncation(
         return _no_floor(h, rate, env, t_env, peak_i, peak, n)
     inr = float(_db(peak, noise))
     if inr < FIRST_FIT_ABOVE_NOISE_DB + 1:
-        return Truncation(
-            n,
-            noise,
-            0.0,
-            float("nan"),
-            inr,
-            False,
-            True,
-            i_noise,
-            f"the decay rises only {inr:.1f} dB above the noise",
+        return _gave_up(
+            n, noise, inr, i_noise, f"the decay rises only {inr:.1f} dB above the noise"
         )
 
     # Steps 3–4: first line from the peak to the first interval within 10 dB of the noise.
@@ -223,74 +267,99 @@ def lundeby_truncation(
     stop = max(stop, peak_i + 2)  # a pulse: peak and next interval still give a slope
     slope, icpt = _fit_line(t_env[peak_i:stop], env_db[peak_i:stop])
     if not slope < 0:
-        return Truncation(
-            n,
-            noise,
-            0.0,
-            float("nan"),
-            inr,
-            False,
-            True,
-            i_noise,
-            "the envelope does not decay from its peak",
-        )
+        return _gave_up(n, noise, inr, i_noise, "the envelope does not decay from its peak")
     cross = (noise_db - icpt) / slope
-    if _still_decaying(e2, rate, i_noise, slope, bw):
+    if _still_decaying(e2, rate, i_noise, slope, bandwidth_hz):
         return _no_floor(h, rate, env, t_env, peak_i, peak, n)
+    return _LateLine(env, t_env, peak_i, i_noise, noise, slope, cross, interval_s)
 
-    converged = False
-    step_s = interval_s
+
+def _iterate_late_line(
+    h: np.ndarray,
+    e2: np.ndarray,
+    rate: int,
+    line: _LateLine,
+    peak: float,
+    min_interval_s: float,
+    max_iter: int,
+) -> Truncation | _LateLine:
+    """Steps 5–9 of Lundeby et al. (1995), repeated until the crossing point settles.
+
+    Each round chooses intervals giving five per 10 dB of the current slope, reads the noise
+    from 10 dB of decay past the crossing point (at least the last 10 %), fits the late decay
+    over 20 dB ending 5 dB above the noise and moves the crossing point. ``line`` is updated
+    in place and returned (``converged`` set when the point moved by less than one interval);
+    a :class:`Truncation` comes back when the noise stretch turns out to be digital silence.
+    """
+    n = h.size
+    step_s = line.step_s
+    slope, cross = line.slope, line.cross
     for _ in range(max_iter):
         # Steps 5–6: intervals giving INTERVALS_PER_10DB per 10 dB of decay.
         step_s = max(min_interval_s, 10.0 / -slope / INTERVALS_PER_10DB, 1.0 / rate)
-        env, t_env = _envelope(h, rate, step_s)
-        if env.size < 3:
+        line.step_s = step_s
+        line.env, line.t_env = _envelope(h, rate, step_s)
+        if line.env.size < 3:
             break
-        peak_i = int(np.argmax(env))
-        env_db = _db(env, peak)
+        line.peak_i = int(np.argmax(line.env))
+        env_db = _db(line.env, peak)
         # Step 7: the noise from 10 dB of decay past the crossing point, at least the last 10 %.
         t_noise = cross + NOISE_START_BELOW_CROSSING_DB / -slope
-        i_noise = int(min(max(t_noise, 0.0) * rate, (1 - NOISE_MIN_FRACTION) * n))
-        noise = float(np.mean(e2[i_noise:]))
-        if noise <= 0:
-            return _no_floor(h, rate, env, t_env, peak_i, peak, n)
-        noise_db = float(_db(noise, peak))
+        line.i_noise = int(min(max(t_noise, 0.0) * rate, (1 - NOISE_MIN_FRACTION) * n))
+        line.noise = float(np.mean(e2[line.i_noise :]))
+        if line.noise <= 0:
+            return _no_floor(h, rate, line.env, line.t_env, line.peak_i, peak, n)
+        noise_db = float(_db(line.noise, peak))
         # Step 8: the late line over 20 dB ending 5 dB above the noise (first crossings).
         hi = noise_db + LATE_FIT_ABOVE_NOISE_DB + LATE_FIT_RANGE_DB
         lo = noise_db + LATE_FIT_ABOVE_NOISE_DB
-        i_hi = _first_below(env_db, hi, peak_i) if hi < 0 else peak_i
+        i_hi = _first_below(env_db, hi, line.peak_i) if hi < 0 else line.peak_i
         i_lo = _first_below(env_db, lo, i_hi)
         if i_lo - i_hi < 2:
-            i_hi = max(peak_i, i_lo - 2)
+            i_hi = max(line.peak_i, i_lo - 2)
         if i_lo - i_hi < 2:
             break
-        new_slope, new_icpt = _fit_line(t_env[i_hi:i_lo], env_db[i_hi:i_lo])
+        new_slope, new_icpt = _fit_line(line.t_env[i_hi:i_lo], env_db[i_hi:i_lo])
         if not new_slope < 0:
             break
         # Step 9: the new crossing point; stop when it has settled.
         new_cross = (noise_db - new_icpt) / new_slope
         moved = abs(new_cross - cross)
-        slope, icpt, cross = new_slope, new_icpt, new_cross
+        slope, cross = new_slope, new_cross
+        line.slope, line.cross = slope, cross
         if moved <= max(step_s, 0.01 * cross):
-            converged = True
+            line.converged = True
             break
+    return line
 
-    if cross >= n / rate or _still_decaying(e2, rate, i_noise, slope, bw):
-        return _no_floor(h, rate, env, t_env, peak_i, peak, n)
+
+def _truncate_at_crossing(
+    h: np.ndarray, e2: np.ndarray, rate: int, line: _LateLine, peak: float, bandwidth_hz: float
+) -> Truncation:
+    """Cut at the settled crossing point and compensate with the late line's energy past it.
+
+    The compensation is e(t_c)/k (k the energy decay rate, e(t_c) the noise level where the
+    line meets it), in sums of squares. A crossing beyond the response, or a noise stretch
+    still decaying, means no floor was reached after all.
+    """
+    n = h.size
+    if line.cross >= n / rate or _still_decaying(e2, rate, line.i_noise, line.slope, bandwidth_hz):
+        return _no_floor(h, rate, line.env, line.t_env, line.peak_i, peak, n)
     # Never truncate inside the peak's own interval: a clean pulse keeps its energy.
-    idx = int(np.clip(round(cross * rate), min(n, int(round(step_s * rate)) * (peak_i + 1)), n))
-    k = -slope * _LN10 / 10.0  # energy decay rate, 1/s
-    compensation = noise * rate / k
+    first_allowed = min(n, int(round(line.step_s * rate)) * (line.peak_i + 1))
+    idx = int(np.clip(round(line.cross * rate), first_allowed, n))
+    k = -line.slope * _LN10 / 10.0  # energy decay rate, 1/s
+    compensation = line.noise * rate / k
     return Truncation(
         idx,
-        noise,
+        line.noise,
         compensation,
-        slope,
-        float(_db(peak, noise)),
-        converged,
+        line.slope,
+        float(_db(peak, line.noise)),
+        line.converged,
         True,
-        i_noise,
-        "" if converged else "the crossing point did not settle",
+        line.i_noise,
+        "" if line.converged else "the crossing point did not settle",
     )
 
 
@@ -393,13 +462,25 @@ def available_range_db(curve_db: np.ndarray) -> float:
     With the compensation of :func:`lundeby_truncation` the curve's last value is the level
     the decay had reached at the truncation point, which is where noise or the end of the
     response took over.
+
+    Examples
+    --------
+    >>> available_range_db(np.array([0.0, -20.0, -47.5]))
+    47.5
     """
     return float(-curve_db[-1]) if curve_db.size else 0.0
 
 
 @dataclass(frozen=True)
 class LineFit:
-    """A least-squares line over part of a decay curve."""
+    """A least-squares line over part of a decay curve.
+
+    Examples
+    --------
+    >>> fit = fit_decay(-60 * np.arange(3000) / 3000, 1000, -5, -25)   # 60 dB in 3 s
+    >>> round(fit.slope_db_s, 6), round(fit.reverberation_s, 6), round(fit.r, 6)
+    (-20.0, 3.0, -1.0)
+    """
 
     slope_db_s: float
     intercept_db: float

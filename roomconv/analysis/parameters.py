@@ -18,6 +18,7 @@ How the band filter is kept out of the results (the default, ``filtering="auto"`
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -110,7 +111,16 @@ JUDGED = DECAY_METRICS + RATIO_METRICS + ("g_db",)
 
 @dataclass
 class BandResult:
-    """Parameters of one band (``band_hz`` None for wideband). Keys follow the JSON layout."""
+    """Parameters of one band (``band_hz`` None for wideband). Keys follow the JSON layout.
+
+    Examples
+    --------
+    >>> r = BandResult(1000.0, t30_s=1.2)
+    >>> r.flag(("t30_s",), CAUTION, "t30_noise_margin", "1k: the noise is close")
+    >>> r.finish(with_g=False)
+    >>> r.verdict, r.as_dict()["verdicts"]["t30_s"], r.as_dict()["warning_codes"]
+    ('caution', 'caution', ['t30_noise_margin'])
+    """
 
     band_hz: float | None
     edt_s: float | None = None
@@ -174,6 +184,18 @@ class BandResult:
                 self.value_verdicts.setdefault(m, OK)
 
     def as_dict(self, with_g: bool = False) -> dict:
+        """The band's entry in the JSON document (keys of :data:`METRICS`, verdicts, warnings).
+
+        Parameters
+        ----------
+        with_g : bool
+            Include strength G (only when a strength reference was given).
+
+        Returns
+        -------
+        dict
+            JSON-ready; the decay curve and other plotting data are left out.
+        """
         d: dict = {"band_hz": self.band_hz}
         for k in METRICS:
             d[k] = getattr(self, k)
@@ -229,6 +251,16 @@ def zero_phase_band(h: np.ndarray, rate: int, band: Band) -> np.ndarray:
     (ten over the bandwidth) to die away, so a response that starts or ends in noise gives
     no start-up transient (``scipy.signal.sosfiltfilt``'s short odd padding and step initial
     state add one, many times the noise, to the first ~100 ms of a narrow low band).
+
+    Examples
+    --------
+    An impulse at sample 20 comes back centred on sample 20 (no delay, unlike one pass):
+
+    >>> from roomconv.analysis.bands import all_bands
+    >>> h = np.zeros(64)
+    >>> h[20] = 1.0
+    >>> int(np.argmax(np.abs(zero_phase_band(h, 16000, all_bands("octave")[5]))))
+    20
     """
     pad = int(np.ceil(10.0 * rate / band.bandwidth))
     sos = band_sos(band, rate)
@@ -594,6 +626,15 @@ def noise_energy_variance(
     ----------
     Bendat, J. S., Piersol, A. G. (2010). Random Data, 4th ed., Wiley: variance of mean-square
     estimates of band-limited Gaussian signals, 1/(B·T) (from memory).
+
+    Examples
+    --------
+    With no signal, the sum of squares of 100 independent unit-variance Gaussian values is a
+    chi-square variable with 100 degrees of freedom: variance 2·100 = 200 (a noise level known
+    exactly, ``noise_dof`` huge, adds nothing):
+
+    >>> round(float(noise_energy_variance(0.0, 100, 1.0, 1.0, 1e15)), 6)
+    200.0
     """
     signal = np.maximum(np.asarray(signal, dtype=np.float64), 0.0)
     samples = np.asarray(samples, dtype=np.float64)
@@ -680,6 +721,145 @@ def _judge_sigma(
         )
 
 
+@dataclass(frozen=True)
+class _EnergyVariance:
+    """Where the uncertainty of C50, C80, D50 and Ts comes from: the variance of each energy
+    sum the ratios are made of.
+
+    ``s`` holds the per-sample energies the sums add up (non-negative). ``window(sl)`` is the
+    variance of ``s[sl].sum()``, ``moment()`` that of Σ t·s (t in s from the onset), and
+    ``tail`` that of the compensation standing for the decay past the truncation point.
+    """
+
+    s: np.ndarray
+    window: Callable[[slice], float]
+    moment: Callable[[], float]
+    tail: float = 0.0
+
+
+def _noise_variance(
+    e: np.ndarray, t: np.ndarray, noise: float, per_dof: float, noise_dof: float
+) -> _EnergyVariance:
+    """Variance source: the background noise of mean square ``noise`` alone, over energies
+    ``e`` from which it is subtracted (:func:`noise_energy_variance`)."""
+    s = np.maximum(e - noise, 0.0)
+
+    def window(sl: slice) -> float:
+        return float(noise_energy_variance(s[sl].sum(), s[sl].size, noise, per_dof, noise_dof))
+
+    def moment() -> float:
+        v_m = per_dof * float(np.sum(t**2 * (4 * noise * s + 2 * noise**2)))
+        return v_m + (noise * float(np.sum(t))) ** 2 / max(noise_dof, 1.0)
+
+    return _EnergyVariance(s, window, moment)
+
+
+def _diffuse_decay_variance(
+    e: np.ndarray,
+    t: np.ndarray,
+    pre: int,
+    rate: int,
+    comp: float,
+    k: float,
+    band: Band | None,
+) -> _EnergyVariance:
+    """Variance source: the randomness of a diffuse decay at one position.
+
+    A diffuse decay is a random signal: a band of width B carries about B independent energy
+    values per second, so an energy sum over a window, Σ e(t), varies by
+    (rate/B)·Σ ē(t)² (ē the smoothed energy; Gaussian band-limited noise, Bendat & Piersol
+    2010 — from memory). One position's value can differ from the room's by that much, as
+    its decay times do (ISO 3382-2 A.2). The direct sound is deterministic: over it the
+    smoothed energy is capped at the diffuse level that follows it.
+    """
+    per_dof = _dof_samples(band, rate)
+    L = max(1, int(round(per_dof)))
+    s = np.maximum(e, 0.0)
+    if L > 1:
+        c = np.cumsum(np.concatenate([[0.0], s]))
+        lo = np.clip(np.arange(s.size) - L // 2, 0, s.size)
+        hi = np.clip(lo + L, 0, s.size)
+        smooth = (c[hi] - c[lo]) / np.maximum(hi - lo, 1)
+    else:
+        smooth = s
+    # The direct sound is not random: cap the smoothed energy over it (2.5 ms and the band
+    # filter's spread) at the diffuse level just after it, continued back at the decay rate.
+    bw = band.bandwidth if band is not None else rate / 2.0
+    w_end = pre + int(round((DIRECT_SOUND_S + 1.0 / bw) * rate))
+    if 0 < w_end < smooth.size - L:
+        after = float(np.mean(smooth[w_end : w_end + L]))
+        back = (w_end - np.arange(w_end)) / rate
+        cap = after * np.exp(min(k, 1e4) * back) if k > 0 else np.full(w_end, after)
+        smooth = smooth.copy()
+        smooth[:w_end] = np.minimum(smooth[:w_end], cap)
+    k_n = k / rate if k > 0 else 0.0  # per sample
+    e_c = float(smooth[-1]) if smooth.size else 0.0
+    comp_var = per_dof * e_c**2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
+
+    def window(sl: slice) -> float:
+        return per_dof * float(np.sum(np.square(smooth[sl])))
+
+    def moment() -> float:
+        return per_dof * float(np.sum(np.square(t * smooth)))
+
+    return _EnergyVariance(s, window, moment, comp_var)
+
+
+def _ratio_sigmas(
+    source: _EnergyVariance,
+    t: np.ndarray,
+    pre: int,
+    rate: int,
+    comp: float,
+    *,
+    ts_ms: float | None = None,
+    skip: frozenset[str] = frozenset(),
+) -> dict[str, float]:
+    """Standard uncertainties of C50, C80 (dB), D50 and Ts (ms) from the variances of their
+    energy sums, by first-order propagation.
+
+    With early energy E₁ and late energy E₂ (plus the compensation ``comp``) and variances
+    v₁, v₂: σ_C = 4.34·sqrt(v₁/E₁² + v₂/E₂²), σ_D = D(1−D)·sqrt(v₁/E₁² + v₂/E₂²) and
+    σ_Ts = Ts·sqrt(v_m/M² + v_tot/E²) with M = Σ t·e. ``ts_ms`` is the Ts to scale (default
+    1000·M/E); metrics in ``skip`` are left out. Returns the sigmas in the order C50, D50,
+    C80, Ts (those that exist).
+
+    References
+    ----------
+    JCGM 100:2008 (GUM), 5.1.2: the law of propagation of uncertainty (first order).
+    """
+    s = source.s
+    total = float(s.sum()) + comp
+    if total <= 0:
+        return {}
+    k10 = 10 / np.log(10)
+    out: dict[str, float] = {}
+    for ms, cname, dname in ((50, "c50_db", "d50"), (80, "c80_db", None)):
+        n = pre + int(round(ms / 1000 * rate))
+        early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
+        if early <= 0 or late <= 0 or cname in skip:
+            continue
+        rel = np.sqrt(
+            source.window(slice(0, n)) / early**2
+            + (source.window(slice(n, None)) + source.tail) / late**2
+        )
+        out[cname] = float(k10 * rel)
+        if dname and dname not in skip:
+            d = early / total
+            out[dname] = float(d * (1 - d) * rel)
+    if "ts_ms" not in skip:
+        moment = float(np.sum(t * s))
+        if moment > 0:
+            ts = ts_ms if ts_ms is not None else 1000 * moment / total
+            v_t = source.window(slice(None)) + source.tail
+            out["ts_ms"] = float(ts * np.sqrt(source.moment() / moment**2 + v_t / total**2))
+    return out
+
+
+_RATIO_NAMES = {"c50_db": "C50", "c80_db": "C80", "d50": "D50", "ts_ms": "Ts"}
+_RATIO_UNITS = {"c50_db": " dB", "c80_db": " dB", "d50": "", "ts_ms": " ms"}
+
+
 def _ratio_noise_uncertainty(
     res: BandResult,
     e: np.ndarray,
@@ -693,36 +873,9 @@ def _ratio_noise_uncertainty(
     label: str,
 ) -> None:
     """Flag C50, C80, D50 and Ts the background noise makes uncertain beyond half a JND."""
-    per_dof = _dof_samples(band, rate)
-    s = np.maximum(e - noise, 0.0)
-
-    def var(sl):
-        return float(noise_energy_variance(s[sl].sum(), s[sl].size, noise, per_dof, noise_dof))
-
-    total = float(s.sum()) + comp
-    if total <= 0:
-        return
-    k10 = 10 / np.log(10)
-    for ms, cname, dname in ((50, "c50_db", "d50"), (80, "c80_db", None)):
-        n = pre + int(round(ms / 1000 * rate))
-        early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
-        if early <= 0 or late <= 0:
-            continue
-        v_e, v_l = var(slice(0, n)), var(slice(n, None))
-        sig_c = k10 * np.sqrt(v_e / early**2 + v_l / late**2)
-        _judge_sigma(res, cname, cname[:3].upper(), float(sig_c), JND[cname][1], " dB", label)
-        if dname:
-            d = early / total
-            sig_d = d * (1 - d) * np.sqrt(v_e / early**2 + v_l / late**2)
-            _judge_sigma(res, dname, "D50", float(sig_d), JND[dname][1], "", label)
-    moment = float(np.sum(t * s))
-    if moment > 0:
-        v_m = per_dof * float(np.sum(t**2 * (4 * noise * s + 2 * noise**2)))
-        v_m += (noise * float(np.sum(t))) ** 2 / max(noise_dof, 1.0)
-        v_t = var(slice(None))
-        ts = 1000 * moment / total
-        sig_ts = ts * np.sqrt(v_m / moment**2 + v_t / total**2)
-        _judge_sigma(res, "ts_ms", "Ts", float(sig_ts), JND["ts_ms"][1], " ms", label)
+    source = _noise_variance(e, t, noise, _dof_samples(band, rate), noise_dof)
+    for m, sigma in _ratio_sigmas(source, t, pre, rate, comp).items():
+        _judge_sigma(res, m, _RATIO_NAMES[m], sigma, JND[m][1], _RATIO_UNITS[m], label)
 
 
 def _energy_ratios(
@@ -815,7 +968,12 @@ def _energy_ratios(
         _ratio_noise_uncertainty(res, e, t, pre, rate, noise, comp, band, noise_dof, label)
     if band is not None and others:
         _filter_sensitivity(res, corrected, others, rate, onset, tr, pre, k, label)
-    _ratio_statistics(res, e - noise, t, pre, rate, comp, k, band, label)
+    # The randomness of the diffuse decay: one position's value against the room's.
+    missing = frozenset(m for m in RATIO_METRICS if getattr(res, m) is None)
+    source = _diffuse_decay_variance(e - noise, t, pre, rate, comp, k, band)
+    sigmas = _ratio_sigmas(source, t, pre, rate, comp, ts_ms=res.ts_ms, skip=missing)
+    for m, sigma in sigmas.items():
+        _judge_statistics(res, m, _RATIO_NAMES[m], sigma, _RATIO_UNITS[m], label)
     if raw is None:
         return
     for m, v in corrected.items():
@@ -834,78 +992,6 @@ def _energy_ratios(
                 f"(more than half its JND of {jnd:g}{unit}); it was corrected, but the "
                 "correction is only as good as the noise estimate",
             )
-
-
-def _ratio_statistics(
-    res: BandResult,
-    e: np.ndarray,
-    t: np.ndarray,
-    pre: int,
-    rate: int,
-    comp: float,
-    k: float,
-    band: Band | None,
-    label: str,
-) -> None:
-    """Caution on C50, C80, D50 and Ts whose single-position statistical uncertainty exceeds
-    half the JND.
-
-    A diffuse decay is a random signal: a band of width B carries about B independent energy
-    values per second, so an energy sum over a window, Σ e(t), varies by
-    (rate/B)·Σ ē(t)² (ē the smoothed energy; Gaussian band-limited noise, Bendat & Piersol
-    2010 — from memory). Early and late sums are propagated into each ratio; one position's
-    value can differ from the room's by that much, as its decay times do (ISO 3382-2 A.2).
-    The direct sound is deterministic: over it the smoothed energy is capped at the diffuse
-    level that follows it.
-    """
-    per_dof = _dof_samples(band, rate)
-    L = max(1, int(round(per_dof)))
-    s = np.maximum(e, 0.0)
-    if L > 1:
-        c = np.cumsum(np.concatenate([[0.0], s]))
-        lo = np.clip(np.arange(s.size) - L // 2, 0, s.size)
-        hi = np.clip(lo + L, 0, s.size)
-        smooth = (c[hi] - c[lo]) / np.maximum(hi - lo, 1)
-    else:
-        smooth = s
-    # The direct sound is not random: cap the smoothed energy over it (2.5 ms and the band
-    # filter's spread) at the diffuse level just after it, continued back at the decay rate.
-    bw = band.bandwidth if band is not None else rate / 2.0
-    w_end = pre + int(round((DIRECT_SOUND_S + 1.0 / bw) * rate))
-    if 0 < w_end < smooth.size - L:
-        after = float(np.mean(smooth[w_end : w_end + L]))
-        back = (w_end - np.arange(w_end)) / rate
-        cap = after * np.exp(min(k, 1e4) * back) if k > 0 else np.full(w_end, after)
-        smooth = smooth.copy()
-        smooth[:w_end] = np.minimum(smooth[:w_end], cap)
-    k_n = k / rate if k > 0 else 0.0  # per sample
-    e_c = float(smooth[-1]) if smooth.size else 0.0
-    comp_var = per_dof * e_c**2 / (2 * k_n) if k_n > 0 and comp > 0 else 0.0
-
-    def var(sl):
-        return per_dof * float(np.sum(np.square(smooth[sl])))
-
-    total = float(s.sum()) + comp
-    if total <= 0:
-        return
-    k10 = 10 / np.log(10)
-    for ms, cname, dname in ((50, "c50_db", "d50"), (80, "c80_db", None)):
-        n = pre + int(round(ms / 1000 * rate))
-        early, late = float(s[:n].sum()), float(s[n:].sum()) + comp
-        if early <= 0 or late <= 0 or getattr(res, cname) is None:
-            continue
-        rel2 = var(slice(0, n)) / early**2 + (var(slice(n, None)) + comp_var) / late**2
-        _judge_statistics(res, cname, cname[:3].upper(), k10 * np.sqrt(rel2), " dB", label)
-        if dname and res.d50 is not None:
-            d = early / total
-            _judge_statistics(res, dname, "D50", d * (1 - d) * np.sqrt(rel2), "", label)
-    if res.ts_ms is not None:
-        moment = float(np.sum(t * s))
-        if moment > 0:
-            v_m = per_dof * float(np.sum(np.square(t * smooth)))
-            v_t = var(slice(None)) + comp_var
-            sigma = res.ts_ms * np.sqrt(v_m / moment**2 + v_t / total**2)
-            _judge_statistics(res, "ts_ms", "Ts", sigma, " ms", label)
 
 
 def _judge_statistics(

@@ -61,10 +61,24 @@ _FMT = {
 
 
 def fmt(metric: str, value) -> str:
+    """A value formatted for tables with the metric's precision; ``"—"`` for a missing one.
+
+    Examples
+    --------
+    >>> fmt("t30_s", 1.234), fmt("c80_db", -0.46), fmt("d50", None)
+    ('1.23', '-0.5', '—')
+    """
     return "—" if value is None else _FMT[metric].format(value)
 
 
 def band_label(band_hz) -> str:
+    """A band's short label from its nominal centre in Hz (``None``: the wideband row).
+
+    Examples
+    --------
+    >>> band_label(125.0), band_label(2000.0), band_label(None)
+    ('125', '2k', 'wide')
+    """
     if band_hz is None:
         return "wide"
     return f"{band_hz / 1000:g}k" if band_hz >= 1000 else f"{band_hz:g}"
@@ -74,22 +88,64 @@ _JUDGED = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "g_db"
 
 
 def metrics_of(doc) -> tuple[str, ...]:
+    """The metric keys a study document holds, in column order (G only when calibrated).
+
+    Examples
+    --------
+    >>> "g_db" in metrics_of({"settings": {"calibration": None}})
+    False
+    """
     return METRICS + (("g_db",) if doc["settings"].get("calibration") is not None else ())
 
 
 def value_verdict(row: dict, metric: str) -> str:
-    """The verdict of one value in a band row (its own, else the band's)."""
+    """The verdict of one value in a band row (its own, else the band's).
+
+    Examples
+    --------
+    >>> value_verdict({"t30_s": 1.2, "verdicts": {"t30_s": "caution"}}, "t30_s")
+    'caution'
+    >>> value_verdict({"t30_s": None}, "t30_s")
+    'not evaluable'
+    """
     if row.get(metric) is None:
         return NOT_EVALUABLE
     return (row.get("verdicts") or {}).get(metric, OK)
 
 
 def marked(row: dict, metric: str) -> str:
-    """The formatted value with its caution mark."""
+    """The formatted value with its caution mark.
+
+    Examples
+    --------
+    >>> marked({"c80_db": 1.26, "verdicts": {"c80_db": "caution"}}, "c80_db")
+    '+1.3*'
+    """
     return fmt(metric, row.get(metric)) + MARK[value_verdict(row, metric)]
 
 
 def table_rows(position: dict, metrics) -> list[list[str]]:
+    """One table row per band of a position (and its wideband row): the band label,
+    each metric's value with its caution mark, and the band's verdict.
+
+    Parameters
+    ----------
+    position : dict
+        One entry of the study document's ``positions``.
+    metrics : sequence of str
+        Metric keys, in column order.
+
+    Returns
+    -------
+    list of list of str
+
+    Examples
+    --------
+    >>> row = {"band_hz": 1000.0, "t30_s": 1.23, "verdicts": {"t30_s": "caution"},
+    ...        "verdict": "caution"}
+    >>> table_rows({"bands": [row], "wideband": dict(row, band_hz=None)}, ["t30_s"])
+    [['1k', '1.23*', 'caution'], ['wide', '1.23*', 'caution']]
+    """
     rows = []
     for r in position["bands"] + [position["wideband"]]:
         rows.append(
@@ -99,7 +155,15 @@ def table_rows(position: dict, metrics) -> list[list[str]]:
 
 
 def single_number_lines(doc: dict) -> list[str]:
-    """The mid-frequency single numbers in words, with units and verdicts."""
+    """The mid-frequency single numbers in words, with units and verdicts.
+
+    Examples
+    --------
+    >>> doc = {"settings": {"bands": "octave"}, "average": {"single_numbers": {
+    ...     "t30_mid_s": 1.234}, "single_number_verdicts": {"t30_mid_s": "ok"}}}
+    >>> single_number_lines(doc)
+    ['Reverberation time T30, mean of 500 Hz and 1 kHz: 1.23 s']
+    """
     sn = doc["average"]["single_numbers"]
     verdicts = doc["average"].get("single_number_verdicts", {})
     mids = "500 Hz and 1 kHz" if doc["settings"]["bands"] == "octave" else "400 Hz–1.25 kHz"
@@ -114,7 +178,13 @@ def single_number_lines(doc: dict) -> list[str]:
 
 
 def mean_with_spread(metric, row) -> str:
-    """An averaged value as ``mean±std`` with its caution mark (— when not evaluable)."""
+    """An averaged value as ``mean±std`` with its caution mark (— when not evaluable).
+
+    Examples
+    --------
+    >>> mean_with_spread("t30_s", {"t30_s": {"mean": 1.25, "std": 0.04, "verdict": "ok"}})
+    '1.25±0.04'
+    """
     s = row[metric]
     if s["mean"] is None:
         return "—"
@@ -124,7 +194,20 @@ def mean_with_spread(metric, row) -> str:
 
 
 def csv_text(doc: dict) -> str:
-    """One row per position × band (wideband as band 'wideband'), then the averages."""
+    """One row per position × band (wideband as band 'wideband'), then the averages.
+
+    Examples
+    --------
+    >>> from roomconv.analysis.study import analyse_arrays
+    >>> rate, T = 8000, 0.6
+    >>> t = np.arange(int(1.5 * rate)) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> lines = csv_text(analyse_arrays([("hall.wav", h[:, None], rate)]).document).splitlines()
+    >>> lines[0].split(",")[:6]
+    ['file', 'channel', 'band_hz', 'edt_s', 't20_s', 't30_s']
+    >>> lines[1].split(",")[:3]
+    ['hall.wav', '1', '31.5']
+    """
     metrics = metrics_of(doc)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
@@ -163,6 +246,28 @@ def _png(fig) -> str:
 
 
 def decay_figure(results, rate: int, title: str):
+    """A matplotlib figure of the decay curves (dB from the onset) of a position's bands.
+
+    Parameters
+    ----------
+    results : sequence of BandResult
+        Band results with their ``curve_db``.
+    rate : int
+        Sample rate of the curves, Hz.
+    title : str
+        The figure's title.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> from roomconv.analysis.parameters import BandResult
+    >>> r = BandResult(1000.0, curve_db=-60 * np.arange(800) / 800)
+    >>> decay_figure([r], 1000, "one band").axes[0].get_title()
+    'one band'
+    """
     from matplotlib.figure import Figure  # lazy: only reports need matplotlib
 
     fig = Figure(figsize=(8, 4.2))
@@ -193,7 +298,15 @@ def decay_figure(results, rate: int, title: str):
 
 def band_figure(doc: dict, metric: str, ylabel: str, extra: dict | None = None):
     """Per-band values of ``metric`` at every position, the average with error bars, and
-    optional extra series {label: {band_hz: value}} (e.g. a prediction)."""
+    optional extra series {label: {band_hz: value}} (e.g. a prediction).
+
+    Examples
+    --------
+    >>> doc = {"positions": [], "average": {"bands": [{"band_hz": 1000.0,
+    ...     "t30_s": {"mean": 1.2, "std": 0.05}}]}}
+    >>> band_figure(doc, "t30_s", "T30 (s)").axes[0].get_ylabel()
+    'T30 (s)'
+    """
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(8, 3.6))
@@ -270,7 +383,18 @@ def html_report(
     """A self-contained HTML page: ``sections`` are (heading, trusted HTML) placed first.
 
     ``cautions`` ends the page with the playback caution, for pages that also offer sound
-    (the demo's renders); a page of results alone leaves it out."""
+    (the demo's renders); a page of results alone leaves it out.
+
+    Examples
+    --------
+    >>> from roomconv.analysis.study import analyse_arrays
+    >>> rate, T = 8000, 0.6
+    >>> t = np.arange(int(1.5 * rate)) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> page = html_report(analyse_arrays([("hall.wav", h[:, None], rate)]), title="Hall")
+    >>> "<title>Hall</title>" in page, "data:image/png;base64," in page
+    (True, True)
+    """
     doc = study.document
     metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]

@@ -47,6 +47,16 @@ def decay_time_uncertainty(
     References
     ----------
     ISO 3382-2:2008, Annex A, eqs. (A.1)–(A.2) (from memory).
+
+    Examples
+    --------
+    T = 2 s in the 1 kHz octave (B = 707 Hz), one position, an integrated response counted
+    as n = 10 decays: 0.55·2·sqrt((1 + 1.52/10)/(1·707.1·2)):
+
+    >>> round(decay_time_uncertainty(2.0, 707.1, 1, "t30"), 4)
+    0.0314
+    >>> round(float(0.55 * 2 * np.sqrt((1 + 1.52 / 10) / (707.1 * 2))), 4)
+    0.0314
     """
     if kind not in ("t20", "t30"):
         raise ValueError("kind is t20 or t30")
@@ -78,6 +88,18 @@ def spatial_average(
     Null values are left out of a mean; ``n`` says how many were used. The mean's
     ``verdict`` is "caution" when any value in it was flagged, "not evaluable" when none
     could be used.
+
+    Examples
+    --------
+    >>> from roomconv.analysis.parameters import BandResult
+    >>> rows = []
+    >>> for t30 in (1.0, 1.2):
+    ...     r = BandResult(500.0, t30_s=t30)
+    ...     r.finish(with_g=False)
+    ...     rows.append([r.as_dict()])
+    >>> avg = spatial_average(rows)
+    >>> avg[0]["t30_s"]["mean"], round(avg[0]["t30_s"]["std"], 4), avg[0]["t30_s"]["n"]
+    (1.1, 0.1414, 2)
     """
     by_band: dict[float, list[dict]] = {}
     for pos in positions:
@@ -141,6 +163,13 @@ def single_numbers(average: list[dict], kind: str = "octave", *, with_verdicts: 
 
     A value needs every mid band; G appears only when the average holds G. With
     ``with_verdicts`` also returns a verdict per value: the worst of its bands'.
+
+    Examples
+    --------
+    >>> avg = [{"band_hz": f, **{m: {"mean": None} for m in METRICS}} for f in (500, 1000)]
+    >>> avg[0]["t30_s"]["mean"], avg[1]["t30_s"]["mean"] = 1.2, 1.0
+    >>> round(single_numbers(avg)["t30_mid_s"], 6), single_numbers(avg)["c80_mid_db"]
+    (1.1, None)
     """
     mids = (500, 1000) if kind == "octave" else (400, 500, 630, 800, 1000, 1250)
     rows = [r for r in average if r["band_hz"] in mids]

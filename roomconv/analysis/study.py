@@ -30,6 +30,14 @@ VERDICT_TEXT = (
 
 
 def reference_to_dict(ref) -> dict:
+    """The JSON layout of a strength reference, as the study document's settings carry it
+    (:func:`roomconv.analysis.calibration.reference_to_dict`).
+
+    Examples
+    --------
+    >>> reference_to_dict(parse_calibration("-40"))["wideband_db"]
+    -40.0
+    """
     from .calibration import reference_to_dict as to_dict
 
     return to_dict(ref)
@@ -37,7 +45,19 @@ def reference_to_dict(ref) -> dict:
 
 @dataclass
 class Study:
-    """Results of :func:`analyse_files`: the contract document plus curves for plotting."""
+    """Results of :func:`analyse_files`: the contract document plus curves for plotting.
+
+    Examples
+    --------
+    >>> rate, T = 8000, 0.6
+    >>> t = np.arange(int(1.5 * rate)) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> study = analyse_arrays([("hall.wav", h[:, None], rate)])
+    >>> sorted(study.document)
+    ['average', 'errors', 'notes', 'positions', 'roomconv_version', 'settings']
+    >>> list(study.curves)
+    [('hall.wav', 1)]
+    """
 
     document: dict
     #: (file, channel) → (band results, wideband result, sample rate)
@@ -47,7 +67,13 @@ class Study:
 
 def parse_calibration(text: str | None):
     """The strength calibration option: a number (dB, wideband G only) or a file written by
-    ``roomconv calibrate``; ``None`` when not given. See :mod:`roomconv.analysis.calibration`."""
+    ``roomconv calibrate``; ``None`` when not given. See :mod:`roomconv.analysis.calibration`.
+
+    Examples
+    --------
+    >>> parse_calibration(None) is None, parse_calibration("-40").wideband_db
+    (True, -40.0)
+    """
     if text is None:
         return None
     from .calibration import parse_strength_reference
@@ -62,6 +88,18 @@ def analyse_arrays(
 
     ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
     Channels are numbered from 1 in the document, as a person counts them.
+
+    Examples
+    --------
+    An exponential decay of T = 0.6 s gives T30 near 0.6 s at mid frequencies (within the
+    single-position statistical spread, ISO 3382-2 A.2):
+
+    >>> rate, T = 8000, 0.6
+    >>> t = np.arange(int(1.5 * rate)) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> doc = analyse_arrays([("hall.wav", h[:, None], rate)]).document
+    >>> doc["positions"][0]["channel"], round(doc["average"]["single_numbers"]["t30_mid_s"], 1)
+    (1, 0.6)
     """
     positions, curves, errors, notes = [], {}, [], []
     for name, data, rate in items:
@@ -130,6 +168,18 @@ def analyse_files(
 
     A file that cannot be read is reported in ``errors`` and the rest go on; if none can be
     analysed, :class:`InputError` is raised.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, soundfile
+    >>> rate, T = 8000, 0.6
+    >>> t = np.arange(int(1.5 * rate)) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     soundfile.write(pathlib.Path(tmp) / "hall.wav", 0.5 * h, rate, subtype="DOUBLE")
+    ...     study = analyse_files([pathlib.Path(tmp) / "hall.wav", pathlib.Path(tmp) / "no.wav"])
+    >>> len(study.document["positions"]), len(study.errors)
+    (1, 1)
     """
     items, errors = [], []
     for p in paths:

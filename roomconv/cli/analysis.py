@@ -66,6 +66,20 @@ def show_study(doc: dict) -> None:
 
 
 def run_analyze(a):
+    """Run ``roomconv analyze``: ISO 3382 parameters of the responses given (or of a study file's)
+    through :func:`roomconv.jobs.analyze.analyze_study`, shown as tables and written as
+    JSON, CSV and a report when asked.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     if a.study is not None:
         return _run_study(a)
     if not a.irs:
@@ -128,6 +142,7 @@ def _run_study(a):
 
 
 def configure_analyze(p):
+    """Add the options of ``roomconv analyze`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "irs",
         nargs="*",

@@ -61,6 +61,19 @@ def _channel(text: str | None) -> int | None:
 
 
 def run_calibrate(a):
+    """Run ``roomconv calibrate``: a strength reference for G from free-field responses of the
+    source (or a reverberation-room measurement) through :mod:`roomconv.jobs.calibrate`.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     room = [
         o
         for o in ("room_volume", "room_reverberation", "room_surface")
@@ -149,6 +162,7 @@ def show_reference(ref, a) -> None:
 
 
 def configure_calibrate(p):
+    """Add the options of ``roomconv calibrate`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "reference",
         type=Path,

@@ -45,6 +45,7 @@ class Parser(argparse.ArgumentParser):
         self._negative_number_matcher = re.compile(r"^-(\d|\.\d|inf|nan)", re.IGNORECASE)
 
     def error(self, message):
+        """Print ``message`` as one line that points to ``--help`` and exit with code 2."""
         self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
 
 

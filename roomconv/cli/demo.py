@@ -11,6 +11,19 @@ __all__ = ["COMMANDS"]
 
 
 def run_demo_command(a):
+    """Run ``roomconv demo``: the demo study of our own hall (:func:`roomconv.demo.run_demo`)
+    with a progress bar, then its mid-frequency summary and the files written.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     from ..demo import run_demo
 
     with progress_bar("demo", quiet=a.quiet) as progress:
@@ -63,6 +76,7 @@ def run_demo_command(a):
 
 
 def configure_demo(p):
+    """Add the options of ``roomconv demo`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("--out", type=Path, default=Path("demo_out"), help="output folder (demo_out)")
     p.add_argument("--quick", action="store_true", help="a smaller study (for tests)")
     p.add_argument("--force", action="store_true", help="overwrite the demo's earlier files")

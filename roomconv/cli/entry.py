@@ -31,6 +31,18 @@ def command_groups() -> list:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    """The ``roomconv`` parser: the common options and one sub-parser per command of every
+    group in :func:`command_groups`.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+
+    Examples
+    --------
+    >>> build_parser().parse_args(["sweep", "s.wav"]).command
+    'sweep'
+    """
     parser = Parser(
         prog="roomconv",
         parents=[common_options()],
@@ -98,6 +110,25 @@ def _restore_signal_handlers(old: dict) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run the command line: parse ``argv``, run the command, turn errors into exit codes.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments after the program's name (default: ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        0 on success, 2 for a refused input or option (one line naming it), 1 for any
+        other failure; a failed command removes the files it created.
+
+    Examples
+    --------
+    >>> main(["--version"])  # doctest: +ELLIPSIS
+    roomconv ...
+    0
+    """
     parser = build_parser()
     try:
         args = parser.parse_args(argv)

@@ -170,6 +170,19 @@ def format_quality(quality: dict) -> str:
 
 # --- sweep ---------------------------------------------------------------------------------
 def run_sweep(a):
+    """Run ``roomconv sweep``: write an exponential sweep and its description
+    (:func:`roomconv.jobs.measure.write_sweep`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     _sweep_budget(a)
     s = _sweep_from_args(a)
     jobs.write_sweep(a.output, s, subtype=a.subtype, force=a.force)
@@ -182,6 +195,7 @@ def run_sweep(a):
 
 
 def configure_sweep(p):
+    """Add the options of ``roomconv sweep`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("output", type=Path, help="the sweep WAV to write")
     _sweep_options(p, level_default=-6.0)
     p.add_argument("--subtype", default="FLOAT", help="WAV sample format (FLOAT, PCM_24, ...)")
@@ -250,6 +264,19 @@ def _named(exc: InputError) -> InputError:
 
 
 def run_extract(a):
+    """Run ``roomconv extract``: impulse responses from a recording on disk
+    (:func:`roomconv.jobs.measure.extract_recording`), with their quality figures.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     with progress_bar("extracting", quiet=a.quiet) as progress:
         try:
             res = jobs.extract_recording(
@@ -273,6 +300,7 @@ def run_extract(a):
 
 
 def configure_extract(p):
+    """Add the options of ``roomconv extract`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("recording", type=Path, help="the recorded sweep (one or more channels)")
     p.add_argument("--sweep", type=Path, required=True, help="the sweep WAV that was played")
     p.add_argument("-o", "--output", type=Path, required=True, help="IR WAV to write")
@@ -281,6 +309,20 @@ def configure_extract(p):
 
 # --- measure -------------------------------------------------------------------------------
 def run_measure(a):
+    """Run ``roomconv measure``: play a sweep and record it through a sound card, or
+    through a simulated room, after the hearing caution
+    (:func:`roomconv.jobs.measure.measure_position`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     budget("--level", safety.check_level, a.level)
     _sweep_budget(a, channels=1 + len(a.input_channels) if a.simulate is None else 2)
     budget("--sim-latency", validate.memory_budget, a.sim_latency, "this simulated latency")
@@ -316,6 +358,7 @@ def run_measure(a):
 
 
 def configure_measure(p):
+    """Add the options of ``roomconv measure`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("output", type=Path, help="IR WAV to write")
     _sweep_options(p, level_default=safety.START_LEVEL_DBFS)
     g = p.add_argument_group("device")

@@ -15,6 +15,9 @@ __all__ = ["COMMANDS", "render_options", "settings_from_args", "describe_report"
 
 
 def render_options(p):
+    """Add the rendering options that ``render`` and ``batch`` share (mix, pre-delay, gain,
+    normalization, format, routing) to the parser ``p``.
+    """
     v = validate
     g = p.add_argument_group("rendering")
     g.add_argument(
@@ -169,6 +172,19 @@ def _named(exc: InputError) -> InputError:
 
 
 def run_render(a):
+    """Run ``roomconv render``: one dry file through one response
+    (:func:`roomconv.jobs.render.render_one`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, [a.dry])
     with progress_bar("rendering", quiet=a.quiet) as progress:
@@ -183,6 +199,7 @@ def run_render(a):
 
 
 def configure_render(p):
+    """Add the options of ``roomconv render`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("dry", type=Path, help="dry recording")
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("-o", "--output", type=Path, required=True, help="wet file to write")
@@ -190,6 +207,20 @@ def configure_render(p):
 
 
 def run_batch(a):
+    """Run ``roomconv batch``: every dry file through every response
+    (:func:`roomconv.jobs.render.run_batch`); the exit code is 0 when nothing failed,
+    2 when every failure was bad input, else 1.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, a.dry)
     view = BatchView(len(a.dry) * len(a.ir), quiet=a.quiet)
@@ -220,6 +251,7 @@ def run_batch(a):
 
 
 def configure_batch(p):
+    """Add the options of ``roomconv batch`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("dry", nargs="+", type=Path, help="dry files")
     p.add_argument("--ir", nargs="+", type=Path, required=True, help="impulse responses")
     p.add_argument("--out-dir", type=Path, required=True, help="folder for <dry>__<ir>.wav")
@@ -239,6 +271,19 @@ def configure_batch(p):
 
 
 def run_live(a):
+    """Run ``roomconv live``: convolve a sound-card input in real time, after the hearing
+    caution, with a capped and ramped output (:func:`roomconv.jobs.render.run_live`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     from ..render.mix import describe_balance
 
     budget("--ceiling", jobs.check_ceiling, a.ceiling)
@@ -292,6 +337,7 @@ def run_live(a):
 
 
 def configure_live(p):
+    """Add the options of ``roomconv live`` to its sub-parser ``p`` (an argparse parser)."""
     v = validate
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument(

@@ -12,6 +12,19 @@ __all__ = ["COMMANDS"]
 
 
 def run_study(a):
+    """Run ``roomconv study``: write a study-file template (``init``) or check one
+    (``check``) through :mod:`roomconv.jobs.study`.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     if a.action == "init":
         init_study(a.path, title=a.title, force=a.force)
         out(f"wrote {a.path}: fill it in, then 'roomconv analyze --study {a.path} --report DIR'", a)
@@ -32,6 +45,7 @@ def run_study(a):
 
 
 def configure_study(p):
+    """Add the options of ``roomconv study`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "action",
         choices=("init", "check"),

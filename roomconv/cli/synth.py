@@ -60,6 +60,19 @@ def show_prediction(result, a) -> None:
 
 
 def run_synth(a):
+    """Run ``roomconv synth``: synthesize a room's impulse response
+    (:func:`roomconv.jobs.synth.synthesize_room`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     receivers = budget("--stereo", jobs.receivers_of, a.stereo)
     budget("--length", jobs.check_length, a.length, a.rate, receivers)
     rt = budget("--rt60", jobs.parse_band_values, a.rt60, "reverberation time")
@@ -154,6 +167,7 @@ def _room_options(p):
 
 
 def configure_synth(p):
+    """Add the options of ``roomconv synth`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("output", type=Path, help="IR WAV to write")
     _room_options(p)
     p.add_argument(
@@ -219,6 +233,19 @@ def configure_synth(p):
 
 
 def run_rooms(a):
+    """Run ``roomconv rooms``: the materials table with its absorption coefficients per octave
+    (:func:`roomconv.jobs.synth.materials_table`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     from ..synth.materials import OCTAVES
 
     table = jobs.materials_table(materials_file=a.materials_file, json_path=a.json, force=a.force)
@@ -236,12 +263,26 @@ def run_rooms(a):
 
 
 def configure_rooms(p):
+    """Add the options of ``roomconv rooms`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("--materials-file", type=Path, default=None, help="add materials from a file")
     p.add_argument("--json", type=Path, default=None, help="also write the table as JSON")
     p.add_argument("--force", action="store_true", help="replace an existing JSON output")
 
 
 def run_edit(a):
+    """Run ``roomconv edit``: trim, fade, rescale the decay or normalize a response into a
+    new file (:func:`roomconv.jobs.synth.edit_response`).
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     scales = (
         budget(
             "--decay-scale",
@@ -285,6 +326,7 @@ def run_edit(a):
 
 
 def configure_edit(p):
+    """Add the options of ``roomconv edit`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("input", type=Path, help="IR to edit (never modified)")
     p.add_argument("-o", "--output", type=Path, required=True, help="edited IR to write")
     p.add_argument(

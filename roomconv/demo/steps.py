@@ -57,7 +57,16 @@ def run_demo(
     out, *, quick: bool = False, force: bool = False, progress: ProgressCallback = silent, log=print
 ) -> dict:
     """Run the whole study into ``out``; returns a summary dict (also written as
-    ``summary.json``). ``log`` receives notes (a missing clip)."""
+    ``summary.json``). ``log`` receives notes (a missing clip).
+
+    Examples
+    --------
+    Not run here (the quick study takes tens of seconds); ``tests/demo/test_demo.py`` runs
+    it. A typical call::
+
+        summary = run_demo("demo_out", quick=True)
+        summary["files"]    # the responses, renders, results and reports written
+    """
     from ..jobs.guard import make_folders, write_document
     from ..measure.sweep import Sweep
 
@@ -103,7 +112,13 @@ def run_demo(
 
 
 def true_responses(run: _Run, room) -> dict:
-    """1. The hall's own responses at every position (what a real hall would be)."""
+    """1. The hall's own responses at every position (what a real hall would be).
+
+    Examples
+    --------
+    Step 1 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..synth.generate import synthesize
 
     truths = {}
@@ -119,7 +134,13 @@ def true_responses(run: _Run, room) -> dict:
 
 def measure_positions(run: _Run, truths: dict, sweep) -> dict:
     """2. Each position through the simulated chain (loudspeaker distortion, card latency,
-    loopback, pink background noise), extracted by the measurement job."""
+    loopback, pink background noise), extracted by the measurement job.
+
+    Examples
+    --------
+    Step 2 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.measure import measure_position
     from ..measure.capture import SimulatedDevice
     from ..measure.sweep import sweep_signal
@@ -156,7 +177,13 @@ def measure_positions(run: _Run, truths: dict, sweep) -> dict:
 
 
 def analyse_positions(run: _Run, room, qualities: dict):
-    """3. ISO 3382 analysis of every measured position, compared with the prediction."""
+    """3. ISO 3382 analysis of every measured position, compared with the prediction.
+
+    Examples
+    --------
+    Step 3 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.analyze import analyze_study
     from ..synth.room import eyring, sabine
 
@@ -194,7 +221,13 @@ def analyse_positions(run: _Run, room, qualities: dict):
 
 
 def stereo_pairs(run: _Run, room) -> dict:
-    """4. A measured stereo pair (two microphones of source 1) and its synthetic twin."""
+    """4. A measured stereo pair (two microphones of source 1) and its synthetic twin.
+
+    Examples
+    --------
+    Step 4 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.synth import pair_responses, synthesize_room
 
     sc = run.scenario
@@ -226,7 +259,13 @@ def stereo_pairs(run: _Run, room) -> dict:
 
 
 def render_clips(run: _Run, pairs: dict) -> list:
-    """5. The dry clips through the measured pair; the first also through the prediction."""
+    """5. The dry clips through the measured pair; the first also through the prediction.
+
+    Examples
+    --------
+    Step 5 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.naming import render_output_name
     from ..jobs.render import render_one
     from ..render.offline import RenderSettings
@@ -251,7 +290,13 @@ def render_clips(run: _Run, pairs: dict) -> list:
 
 
 def write_report(run: _Run, room, sweep, study, comparison, renders) -> None:
-    """6. results.json, results.csv and report.html, with one provenance sidecar each."""
+    """6. results.json, results.csv and report.html, with one provenance sidecar each.
+
+    Examples
+    --------
+    Step 6 of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.analyze import write_study
     from ..synth.room import eyring, sabine
 
@@ -277,7 +322,13 @@ def write_report(run: _Run, room, sweep, study, comparison, renders) -> None:
 
 def client_report(run: _Run, room, sweep) -> list[Path]:
     """6b. The study file and the client report (report/report.html and .pdf) from it, as a
-    consultant sends them; the HTML alone, saying why, where no PDF engine is installed."""
+    consultant sends them; the HTML alone, saying why, where no PDF engine is installed.
+
+    Examples
+    --------
+    Step 6b of :func:`run_demo`, which builds the shared run state and calls the steps in
+    order; ``tests/demo/`` runs the whole demo.
+    """
     from ..jobs.study import report_study, write_study_file
 
     study_file = write_study_file(

@@ -19,13 +19,19 @@ __all__ = ["analyze_study", "export_study", "write_study", "AnalyzeResult"]
 @dataclass
 class AnalyzeResult:
     """The study and the files written; ``errors`` name the responses that could not be
-    read (the outputs hold the others)."""
+    read (the outputs hold the others).
+
+    Examples
+    --------
+    See :func:`analyze_study`, which returns one.
+    """
 
     study: Study
     written: list[Path] = field(default_factory=list)
 
     @property
     def errors(self) -> list[str]:
+        """The responses that could not be read or analysed, one message each."""
         return self.study.errors
 
 
@@ -83,6 +89,20 @@ def write_study(
         share one sidecar).
     inputs : sequence of path-like
         Files no output may replace.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> soundfile.write(d / "pos1.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = analyze_study([d / "pos1.wav"]).study
+    >>> [p.name for p in write_study(study, csv_path=d / "results.csv")]
+    ['results.csv']
+    >>> tmp.cleanup()
     """
     from ..audio import sidecar_path, write_provenance
 
@@ -132,6 +152,22 @@ def analyze_study(
         Folder for ``report.html`` (created only when the page is written).
     force : bool
         Replace existing outputs (never an input).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> soundfile.write(d / "pos1.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> res = analyze_study([d / "pos1.wav"], json_path=d / "results.json")
+    >>> [p.name for p in res.written], res.errors
+    (['results.json'], [])
+    >>> round(res.study.document["average"]["single_numbers"]["t30_mid_s"], 1)
+    0.5
+    >>> tmp.cleanup()
     """
     inputs = [Path(p) for p in irs]
     with guarded(inputs, force=force) as g:
@@ -164,7 +200,22 @@ def analyze_study(
 
 def export_study(study: Study, folder, *, force: bool = False) -> list[Path]:
     """Write a study already computed as ``results.json``, ``results.csv`` and
-    ``report.html`` in ``folder`` (created when missing)."""
+    ``report.html`` in ``folder`` (created when missing).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> soundfile.write(d / "pos1.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = analyze_study([d / "pos1.wav"]).study
+    >>> [p.name for p in export_study(study, d / "export")]
+    ['results.json', 'results.csv', 'report.html']
+    >>> tmp.cleanup()
+    """
     names = study_outputs(folder)
     with guarded(
         [p["file"] for p in study.document["positions"] if Path(p["file"]).is_file()], force=force

@@ -16,6 +16,22 @@ __all__ = ["calibrate_free_field", "calibrate_reverberation_room", "CalibrationR
 
 @dataclass
 class CalibrationResult:
+    """What a calibration job wrote and found.
+
+    Attributes
+    ----------
+    output : Path
+        The strength-reference JSON file written.
+    reference : StrengthReference
+        The reference itself (:class:`roomconv.analysis.calibration.StrengthReference`).
+    notes : list of str
+        Bands left out and why, and other remarks for the user.
+
+    Examples
+    --------
+    See :func:`calibrate_free_field`, which returns one.
+    """
+
     output: Path
     reference: object  #: :class:`roomconv.analysis.calibration.StrengthReference`
     notes: list[str]
@@ -65,6 +81,21 @@ def calibrate_free_field(
     References
     ----------
     ISO 3382-1:2009, Annex A (sound strength G and its reference at 10 m in a free field).
+
+    Examples
+    --------
+    A unit impulse measured at 10 m carries ∫p² dt = 1/rate FS²·s, 10·lg(1/8000) = −39.03 dB:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> h = np.zeros(8000)
+    >>> h[10] = 1.0
+    >>> soundfile.write(d / "ref.wav", h, 8000, subtype="DOUBLE")
+    >>> res = calibrate_free_field(d / "ref.wav", d / "cal.json", distance_m=10.0)
+    >>> res.output.name, round(res.reference.wideband_db, 2)
+    ('cal.json', -39.03)
+    >>> tmp.cleanup()
     """
     from ..analysis.calibration import NEAR_FIELD_M, reference_from_response
 
@@ -104,6 +135,11 @@ def calibrate_reverberation_room(
     References
     ----------
     ISO 3382-1:2009, Annex A; ISO 3741 (sound power in a reverberation room).
+
+    Examples
+    --------
+    See :func:`roomconv.analysis.calibration.reverberation_room_reference` for the method
+    and a worked example; this job reads the responses from files and writes the JSON.
     """
     from ..analysis.calibration import reverberation_room_reference
 

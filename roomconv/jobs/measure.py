@@ -42,7 +42,20 @@ LEVEL_CHECK_HZ, LEVEL_CHECK_S, LEVEL_CHECK_DBFS = 1000.0, 2.0, -40.0
 
 
 def write_sweep(output, sweep: Sweep, *, subtype: str = "FLOAT", force: bool = False) -> Path:
-    """Write the playback WAV and its ``.sweep.json`` sidecar (both planned first)."""
+    """Write the playback WAV and its ``.sweep.json`` sidecar (both planned first).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> from roomconv.measure.sweep import Sweep
+    >>> write_sweep(d / "sweep.wav", Sweep(duration=0.5)).name
+    'sweep.wav'
+    >>> sorted(p.name for p in d.iterdir())
+    ['sweep.sweep.json', 'sweep.wav']
+    >>> tmp.cleanup()
+    """
     with guarded(force=force) as g:
         side = sidecar_path(output, "sweep")
         g.file(output)
@@ -53,7 +66,20 @@ def write_sweep(output, sweep: Sweep, *, subtype: str = "FLOAT", force: bool = F
 
 
 def sweep_inputs(sweep_path) -> list[Path]:
-    """The files a job reading ``sweep_path`` reads: the WAV and, when present, its sidecar."""
+    """The files a job reading ``sweep_path`` reads: the WAV and, when present, its sidecar.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> from roomconv.measure.sweep import Sweep, sweep_signal
+    >>> s = Sweep(duration=0.5, silence_pre=0.1, silence_post=0.3)
+    >>> _ = write_sweep(d / "sweep.wav", s)
+    >>> [p.name for p in sweep_inputs(d / "sweep.wav")]
+    ['sweep.wav', 'sweep.sweep.json']
+    >>> tmp.cleanup()
+    """
     return [Path(sweep_path), sidecar_path(sweep_path, "sweep")]
 
 
@@ -61,6 +87,19 @@ def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
     """Read a sweep WAV and, when present and consistent, its sidecar.
 
     Returns ``(signal_1d, rate, sweep_or_None, note)``; ``note`` says why a sidecar was ignored.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> from roomconv.measure.sweep import Sweep, sweep_signal
+    >>> s = Sweep(duration=0.5, silence_pre=0.1, silence_post=0.3)
+    >>> _ = write_sweep(d / "sweep.wav", s)
+    >>> signal, rate, described, note = load_sweep(d / "sweep.wav")
+    >>> rate, described == s, note
+    (48000, True, None)
+    >>> tmp.cleanup()
     """
     data, rate = read_audio(path, what="sweep file")
     sig = data[:, 0]
@@ -84,7 +123,12 @@ def load_sweep(path) -> tuple[np.ndarray, int, Sweep | None, str | None]:
 
 @dataclass
 class MeasureResult:
-    """What a measurement or extraction job wrote and found."""
+    """What a measurement or extraction job wrote and found.
+
+    Examples
+    --------
+    See :func:`extract_recording` and :func:`measure_position`, which return one.
+    """
 
     output: Path
     extraction: Extraction
@@ -94,6 +138,8 @@ class MeasureResult:
 
     @property
     def quality(self) -> dict:
+        """The extraction's quality figures, JSON-ready (see
+        :class:`~roomconv.measure.deconvolve.Extraction`)."""
         return self.extraction.quality
 
 
@@ -203,6 +249,23 @@ def extract_recording(
         Response length, s (default: the silence after the sweep).
     harmonics_dir, json_path : path-like, optional
         Also write harmonic responses into this folder / the quality report as JSON.
+
+    Examples
+    --------
+    A recording delayed by 100 samples gives a response whose peak is at sample 100:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> from roomconv.measure.sweep import Sweep, sweep_signal
+    >>> s = Sweep(duration=0.5, silence_pre=0.1, silence_post=0.3)
+    >>> _ = write_sweep(d / "sweep.wav", s)
+    >>> rec = np.concatenate([np.zeros(100), sweep_signal(s)])
+    >>> soundfile.write(d / "rec.wav", rec, s.rate, subtype="DOUBLE")
+    >>> res = extract_recording(d / "rec.wav", d / "sweep.wav", d / "ir.wav", length_s=0.1)
+    >>> int(np.argmax(np.abs(res.extraction.ir[:, 0]))), [p.name for p in res.written]
+    (100, ['ir.wav', 'ir.provenance.json'])
+    >>> tmp.cleanup()
     """
     inputs = [Path(recording), *sweep_inputs(sweep_path)]
     with guarded(inputs, force=force) as g:
@@ -297,6 +360,23 @@ def measure_position(
         refused).
     harmonic_provenance : bool
         Also write a provenance sidecar beside each harmonic response.
+
+    Examples
+    --------
+    A simulated room that only delays by 50 samples (no sound is played):
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> from roomconv.measure.sweep import Sweep
+    >>> room = np.zeros(2000)
+    >>> room[50] = 0.5
+    >>> soundfile.write(d / "room.wav", room, 48000)
+    >>> res = measure_position(d / "ir.wav", Sweep(duration=0.5, silence_post=0.3),
+    ...                        simulate=d / "room.wav", length_s=0.1)
+    >>> res.simulated, int(np.argmax(np.abs(res.extraction.ir[:, 0])))
+    (True, 50)
+    >>> tmp.cleanup()
     """
     from ..measure.capture import SimulatedDevice, SoundCard, run_measurement
 
@@ -396,6 +476,21 @@ def level_check(
 
     ``on_level(peak_dbfs, fraction)`` is called about every 0.1 s for a live meter. A sound
     card needs ``confirm`` (see :func:`measure_position`).
+
+    Examples
+    --------
+    Through a simulated room of gain 0.5 (no sound is played), the −40 dBFS tone arrives at
+    about 20·lg(0.5) − 40 = −46 dBFS:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> room = np.zeros(2000)
+    >>> room[50] = 0.5
+    >>> soundfile.write(d / "room.wav", room, 48000)
+    >>> round(level_check(simulate=d / "room.wav"))
+    -46
+    >>> tmp.cleanup()
     """
     from ..measure.capture import SimulatedDevice, SoundCard, metered_playrec
 

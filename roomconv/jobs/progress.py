@@ -30,4 +30,15 @@ def silent(stage: str, fraction: float, message: str | None = None) -> None:
 
 
 class Cancelled(Exception):
-    """Raised by a progress callback to stop the job it reports on."""
+    """Raised by a progress callback to stop the job it reports on.
+
+    Examples
+    --------
+    >>> def stop_at_half(stage, fraction, message):
+    ...     if fraction >= 0.5:
+    ...         raise Cancelled(stage)
+    >>> stop_at_half("render", 0.6, None)
+    Traceback (most recent call last):
+    ...
+    roomconv.jobs.progress.Cancelled: render
+    """

@@ -47,7 +47,16 @@ MAX_PREDELAY_MS = 1000.0
 def check_predelay(predelay_ms: float, paths: Sequence) -> None:
     """Refuse a pre-delay longer than any room's (``MAX_PREDELAY_MS``) or whose buffer would
     not fit, at the rate and width of each file it applies to, before any work. Unreadable
-    files are left to the render's own refusal."""
+    files are left to the render's own refusal.
+
+    Examples
+    --------
+    >>> check_predelay(15.0, [])            # a room's pre-delay: accepted
+    >>> check_predelay(1e9, [])
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: ...
+    """
     for p in paths:
         try:
             info = audio_info(p)
@@ -84,6 +93,19 @@ def render_one(
     Returns
     -------
     RenderReport
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> soundfile.write(d / "dry.wav", np.array([0.5, 0.0, 0.0]), 48000, subtype="DOUBLE")
+    >>> soundfile.write(d / "ir.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    >>> s = RenderSettings(subtype="DOUBLE")
+    >>> rep = render_one(d / "dry.wav", d / "ir.wav", d / "wet.wav", s)
+    >>> rep.frames, sorted(p.name for p in d.iterdir())
+    (4, ['dry.wav', 'ir.wav', 'wet.provenance.json', 'wet.wav'])
+    >>> tmp.cleanup()
     """
     settings = settings.check()
     check_predelay(settings.predelay_ms, [dry])
@@ -108,7 +130,12 @@ def render_one(
 @dataclass
 class QueueResult:
     """What :func:`render_many` did: reports of the files written, ``(dry, reason)`` of those
-    that failed, and whether the queue was cancelled."""
+    that failed, and whether the queue was cancelled.
+
+    Examples
+    --------
+    See :func:`render_many`, which returns one.
+    """
 
     out_dir: Path
     reports: list[RenderReport] = field(default_factory=list)
@@ -130,6 +157,21 @@ def render_many(
     A file that cannot be rendered is recorded and the queue goes on; a progress callback
     that raises :class:`Cancelled` stops the queue after removing the unfinished file.
     Progress stages are ``"<k>/<n> <output name>"``, with a fraction per file.
+
+    Examples
+    --------
+    A file that cannot be read is recorded and the queue goes on:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> soundfile.write(d / "dry.wav", np.array([0.5, 0.0, 0.0]), 48000, subtype="DOUBLE")
+    >>> soundfile.write(d / "ir.wav", np.array([1.0, 0.5]), 48000, subtype="DOUBLE")
+    >>> q = render_many([d / "dry.wav", d / "missing.wav"], d / "ir.wav", d / "out",
+    ...                 RenderSettings())
+    >>> [r.output.name for r in q.reports], [p.name for p, _ in q.failed]
+    (['dry__ir.wav'], ['missing.wav'])
+    >>> tmp.cleanup()
     """
     drys = [Path(d) for d in drys]
     if not drys:
@@ -162,16 +204,26 @@ def render_many(
 
 @dataclass
 class BatchResult:
-    """Outcomes of :func:`run_batch` (see :class:`roomconv.render.batch.Outcome`)."""
+    """Outcomes of :func:`run_batch` (see :class:`roomconv.render.batch.Outcome`).
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> r = BatchResult(Path("wet"), [])
+    >>> r.count("done"), r.failed, r.exit_code
+    (0, [], 0)
+    """
 
     out_dir: Path
     outcomes: list
 
     def count(self, status: str) -> int:
+        """How many jobs ended with ``status`` (``"done"``, ``"skipped"``, ``"failed"``...)."""
         return sum(o.status == status for o in self.outcomes)
 
     @property
     def failed(self) -> list:
+        """The outcomes of the jobs that failed."""
         return [o for o in self.outcomes if o.status == "failed"]
 
     @property
@@ -199,6 +251,15 @@ def run_batch(
 
     ``on_event(kind, payload)`` receives the batch runner's events ('skip', 'start',
     'progress', 'done') for a display.
+
+    Examples
+    --------
+    Not run here (it starts worker processes); the batch tests in ``tests/render/`` run it.
+    A typical call::
+
+        result = run_batch(["take1.wav", "take2.wav"], ["hall.wav"], "wet/",
+                           RenderSettings(mix=0.3), workers=2)
+        result.exit_code    # 0 when every job was done or skipped
     """
     from ..render.batch import dask_executor, local_executor, plan_jobs
     from ..render.batch import run_batch as _run
@@ -236,7 +297,16 @@ def run_batch(
 
 
 def check_ceiling(ceiling_dbfs: float) -> None:
-    """Refuse a limiter ceiling above the output cap every sound card output keeps."""
+    """Refuse a limiter ceiling above the output cap every sound card output keeps.
+
+    Examples
+    --------
+    >>> check_ceiling(-1.0)
+    >>> check_ceiling(3.0)
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: limiter ceiling 3 dBFS is above the output cap of -1 dBFS
+    """
     if ceiling_dbfs > safety.OUTPUT_CAP_DBFS:
         raise InputError(
             f"limiter ceiling {ceiling_dbfs:g} dBFS is above the output cap of "
@@ -246,7 +316,20 @@ def check_ceiling(ceiling_dbfs: float) -> None:
 
 @dataclass
 class LiveSetup:
-    """A live convolution ready to start: the processor and the stream's settings."""
+    """A live convolution ready to start: the processor and the stream's settings.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
+    """
 
     processor: LiveProcessor
     rate_hz: int
@@ -275,6 +358,18 @@ def prepare_live(
     The caller shows the hearing caution and obtains confirmation between this and
     :func:`run_live`. ``rate_hz`` None takes the device's default rate (else the response's).
     Channels count from 1.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
     """
     from ..measure.capture import load_sounddevice
     from ..render.stream import LiveProcessor
@@ -307,7 +402,20 @@ def prepare_live(
 
 def run_live(setup: LiveSetup, *, duration_s: float | None = None, on_meter=None, stop_event=None):
     """Run a prepared live convolution until ``duration_s``, the event, or an interrupt;
-    returns the stream statistics."""
+    returns the stream statistics.
+
+    Examples
+    --------
+    Not run here: it plays sound. Show the hearing caution and obtain a confirmation first
+    (the front end's job), then::
+
+        setup = prepare_live("hall.wav", block_samples=128, gain_db=-12.0)
+        # ... caution shown and confirmed here ...
+        stats = run_live(setup, duration_s=30.0)
+
+    The output is ramped, limited at ``ceiling_dbfs`` and capped whatever the settings;
+    ``tests/render/test_live.py`` runs it through a virtual sound card.
+    """
     from ..render.stream import run_live as _run
 
     return _run(
@@ -338,7 +446,16 @@ def preview(
 ) -> float:
     """Render the first ``seconds`` of ``dry`` through ``ir`` and play them, ramped, limited
     and capped; returns the seconds played. ``confirm`` shows the hearing caution and raises
-    to refuse; it runs before any sound."""
+    to refuse; it runs before any sound.
+
+    Examples
+    --------
+    Not run here: it plays sound. ``confirm`` shows the hearing caution and raises to
+    refuse; nothing is played before it returns::
+
+        seconds = preview("vocal.wav", "hall.wav", RenderSettings(mix=0.3),
+                          confirm=ask_after_showing_the_caution)
+    """
     from ..measure.capture import load_sounddevice
     from ..signal import db_to_gain
 

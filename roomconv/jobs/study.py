@@ -33,7 +33,21 @@ def _refuse_non_toml(path: Path) -> None:
 
 def init_study(path, *, title: str = "Acoustic measurements", force: bool = False) -> Path:
     """Write a commented study-file template to ``path`` (never over a file without
-    ``force``)."""
+    ``force``).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> init_study(d / "study.toml").name
+    'study.toml'
+    >>> init_study(d / "study.toml")
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.OutputExistsError: ...
+    >>> tmp.cleanup()
+    """
     from ..study import template_text
 
     path = Path(path)
@@ -54,6 +68,20 @@ def save_session_study(
         The study file; its folder is created when missing.
     positions : sequence of (name, file, quality file or None)
         Each becomes a receiver of source S1; paths are written relative to the study file.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> soundfile.write(d / "pos1.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> path = save_session_study(d / "session.toml", [("R1", d / "pos1.wav", None)])
+    >>> [(r.source, r.receiver) for r in check_study(path).study.responses]
+    [('S1', 'R1')]
+    >>> tmp.cleanup()
     """
     from ..study import session_study_text
 
@@ -68,21 +96,43 @@ def save_session_study(
 
 @dataclass
 class StudyCheck:
-    """A study file as loaded, and the response files it names that do not exist."""
+    """A study file as loaded, and the response files it names that do not exist.
+
+    Examples
+    --------
+    See :func:`check_study`, which returns one.
+    """
 
     study: StudyFile
     missing: list[str] = field(default_factory=list)
 
 
 def check_study(path) -> StudyCheck:
-    """Load and validate a study file and look for the responses it names."""
+    """Load and validate a study file and look for the responses it names.
+
+    Examples
+    --------
+    The template names two responses that do not exist yet:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> check_study(init_study(d / "study.toml")).missing
+    ['S1R1.wav', 'S1R2.wav']
+    >>> tmp.cleanup()
+    """
     s = load_study(path)
     return StudyCheck(s, [s.display_path(r.file) for r in s.responses if not r.file.is_file()])
 
 
 @dataclass
 class StudyReportResult:
-    """The study's results (:class:`roomconv.report.StudyResults`) and the files written."""
+    """The study's results (:class:`roomconv.report.StudyResults`) and the files written.
+
+    Examples
+    --------
+    See :func:`report_study`, which returns one.
+    """
 
     results: StudyResults
     written: list[Path] = field(default_factory=list)
@@ -90,10 +140,12 @@ class StudyReportResult:
 
     @property
     def document(self) -> dict:
+        """The analysis' JSON document (the same layout ``analyze --json`` writes)."""
         return self.results.analysis.document
 
     @property
     def errors(self) -> list[str]:
+        """The responses that could not be read or analysed, one message each."""
         return self.results.analysis.errors
 
 
@@ -139,6 +191,14 @@ def report_study(
         alone and say why in ``notes`` (False).
     force : bool
         Replace existing outputs (never an input).
+
+    Examples
+    --------
+    Not run here (the PDF takes several seconds); ``tests/test_study_jobs.py`` runs it. A
+    typical call::
+
+        res = report_study("study.toml", report_dir="report/", json_path="results.json")
+        res.written    # report.html, report.pdf, results.json
     """
     from ..analysis.report import csv_text
     from ..analysis.study import parse_calibration
@@ -189,7 +249,24 @@ def report_study(
 
 def write_study_file(path, text: str, *, force: bool = False) -> Path:
     """Write a study file composed by the caller (the demo's scenario); text that would not
-    load as a study file is refused before anything is written."""
+    load as a study file is refused before anything is written.
+
+    Examples
+    --------
+    >>> from roomconv.study import template_text
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> write_study_file(d / "study.toml", template_text("Hall B")).name
+    'study.toml'
+    >>> write_study_file(d / "bad.toml", "title = [unclosed")
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: ...
+    >>> (d / "bad.toml").exists()
+    False
+    >>> tmp.cleanup()
+    """
     from ..study import parse_study
 
     path = Path(path)

@@ -86,7 +86,13 @@ def parse_triple(text: str, what: str, sep: str = ",") -> tuple[float, float, fl
 
 def room_size(text: str) -> tuple[float, float, float]:
     """``"12x8x3.5"`` → three positive finite sides in m, each at most
-    :data:`ROOM_SIDE_MAX_M`."""
+    :data:`ROOM_SIDE_MAX_M`.
+
+    Examples
+    --------
+    >>> room_size("12x8x3.5")
+    (12.0, 8.0, 3.5)
+    """
     vals = parse_triple(text, "room size", sep="x")
     for v in vals:
         if v <= 0:
@@ -96,7 +102,13 @@ def room_size(text: str) -> tuple[float, float, float]:
 
 
 def position(text: str) -> tuple[float, float, float]:
-    """``"3,2,1.5"`` → a position in m."""
+    """``"3,2,1.5"`` → a position in m.
+
+    Examples
+    --------
+    >>> position("3,2,1.5")
+    (3.0, 2.0, 1.5)
+    """
     return parse_triple(text, "position")
 
 
@@ -115,7 +127,13 @@ def parse_band_values(text: str | None, what: str, hi: float | None = None) -> d
 
 
 def parse_materials(text: str | None) -> dict[str, str]:
-    """'floor=carpet,walls=plaster' (walls = the four walls, all = every surface)."""
+    """'floor=carpet,walls=plaster' (walls = the four walls, all = every surface).
+
+    Examples
+    --------
+    >>> parse_materials("floor=carpet,walls=plaster")["back"]
+    'plaster'
+    """
     from ..synth.room import SURFACES
 
     out: dict[str, str] = {}
@@ -141,7 +159,13 @@ def parse_materials(text: str | None) -> dict[str, str]:
 
 
 def parse_patch(item: str):
-    """``SURFACE:MATERIAL:AREA_M2`` → a :class:`~roomconv.synth.room.Patch`."""
+    """``SURFACE:MATERIAL:AREA_M2`` → a :class:`~roomconv.synth.room.Patch`.
+
+    Examples
+    --------
+    >>> parse_patch("floor:seats-upholstered-empty:40")
+    Patch(surface='floor', material='seats-upholstered-empty', area_m2=40.0)
+    """
     from ..synth.room import Patch
 
     parts = item.split(":")
@@ -151,7 +175,13 @@ def parse_patch(item: str):
 
 
 def parse_absorber(item: str):
-    """``MATERIAL:AREA_M2`` → an :class:`~roomconv.synth.room.Absorber`."""
+    """``MATERIAL:AREA_M2`` → an :class:`~roomconv.synth.room.Absorber`.
+
+    Examples
+    --------
+    >>> parse_absorber("wood-panel:12")
+    Absorber(material='wood-panel', area_m2=12.0)
+    """
     from ..synth.room import Absorber
 
     mat, _, area = item.rpartition(":")
@@ -171,7 +201,14 @@ def build_room(
     materials_file=None,
 ):
     """A :class:`~roomconv.synth.room.RoomModel` from plain values; ``materials_file`` adds
-    materials (JSON or TOML), refused before opening when it is a folder, pipe or device."""
+    materials (JSON or TOML), refused before opening when it is a folder, pipe or device.
+
+    Examples
+    --------
+    >>> room = build_room((12.0, 8.0, 3.5), materials={"floor": "carpet"})
+    >>> room.surfaces["floor"], room.surfaces["ceiling"]
+    ('carpet', 'plaster')
+    """
     from ..synth.materials import load_materials
     from ..synth.room import RoomModel
 
@@ -194,7 +231,14 @@ def build_room(
 
 def default_positions(room) -> tuple[tuple[float, float, float], tuple[float, float, float]]:
     """A source a quarter in and a receiver three quarters in, at standing and seated
-    heights (at most half the room's height), m."""
+    heights (at most half the room's height), m.
+
+    Examples
+    --------
+    >>> src, rcv = default_positions(build_room((12.0, 8.0, 3.5)))
+    >>> src[0], rcv[0], rcv[2]
+    (3.0, 9.0, 1.2)
+    """
     L, W, H = room.length, room.width, room.height
     return (L / 4, W / 3, min(1.5, H / 2)), (3 * L / 4, 2 * W / 3, min(1.2, H / 2))
 
@@ -210,7 +254,13 @@ def _refuse_non_finite(ir, path) -> None:
 # --- synthesize ----------------------------------------------------------------------------
 def receivers_of(stereo: str | None):
     """``None``, ``"spaced:M"`` or ``"coincident:DEG"`` → the receiver layout, a spaced
-    pair no wider than :data:`PAIR_SPACING_MAX_M`."""
+    pair no wider than :data:`PAIR_SPACING_MAX_M`.
+
+    Examples
+    --------
+    >>> receivers_of(None).kind, receivers_of("spaced:0.4").value
+    ('mono', 0.4)
+    """
     from ..synth.generate import Receivers
 
     receivers = Receivers.parse(stereo)
@@ -220,7 +270,16 @@ def receivers_of(stereo: str | None):
 
 
 def check_length(length_s: float | None, rate_hz: int, receivers) -> None:
-    """Refuse a response length whose working buffers would not fit in memory."""
+    """Refuse a response length whose working buffers would not fit in memory.
+
+    Examples
+    --------
+    >>> check_length(2.0, 48000, receivers_of(None))  # fits: nothing happens
+    >>> check_length(1e6, 48000, receivers_of(None))
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: this response length would need ... of memory ...
+    """
     if length_s is not None:
         validate.seconds_budget(
             length_s,
@@ -231,7 +290,16 @@ def check_length(length_s: float | None, rate_hz: int, receivers) -> None:
 
 
 def check_decay_scale(factors: dict[int, float] | None) -> None:
-    """Each decay-time factor within :data:`DECAY_SCALE_MIN` … :data:`DECAY_SCALE_MAX`."""
+    """Each decay-time factor within :data:`DECAY_SCALE_MIN` … :data:`DECAY_SCALE_MAX`.
+
+    Examples
+    --------
+    >>> check_decay_scale({500: 1.2})
+    >>> check_decay_scale({500: 100})
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: factor 100 at 500 Hz is out of range (accepted: 0.05 to 20)
+    """
     for b, f in (factors or {}).items():
         if not DECAY_SCALE_MIN <= f <= DECAY_SCALE_MAX:
             raise InputError(
@@ -242,7 +310,12 @@ def check_decay_scale(factors: dict[int, float] | None) -> None:
 
 @dataclass
 class SynthJobResult:
-    """The response written and the synthesis' own figures."""
+    """The response written and the synthesis' own figures.
+
+    Examples
+    --------
+    See :func:`synthesize_room`, which returns one.
+    """
 
     output: Path
     room: RoomModel
@@ -289,6 +362,18 @@ def synthesize_room(
         Normalize the peak to this level.
     materials_file : path-like, optional
         The extra materials file the room was built with (an input no output may replace).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> room = build_room((6.0, 5.0, 3.0), materials=parse_materials("all=carpet"))
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     res = synthesize_room(pathlib.Path(tmp) / "room.wav", room, rate_hz=8000,
+    ...                           length_s=0.5, seed=1)
+    ...     sorted(p.name for p in pathlib.Path(tmp).iterdir())
+    ['room.provenance.json', 'room.wav']
+    >>> res.ir.shape, res.receiver_m[2]
+    ((4000, 1), 1.2)
     """
     from ..synth.generate import synthesize
 
@@ -346,7 +431,14 @@ def synthesize_room(
 
 def materials_table(*, materials_file=None, json_path=None, force: bool = False) -> dict:
     """The materials and their octave-band absorption coefficients, the file's added; written
-    as JSON to ``json_path`` when given. Returns {name: Material}."""
+    as JSON to ``json_path`` when given. Returns {name: Material}.
+
+    Examples
+    --------
+    >>> table = materials_table()
+    >>> "plaster" in table, len(table["plaster"].alpha)
+    (True, 8)
+    """
     from ..synth.materials import MATERIALS, OCTAVES, load_materials
 
     table = dict(MATERIALS)
@@ -375,6 +467,18 @@ def materials_table(*, materials_file=None, json_path=None, force: bool = False)
 def measured_decay_times(ir: np.ndarray, rate: int) -> list[dict[int, float]]:
     """Per channel, the octave-band decay time in s read from the response by the ISO 3382
     analysis (T30, else T20, else EDT; a band that has none takes the wideband T30 or T20).
+
+    Examples
+    --------
+    An exponential decay of T = 0.5 s reads 0.5 s in every octave:
+
+    >>> import numpy as np
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> times = measured_decay_times(h[:, None], rate)[0]
+    >>> sorted({round(v, 1) for v in times.values()})
+    [0.5]
     """
     from ..analysis.parameters import room_parameters
     from ..synth.materials import OCTAVES
@@ -398,6 +502,22 @@ def measured_decay_times(ir: np.ndarray, rate: int) -> list[dict[int, float]]:
 
 @dataclass
 class EditResult:
+    """What :func:`edit_response` wrote.
+
+    Attributes
+    ----------
+    output : Path
+        The edited response.
+    rate_hz : int
+        Its sample rate, Hz.
+    steps : list of str
+        The edits applied, in order, in words (for the provenance sidecar).
+
+    Examples
+    --------
+    See :func:`edit_response`, which returns one.
+    """
+
     output: Path
     rate_hz: int
     steps: list[str] = field(default_factory=list)
@@ -422,6 +542,20 @@ def edit_response(
 
     ``decay_scale`` is {octave band Hz: new T / old T}, each within
     :data:`DECAY_SCALE_MIN` … :data:`DECAY_SCALE_MAX`.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> rate = 8000
+    >>> h = np.random.default_rng(0).standard_normal(rate) * 10 ** (-3 * np.arange(rate) / 4000)
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     d = pathlib.Path(tmp)
+    ...     soundfile.write(d / "ir.wav", h, rate)
+    ...     res = edit_response(d / "ir.wav", d / "short.wav", fade_out_s=0.01)
+    ...     sorted(p.name for p in d.iterdir())
+    ['ir.wav', 'short.provenance.json', 'short.wav']
+    >>> res.steps
+    ['faded in 0 s / out 0.01 s']
     """
     from ..synth import edit
 
@@ -470,7 +604,22 @@ def pair_responses(
     left, right, output, *, force: bool = False, settings: dict | None = None
 ) -> Path:
     """Write the first channels of two responses as one two-channel response (left, right),
-    with its provenance sidecar; the two must share a sample rate."""
+    with its provenance sidecar; the two must share a sample rate.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> import tempfile, pathlib, soundfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     d = pathlib.Path(tmp)
+    ...     soundfile.write(d / "l.wav", h, rate)
+    ...     soundfile.write(d / "r.wav", h[::-1], rate)
+    ...     soundfile.info(pair_responses(d / "l.wav", d / "r.wav", d / "lr.wav")).channels
+    2
+    """
     a, rate_a = read_audio(left, what="left response")
     b, rate_b = read_audio(right, what="right response")
     if rate_a != rate_b:

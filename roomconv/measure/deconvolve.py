@@ -74,7 +74,7 @@ def extract_ir(
     harmonics: bool = True,
     trim: bool = False,
     allow_clipped: bool = False,
-    band: tuple[float, float] | None = None,
+    band_hz: tuple[float, float] | None = None,
 ) -> Extraction:
     """Deconvolve a sweep recording into impulse responses.
 
@@ -102,7 +102,7 @@ def extract_ir(
         Cut leading samples before the onset (ISO 3382-1 rule, 20 dB below peak) minus 1 ms.
     allow_clipped : bool
         Accept a recording with clipped samples (they are still reported).
-    band : (float, float), optional
+    band_hz : (float, float), optional
         Band for spectral division, Hz; default from the sweep or estimated from the excitation.
 
     Returns
@@ -139,37 +139,12 @@ def extract_ir(
     y = np.asarray(recording, dtype=np.float64)
     if y.ndim == 1:
         y = y[:, None]
-    if (sweep is None) == (excitation is None):
-        raise ValueError("give exactly one of sweep or excitation")
-    n_ch = y.shape[1]
-    if reference_channel is not None and not (0 <= reference_channel < n_ch):
-        raise InputError(
-            f"reference channel {reference_channel} does not exist: the recording "
-            f"has {n_ch} channel(s), numbered 0..{n_ch - 1}"
-        )
-    mic_channels = [c for c in range(n_ch) if c != reference_channel]
-    if not mic_channels:
-        raise InputError("the recording holds only the reference channel; no microphone left")
-    if sweep is not None and sweep.rate != rate:
-        raise InputError(
-            f"the recording is at {rate} Hz but the sweep at {sweep.rate} Hz "
-            "(record at the sweep's rate)"
-        )
+    mic_channels = _microphone_channels(y, rate, sweep, excitation, reference_channel)
     _check_recording(y, rate, sweep, excitation, allow_clipped)
-
     quality: dict = {"recording": _recording_quality(y, sweep, mic_channels, reference_channel)}
     warnings: list[str] = []
 
-    if sweep is not None:
-        raw, zeros, method = _analytic(y, sweep), _zero_indices(sweep), "analytic_inverse"
-        f_lo, f_hi = sweep.f_low, sweep.f_high
-        default_len = sweep.silence_post if sweep.silence_post >= 0.1 else 2.0
-    else:
-        exc = np.asarray(excitation, dtype=np.float64).reshape(-1)
-        f_lo, f_hi = band or _estimate_band(exc, rate)
-        raw, z = _spectral_division(y, exc, rate, (f_lo, f_hi))
-        zeros, method, default_len = [z], "regularized_division", 2.0
-
+    raw, zeros, method, (f_lo, f_hi), default_len = _deconvolve(y, rate, sweep, excitation, band_hz)
     n_out = int(round((length_s if length_s is not None else default_len) * rate))
     if n_out < 1:
         raise InputError(f"IR length {length_s} s is too short")
@@ -177,23 +152,11 @@ def extract_ir(
     if len_warn:
         warnings.append(len_warn)
 
-    segments = np.stack([raw[z : z + n_out] for z in zeros])  # repeats × samples × channels
-
-    latency = 0
+    ir_all, segments, latency = _linear_responses(
+        raw, zeros, n_out, mic_channels, reference_channel, sweep, rate, (f_lo, f_hi)
+    )
     if reference_channel is not None:
-        # Divide with some negative time kept in both windows: the deconvolved responses ring
-        # before lag 0 (band edges), and cutting mic and loopback differently would not cancel.
-        pre = _reference_lead(zeros[0], sweep, rate)
-        ext = np.mean([raw[z - pre : z + n_out] for z in zeros], axis=0)
-        ir_all, latency = _divide_by_reference(
-            ext, mic_channels, reference_channel, rate, (f_lo, f_hi), n_out, pre
-        )
-        segments = np.stack([_shift(s[:, mic_channels], latency, n_out) for s in segments])
         quality["reference_latency_samples"] = int(latency)
-    else:
-        segments = segments[:, :, mic_channels]
-        ir_all = segments.mean(axis=0)
-
     if sweep is not None and sweep.repeats > 1:
         quality["repeats"] = _repeat_figures(segments, rate)
 
@@ -223,6 +186,97 @@ def extract_ir(
         trimmed_samples=trimmed,
         method=method,
     )
+
+
+# --- steps ---------------------------------------------------------------------------------
+def _microphone_channels(
+    y: np.ndarray,
+    rate: int,
+    sweep: Sweep | None,
+    excitation: np.ndarray | None,
+    reference_channel: int | None,
+) -> list[int]:
+    """The recording's microphone channels (0-based): every channel but the reference.
+
+    Refuses a reference channel that does not exist, a recording with no microphone left,
+    and a rate that differs from the sweep's.
+    """
+    if (sweep is None) == (excitation is None):
+        raise ValueError("give exactly one of sweep or excitation")
+    n_ch = y.shape[1]
+    if reference_channel is not None and not (0 <= reference_channel < n_ch):
+        raise InputError(
+            f"reference channel {reference_channel} does not exist: the recording "
+            f"has {n_ch} channel(s), numbered 0..{n_ch - 1}"
+        )
+    mic_channels = [c for c in range(n_ch) if c != reference_channel]
+    if not mic_channels:
+        raise InputError("the recording holds only the reference channel; no microphone left")
+    if sweep is not None and sweep.rate != rate:
+        raise InputError(
+            f"the recording is at {rate} Hz but the sweep at {sweep.rate} Hz "
+            "(record at the sweep's rate)"
+        )
+    return mic_channels
+
+
+def _deconvolve(
+    y: np.ndarray,
+    rate: int,
+    sweep: Sweep | None,
+    excitation: np.ndarray | None,
+    band: tuple[float, float] | None,
+) -> tuple[np.ndarray, list[int], str, tuple[float, float], float]:
+    """Deconvolve every channel: the analytic inverse filter of a described sweep (Farina
+    2000), else regularized spectral division by the played signal (Müller & Massarani 2001).
+
+    Returns the deconvolved channels (samples × channels), the zero-lag index of each repeat,
+    the method's name, the band (Hz) and the default response length (s).
+    """
+    if sweep is not None:
+        default_len = sweep.silence_post if sweep.silence_post >= 0.1 else 2.0
+        return (
+            _analytic(y, sweep),
+            _zero_indices(sweep),
+            "analytic_inverse",
+            (sweep.f_low, sweep.f_high),
+            default_len,
+        )
+    exc = np.asarray(excitation, dtype=np.float64).reshape(-1)
+    f_lo, f_hi = band or _estimate_band(exc, rate)
+    raw, z = _spectral_division(y, exc, rate, (f_lo, f_hi))
+    return raw, [z], "regularized_division", (f_lo, f_hi), 2.0
+
+
+def _linear_responses(
+    raw: np.ndarray,
+    zeros: list[int],
+    n_out: int,
+    mic_channels: list[int],
+    reference_channel: int | None,
+    sweep: Sweep | None,
+    rate: int,
+    band: tuple[float, float],
+) -> tuple[np.ndarray, np.ndarray, int]:
+    """Cut each repeat's linear response and average the repeats; with a loopback channel,
+    divide the microphones by it so that the sound card's latency and response cancel.
+
+    Returns the averaged responses (samples × microphones), the single repeats
+    (repeats × samples × microphones) and the loopback's latency in samples (0 without one).
+    """
+    segments = np.stack([raw[z : z + n_out] for z in zeros])  # repeats × samples × channels
+    if reference_channel is None:
+        segments = segments[:, :, mic_channels]
+        return segments.mean(axis=0), segments, 0
+    # Divide with some negative time kept in both windows: the deconvolved responses ring
+    # before lag 0 (band edges), and cutting mic and loopback differently would not cancel.
+    pre = _reference_lead(zeros[0], sweep, rate)
+    ext = np.mean([raw[z - pre : z + n_out] for z in zeros], axis=0)
+    ir_all, latency = _divide_by_reference(
+        ext, mic_channels, reference_channel, rate, band, n_out, pre
+    )
+    segments = np.stack([_shift(s[:, mic_channels], latency, n_out) for s in segments])
+    return ir_all, segments, latency
 
 
 # --- checks --------------------------------------------------------------------------------

@@ -25,7 +25,7 @@ from ..errors import InputError, describe
 from ..signal import db_to_gain, resample
 from .levels import LoudnessMeter, PeakMeter, TruePeakMeter
 from .mix import ir_gain, wet_dry_db
-from .partitioned import offline_convolver, routing_for
+from .partitioned import Routing, offline_convolver, routing_for
 
 __all__ = [
     "NORMALIZE",
@@ -472,6 +472,82 @@ def render_file(
     guard = guard or WriteGuard([dry_path, ir_path], force=force)
     if not guard.planned(out_path):
         guard.file(out_path)
+    job = _prepare_inputs(dry_path, ir_path, s)
+    n_out = job.frames + job.ir.shape[0] - 1 if s.keep_tail else job.frames
+    conv = offline_convolver(job.ir, job.routing, precision=s.engine_precision(), workers=workers)
+    n_ch = job.routing.n_out
+    fmt = audio_format_for(out_path, n_out * n_ch * (8 if s.subtype == "DOUBLE" else 4))
+    if not sf.check_format(fmt, s.subtype):
+        raise InputError(describe(out_path, f"the {fmt} format cannot hold subtype {s.subtype}"))
+
+    folder = out_path.parent if str(out_path.parent) else Path(".")
+    stage1 = new_temp(folder, out_path)
+    final_tmp = new_temp(folder, out_path)
+    try:
+        meters = _Meters(job.rate, n_ch, s.normalize)
+        stage_max = _stage_format(s.subtype)[1]
+        _convolve_to_stage(
+            dry_path, stage1, out_path, conv, s, n_out, n_ch, job.rate, meters, progress
+        )
+        report = RenderReport(
+            out_path,
+            n_out,
+            n_ch,
+            job.rate,
+            job.routing.name,
+            meters.peak.dbfs,
+            gain_db=s.gain_db,
+            ir_resampled_from=job.resampled,
+            wet_dry_db=job.balance_db,
+        )
+        extra_db = _normalization_gain(report, s, meters, stage1, stage_max, out_path)
+        integer = s.subtype in INTEGER_SUBTYPES
+        _apply_gain_to_report(report, s.gain_db, meters.peak.dbfs, extra_db, integer)
+        if extra_db == 0.0 and not integer:
+            stage1.replace(final_tmp)
+        else:
+            _second_pass(
+                stage1, final_tmp, fmt, s, float(db_to_gain(extra_db)), conv.block, progress
+            )
+        guard.commit(final_tmp, out_path)
+        if progress:
+            progress(1.0)
+        return report
+    except (OSError, sf.LibsndfileError) as exc:
+        translated = write_error(exc, out_path, folder)
+        if translated is None:
+            raise
+        raise translated from None
+    finally:
+        conv.close()
+        for p in (stage1, final_tmp):
+            drop_temp(p)
+        if own_guard:
+            guard.close()
+
+
+@dataclass
+class _Inputs:
+    """A render's inputs, read and checked: the dry file's frames, rate (Hz) and channels,
+    the response ready to convolve, its original rate when resampled, the routing and the
+    wet/dry balance (dB)."""
+
+    frames: int
+    rate: int
+    channels: int
+    ir: np.ndarray
+    resampled: int | None
+    routing: Routing
+    balance_db: float | None
+
+
+def _prepare_inputs(dry_path: Path, ir_path: Path, s: RenderSettings) -> _Inputs:
+    """Read and check both inputs: the dry file's header, the response (resampled to the dry
+    rate, pre-delayed, level-matched when asked) and a routing that fits both.
+
+    Refuses an empty dry file, a silent response, an absurd sample rate and a routing or mix
+    that cannot work, naming the file.
+    """
     info = audio_info(dry_path)
     if info.frames == 0:
         raise InputError(describe(dry_path, "the dry file holds no samples"))
@@ -495,153 +571,171 @@ def render_file(
     if ir_scale != 1.0:
         ir = ir * ir_scale
     balance_db = wet_dry_db(s.mix, ir, routing, 1.0)
-    n_out = info.frames + ir.shape[0] - 1 if s.keep_tail else info.frames
-    conv = offline_convolver(ir, routing, precision=s.engine_precision(), workers=workers)
+    return _Inputs(info.frames, rate, n_in, ir, resampled, routing, balance_db)
+
+
+def _stage_format(subtype: str) -> tuple[str, float]:
+    """The staging file's subtype (DOUBLE for a DOUBLE output, else FLOAT) and the largest
+    value it holds."""
+    stage_sub = "DOUBLE" if subtype == "DOUBLE" else "FLOAT"
+    return stage_sub, float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
+
+
+class _Meters:
+    """The level meters a render feeds as it writes: sample peak always, true peak and
+    loudness (ITU-R BS.1770-4) only when the normalization needs them."""
+
+    def __init__(self, rate: int, channels: int, normalize: str):
+        self.peak = PeakMeter()
+        self.true_peak = TruePeakMeter(channels) if normalize == "truepeak" else None
+        self.loudness = LoudnessMeter(rate, channels) if normalize == "loudness" else None
+
+    def feed(self, y: np.ndarray) -> None:
+        """Measure the next block (samples × channels)."""
+        self.peak.feed(y)
+        if self.true_peak is not None:
+            self.true_peak.feed(y)
+        if self.loudness is not None:
+            self.loudness.feed(y)
+
+
+def _convolve_to_stage(
+    dry_path: Path,
+    stage_path: Path,
+    out_path: Path,
+    conv,
+    s: RenderSettings,
+    n_out: int,
+    n_ch: int,
+    rate: int,
+    meters: _Meters,
+    progress: Callable[[float], None] | None,
+) -> None:
+    """First pass: read the dry file in blocks, convolve and mix, apply the output gain,
+    measure and write ``n_out`` frames to a float staging file.
+
+    Refuses NaN or infinite input, and output beyond what the staging format holds (nothing
+    is written to the final file then).
+    """
     B = conv.block
     integer = s.subtype in INTEGER_SUBTYPES
-    fmt = audio_format_for(out_path, n_out * routing.n_out * (8 if s.subtype == "DOUBLE" else 4))
-    if not sf.check_format(fmt, s.subtype):
-        raise InputError(describe(out_path, f"the {fmt} format cannot hold subtype {s.subtype}"))
+    stage_sub, stage_max = _stage_format(s.subtype)
+    stage_fmt = audio_format_for(
+        out_path.with_suffix(".wav"), n_out * n_ch * (8 if stage_sub == "DOUBLE" else 4)
+    )
+    with (
+        sf.SoundFile(str(dry_path)) as src,
+        sf.SoundFile(str(stage_path), "w", rate, n_ch, stage_sub, format=stage_fmt) as dst,
+    ):
+        written = 0
+        while written < n_out:
+            x = src.read(B, dtype="float64", always_2d=True)
+            if x.size and not np.all(np.isfinite(x)):
+                raise InputError(describe(dry_path, "holds NaN or infinite samples"))
+            # Overflow shows up as inf/NaN and is refused just below with the file's
+            # name; numpy's own warning would only add a line pointing at our source.
+            with np.errstate(over="ignore", invalid="ignore"):
+                y = _wet_dry(conv, x, s.mix, n_ch)
+            n = min(B, n_out - written)
+            y = y[:n]
+            if s.gain_db:
+                y = y * db_to_gain(s.gain_db)
+            _check_finite(y, out_path)
+            meters.feed(y)
+            if meters.peak.peak > stage_max:
+                raise InputError(
+                    describe(
+                        out_path.name,
+                        f"the rendered signal reaches "
+                        f"{20 * np.log10(meters.peak.peak):.0f} dBFS, beyond "
+                        f"what a {stage_sub} file holds (lower the gain); "
+                        "nothing written",
+                    )
+                )
+            dst.write(y)
+            written += n
+            if progress:
+                progress(
+                    0.8 * written / n_out if integer or s.normalize != "none" else written / n_out
+                )
 
-    peak, tpk = PeakMeter(), TruePeakMeter(routing.n_out) if s.normalize == "truepeak" else None
-    loud = LoudnessMeter(rate, routing.n_out) if s.normalize == "loudness" else None
-    folder = out_path.parent if str(out_path.parent) else Path(".")
-    stage1 = new_temp(folder, out_path)
-    final_tmp = new_temp(folder, out_path)
-    try:
-        stage_sub = "DOUBLE" if s.subtype == "DOUBLE" else "FLOAT"
-        stage_max = float(np.finfo(np.float64 if stage_sub == "DOUBLE" else np.float32).max)
-        stage_fmt = audio_format_for(
-            out_path.with_suffix(".wav"),
-            n_out * routing.n_out * (8 if stage_sub == "DOUBLE" else 4),
+
+def _normalization_gain(
+    report: RenderReport,
+    s: RenderSettings,
+    meters: _Meters,
+    stage_path: Path,
+    stage_max: float,
+    out_path: Path,
+) -> float:
+    """The gain (dB) that brings the staged render to the normalization target (0 without
+    one), recording the measured true peak and loudness on ``report`` first.
+
+    Loudness is measured again with the gain applied until it lands within
+    :data:`LOUDNESS_TOLERANCE_LU` (the gates of ITU-R BS.1770-4 make it non-linear).
+    Refuses a render too quiet to measure or a gain that would overflow.
+    """
+    if meters.true_peak is not None:
+        meters.true_peak.finish()
+        report.true_peak_dbtp = meters.true_peak.dbtp
+    if meters.loudness is not None:
+        report.loudness_lufs = meters.loudness.integrated()
+    if s.normalize == "none":
+        return 0.0
+    target = s.target if s.target is not None else DEFAULT_TARGET[s.normalize]
+    level = {
+        "peak": report.peak_dbfs,
+        "truepeak": report.true_peak_dbtp,
+        "loudness": report.loudness_lufs,
+    }[s.normalize]
+    if level is None or not np.isfinite(level):
+        why = (
+            "stays below the −70 LUFS gate of the loudness measurement (normalize the peak instead)"
+            if s.normalize == "loudness"
+            else "is silent"
         )
-        with (
-            sf.SoundFile(str(dry_path)) as src,
-            sf.SoundFile(str(stage1), "w", rate, routing.n_out, stage_sub, format=stage_fmt) as dst,
-        ):
-            written = 0
-            while written < n_out:
-                x = src.read(B, dtype="float64", always_2d=True)
-                if x.size and not np.all(np.isfinite(x)):
-                    raise InputError(describe(dry_path, "holds NaN or infinite samples"))
-                # Overflow shows up as inf/NaN and is refused just below with the file's
-                # name; numpy's own warning would only add a line pointing at our source.
-                with np.errstate(over="ignore", invalid="ignore"):
-                    y = _wet_dry(conv, x, s.mix, routing.n_out)
-                n = min(B, n_out - written)
-                y = y[:n]
-                if s.gain_db:
-                    y = y * db_to_gain(s.gain_db)
-                _check_finite(y, out_path)
-                peak.feed(y)
-                if peak.peak > stage_max:
-                    raise InputError(
-                        describe(
-                            out_path.name,
-                            f"the rendered signal reaches "
-                            f"{20 * np.log10(peak.peak):.0f} dBFS, beyond "
-                            f"what a {stage_sub} file holds (lower the gain); "
-                            "nothing written",
-                        )
-                    )
-                if tpk is not None:
-                    tpk.feed(y)
-                if loud is not None:
-                    loud.feed(y)
-                dst.write(y)
-                written += n
-                if progress:
-                    progress(
-                        0.8 * written / n_out
-                        if integer or s.normalize != "none"
-                        else written / n_out
-                    )
-        report = RenderReport(
-            out_path,
-            n_out,
-            routing.n_out,
-            rate,
-            routing.name,
-            peak.dbfs,
-            gain_db=s.gain_db,
-            ir_resampled_from=resampled,
-            wet_dry_db=balance_db,
+        raise InputError(f"{out_path.name}: the rendered signal {why}; nothing to normalize")
+    extra_db = target - level
+    if s.normalize == "loudness":
+        extra_db, measured = _loudness_to_target(
+            stage_path, target, extra_db, report.rate, report.channels
         )
-        extra_db = 0.0
-        if tpk is not None:
-            tpk.finish()
-            report.true_peak_dbtp = tpk.dbtp
-        if loud is not None:
-            report.loudness_lufs = loud.integrated()
-        if s.normalize != "none":
-            target = s.target if s.target is not None else DEFAULT_TARGET[s.normalize]
-            level = {
-                "peak": report.peak_dbfs,
-                "truepeak": report.true_peak_dbtp,
-                "loudness": report.loudness_lufs,
-            }[s.normalize]
-            if level is None or not np.isfinite(level):
-                why = (
-                    "stays below the −70 LUFS gate of the loudness measurement (normalize "
-                    "the peak instead)"
-                    if s.normalize == "loudness"
-                    else "is silent"
-                )
-                raise InputError(
-                    f"{out_path.name}: the rendered signal {why}; nothing to normalize"
-                )
-            extra_db = target - level
-            if s.normalize == "loudness":
-                extra_db, measured = _loudness_to_target(
-                    stage1, target, extra_db, rate, routing.n_out
-                )
-                report.loudness_lufs = measured - extra_db  # shifted back by += below
-                if abs(measured - target) > LOUDNESS_TOLERANCE_LU:
-                    report.warnings.append(
-                        f"loudness {measured:.2f} LUFS misses the target {target:g} LUFS by "
-                        f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
-                        "the measurement's −70 LUFS gate)"
-                    )
-            with np.errstate(over="ignore"):
-                scaled_peak = peak.peak * db_to_gain(extra_db)
-            if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
-                raise InputError(
-                    f"{out_path.name}: normalization would need a gain of "
-                    f"{extra_db:g} dB, which overflows; nothing written"
-                )
-        report.gain_db = s.gain_db + extra_db
-        report.peak_dbfs = peak.dbfs + extra_db
-        if report.true_peak_dbtp is not None:
-            report.true_peak_dbtp += extra_db
-        if report.loudness_lufs is not None:
-            report.loudness_lufs += extra_db
-        if report.peak_dbfs > 0:
-            msg = f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale"
-            msg += (
-                ": it will clip in this integer format; lower the gain or normalize the peak"
-                if integer
-                else "; a later conversion to integer would clip"
+        report.loudness_lufs = measured - extra_db  # shifted back by the caller's +=
+        if abs(measured - target) > LOUDNESS_TOLERANCE_LU:
+            report.warnings.append(
+                f"loudness {measured:.2f} LUFS misses the target {target:g} LUFS by "
+                f"more than {LOUDNESS_TOLERANCE_LU} LU (the signal is mostly below "
+                "the measurement's −70 LUFS gate)"
             )
-            report.warnings.append(msg)
-        if extra_db == 0.0 and not integer:
-            stage1.replace(final_tmp)
-        else:
-            _second_pass(stage1, final_tmp, fmt, s, float(db_to_gain(extra_db)), B, progress)
-        guard.commit(final_tmp, out_path)
-        if progress:
-            progress(1.0)
-        return report
-    except (OSError, sf.LibsndfileError) as exc:
-        translated = write_error(exc, out_path, folder)
-        if translated is None:
-            raise
-        raise translated from None
-    finally:
-        conv.close()
-        for p in (stage1, final_tmp):
-            drop_temp(p)
-        if own_guard:
-            guard.close()
+    with np.errstate(over="ignore"):
+        scaled_peak = meters.peak.peak * db_to_gain(extra_db)
+    if not (np.isfinite(extra_db) and scaled_peak <= stage_max):
+        raise InputError(
+            f"{out_path.name}: normalization would need a gain of "
+            f"{extra_db:g} dB, which overflows; nothing written"
+        )
+    return extra_db
+
+
+def _apply_gain_to_report(
+    report: RenderReport, gain_db: float, peak_dbfs: float, extra_db: float, integer: bool
+) -> None:
+    """Shift the report's levels by the normalization gain ``extra_db`` (dB) and warn when
+    the output peak lands above full scale."""
+    report.gain_db = gain_db + extra_db
+    report.peak_dbfs = peak_dbfs + extra_db
+    if report.true_peak_dbtp is not None:
+        report.true_peak_dbtp += extra_db
+    if report.loudness_lufs is not None:
+        report.loudness_lufs += extra_db
+    if report.peak_dbfs > 0:
+        msg = f"output peak {report.peak_dbfs:+.1f} dBFS is above full scale"
+        msg += (
+            ": it will clip in this integer format; lower the gain or normalize the peak"
+            if integer
+            else "; a later conversion to integer would clip"
+        )
+        report.warnings.append(msg)
 
 
 def _second_pass(src_path, dst_path, fmt, s: RenderSettings, gain: float, B: int, progress):

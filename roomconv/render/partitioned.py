@@ -339,6 +339,19 @@ class UniformPartitionedConvolver:
     ----------
     Wefers, F. (2015). Partitioned convolution algorithms for real-time auralization. Logos
     Verlag (uniformly partitioned overlap-save with a frequency-domain delay line).
+
+    Examples
+    --------
+    Block by block, the output is the linear convolution (against scipy):
+
+    >>> from scipy.signal import fftconvolve
+    >>> rng = np.random.default_rng(0)
+    >>> ir, x = rng.standard_normal(300), rng.standard_normal(1000)
+    >>> conv = UniformPartitionedConvolver(ir, routing_for(1, 1), block=100)
+    >>> y = np.concatenate([conv.process(x[i : i + 100, None]) for i in range(0, 1000, 100)])
+    >>> bool(np.allclose(y[:, 0], fftconvolve(x, ir)[:1000], atol=1e-12))
+    True
+    >>> conv.close()
     """
 
     def __init__(
@@ -432,6 +445,18 @@ class OverlapSaveConvolver:
     ----------
     Oppenheim, A. V., Schafer, R. W. Discrete-Time Signal Processing (3rd ed., 2010), 8.7.3
     (overlap-save).
+
+    Examples
+    --------
+    >>> from scipy.signal import fftconvolve
+    >>> rng = np.random.default_rng(0)
+    >>> ir, x = rng.standard_normal(300), rng.standard_normal(1000)
+    >>> conv = OverlapSaveConvolver(ir, routing_for(1, 1), fft_size=1024)
+    >>> B = conv.block
+    >>> y = np.concatenate([conv.process(x[i : i + B, None]) for i in range(0, 1000, B)])
+    >>> bool(np.allclose(y[:1000, 0], fftconvolve(x, ir)[:1000], atol=1e-12))
+    True
+    >>> conv.close()
     """
 
     def __init__(
@@ -678,6 +703,16 @@ class NonUniformConvolver:
     References
     ----------
     Gardner, W. G. (1995), J. Audio Eng. Soc. 43(3), 127–136; Wefers, F. (2015).
+
+    Examples
+    --------
+    >>> from scipy.signal import fftconvolve
+    >>> rng = np.random.default_rng(0)
+    >>> ir, x = rng.standard_normal(3000), rng.standard_normal(4096)
+    >>> conv = NonUniformConvolver(ir, routing_for(1, 1), 64)
+    >>> y = np.concatenate([conv.process(x[i : i + 64, None]) for i in range(0, 4096, 64)])
+    >>> bool(np.allclose(y[:, 0], fftconvolve(x, ir)[:4096], atol=1e-12))
+    True
     """
 
     def __init__(

@@ -28,6 +28,13 @@ def write_report(
     :class:`~roomconv.audio.WriteGuard`, or one made here from ``inputs`` and ``force``), so
     a refusal leaves nothing half done; the HTML is written only after the PDF has been
     printed from it.
+
+    Examples
+    --------
+    Not run here (laying out the PDF takes several seconds); ``tests/report/`` runs it. A
+    typical call, with ``res`` from :func:`roomconv.report.inputs.analyse_study`::
+
+        write_report(res, "report/")    # [report/report.html, report/report.pdf]
     """
     from ..audio import WriteGuard
     from .pdf import html_to_pdf

@@ -78,6 +78,28 @@ def single_number_rows(doc: dict) -> list[dict]:
     uncertainties divided by their count, the bands' decays being independent (JCGM 100:2008,
     5.1.2, propagation for uncorrelated inputs; from memory). The spread is the standard
     deviation of the positions' own mid-frequency values.
+
+    Examples
+    --------
+    Two positions of a T = 0.5 s decay:
+
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> row = [r for r in single_number_rows(doc) if r["key"] == "t30_mid_s"][0]
+    >>> row["text"], row["positions"]
+    ('0.49', 2)
+    >>> tmp.cleanup()
     """
     mids = _mids(doc)
     avg = {r["band_hz"]: r for r in doc["average"]["bands"]}
@@ -168,7 +190,29 @@ def _evaluation_notes(doc: dict) -> list[str]:
 
 
 def target_rows(doc: dict, targets) -> list[list[str]]:
-    """Measured average against the target range per band, honest about the uncertainty."""
+    """Measured average against the target range per band, honest about the uncertainty.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> from roomconv.study import Targets
+    >>> rows = target_rows(doc, Targets(reverberation_s={500.0: 0.5, 1000.0: 0.5}))
+    >>> [r[:3] for r in rows]
+    [['500', '0.50', '0.40–0.60'], ['1k', '0.50', '0.40–0.60']]
+    >>> tmp.cleanup()
+    """
     metric = f"{targets.basis}_s"
     avg = {r["band_hz"]: r for r in doc["average"]["bands"]}
     lo, hi = targets.tolerance_pct
@@ -261,7 +305,15 @@ def distortion_html(doc: dict) -> str:
 
 
 def report_html(res: StudyResults) -> str:
-    """The whole report as one self-contained HTML page (no external requests)."""
+    """The whole report as one self-contained HTML page (no external requests).
+
+    Examples
+    --------
+    Not run here (the figures take several seconds); ``tests/report/`` checks the page. With
+    ``res`` from :func:`roomconv.report.inputs.analyse_study`::
+
+        page = report_html(res)     # '<!doctype html>…', images as data URIs
+    """
     st, doc = res.study, res.analysis.document
     room = st.room
     mids = _mid_text(doc)

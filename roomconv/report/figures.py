@@ -35,7 +35,14 @@ POSITION_COLOURS = (
 
 
 def png_uri(fig, dpi: int = 110) -> str:
-    """The figure as a PNG data URI (the page makes no external requests)."""
+    """The figure as a PNG data URI (the page makes no external requests).
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> png_uri(Figure(figsize=(1, 1)))[:22]
+    'data:image/png;base64,'
+    """
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight", facecolor="white")
     return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
@@ -67,7 +74,27 @@ def _flagged(stat: dict) -> bool:
 
 def decay_time_figure(doc: dict, metric: str, targets=None):
     """Per-band average of a decay time with its uncertainty (ISO 3382-2 for T20/T30, the
-    positions' standard deviation for EDT), each position's value, and the target band."""
+    positions' standard deviation for EDT), each position's value, and the target band.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> type(decay_time_figure(doc, "t30_s")).__name__
+    'Figure'
+    >>> tmp.cleanup()
+    """
     fig, (ax,) = _figure(7.5, 3.4)
     avg = doc["average"]["bands"]
     bands = [r["band_hz"] for r in avg]
@@ -125,7 +152,27 @@ def decay_time_figure(doc: dict, metric: str, targets=None):
 
 
 def ratio_figure(doc: dict):
-    """C80 and D50 per band: average ± positions' standard deviation, and each position."""
+    """C80 and D50 per band: average ± positions' standard deviation, and each position.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> type(ratio_figure(doc)).__name__
+    'Figure'
+    >>> tmp.cleanup()
+    """
     fig, axes = _figure(7.5, 3.0, ncols=2)
     avg = doc["average"]["bands"]
     bands = [r["band_hz"] for r in avg]
@@ -156,7 +203,18 @@ def ratio_figure(doc: dict):
 
 
 def position_figure(h: np.ndarray, rate: int, band_results, title: str):
-    """Left: the energy–time curve; right: the band decay curves with their T30 line fits."""
+    """Left: the energy–time curve; right: the band decay curves with their T30 line fits.
+
+    Examples
+    --------
+    >>> from roomconv.analysis.parameters import room_parameters
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> bands, _, _ = room_parameters(h, rate)
+    >>> len(position_figure(h, rate, bands, "S1-R1").axes)
+    2
+    """
     fig, (a1, a2) = _figure(7.5, 2.9, ncols=2)
     e = h * h
     peak = float(e.max()) if e.size else 1.0
@@ -232,7 +290,15 @@ def _smoothed_db(h: np.ndarray, rate: int, fraction: int = 6):
 
 
 def frequency_response_figure(irs: dict):
-    """Each position's magnitude response, 1/6-octave smoothed, relative to the loudest."""
+    """Each position's magnitude response, 1/6-octave smoothed, relative to the loudest.
+
+    Examples
+    --------
+    >>> h = np.zeros(4096)
+    >>> h[0] = 1.0
+    >>> type(frequency_response_figure({"S1-R1": (h, 8000)})).__name__
+    'Figure'
+    """
     fig, (ax,) = _figure(7.5, 3.0)
     curves = {k: _smoothed_db(h, rate) for k, (h, rate) in irs.items()}
     top = max(float(np.max(db)) for _, db in curves.values())
@@ -256,7 +322,16 @@ def frequency_response_figure(irs: dict):
 
 def plan_figure(study):
     """Sources (triangles) and receivers (circles) in plan, with heights; the room's outline
-    when its dimensions are given. ``None`` when no position has coordinates."""
+    when its dimensions are given. ``None`` when no position has coordinates.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from roomconv.study import parse_study, template_text
+    >>> study = parse_study(template_text("Hall B"), Path("/data/study.toml"))
+    >>> plan_figure(study) is None      # the template gives coordinates
+    False
+    """
     pts = [p for p in study.sources + study.receivers if p.x_m is not None]
     if not pts:
         return None

@@ -18,7 +18,14 @@ GRADES = (
 
 @dataclass(frozen=True)
 class Grade:
-    """The grade reached (``None``: below survey) and what the next grade needs."""
+    """The grade reached (``None``: below survey) and what the next grade needs.
+
+    Examples
+    --------
+    >>> g = measurement_grade([("S1", "R1"), ("S1", "R2")])
+    >>> g.name, g.next_name, g.needed
+    ('survey', 'engineering', ('1 more source position', '4 more combinations'))
+    """
 
     name: str | None
     sources: int

@@ -16,7 +16,12 @@ from .grade import measurement_grade
 
 @dataclass
 class StudyResults:
-    """A study file, its analysis and the raw responses (for the energy–time curves)."""
+    """A study file, its analysis and the raw responses (for the energy–time curves).
+
+    Examples
+    --------
+    See :func:`analyse_study`, which returns one.
+    """
 
     study: StudyFile
     #: The analysis, its document annotated (see :func:`analyse_study`)
@@ -29,7 +34,18 @@ class StudyResults:
 
 def check_study_inputs(study: StudyFile) -> None:
     """Refuse, before any work, a response file that is missing, unreadable or lacks the
-    channel the study names (the message names the study key)."""
+    channel the study names (the message names the study key).
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from roomconv.study import parse_study, template_text
+    >>> study = parse_study(template_text("Hall B"), Path("/no/such/folder/study.toml"))
+    >>> check_study_inputs(study)
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: ...S1R1.wav...
+    """
     for i, r in enumerate(study.responses, 1):
         key = f"{study.path}: responses[{i}]"
         if not r.file.is_file():
@@ -55,7 +71,27 @@ def check_study_inputs(study: StudyFile) -> None:
 
 
 def used_combinations(doc: dict) -> list[tuple[str, str]]:
-    """Source–receiver combinations that gave a decay time (T20 or T30) in a mid band."""
+    """Source–receiver combinations that gave a decay time (T20 or T30) in a mid band.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> used_combinations(doc)
+    [('S1', 'R1'), ('S1', 'R2')]
+    >>> tmp.cleanup()
+    """
     mids = (500, 1000) if doc["settings"]["bands"] == "octave" else (400, 500, 630, 800, 1000, 1250)
     out = []
     for p in doc["positions"]:
@@ -80,6 +116,25 @@ def analyse_study(
     The document's positions carry ``position`` (``S1-R1``), ``source``, ``receiver`` and
     the file and channel as the study gives them; the document gains ``study`` (the study
     file's data), ``grade`` and ``quality``.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np, soundfile
+    >>> from roomconv.study import parse_study, template_text
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> d = pathlib.Path(tmp.name)
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> for i in (1, 2):
+    ...     h = np.random.default_rng(i).standard_normal(t.size) * 10 ** (-3 * t / T)
+    ...     soundfile.write(d / f"S1R{i}.wav", 0.5 * h, rate, subtype="DOUBLE")
+    >>> study = parse_study(template_text("Hall B"), d / "study.toml")
+    >>> from roomconv.report.inputs import analyse_study
+    >>> res = analyse_study(study)
+    >>> doc = res.analysis.document
+    >>> [p["position"] for p in doc["positions"]], sorted(res.irs)
+    (['S1-R1', 'S1-R2'], ['S1-R1', 'S1-R2'])
+    >>> tmp.cleanup()
     """
     check_study_inputs(study)
     items, irs, quality, by_label = [], {}, {}, {}

@@ -7,7 +7,13 @@ from ..errors import RoomconvError
 
 
 def pdf_engine_problem() -> str | None:
-    """Why a PDF cannot be made here, or ``None`` when it can."""
+    """Why a PDF cannot be made here, or ``None`` when it can.
+
+    Examples
+    --------
+    >>> pdf_engine_problem() is None or isinstance(pdf_engine_problem(), str)
+    True
+    """
     try:
         import weasyprint  # noqa: F401
     except ImportError as exc:
@@ -25,6 +31,14 @@ def html_to_pdf(page: str) -> bytes:
 
     The page's images are data URIs, so nothing is fetched; any other URL is refused
     rather than fetched, which keeps the PDF identical to what the HTML shows offline.
+
+    Examples
+    --------
+    >>> if pdf_engine_problem() is None:
+    ...     print(html_to_pdf("<html><body><p>T30 0.49 s</p></body></html>")[:5])
+    ... else:
+    ...     print(b"%PDF-")
+    b'%PDF-'
     """
     problem = pdf_engine_problem()
     if problem is not None:

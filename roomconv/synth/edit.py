@@ -166,6 +166,20 @@ def scale_decay(
     References
     ----------
     ISO 3382-1:2009, 3.10 and 5.3 (the decay times read from the response).
+
+    Examples
+    --------
+    Doubling T = 0.5 s multiplies the level 1 s into the decay by
+    60 dB·(1 s / 0.5 s)·(1 − 1/2) = 60 dB:
+
+    >>> from roomconv.synth.materials import OCTAVES
+    >>> rate, T = 8000, 0.5
+    >>> t = np.arange(2 * rate) / rate
+    >>> h = np.random.default_rng(0).standard_normal(t.size) * 10 ** (-3 * t / T)
+    >>> y = scale_decay(h, rate, 2.0, decay_times_s=[{b: T for b in OCTAVES}], onset=0)
+    >>> w = slice(rate - 160, rate + 160)  # 1 s ± 20 ms
+    >>> round(float(10 * np.log10(np.mean(y[w, 0] ** 2) / np.mean(h[w] ** 2))))
+    60
     """
     x = _2d(ir)
     factors = factor if isinstance(factor, dict) else {b: float(factor) for b in OCTAVES}

@@ -103,6 +103,15 @@ class SynthResult:
         ``used_rt`` within FIT_TOLERANCE except in bands named in ``notes``.
     tail_start_s : float
         Where the cross-fade into the tail begins, s after emission.
+
+    Examples
+    --------
+    >>> from roomconv.synth.room import RoomModel
+    >>> room = RoomModel(5.0, 4.0, 3.0, {w: "plaster" for w in
+    ...                  ("left", "right", "front", "back", "floor", "ceiling")})
+    >>> res = synthesize(room, (1, 1, 1), (4, 3, 1.5), rate=8000, length_s=0.5, seed=1)
+    >>> res.ir.shape, res.rate
+    ((4000, 1), 8000)
     """
 
     ir: np.ndarray  #: (samples, channels)

@@ -33,6 +33,17 @@ class ImageSet:
     """All images up to a distance: positions, distances, per-band pressure gains.
 
     Sorted by distance, nearest (the direct sound) first.
+
+    Examples
+    --------
+    The nearest image is the source itself, at the straight-line distance:
+
+    >>> from roomconv.synth.room import RoomModel
+    >>> room = RoomModel(5.0, 4.0, 3.0, {w: "plaster" for w in
+    ...                  ("left", "right", "front", "back", "floor", "ceiling")})
+    >>> im = image_sources(room, (1, 1, 1), (4, 3, 1.5), max_order=1)
+    >>> len(im.distance), round(float(im.distance[0]), 4), round(float(np.sqrt(9 + 4 + 0.25)), 4)
+    (7, 3.6401, 3.6401)
     """
 
     positions: np.ndarray  #: (n, 3)

@@ -173,7 +173,14 @@ def decay_curve(freqs, nodes: dict) -> np.ndarray:
 
 def narrow_centres(rate: int) -> np.ndarray:
     """Centres of the narrow decay bands, Hz: NARROW_PER_OCTAVE per octave from 20 Hz up to
-    below Nyquist."""
+    below Nyquist.
+
+    Examples
+    --------
+    >>> c = narrow_centres(48000)
+    >>> float(c[0]), round(float(c[NARROW_PER_OCTAVE]), 6), bool(c[-1] < 24000)
+    (20.0, 40.0, True)
+    """
     n = int(np.floor(np.log2(0.5 * rate / _NARROW_LOW_HZ) * NARROW_PER_OCTAVE))
     return _NARROW_LOW_HZ * 2.0 ** (np.arange(n + 1) / NARROW_PER_OCTAVE)
 
