@@ -39,6 +39,10 @@ __all__ = [
     "speech_transmission_index",
     "qualification_band",
     "sti_of_response",
+    "SpeechConditions",
+    "sti_entry",
+    "average_sti",
+    "octave_levels",
 ]
 
 EDITION = "IEC 60268-16:2011 (edition 4), indirect method"
@@ -385,7 +389,12 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
     f = np.asarray(freqs, dtype=np.float64)
     spec = np.array([np.dot(e, np.exp(-2j * np.pi * fi * t)) for fi in f])
     note = ""
-    if tr.noise_limited and tr.compensation > 0 and np.isfinite(tr.slope_db_s) and tr.slope_db_s < 0:
+    if (
+        tr.noise_limited
+        and tr.compensation > 0
+        and np.isfinite(tr.slope_db_s)
+        and tr.slope_db_s < 0
+    ):
         # The decay beyond the crossing point, continued as an exponential: energy C,
         # density C·k·e^(−k(t−tc)); its transform is C·k·e^(−j2πF tc)/(k + j2πF).
         k = -tr.slope_db_s * np.log(10) / 10
@@ -468,3 +477,142 @@ def sti_of_response(
     )
     res.warnings = warnings + res.warnings
     return res
+
+
+# --- conditions, document entries ---------------------------------------------------------
+@dataclass(frozen=True)
+class SpeechConditions:
+    """Talker and listener conditions for the STI of a response.
+
+    ``speech_db`` and ``noise_db`` are octave levels 125 Hz → 8 kHz at the listener (dB SPL);
+    ``noise_db`` None means no background noise. ``origin`` says in words where the levels
+    came from (for the document's settings).
+    """
+
+    speech_db: tuple[float, ...]
+    noise_db: tuple[float, ...] | None = None
+    voice: str = "male"
+    stipa: bool = False
+    origin: str = ""
+    #: files the levels were read from (a noise recording): no output may replace them
+    source_files: tuple[str, ...] = ()
+
+    @classmethod
+    def from_level(
+        cls,
+        level_dba: float = DEFAULT_SPEECH_LEVEL_DBA,
+        noise_db=None,
+        *,
+        voice: str = "male",
+        stipa: bool = False,
+        origin: str = "",
+        source_files: tuple[str, ...] = (),
+    ) -> SpeechConditions:
+        if voice not in ALPHA:
+            raise InputError(f"voice {voice!r} is not one of male, female")
+        if not np.isfinite(level_dba) or not 20.0 <= level_dba <= 120.0:
+            raise InputError(f"speech level {level_dba:g} dB(A) is outside 20…120 dB(A)")
+        noise = None
+        if noise_db is not None:
+            n = np.asarray(noise_db, dtype=np.float64)
+            if n.shape != (7,) or not np.all(np.isfinite(n)) or np.any(np.abs(n) > 150):
+                raise InputError(
+                    "background noise: give seven octave levels 125 Hz to 8 kHz in dB SPL "
+                    "(−150…150)"
+                )
+            noise = tuple(float(x) for x in n)
+        speech = tuple(float(x) for x in speech_spectrum(level_dba))
+        return cls(speech, noise, voice, stipa, origin, tuple(source_files))
+
+    def as_dict(self) -> dict:
+        return {
+            "edition": EDITION,
+            "speech_level_dba": round(a_weighted_level(self.speech_db), 2),
+            "speech_octaves_db": [round(x, 2) for x in self.speech_db],
+            "noise_octaves_db": None
+            if self.noise_db is None
+            else [round(x, 2) for x in self.noise_db],
+            "noise_level_dba": None
+            if self.noise_db is None
+            else round(a_weighted_level(self.noise_db), 2),
+            "voice": self.voice,
+            "stipa": self.stipa,
+            "origin": self.origin,
+            "octaves_hz": list(OCTAVES_HZ),
+            "min_inr_db": MIN_INR_DB,
+        }
+
+
+def sti_entry(h: np.ndarray, rate: int, cond: SpeechConditions) -> dict:
+    """The ``sti`` object of one position in the analysis document."""
+    return sti_of_response(
+        h,
+        rate,
+        speech_db=cond.speech_db,
+        noise_db=cond.noise_db,
+        voice=cond.voice,
+        stipa=cond.stipa,
+    ).as_dict()
+
+
+def average_sti(entries: list[dict]) -> dict:
+    """Mean, spread and minimum of the positions' STI values; null with the reason when no
+    position has one. The letter belongs to the mean."""
+    values = [e["value"] for e in entries if e is not None and e.get("value") is not None]
+    missing = len(entries) - len(values)
+    warnings = []
+    if missing:
+        warnings.append(f"{missing} of {len(entries)} positions have no STI value (see each)")
+    if not values:
+        return {
+            "value": None,
+            "std": None,
+            "min": None,
+            "n": 0,
+            "band": None,
+            "warnings": warnings,
+            "reason": "no position has an STI value",
+        }
+    v = np.asarray(values)
+    mean = float(v.mean())
+    std = float(v.std(ddof=1)) if v.size > 1 else None
+    if std is not None and std > JND:
+        warnings.append(
+            f"the positions' STI values spread by {std:.3f} (more than the JND {JND}); "
+            "the mean hides differences a listener would notice"
+        )
+    return {
+        "value": round(mean, 4),
+        "std": None if std is None else round(std, 4),
+        "min": round(float(v.min()), 4),
+        "n": int(v.size),
+        "band": qualification_band(mean),
+        "warnings": warnings,
+        "reason": None,
+    }
+
+
+def octave_levels(x: np.ndarray, rate: int, full_scale_sine_db: float) -> np.ndarray:
+    """Octave levels 125 Hz → 8 kHz of a noise recording, dB SPL.
+
+    ``full_scale_sine_db`` is the sound pressure level a full-scale sine (peak 1.0, 0 dBFS
+    in the AES17 sense) represents in the recording's channel.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    if x.ndim != 1 or x.size < rate // 2:
+        raise InputError("the noise recording must be one channel of at least 0.5 s")
+    out = []
+    for b in _octaves():
+        if b.upper >= 0.9 * rate / 2:
+            raise InputError(
+                f"the noise recording's rate {rate} Hz is too low for the 8 kHz octave "
+                "(use 32 kHz or more)"
+            )
+        y = zero_phase_band(x, rate, b)
+        # Skip the first and last 0.1 s: the filter's start and end.
+        cut = min(rate // 10, y.size // 4)
+        ms = float(np.mean(y[cut : y.size - cut] ** 2))
+        if not ms > 0:
+            raise InputError(f"the noise recording is silent in the {b.label} Hz octave")
+        out.append(10 * np.log10(ms / 0.5) + full_scale_sine_db)
+    return np.asarray(out)

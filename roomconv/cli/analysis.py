@@ -70,6 +70,9 @@ def run_analyze(a):
         return _run_study(a)
     if not a.irs:
         raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
+    from .speech import speech_from_args
+
+    sti = speech_from_args(a)
     with progress_bar("analysing", quiet=a.quiet) as progress:
         res = analyze_study(
             a.irs,
@@ -81,9 +84,14 @@ def run_analyze(a):
             report_dir=a.report,
             force=a.force,
             progress=progress,
+            sti=sti,
         )
     if not a.quiet:
         show_study(res.study.document)
+    if sti is not None:
+        from .speech import show_sti
+
+        show_sti(res.study.document, a)
     for p in res.written:
         out(f"wrote {p}", a)
     for e in res.errors:  # the outputs above hold the readable files; say which were not
@@ -100,6 +108,11 @@ def _run_study(a):
         raise InputError(
             "analyze: give either IR.wav files or --study, not both (the study "
             "file lists its responses)"
+        )
+    if a.sti:
+        raise InputError(
+            "--sti: not yet available with --study; give the IR files, or use "
+            "'roomconv office STUDY.toml' for a line of office positions"
         )
     if a.report is not None:
         problem = pdf_engine_problem()
@@ -178,6 +191,9 @@ def configure_analyze(p):
         "for comparison with other methods",
     )
     p.add_argument("--force", action="store_true", help="replace existing outputs")
+    from .speech import add_speech_options
+
+    add_speech_options(p)
 
 
 COMMANDS = [
