@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from .bands import Band, all_bands, band_sos
+from .bands import Band, all_bands
 from .decay import lundeby_truncation, onset_index
 from .parameters import zero_phase_band
 
@@ -371,16 +371,15 @@ def _filter_mtf(band: Band, rate: int, freqs) -> np.ndarray:
     pad = int(np.ceil(20.0 * rate / band.bandwidth))
     x = np.zeros(2 * pad + 1)
     x[pad] = 1.0
-    band_sos(band, rate)  # cached design; zero_phase_band uses the same sections
     y = zero_phase_band(x, rate, band)
     return modulation_transfer(y**2, rate, freqs)
 
 
-def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, float, str]:
+def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, float]:
     """Room modulation transfer of one band from its onset: truncated where the decay meets
     the noise, the noise subtracted and the decay beyond compensated (Lundeby et al. 1995).
 
-    Returns m(F), the band's INR (dB) and a note ('' when none)."""
+    Returns m(F) and the band's INR (dB)."""
     tr = lundeby_truncation(x, rate, bandwidth_hz=band.bandwidth)
     e = np.square(x[: max(tr.index, 1)]) - (tr.noise_energy if tr.noise_limited else 0.0)
     e = np.maximum(e, 0.0)
@@ -388,7 +387,6 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
     t = np.arange(e.size) / rate
     f = np.asarray(freqs, dtype=np.float64)
     spec = np.array([np.dot(e, np.exp(-2j * np.pi * fi * t)) for fi in f])
-    note = ""
     if (
         tr.noise_limited
         and tr.compensation > 0
@@ -405,7 +403,7 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
         raise InputError(f"{band.label} Hz band holds no energy")
     m = np.abs(spec) / total
     m = np.minimum(m / _filter_mtf(band, rate, f), 1.0)
-    return m, float(tr.inr_db), note
+    return m, float(tr.inr_db)
 
 
 def sti_of_response(
@@ -457,7 +455,7 @@ def sti_of_response(
         freqs = STIPA_HZ[i] if stipa else MODULATION_HZ
         lead = int(np.ceil(3.0 * rate / b.bandwidth))
         x = zero_phase_band(np.concatenate([np.zeros(lead), h]), rate, b)[lead + onset :]
-        m, inr, _ = _band_mtf(x, rate, b, freqs)
+        m, inr = _band_mtf(x, rate, b, freqs)
         rows.append(m)
         if inr < MIN_INR_DB:
             low.append(f"{b.label} Hz ({inr:.0f} dB)")

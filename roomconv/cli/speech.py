@@ -105,6 +105,9 @@ def speech_from_args(a, *, required: bool = False):
     )
 
 
+_OCTAVE_LABELS = ("125", "250", "500", "1k", "2k", "4k", "8k")
+
+
 def _fmt(v) -> str:
     return "—" if v is None else f"{v:.2f}"
 

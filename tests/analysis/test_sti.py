@@ -187,8 +187,9 @@ def test_response_pipeline_matches_closed_form_within_jnd(T):
 
 def test_inr_limit_keeps_the_estimate_within_half_a_jnd():
     # The same response with noise just above the limit INR in every band (white noise
-    # 24 dB below the onset level leaves the 125 Hz octave about 21 dB): the truncated, compensated estimate
-    # stays within half a JND (0.015) of the noise-free one — the basis of MIN_INR_DB.
+    # 24 dB below the onset level leaves the 125 Hz octave about 21 dB): the truncated,
+    # compensated estimate stays within half a JND (0.015) of the noise-free one — the basis
+    # of MIN_INR_DB.
     rate, T = 32000, 1.0
     clean = _room(T, rate, 2.5)
     rng = np.random.default_rng(9)
