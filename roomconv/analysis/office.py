@@ -21,6 +21,7 @@ __all__ = [
     "FIT_RANGE_M",
     "speech_octaves_at",
     "level_re_1m_from_strength",
+    "band_strengths",
     "spatial_decay",
     "sti_distances",
     "comfort_distance",
@@ -63,6 +64,57 @@ def level_re_1m_from_strength(g_db) -> np.ndarray:
     (relative to 10 m): G − 20 dB, the inverse-square law between 1 m and 10 m
     (ISO 3382-1, A.2)."""
     return np.asarray(g_db, dtype=np.float64) - 20.0
+
+
+def band_strengths(h: np.ndarray, rate: int, reference) -> tuple[list[float | None], list[str]]:
+    """Strength G per octave 125 Hz → 8 kHz from the broadband onset: the single-pass band
+    energy with the noise removed and the decay beyond the noise added, over the
+    reference's level at 10 m.
+
+    ``reference`` is a :class:`~roomconv.analysis.calibration.StrengthReference`. Returns the
+    seven values (None where not evaluable) and the reasons for those.
+
+    References
+    ----------
+    ISO 3382-1:2009, A.2.2 (sound strength G) — from memory.
+    Lundeby, A., Vigran, T. E., Bietz, H., Vorländer, M. (1995). Uncertainties of
+    measurements in room acoustics. Acustica 81, 344–355.
+    """
+    from .bands import all_bands, filter_band
+    from .decay import lundeby_truncation, onset_index
+    from .sti import MIN_INR_DB, OCTAVES_HZ
+
+    h = np.asarray(h, dtype=np.float64)
+    onset = onset_index(h)
+    out: list[float | None] = []
+    why: list[str] = []
+    for b in (b for b in all_bands("octave") if b.nominal in OCTAVES_HZ):
+        ref, problem = reference.lookup(b, rate, band_set="octave")
+        if ref is None:
+            out.append(None)
+            why.append(f"{b.label} Hz: {problem}")
+            continue
+        if b.upper >= 0.9 * rate / 2:
+            out.append(None)
+            why.append(f"{b.label} Hz: above the usable band at {rate} Hz")
+            continue
+        # A lead before the onset keeps the filter's build-up in the sum.
+        lead = min(onset, int(np.ceil(3.0 * rate / b.bandwidth)))
+        x = filter_band(h, rate, b)[onset - lead :]
+        tr = lundeby_truncation(x[lead:], rate, bandwidth_hz=b.bandwidth)
+        if tr.inr_db < MIN_INR_DB:
+            out.append(None)
+            why.append(f"{b.label} Hz: INR {tr.inr_db:.0f} dB (needs {MIN_INR_DB:.0f} dB)")
+            continue
+        e = np.square(x[: lead + tr.index])
+        noise = tr.noise_energy if tr.noise_limited else 0.0
+        total = float(e.sum()) - noise * e.size + tr.compensation
+        if not total > 0:
+            out.append(None)
+            why.append(f"{b.label} Hz: no energy above the noise")
+            continue
+        out.append(float(10 * np.log10(total / rate)) - ref)
+    return out, why
 
 
 def _in_range(r: np.ndarray) -> np.ndarray:

@@ -12,6 +12,7 @@ a value goes into a compliance document.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -183,12 +184,25 @@ def modulation_transfer(energy: np.ndarray, rate: int, freqs_hz) -> np.ndarray:
     total = e.sum()
     if not total > 0:
         raise InputError("the band response holds no energy")
-    t = np.arange(e.size) / rate
+    return np.abs(_energy_transform(e, rate, freqs_hz)) / total
+
+
+#: The energy is summed over blocks this long before the transform: at 12.5 Hz a 0.5 ms
+#: block changes |m| by a factor 1 − (2πFΔ)²/24 ≈ 1 − 7e-5 (a block's phase spread).
+_BLOCK_S = 0.0005
+
+
+def _energy_transform(e: np.ndarray, rate: int, freqs_hz) -> np.ndarray:
+    """∫e(t) e^(−j2πFt) dt / dt for each F, on 0.5 ms block sums at the blocks' centres."""
+    n = max(1, int(rate * _BLOCK_S))
+    m = e.size // n
+    blocks = e[: m * n].reshape(m, n).sum(axis=1)
+    t = (np.arange(m) * n + (n - 1) / 2) / rate
+    if e.size > m * n:
+        blocks = np.append(blocks, e[m * n :].sum())
+        t = np.append(t, (m * n + (e.size - m * n - 1) / 2) / rate)
     f = np.asarray(freqs_hz, dtype=np.float64)
-    out = np.empty(f.size)
-    for i, fi in enumerate(f):
-        out[i] = abs(np.dot(e, np.exp(-2j * np.pi * fi * t))) / total
-    return out
+    return np.exp(-2j * np.pi * np.outer(f, t)) @ blocks
 
 
 def noise_factor(snr_db) -> np.ndarray:
@@ -361,7 +375,8 @@ def _octaves() -> list[Band]:
     return [b for b in all_bands("octave") if b.nominal in OCTAVES_HZ]
 
 
-def _filter_mtf(band: Band, rate: int, freqs) -> np.ndarray:
+@lru_cache(maxsize=64)
+def _filter_mtf(band: Band, rate: int, freqs: tuple[float, ...]) -> np.ndarray:
     """Modulation transfer of the zero-phase band filter's own energy response.
 
     For a noise-like room response the band's energy envelope is the room's convolved with
@@ -384,9 +399,8 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
     e = np.square(x[: max(tr.index, 1)]) - (tr.noise_energy if tr.noise_limited else 0.0)
     e = np.maximum(e, 0.0)
     total = e.sum()
-    t = np.arange(e.size) / rate
     f = np.asarray(freqs, dtype=np.float64)
-    spec = np.array([np.dot(e, np.exp(-2j * np.pi * fi * t)) for fi in f])
+    spec = _energy_transform(e, rate, f)
     if (
         tr.noise_limited
         and tr.compensation > 0
@@ -402,7 +416,7 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
     if not total > 0:
         raise InputError(f"{band.label} Hz band holds no energy")
     m = np.abs(spec) / total
-    m = np.minimum(m / _filter_mtf(band, rate, f), 1.0)
+    m = np.minimum(m / _filter_mtf(band, rate, tuple(float(x) for x in f)), 1.0)
     return m, float(tr.inr_db)
 
 
