@@ -104,3 +104,29 @@ def test_refusals_name_the_option(irs, cli, args, option):
     assert code == 2
     assert option in err and "Traceback" not in err
     assert not (tmp / "bad.json").exists()
+
+
+def test_report_has_the_speech_section(irs, cli):
+    tmp, a, b = irs
+    code, _, err = cli("analyze", a, b, "--sti", "--report", tmp / "rep", "--quiet")
+    assert code == 0, err
+    page = (tmp / "rep" / "report.html").read_text()
+    assert "Speech intelligibility (STI)" in page
+    assert "licensed professional" in page and "MTI 8k" in page
+
+
+def test_study_with_sti(irs, cli):
+    tmp, a, b = irs
+    (tmp / "s.toml").write_text(
+        '[study]\ntitle = "Meeting room"\n[room]\nname = "Room 2"\n'
+        '[[sources]]\nid = "S1"\n[[receivers]]\nid = "R1"\n[[receivers]]\nid = "R2"\n'
+        '[[responses]]\nsource = "S1"\nreceiver = "R1"\nfile = "a.wav"\n'
+        '[[responses]]\nsource = "S1"\nreceiver = "R2"\nfile = "b.wav"\n'
+    )
+    code, out, err = cli("analyze", "--study", tmp / "s.toml", "--sti", "--json", tmp / "s.json")
+    assert code == 0, err
+    doc = json.loads((tmp / "s.json").read_text())
+    assert [p["position"] for p in doc["positions"]] == ["S1-R1", "S1-R2"]
+    # Closed form for T = 0.6 s within one JND (Houtgast et al. 1980; Galbrun & Kitapci 2014).
+    assert doc["average"]["sti"]["value"] == pytest.approx(_closed_form(0.6), abs=S.JND)
+    assert "STI:" in out

@@ -109,11 +109,9 @@ def _run_study(a):
             "analyze: give either IR.wav files or --study, not both (the study "
             "file lists its responses)"
         )
-    if a.sti:
-        raise InputError(
-            "--sti: not yet available with --study; give the IR files, or use "
-            "'roomconv office STUDY.toml' for a line of office positions"
-        )
+    from .speech import speech_from_args
+
+    sti = speech_from_args(a)
     if a.report is not None:
         problem = pdf_engine_problem()
         if problem is not None:
@@ -129,10 +127,15 @@ def _run_study(a):
             report_dir=a.report,
             force=a.force,
             progress=progress,
+            sti=sti,
         )
     doc = res.document
     if not a.quiet:
         show_study(doc)
+    if sti is not None:
+        from .speech import show_sti
+
+        show_sti(doc, a)
     g = doc["grade"]
     out(f"measurement grade (ISO 3382-2): {g['name'] or 'below survey'}", a)
     for p in res.written:

@@ -120,6 +120,7 @@ def report_study(
     force: bool = False,
     require_pdf: bool = True,
     progress: ProgressCallback = silent,
+    sti=None,
 ) -> StudyReportResult:
     """Analyse every response a study file names (each one position) and write the files.
 
@@ -137,6 +138,8 @@ def report_study(
     require_pdf : bool
         With no PDF engine installed, refuse before any analysis (True), or write the HTML
         alone and say why in ``notes`` (False).
+    sti : SpeechConditions, optional
+        Adds the STI per position and averaged (:func:`roomconv.jobs.speech.speech_conditions`).
     force : bool
         Replace existing outputs (never an input).
     """
@@ -151,6 +154,8 @@ def report_study(
         # Every output is planned against every input before any analysis.
         if calibration is not None and Path(calibration).is_file():
             g.add_input(calibration)
+        for f in () if sti is None else sti.source_files:
+            g.add_input(f)
         for p in (json_path, csv_path):
             if p is not None:
                 g.file(p)
@@ -168,6 +173,7 @@ def report_study(
             filtering=filtering,
             calibration=cal,
             progress=_Counter(len(st.responses), progress),
+            sti=sti,
         )
         doc = res.analysis.document
         written: list[Path] = []

@@ -476,6 +476,10 @@ def report_html(res: StudyResults) -> str:
             )
         )
 
+    from .speech import speech_section
+
+    out.append(speech_section(doc, "Speech intelligibility (STI)"))
+
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")
     q_rows = []
