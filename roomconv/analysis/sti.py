@@ -552,6 +552,9 @@ class SpeechConditions:
             "origin": self.origin,
             "octaves_hz": list(OCTAVES_HZ),
             "min_inr_db": MIN_INR_DB,
+            "constants": "α and β weights, masking slopes, reception threshold, male speech "
+            "spectrum and STIPA frequencies as in IEC 60268-16:2011, recalled from memory; "
+            "qualification bands from its Annex F; JND 0.03 (Galbrun & Kitapci 2014)",
         }
 
 

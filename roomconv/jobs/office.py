@@ -55,14 +55,14 @@ def response_distances(st: StudyFile) -> list[float]:
 def _position(h: np.ndarray, rate: int, cal, noise, voice: str) -> dict:
     """Speech levels (from G and the normal-effort spectrum) and the STI of one response."""
     from ..analysis.office import NORMAL_SPEECH_1M_DB, band_strengths, level_re_1m_from_strength
-    from ..analysis.sti import a_weighted_level, sti_of_response
+    from ..analysis.sti import EDITION, a_weighted_level, sti_of_response
 
     g, why = band_strengths(h, rate, cal)
     entry: dict = {"g_db": [None if v is None else round(v, 2) for v in g]}
     if why:
         reason = "no strength G in " + "; ".join(why)
         entry.update(speech_octaves_db=None, speech_level_a_db=None, level_reason=reason)
-        entry["sti"] = {"value": None, "mti": [None] * 7, "band": None, "method": "",
+        entry["sti"] = {"value": None, "mti": [None] * 7, "band": None, "method": EDITION,
                         "warnings": [reason], "reason": reason}  # fmt: skip
         return entry
     speech = np.asarray(NORMAL_SPEECH_1M_DB) + level_re_1m_from_strength(g)
