@@ -130,3 +130,17 @@ def test_study_with_sti(irs, cli):
     # Closed form for T = 0.6 s within one JND (Houtgast et al. 1980; Galbrun & Kitapci 2014).
     assert doc["average"]["sti"]["value"] == pytest.approx(_closed_form(0.6), abs=S.JND)
     assert "STI:" in out
+
+
+def test_noise_recording_is_never_overwritten(irs, cli):
+    tmp, a, _ = irs
+    t = np.arange(FS) / FS
+    noise = tmp / "n.wav"
+    sf.write(noise, 0.1 * np.sin(2 * np.pi * 500 * t), FS, subtype="FLOAT")
+    before = noise.read_bytes()
+    code, _, err = cli(
+        "analyze", a, "--sti", "--noise-file", noise, "--noise-calibration", 94,
+        "--json", noise, "--force",
+    )  # fmt: skip
+    assert code == 2 and "n.wav" in err
+    assert noise.read_bytes() == before

@@ -51,6 +51,10 @@ def level_figure(doc: dict):
             label=f"fit: D2,S {o['d2s_db']:.1f} dB, Lp,A,S,4m {o['lp_a_s_4m_db']:.1f} dB",
         )
     ax.axhline(doc["settings"]["comfort_level_db"], color=F.TARGET_EDGE, ls="--", lw=0.8)
+    ticks = [x for x in (1, 2, 4, 8, 16, 32) if r.size and r.min() / 1.5 <= x <= r.max() * 1.5]
+    ax.set_xticks(ticks)
+    ax.set_xticklabels([f"{x:g}" for x in ticks])
+    ax.minorticks_off()
     ax.set_xlabel("distance from the talker, m")
     ax.set_ylabel("speech level, dB(A)")
     ax.legend(fontsize=7)
