@@ -115,6 +115,10 @@ JND = 0.03
 #: and above gives no flag.
 MIN_INR_DB = 20.0
 CAUTION_INR_DB = 25.0
+#: A response cut inside its decay (no noise floor) has no tail to compensate: 30 dB of
+#: decay left out moves the STI by about half a JND at T = 2 s (checked in the tests), so
+#: below 35 dB it carries a warning.
+CUT_CAUTION_DB = 35.0
 
 CAUTIONS = (
     "Compliance decisions for voice alarm and life-safety systems follow the applicable "
@@ -390,11 +394,12 @@ def _filter_mtf(band: Band, rate: int, freqs: tuple[float, ...]) -> np.ndarray:
     return modulation_transfer(y**2, rate, freqs)
 
 
-def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, float]:
+def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, float, bool]:
     """Room modulation transfer of one band from its onset: truncated where the decay meets
     the noise, the noise subtracted and the decay beyond compensated (Lundeby et al. 1995).
 
-    Returns m(F) and the band's INR (dB)."""
+    Returns m(F), the band's INR (dB) and whether a noise floor was reached (if not, the
+    INR is how far the response falls before it ends)."""
     tr = lundeby_truncation(x, rate, bandwidth_hz=band.bandwidth)
     e = np.square(x[: max(tr.index, 1)]) - (tr.noise_energy if tr.noise_limited else 0.0)
     e = np.maximum(e, 0.0)
@@ -417,7 +422,7 @@ def _band_mtf(x: np.ndarray, rate: int, band: Band, freqs) -> tuple[np.ndarray, 
         raise InputError(f"{band.label} Hz band holds no energy")
     m = np.abs(spec) / total
     m = np.minimum(m / _filter_mtf(band, rate, tuple(float(x) for x in f)), 1.0)
-    return m, float(tr.inr_db)
+    return m, float(tr.inr_db), bool(tr.noise_limited)
 
 
 def sti_of_response(
@@ -469,10 +474,15 @@ def sti_of_response(
         freqs = STIPA_HZ[i] if stipa else MODULATION_HZ
         lead = int(np.ceil(3.0 * rate / b.bandwidth))
         x = zero_phase_band(np.concatenate([np.zeros(lead), h]), rate, b)[lead + onset :]
-        m, inr = _band_mtf(x, rate, b, freqs)
+        m, inr, floor = _band_mtf(x, rate, b, freqs)
         rows.append(m)
         if inr < MIN_INR_DB:
             low.append(f"{b.label} Hz ({inr:.0f} dB)")
+        elif not floor and inr < CUT_CAUTION_DB:
+            warnings.append(
+                f"{b.label} Hz: the response ends only {inr:.0f} dB below its peak, inside "
+                "the decay; the missing tail makes the modulation transfer too high"
+            )
         elif inr < CAUTION_INR_DB:
             warnings.append(
                 f"{b.label} Hz: INR {inr:.0f} dB; the modulation transfer rests on the "
@@ -481,7 +491,8 @@ def sti_of_response(
     if low:
         reason = (
             "INR too low for an honest modulation transfer in " + ", ".join(low) + f" (needs "
-            f"{MIN_INR_DB:.0f} dB); measure with a longer or louder sweep"
+            f"{MIN_INR_DB:.0f} dB above the noise, or a response that falls that far before "
+            "it ends); measure with a longer or louder sweep, or keep more of the response"
         )
         return StiResult(None, [None] * 7, None, method, warnings + [reason], reason)
     res = speech_transmission_index(

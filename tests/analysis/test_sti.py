@@ -220,3 +220,19 @@ def test_bad_inputs_are_refused():
         S.speech_transmission_index(np.ones((7, 14)), noise_db=[30.0] * 6)
     with pytest.raises(InputError, match="voice"):
         S.sti_from_mti(np.ones(7), voice="child")
+
+
+def test_response_cut_inside_its_decay_is_flagged():
+    # T = 2 s cut after 1 s: the response ends 30 dB below its start with no noise floor.
+    # The missing tail raises m; the closed form (Houtgast et al. 1980) is lower, and the
+    # value carries a warning; cut after 0.3 s (9 dB) it has no value.
+    rate = 32000
+    rng = np.random.default_rng(1)
+    t = np.arange(int(1.0 * rate)) / rate
+    h = rng.standard_normal(t.size) * 10 ** (-3 * t / 2.0)
+    r = S.sti_of_response(h, rate)
+    exact = S.speech_transmission_index(flat(closed_form_mtf(2.0))).value
+    assert r.value is not None and exact < r.value < exact + S.JND
+    assert any("inside the decay" in w for w in r.warnings)
+    short = S.sti_of_response(h[: int(0.3 * rate)], rate)
+    assert short.value is None and "INR too low" in short.reason
