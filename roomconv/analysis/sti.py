@@ -473,7 +473,9 @@ def sti_of_response(
     for i, b in enumerate(bands):
         freqs = STIPA_HZ[i] if stipa else MODULATION_HZ
         lead = int(np.ceil(3.0 * rate / b.bandwidth))
-        x = zero_phase_band(np.concatenate([np.zeros(lead), h]), rate, b)[lead + onset :]
+        # Start a lead before the onset: the zero-phase filter spreads the direct sound
+        # both ways, and all of its energy belongs to the modulation transfer.
+        x = zero_phase_band(np.concatenate([np.zeros(lead), h]), rate, b)[onset:]
         m, inr, floor = _band_mtf(x, rate, b, freqs)
         rows.append(m)
         if inr < MIN_INR_DB:
