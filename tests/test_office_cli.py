@@ -125,3 +125,18 @@ def test_missing_distance_is_refused(tmp_path, cli):
     study.write_text(text)
     code, _, err = cli("office", study)
     assert code == 2 and "distance_m" in err
+
+
+def test_study_report_carries_the_office_line(line, cli):
+    tmp, study = line
+    code, _, err = cli("office", study, "--json", tmp / "o.json", "--quiet")
+    assert code == 0, err
+    code, _, err = cli(
+        "analyze", "--study", study, "--json", tmp / "r.json", "--report", tmp / "rep", "--quiet"
+    )
+    assert code == 0, err
+    doc = json.loads((tmp / "r.json").read_text())
+    # The same evaluation as the office command's (one computation, two front ends).
+    assert doc["office"]["office"] == json.loads((tmp / "o.json").read_text())["office"]
+    page = (tmp / "rep" / "report.html").read_text()
+    assert "Open-plan office" in page and "distraction distance" in page

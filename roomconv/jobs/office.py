@@ -15,7 +15,7 @@ from ..study import StudyFile, load_study
 from .guard import guarded
 from .progress import ProgressCallback, silent
 
-__all__ = ["office_study", "OfficeResult", "response_distances"]
+__all__ = ["office_study", "office_document", "OfficeResult", "response_distances"]
 
 
 @dataclass
@@ -73,6 +73,82 @@ def _position(h: np.ndarray, rate: int, cal, noise, voice: str) -> dict:
     return entry
 
 
+def _check_office(st: StudyFile, voice: str) -> None:
+    if st.office is None or st.office.calibration is None:
+        raise InputError(
+            f"{st.path}: office.calibration: is missing; the speech levels need a strength "
+            "reference from 'roomconv calibrate' (see 'roomconv study init')"
+        )
+    if voice not in ("male", "female"):
+        raise InputError(f"voice {voice!r} is not one of male, female")
+
+
+def office_document(
+    st: StudyFile, *, voice: str = "male", progress: ProgressCallback = silent
+) -> dict:
+    """The office evaluation of a loaded study file as a JSON-ready document (reads the
+    responses and the strength reference; writes nothing).
+
+    Raises
+    ------
+    InputError
+        No ``[office]`` calibration, a response without a distance, an unreadable file.
+    """
+    from ..analysis.calibration import parse_strength_reference
+    from ..analysis.office import office_numbers
+    from ..analysis.sti import CAUTIONS
+    from ..audio import read_audio
+
+    _check_office(st, voice)
+    assert st.office is not None and st.office.calibration is not None  # checked above
+    distances = response_distances(st)
+    cal = parse_strength_reference(str(st.office.calibration))
+    noise = st.office.background_noise_db
+    positions = []
+    for i, (r, d) in enumerate(zip(st.responses, distances, strict=True)):
+        progress("office", i / len(st.responses), None)
+        data, rate = read_audio(r.file, what="impulse response")
+        if r.channel > data.shape[1]:
+            raise InputError(f"{r.file}: has no channel {r.channel} (responses[{i + 1}].channel)")
+        entry: dict = {
+            "file": st.display_path(r.file),
+            "channel": r.channel,
+            "source": r.source,
+            "receiver": r.receiver,
+            "distance_m": round(d, 3),
+        }
+        try:
+            entry.update(_position(data[:, r.channel - 1], rate, cal, noise, voice))
+        except InputError as exc:
+            raise InputError(f"{r.file}: {exc}") from None
+        positions.append(entry)
+    progress("office", 1.0, None)
+    numbers = office_numbers(
+        [p["distance_m"] for p in positions],
+        [np.nan if p["speech_level_a_db"] is None else p["speech_level_a_db"] for p in positions],
+        [p["sti"]["value"] for p in positions],
+    )
+    notes = []
+    if noise is None:
+        notes.append(
+            "no background noise given (office.background_noise_db): the STI values "
+            "assume a silent office and are higher than with the noise ISO 3382-3 "
+            "asks to be measured"
+        )
+    summary = numbers.as_dict()
+    summary["warnings"] += notes
+    return {
+        "title": st.title,
+        "room": st.room.name,
+        "positions": positions,
+        "office": summary,
+        "settings": _settings(noise, voice),
+        "notes": notes,
+        "cautions": list(CAUTIONS),
+        "roomconv_version": __version__,
+    }
+
+
 def office_study(
     study_path,
     *,
@@ -97,77 +173,16 @@ def office_study(
     force : bool
         Replace existing outputs (never an input).
     """
-    from ..analysis.calibration import parse_strength_reference
-    from ..analysis.office import office_numbers
-    from ..analysis.sti import CAUTIONS
-    from ..audio import read_audio
-
     st = load_study(study_path)
-    if st.office is None or st.office.calibration is None:
-        raise InputError(
-            f"{st.path}: office.calibration: is missing; the speech levels need a strength "
-            "reference from 'roomconv calibrate' (see 'roomconv study init')"
-        )
-    if voice not in ("male", "female"):
-        raise InputError(f"voice {voice!r} is not one of male, female")
-    distances = response_distances(st)
-    inputs = [st.path, st.office.calibration] + [r.file for r in st.responses]
+    _check_office(st, voice)
+    response_distances(st)  # refuse a missing distance before any output is planned
+    inputs = [st.path, st.office.calibration] + [r.file for r in st.responses]  # type: ignore[union-attr]
     with guarded(inputs, force=force) as g:
         page = g.folder(report_dir) / "office.html" if report_dir is not None else None
         for p in (json_path, page):
             if p is not None:
                 g.file(p)
-        cal = parse_strength_reference(str(st.office.calibration))
-        noise = st.office.background_noise_db
-        positions = []
-        for i, (r, d) in enumerate(zip(st.responses, distances, strict=True)):
-            progress("office", i / len(st.responses), None)
-            data, rate = read_audio(r.file, what="impulse response")
-            if r.channel > data.shape[1]:
-                raise InputError(
-                    f"{r.file}: has no channel {r.channel} (responses[{i + 1}].channel)"
-                )
-            entry: dict = {
-                "file": st.display_path(r.file),
-                "channel": r.channel,
-                "source": r.source,
-                "receiver": r.receiver,
-                "distance_m": round(d, 3),
-            }
-            try:
-                entry.update(_position(data[:, r.channel - 1], rate, cal, noise, voice))
-            except InputError as exc:
-                raise InputError(f"{r.file}: {exc}") from None
-            positions.append(entry)
-        progress("office", 1.0, None)
-        numbers = office_numbers(
-            [p["distance_m"] for p in positions],
-            [
-                np.nan if p["speech_level_a_db"] is None else p["speech_level_a_db"]
-                for p in positions
-            ],
-            [p["sti"]["value"] for p in positions],
-        )
-        notes = []
-        if noise is None:
-            notes.append(
-                "no background noise given (office.background_noise_db): the STI values "
-                "assume a silent office and are higher than with the noise ISO 3382-3 "
-                "asks to be measured"
-            )
-        summary = numbers.as_dict()
-        if noise is None:
-            summary["warnings"].append(notes[0])
-        doc: dict = {
-            "title": st.title,
-            "room": st.room.name,
-            "positions": positions,
-            "office": summary,
-            "settings": _settings(noise, voice),
-            "notes": notes,
-            "cautions": list(CAUTIONS),
-            "roomconv_version": __version__,
-        }
+        doc = office_document(st, voice=voice, progress=progress)
         written = []
         if json_path is not None:
             written.append(g.write_json(json_path, doc))

@@ -108,6 +108,19 @@ class _Counter:
         self.progress("analyse", min(1.0, self.done / self.total), None)
 
 
+def _add_office(st: StudyFile, doc: dict) -> None:
+    """A study file with an ``[office]`` table gets the office line (ISO 3382-3) in its
+    document and report; when it cannot be made the notes say why."""
+    if st.office is None:
+        return
+    from .office import office_document
+
+    try:
+        doc["office"] = office_document(st)
+    except InputError as exc:
+        doc.setdefault("notes", []).append(f"open-plan office evaluation not made: {exc}")
+
+
 def report_study(
     study_path,
     *,
@@ -156,6 +169,8 @@ def report_study(
             g.add_input(calibration)
         for f in () if sti is None else sti.source_files:
             g.add_input(f)
+        if st.office is not None and st.office.calibration is not None:
+            g.add_input(st.office.calibration)
         for p in (json_path, csv_path):
             if p is not None:
                 g.file(p)
@@ -176,6 +191,7 @@ def report_study(
             sti=sti,
         )
         doc = res.analysis.document
+        _add_office(st, doc)
         written: list[Path] = []
         if json_path is not None:
             written.append(g.write_json(json_path, doc))
