@@ -25,6 +25,7 @@ __all__ = [
     "Point",
     "Response",
     "Targets",
+    "OfficeSettings",
     "load_study",
     "parse_study",
     "template_text",
@@ -182,11 +183,23 @@ class Response:
     file: Path
     channel: int = 1
     quality_file: Path | None = None
+    #: source–receiver distance for the open-plan office evaluation (ISO 3382-3)
+    distance_m: float | None = None
 
     @property
     def label(self) -> str:
         """``"<source>-<receiver>"``, the response's name in tables and figures."""
         return f"{self.source}-{self.receiver}"
+
+
+@dataclass(frozen=True)
+class OfficeSettings:
+    """The ``[office]`` table: what ``roomconv office`` needs beyond the responses."""
+
+    #: strength reference from ``roomconv calibrate`` (absolute levels from the responses)
+    calibration: Path | None = None
+    #: background noise per octave 125 Hz → 8 kHz at the positions, dB SPL
+    background_noise_db: tuple[float, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -238,6 +251,7 @@ class StudyFile:
     receivers: tuple[Point, ...] = ()
     responses: tuple[Response, ...] = ()
     targets: Targets | None = None
+    office: OfficeSettings | None = None
 
     def as_dict(self) -> dict:
         """Plain JSON-ready data (paths as strings, relative to the study file when inside)."""
@@ -252,6 +266,8 @@ class StudyFile:
             d["targets"]["reverberation_s"] = {
                 f"{k:g}": v for k, v in self.targets.reverberation_s.items()
             }
+        if self.office is not None and self.office.calibration is not None:
+            d["office"]["calibration"] = self.display_path(self.office.calibration)
         d["room"]["volume_m3"] = self.room.volume
         d["room"]["surface_m2"] = self.room.surface
         return d
@@ -521,12 +537,13 @@ def parse_study(text: str, path) -> StudyFile:
         f = _path(base, r.get("file", str, required=True), r, "file")
         ch = r.get("channel", int, 1, check=lambda v: None if v >= 1 else "channels count from 1")
         q = r.get("quality_file", str)
+        dist = r.get("distance_m", float, check=_range(0.1, 1000.0))
         r.done()
         if (s, c, f, ch) in combos:
             r.fail("file", "the same response is listed twice", "remove one of them")
         combos.add((s, c, f, ch))
         qf = None if q is None else _path(base, q, r, "quality_file")
-        responses.append(Response(s, c, f, ch, qf))
+        responses.append(Response(s, c, f, ch, qf, dist))
 
     targets = None
     if "targets" in doc:
@@ -580,6 +597,8 @@ def parse_study(text: str, path) -> StudyFile:
             basis, dict(sorted(bands.items())), (float(tol[0]), float(tol[1])), origin
         )
     top.used.add("targets")
+    office = _office(top, base, src) if "office" in doc else None
+    top.used.add("office")
     top.done()
     return StudyFile(
         path=path,
@@ -596,6 +615,30 @@ def parse_study(text: str, path) -> StudyFile:
         receivers=receivers,
         responses=tuple(responses),
         targets=targets,
+        office=office,
+    )
+
+
+def _office(top: _Reader, base: Path, src: str) -> OfficeSettings:
+    of = _Reader(top.get("office", dict), "office.", src)
+    cal = of.get("calibration", str)
+    noise = of.get(
+        "background_noise_db",
+        list,
+        check=lambda v: (
+            None
+            if len(v) == 7
+            and all(
+                isinstance(c, int | float) and not isinstance(c, bool) and -20 <= c <= 150
+                for c in v
+            )
+            else "must be seven levels in dB SPL (125 Hz to 8 kHz octaves), −20…150"
+        ),
+    )
+    of.done()
+    return OfficeSettings(
+        None if cal is None else _path(base, cal, of, "calibration"),
+        None if noise is None else tuple(float(x) for x in noise),
     )
 
 
@@ -769,4 +812,12 @@ file = "S1R2.wav"
 # reverberation_s = {{ "125" = 0.8, "250" = 0.7, "500" = 0.6, "1000" = 0.6, "2000" = 0.6 }}
 # tolerance_pct = [-20, 20]
 # source = ""               # where the target comes from (a standard, a brief)
+
+# Optional: an open-plan office line (ISO 3382-3), read by `roomconv office FILE`. Give
+# each response its source distance (distance_m = 4.0 in its [[responses]] table; else the
+# plan distance from xy_m is used), a strength reference from `roomconv calibrate` for
+# absolute levels, and the background noise measured at the positions.
+# [office]
+# calibration = "cal.json"
+# background_noise_db = [40.0, 38.0, 36.0, 34.0, 31.0, 27.0, 22.0]  # 125 Hz … 8 kHz, dB SPL
 """

@@ -412,6 +412,10 @@ def html_report(
         + "</ul>"
     )
     out.append(f"<p>{html.escape(LEGEND.replace('*', '⚠'))}</p>")
+    if "sti" in doc["average"]:
+        from ..report.speech import speech_section
+
+        out.append(speech_section(doc))
     if len(doc["positions"]) > 1:
         rows = []
         for r in doc["average"]["bands"]:

@@ -82,11 +82,19 @@ def parse_calibration(text: str | None):
 
 
 def analyse_arrays(
-    items, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+    items,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration=None,
+    progress=None,
+    sti=None,
 ) -> Study:
     """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`.
 
     ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
+    ``sti`` is a :class:`~roomconv.analysis.sti.SpeechConditions`: each position and the
+    average then get an ``sti`` object (IEC 60268-16).
     Channels are numbered from 1 in the document, as a person counts them.
 
     Examples
@@ -130,6 +138,10 @@ def analyse_arrays(
                 }
             )
             curves[(str(name), ch + 1)] = (res, wide, rate)
+            if sti is not None:
+                from .sti import sti_entry
+
+                positions[-1]["sti"] = sti_entry(data[:, ch], rate, sti)
     if not positions:
         raise InputError("no response could be analysed: " + "; ".join(errors))
     with_g = calibration is not None
@@ -158,11 +170,28 @@ def analyse_arrays(
         "errors": errors,
         "roomconv_version": __version__,
     }
+    if sti is not None:
+        _add_sti(doc, sti)
     return Study(doc, curves, errors)
 
 
+def _add_sti(doc: dict, sti) -> None:
+    """The STI average, its settings and the cautions that go with any STI value."""
+    from .sti import CAUTIONS, average_sti
+
+    doc["average"]["sti"] = average_sti([p["sti"] for p in doc["positions"]])
+    doc["settings"]["sti"] = sti.as_dict()
+    doc["cautions"] = list(CAUTIONS)
+
+
 def analyse_files(
-    paths, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+    paths,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration=None,
+    progress=None,
+    sti=None,
 ) -> Study:
     """Read each IR file and analyse every channel as its own position.
 
@@ -195,7 +224,12 @@ def analyse_files(
     if not items:
         raise InputError("no response could be analysed: " + "; ".join(errors))
     study = analyse_arrays(
-        items, bands=bands, filtering=filtering, calibration=calibration, progress=progress
+        items,
+        bands=bands,
+        filtering=filtering,
+        calibration=calibration,
+        progress=progress,
+        sti=sti,
     )
     study.errors = errors + study.errors
     study.document["errors"] = study.errors

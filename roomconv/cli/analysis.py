@@ -84,6 +84,9 @@ def run_analyze(a):
         return _run_study(a)
     if not a.irs:
         raise InputError("analyze: give impulse responses (IR.wav ...) or --study FILE.toml")
+    from .speech import speech_from_args
+
+    sti = speech_from_args(a)
     with progress_bar("analysing", quiet=a.quiet) as progress:
         res = analyze_study(
             a.irs,
@@ -95,9 +98,14 @@ def run_analyze(a):
             report_dir=a.report,
             force=a.force,
             progress=progress,
+            sti=sti,
         )
     if not a.quiet:
         show_study(res.study.document)
+    if sti is not None:
+        from .speech import show_sti
+
+        show_sti(res.study.document, a)
     for p in res.written:
         out(f"wrote {p}", a)
     for e in res.errors:  # the outputs above hold the readable files; say which were not
@@ -115,6 +123,9 @@ def _run_study(a):
             "analyze: give either IR.wav files or --study, not both (the study "
             "file lists its responses)"
         )
+    from .speech import speech_from_args
+
+    sti = speech_from_args(a)
     if a.report is not None:
         problem = pdf_engine_problem()
         if problem is not None:
@@ -130,10 +141,15 @@ def _run_study(a):
             report_dir=a.report,
             force=a.force,
             progress=progress,
+            sti=sti,
         )
     doc = res.document
     if not a.quiet:
         show_study(doc)
+    if sti is not None:
+        from .speech import show_sti
+
+        show_sti(doc, a)
     g = doc["grade"]
     out(f"measurement grade (ISO 3382-2): {g['name'] or 'below survey'}", a)
     for p in res.written:
@@ -193,6 +209,9 @@ def configure_analyze(p):
         "for comparison with other methods",
     )
     p.add_argument("--force", action="store_true", help="replace existing outputs")
+    from .speech import add_speech_options
+
+    add_speech_options(p)
 
 
 COMMANDS = [

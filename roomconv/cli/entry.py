@@ -9,7 +9,7 @@ import traceback
 
 from .. import __version__
 from ..errors import OutputExistsError, RoomconvError
-from . import analysis, calibrate, demo, measure, plan, render, study, synth, workbench
+from . import analysis, calibrate, demo, measure, office, plan, render, study, synth, workbench
 from .common import Parser, common_options
 
 __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
@@ -21,6 +21,7 @@ def command_groups() -> list:
         *measure.COMMANDS,
         *analysis.COMMANDS,
         *plan.COMMANDS,
+        *office.COMMANDS,
         *calibrate.COMMANDS,
         *synth.COMMANDS,
         *render.COMMANDS,

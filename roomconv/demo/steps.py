@@ -94,12 +94,13 @@ def run_demo(
         force,
         progress,
         {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
-        total=n_pos * 2 + 3 + len(sc.clips) + 1,
+        total=n_pos * 2 + 3 + len(sc.clips) + 2,
     )
     room = quillmere_hall()
     truths = true_responses(run, room)
     qualities = measure_positions(run, truths, sweep)
     study, comparison = analyse_positions(run, room, qualities)
+    speech = speech_room_step(run)
     pairs = stereo_pairs(run, room)
     renders = render_clips(run, pairs)
     for n in run.notes:
@@ -107,6 +108,7 @@ def run_demo(
     write_report(run, room, sweep, study, comparison, renders)
     plan_demo(out, room, force=force)  # the hall planned for talks (plan.json)
     summary = _summary(study.document, time.monotonic() - t_start, out)
+    summary["speech_room"] = speech
     write_document(out / "summary.json", summary, force=force)
     return summary
 
@@ -218,6 +220,19 @@ def analyse_positions(run: _Run, room, qualities: dict):
     doc["measured_vs_predicted"] = comparison
     run.step("analyse")
     return study, comparison
+
+
+def speech_room_step(run: _Run) -> dict:
+    """3b. A meeting room of our own, rated by the STI (see :mod:`roomconv.demo.speech`)."""
+    from ..jobs.guard import make_folders
+    from .speech import speech_room
+
+    make_folders(run.out / "speech")
+    avg = speech_room(
+        run.out / "speech", rate_hz=RATE_HZ, seed=SEED, force=run.force, settings=run.settings
+    )
+    run.step("speech room")
+    return avg
 
 
 def stereo_pairs(run: _Run, room) -> dict:
@@ -523,6 +538,7 @@ def _summary(doc, seconds, out) -> dict:
                 "irs",
                 "harmonics",
                 "renders",
+                "speech",
             )
         ],
         "seconds": seconds,

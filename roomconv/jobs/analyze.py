@@ -136,6 +136,7 @@ def analyze_study(
     report_dir=None,
     force: bool = False,
     progress: ProgressCallback = silent,
+    sti=None,
 ) -> AnalyzeResult:
     """Analyse every channel of every response as a position, average, and write the files.
 
@@ -152,6 +153,9 @@ def analyze_study(
         Folder for ``report.html`` (created only when the page is written).
     force : bool
         Replace existing outputs (never an input).
+    sti : SpeechConditions, optional
+        Adds the STI (IEC 60268-16) per position and averaged; see
+        :func:`roomconv.jobs.speech.speech_conditions`.
 
     Examples
     --------
@@ -175,6 +179,8 @@ def analyze_study(
         # any analysis.
         if calibration is not None and Path(calibration).is_file():
             g.add_input(calibration)
+        for f in () if sti is None else sti.source_files:
+            g.add_input(f)
         report_file = g.folder(report_dir) / "report.html" if report_dir is not None else None
         for p in (json_path, csv_path, report_file):
             if p is not None:
@@ -192,6 +198,7 @@ def analyze_study(
             filtering=filtering,
             calibration=cal,
             progress=_Counter(total, progress),
+            sti=sti,
         )
         # A page of results alone: no playback caution (pages that offer sound add it).
         written = _write(g, study, json_path, csv_path, report_file, {"cautions": False})

@@ -160,6 +160,19 @@ class _Counter:
         self.progress("analyse", min(1.0, self.done / self.total), None)
 
 
+def _add_office(st: StudyFile, doc: dict) -> None:
+    """A study file with an ``[office]`` table gets the office line (ISO 3382-3) in its
+    document and report; when it cannot be made the notes say why."""
+    if st.office is None:
+        return
+    from .office import office_document
+
+    try:
+        doc["office"] = office_document(st)
+    except InputError as exc:
+        doc.setdefault("notes", []).append(f"open-plan office evaluation not made: {exc}")
+
+
 def report_study(
     study_path,
     *,
@@ -172,6 +185,7 @@ def report_study(
     force: bool = False,
     require_pdf: bool = True,
     progress: ProgressCallback = silent,
+    sti=None,
 ) -> StudyReportResult:
     """Analyse every response a study file names (each one position) and write the files.
 
@@ -189,6 +203,8 @@ def report_study(
     require_pdf : bool
         With no PDF engine installed, refuse before any analysis (True), or write the HTML
         alone and say why in ``notes`` (False).
+    sti : SpeechConditions, optional
+        Adds the STI per position and averaged (:func:`roomconv.jobs.speech.speech_conditions`).
     force : bool
         Replace existing outputs (never an input).
 
@@ -211,6 +227,10 @@ def report_study(
         # Every output is planned against every input before any analysis.
         if calibration is not None and Path(calibration).is_file():
             g.add_input(calibration)
+        for f in () if sti is None else sti.source_files:
+            g.add_input(f)
+        if st.office is not None and st.office.calibration is not None:
+            g.add_input(st.office.calibration)
         for p in (json_path, csv_path):
             if p is not None:
                 g.file(p)
@@ -228,8 +248,10 @@ def report_study(
             filtering=filtering,
             calibration=cal,
             progress=_Counter(len(st.responses), progress),
+            sti=sti,
         )
         doc = res.analysis.document
+        _add_office(st, doc)
         written: list[Path] = []
         if json_path is not None:
             written.append(g.write_json(json_path, doc))

@@ -572,6 +572,14 @@ def report_html(res: StudyResults) -> str:
             )
         )
 
+    from .speech import speech_section
+
+    out.append(speech_section(doc, "Speech intelligibility (STI)"))
+    if "office" in doc:
+        from .office import office_section
+
+        out.append(office_section(doc["office"]))
+
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")
     q_rows = []

@@ -110,6 +110,7 @@ def analyse_study(
     filtering: str = "auto",
     calibration=None,
     progress=None,
+    sti=None,
 ) -> StudyResults:
     """Read every response the study names and analyse each as one position.
 
@@ -148,7 +149,12 @@ def analyse_study(
         if r.quality_file is not None:
             quality[label] = read_json(r.quality_file, what="measurement quality file")
     result = analyse_arrays(
-        items, bands=bands, filtering=filtering, calibration=calibration, progress=progress
+        items,
+        bands=bands,
+        filtering=filtering,
+        calibration=calibration,
+        progress=progress,
+        sti=sti,
     )
     doc = result.document
     curves = {}
