@@ -78,7 +78,7 @@ def iacc(left: np.ndarray, right: np.ndarray, rate: int, *, max_lag_s: float = M
     el, er = float(np.dot(left, left)), float(np.dot(right, right))
     if el <= 0 or er <= 0:
         raise InputError("IACC of a silent channel is not defined")
-    return value / np.sqrt(el * er)
+    return float(value / np.sqrt(el * er))
 
 
 def _iacf_max(seg_l: np.ndarray, ext_r: np.ndarray, m: int) -> tuple[float, int]:
