@@ -50,6 +50,9 @@ REPORTED_BANDS = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0)
 #: Octaves averaged into the single numbers (ISO 3382-1:2009, Annex A: 125 Hz–1 kHz — from
 #: memory).
 AVERAGED = (125.0, 1000.0)
+#: Half-width of the window around the direct sound's peak the figure-of-eight's leak is read
+#: in, s.
+LEAK_WINDOW_S = 0.0005
 EARLY = (0.0, 0.080)
 LATERAL = (0.005, 0.080)
 LATE = 0.080
@@ -330,12 +333,12 @@ def lateral_fractions(
     Notes
     -----
     Time zero is the omni's onset (the figure-of-eight nulls the direct sound). The leak of
-    the direct sound into the figure-of-eight, ε = sqrt(E_fig8/E_omni) over the broadband
-    direct sound, bounds the error it can cause: reflections from the source's side reach the
-    lateral channel with at most ε of their amplitude, adding up to ε² (J_LF) and ε (J_LFC) of
-    the early share. A bound over half a JND is a caution, over three JNDs no value: for J_LF
-    that is a direct sound less than about 16 dB below the omni's when the early energy is
-    mostly reflected, and for J_LFC about 32 dB.
+    the direct sound into the figure-of-eight, ε = sqrt(E_fig8/E_omni) over ±0.5 ms around
+    the broadband direct sound's peak, bounds the error it can cause: reflections from the
+    source's side reach the lateral channel with at most ε of their amplitude, adding up to
+    ε² (J_LF) and ε (J_LFC) of the early share. A bound over half a JND is a caution, over
+    three JNDs no value: for J_LF that is a direct sound less than about 16 dB below the
+    omni's when the early energy is mostly reflected, and for J_LFC about 32 dB.
 
     References
     ----------
@@ -368,7 +371,12 @@ def lateral_fractions(
         bands, _ = bands_for_rate("octave", rate)
     if onset is None:
         onset = onset_index(omni)
-    d = slice(onset, onset + max(1, int(round(DIRECT_SOUND_S * rate))))
+    # The direct sound's peak ±0.5 ms: short enough to leave out the first reflections (a
+    # path 17 cm longer) and the diffuse field, long enough for a microphone's own spread.
+    first = omni[onset : onset + max(1, int(round(DIRECT_SOUND_S * rate)))]
+    peak = onset + int(np.argmax(np.abs(first)))
+    half = max(1, int(round(LEAK_WINDOW_S * rate)))
+    d = slice(max(0, peak - half), peak + half + 1)
     e_om = float(np.sum(np.square(omni[d])))
     leak = float(np.sqrt(np.sum(np.square(fig8[d])) / e_om)) if e_om > 0 else 1.0
     rows = []

@@ -124,11 +124,16 @@ def mean_with_spread(metric, row) -> str:
 
 
 def csv_text(doc: dict) -> str:
-    """One row per position × band (wideband as band 'wideband'), then the averages."""
-    metrics = metrics_of(doc)
+    """One row per position × band (wideband as band 'wideband'), then the averages.
+
+    The stage, lateral and interaural columns appear only when the document holds them."""
+    from .layouts import keys_of
+
+    extra = keys_of(doc)
+    metrics = metrics_of(doc) + extra
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    judged = [m for m in metrics if m in _JUDGED]
+    judged = [m for m in metrics if m in _JUDGED or m in extra]
     w.writerow(
         ["file", "channel", "band_hz"]
         + list(metrics)
@@ -147,9 +152,11 @@ def csv_text(doc: dict) -> str:
             )
     for r in doc["average"]["bands"]:
         row = ["average", "", r["band_hz"]]
-        row += ["" if r[m]["mean"] is None else f"{r[m]['mean']:.6g}" for m in metrics]
+        row += [
+            "" if (r.get(m) or {}).get("mean") is None else f"{r[m]['mean']:.6g}" for m in metrics
+        ]
         row.append("")
-        row += [r[m].get("verdict") or "" for m in judged]
+        row += [(r.get(m) or {}).get("verdict") or "" for m in judged]
         row += ["", ""]
         w.writerow(row)
     return buf.getvalue()

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -56,16 +57,27 @@ def parse_calibration(text: str | None):
 
 
 def analyse_arrays(
-    items, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+    items,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration=None,
+    progress=None,
+    layout=None,
 ) -> Study:
     """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`.
 
     ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
-    Channels are numbered from 1 in the document, as a person counts them.
+    Channels are numbered from 1 in the document, as a person counts them. ``layout``
+    (:class:`~roomconv.analysis.layouts.ChannelLayout`) says what the channels are and adds
+    the stage, lateral or interaural parameters.
     """
     positions, curves, errors, notes = [], {}, [], []
+    if layout is not None:
+        layout.refuse_unfit(items, bands)
     for name, data, rate in items:
-        for ch in range(data.shape[1]):
+        chans = range(data.shape[1]) if layout is None else layout.mono_channels(data.shape[1])
+        for ch in chans:
             try:
                 res, wide, n = room_parameters(
                     data[:, ch],
@@ -82,22 +94,33 @@ def analyse_arrays(
                     progress.update(1)
             notes += [x for x in n if x not in notes]
             with_g = calibration is not None
-            positions.append(
-                {
-                    "file": str(name),
-                    "channel": ch + 1,
-                    "rate": rate,
-                    "bands": [r.as_dict(with_g) for r in res],
-                    "wideband": wide.as_dict(with_g),
-                }
-            )
+            position = {
+                "file": str(name),
+                "channel": ch + 1,
+                "rate": rate,
+                "bands": [r.as_dict(with_g) for r in res],
+                "wideband": wide.as_dict(with_g),
+            }
+            if layout is not None:
+                from .layouts import extend_position
+
+                try:
+                    extend_position(position, layout, data, rate, ch, calibration)
+                except InputError as exc:
+                    errors.append(describe(name, f"{layout.text}: {exc}"))
+                    continue
+            positions.append(position)
             curves[(str(name), ch + 1)] = (res, wide, rate)
     if not positions:
         raise InputError("no response could be analysed: " + "; ".join(errors))
     with_g = calibration is not None
     avg = spatial_average([p["bands"] for p in positions], bands, with_g)
     sn, sn_verdicts = single_numbers(avg, bands, with_verdicts=True)
-    doc = {
+    if layout is not None:
+        from .layouts import average_layout
+
+        layout_average = average_layout(positions, avg)
+    doc: dict[str, Any] = {
         "positions": positions,
         "average": {
             "bands": avg,
@@ -120,11 +143,20 @@ def analyse_arrays(
         "errors": errors,
         "roomconv_version": __version__,
     }
+    if layout is not None:
+        doc["settings"]["channels"] = layout.settings
+        doc["average"]["layout_single_numbers"] = layout_average
     return Study(doc, curves, errors)
 
 
 def analyse_files(
-    paths, *, bands: str = "octave", filtering: str = "auto", calibration=None, progress=None
+    paths,
+    *,
+    bands: str = "octave",
+    filtering: str = "auto",
+    calibration=None,
+    progress=None,
+    layout=None,
 ) -> Study:
     """Read each IR file and analyse every channel as its own position.
 
@@ -145,7 +177,12 @@ def analyse_files(
     if not items:
         raise InputError("no response could be analysed: " + "; ".join(errors))
     study = analyse_arrays(
-        items, bands=bands, filtering=filtering, calibration=calibration, progress=progress
+        items,
+        bands=bands,
+        filtering=filtering,
+        calibration=calibration,
+        progress=progress,
+        layout=layout,
     )
     study.errors = errors + study.errors
     study.document["errors"] = study.errors

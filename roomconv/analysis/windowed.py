@@ -49,6 +49,8 @@ class JudgedRow:
     codes: dict[str, list[str]] = field(default_factory=dict)
     warning_codes: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: Warning texts by code.
+    texts: dict[str, list[str]] = field(default_factory=dict)
 
     def flag(self, keys, level: str, code: str, text: str) -> None:
         """Record a warning against ``keys``; NOT_EVALUABLE also clears their values."""
@@ -64,6 +66,7 @@ class JudgedRow:
             self.warning_codes.append(code)
         if text not in self.warnings:
             self.warnings.append(text)
+            self.texts.setdefault(code, []).append(text)
 
     def finish(self, keys) -> JudgedRow:
         """Every key gets a verdict: "ok" for a value not flagged, "not evaluable" for none."""
@@ -307,6 +310,6 @@ def band_average(
     vals = [r.values.get(key) for r in want]
     if any(v is None for v in vals):
         gone = [f"{r.band_hz:g} Hz" for r in want if r.values.get(key) is None]
-        return None, NOT_EVALUABLE, f"not evaluable in the {', '.join(gone)} band(s)"
+        return None, NOT_EVALUABLE, f"no value in the {', '.join(gone)} band(s)"
     worst = max((r.verdicts.get(key, OK) for r in want), key=_RANK.__getitem__)
     return float(np.mean([float(v) for v in vals if v is not None])), worst, None

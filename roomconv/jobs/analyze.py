@@ -9,6 +9,7 @@ from pathlib import Path
 
 from ..analysis.study import Study, analyse_files, parse_calibration
 from ..audio import WriteGuard, audio_info
+from ..errors import InputError
 from .guard import guarded
 from .naming import study_outputs
 from .progress import ProgressCallback, silent
@@ -116,6 +117,9 @@ def analyze_study(
     report_dir=None,
     force: bool = False,
     progress: ProgressCallback = silent,
+    channels: str | None = None,
+    binaural: bool = False,
+    stage: bool = False,
 ) -> AnalyzeResult:
     """Analyse every channel of every response as a position, average, and write the files.
 
@@ -132,8 +136,30 @@ def analyze_study(
         Folder for ``report.html`` (created only when the page is written).
     force : bool
         Replace existing outputs (never an input).
+    channels : {"omni,fig8", "fig8,omni", "acn-sn3d"}, optional
+        Each file is one position of two channels (omni and figure-of-eight) or a first-order
+        ambisonic response (ACN/SN3D): adds J_LF, J_LFC and L_J.
+    binaural : bool
+        Each file is one position of two ear channels (left, right): adds IACC.
+    stage : bool
+        Every channel is a response 1 m from the source on stage: adds ST_early, ST_late.
     """
+    from ..analysis.layouts import parse_layout
+
     inputs = [Path(p) for p in irs]
+    layout = parse_layout(channels, binaural, stage)
+    if layout is not None:
+        if bands != "octave":
+            raise InputError(
+                f"the {layout.text} parameters are defined in octave bands (ISO 3382-1); "
+                f"use octave bands, not {bands}"
+            )
+        for ir in inputs:
+            try:
+                count = audio_info(ir).channels
+            except Exception:  # noqa: BLE001 - unreadable files are reported by the analysis
+                continue
+            layout.check(ir, count)
     with guarded(inputs, force=force) as g:
         # Every output is planned against every input, a calibration file included, before
         # any analysis.
@@ -156,6 +182,7 @@ def analyze_study(
             filtering=filtering,
             calibration=cal,
             progress=_Counter(total, progress),
+            layout=layout,
         )
         # A page of results alone: no playback caution (pages that offer sound add it).
         written = _write(g, study, json_path, csv_path, report_file, {"cautions": False})
