@@ -330,6 +330,9 @@ def html_report(
         res, _wide, rate = study.curves[(str(p["file"]), p["channel"])]
         fig = decay_figure(res, rate, f"Decay curves, {p['file']} ch {p['channel']}")
         out.append(f"<img alt='decay curves' src='{_png(fig)}'>")
+    from .layouts import section_html
+
+    out.append(section_html(doc))
     for n in doc.get("notes", []):
         out.append(f"<p>note: {html.escape(n)}</p>")
     for e in doc.get("errors", []):

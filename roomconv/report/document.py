@@ -476,6 +476,11 @@ def report_html(res: StudyResults) -> str:
             )
         )
 
+    # Stage, lateral and interaural parameters, when the analysis holds them.
+    from ..analysis.layouts import section_html
+
+    out.append(section_html(doc, level=3))
+
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")
     q_rows = []

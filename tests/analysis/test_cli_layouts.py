@@ -229,3 +229,26 @@ def test_job_refuses_layout_with_third_octaves(files):
 
     with pytest.raises(InputError, match="octave bands"):
         analyze_study([files / "ears.wav"], bands="third", binaural=True)
+
+
+def test_html_report_section_only_when_present(files, cli):
+    code, _, err = cli("analyze", files / "ears.wav", "--binaural", "--report", files / "a")
+    assert code == 0, err
+    page = (files / "a" / "report.html").read_text()
+    assert "Stage, lateral and interaural parameters" in page
+    assert "IACC_E" in page and "1 − IACC_E3" in page
+    code, _, err = cli("analyze", files / "mono.wav", "--report", files / "b")
+    assert code == 0, err
+    assert "Stage, lateral and interaural" not in (files / "b" / "report.html").read_text()
+
+
+def test_client_report_section_from_the_same_builder(files):
+    # The study report (report/document.py) shows the same section when the analysis holds
+    # these parameters; built here from an analysed document.
+    from roomconv.analysis.layouts import section_html
+
+    res = analyze_study([files / "mono.wav"], stage=True)
+    page = section_html(res.study.document, level=3)
+    assert page.startswith("<h3>") and "ST_early dB" in page and "250 Hz–2 kHz" in page
+    plain = analyze_study([files / "mono.wav"])
+    assert section_html(plain.study.document) == ""
