@@ -26,6 +26,7 @@ from .windowed import (
     check_same_shape,
     judge_filter,
     judge_sigma,
+    judge_statistics,
 )
 
 __all__ = [
@@ -162,7 +163,7 @@ def fig8_from_ambisonic(acn: np.ndarray, rate: int) -> AmbisonicSplit:
 
 def _products(om, f8, window) -> float:
     """Σ|p_L·p| over a window of the two band signals (same time zero)."""
-    i0, i1 = f8.index(window[0]), min(f8.index(window[1]), f8.end, om.end)
+    i0, i1 = f8.index(window[0]), min(f8.index(window[1]), f8.x.size)
     return float(np.sum(np.abs(f8.x[i0:i1] * om.x[i0:i1]))) if i1 > i0 else 0.0
 
 
@@ -251,6 +252,13 @@ def _one_band(
                     f"{-20 * np.log10(max(leak, 1e-12)):.0f} dB below the omni's, which can "
                     f"add up to {bias:.2g}, more than half its JND of {JND[key]:g}",
                 )
+        # The figure-of-eight's 5–80 ms energy is reflected sound: random in a diffuse
+        # field. Its relative spread carries into J_LF, and about the same into J_LFC.
+        rel = f8.random_sigma(*LATERAL)
+        for key, name in (("jlf", "J_LF"), ("jlfc", "J_LFC")):
+            v = row.values.get(key)
+            if v is not None:
+                judge_statistics(row, key, name, v * rel, JND[key], "", label)
         ends = []
         for f in ("forward", "reverse"):
             o1, f1 = (
@@ -291,6 +299,8 @@ def _one_band(
             row.values["lj_db"] = float(10 * np.log10(late / rate)) - float(reference_db)
             sigma = 10 / np.log(10) * f8.noise_sigma(late, s) / late
             judge_sigma(row, "lj_db", "L_J", sigma, JND["lj_db"], " dB", label)
+            spread = 10 / np.log(10) * f8.random_sigma(LATE, None)
+            judge_statistics(row, "lj_db", "L_J", spread, JND["lj_db"], " dB", label)
     return row.finish(KEYS)
 
 

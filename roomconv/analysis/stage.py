@@ -15,6 +15,7 @@ from .windowed import (
     band_signal,
     judge_filter,
     judge_sigma,
+    judge_statistics,
     window_bounds,
 )
 
@@ -89,6 +90,8 @@ def _one_band(h, rate, band: Band, onset: int) -> JudgedRow:
                 f"than half its JND of {JND_DB:g} dB); it was removed, but the correction is "
                 "only as good as the noise estimate",
             )
+        # The direct sound at 1 m is deterministic; the reflected window is random.
+        judge_statistics(row, key, name, _K10 * sig.random_sigma(*window), JND_DB, " dB", label)
         ends = [_st(s, window, DIRECT)[0] for s in one_way]
         judge_filter(row, key, name, ends[0], ends[1], JND_DB, " dB", label)
     if not sig.noise_limited and not sig.late_known and row.values.get("st_late_db") is not None:

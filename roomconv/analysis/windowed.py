@@ -28,6 +28,8 @@ from .parameters import (
 )
 
 __all__ = [
+    "STATISTICAL",
+    "judge_statistics",
     "BandSignal",
     "JudgedRow",
     "band_signal",
@@ -37,6 +39,7 @@ __all__ = [
 ]
 
 _RANK = {OK: 0, CAUTION: 1, NOT_EVALUABLE: 2}
+STATISTICAL = "statistical_uncertainty"
 
 
 @dataclass
@@ -109,25 +112,53 @@ class BandSignal:
         return self.zero + int(round(t_s * self.rate))
 
     def energy(self, t0_s: float, t1_s: float | None) -> tuple[float, float, int]:
-        """(Σx², noise energy in it, samples) over [t0, t1) after time zero, stopping at the
-        truncation point; ``t1_s`` None: to the end, with the decay's compensation added."""
+        """(Σx², noise energy in it, samples) over [t0, t1) after time zero.
+
+        ``t1_s`` None: to the truncation point, with the decay's compensation beyond it
+        added. A closed window runs through the noise (which is removed by the caller and
+        judged by its uncertainty); where the response stops before ``t1_s``, the decay's
+        compensation for the missing stretch is added.
+        """
         i0 = self.index(t0_s)
-        i1 = self.end if t1_s is None else min(self.index(t1_s), self.end)
+        if t1_s is None:
+            i1 = self.end
+            extra = self.compensation
+        else:
+            want = self.index(t1_s)
+            i1 = min(want, self.x.size)
+            extra = self._tail_between(i1, want)
         if i1 <= i0:
             return 0.0, 0.0, 0
-        e = float(np.sum(np.square(self.x[i0:i1]))) + self.tail(t1_s)
+        e = float(np.sum(np.square(self.x[i0:i1]))) + extra
         return e, self.noise * (i1 - i0), i1 - i0
 
-    def tail(self, t1_s: float | None) -> float:
-        """Energy of the late decay continued past the truncation point up to ``t1_s``."""
-        if self.compensation <= 0:
+    def _tail_between(self, a: int, b: int) -> float:
+        """Energy of the late decay, continued past the truncation point, in [a, b)."""
+        if self.compensation <= 0 or b <= a:
             return 0.0
-        if t1_s is None:
-            return self.compensation
-        past = self.index(t1_s) - self.end
-        if past <= 0:
+        k = self.decay_rate
+        ta, tb = max(a - self.end, 0), max(b - self.end, 0)
+        return self.compensation * float(np.exp(-k * ta) - np.exp(-k * tb))
+
+    def random_sigma(self, t0_s: float, t1_s: float | None) -> float:
+        """Relative standard deviation of a window's energy from the randomness of a diffuse
+        field: a band of width B carries one independent energy value per rate/B samples, so
+        Σ e varies by (rate/B)·Σ ē² (ē the energy smoothed over rate/B samples; Gaussian
+        band-limited noise, Bendat & Piersol 2010 — from memory), as for C80 in
+        :mod:`~roomconv.analysis.parameters`. A deterministic arrival (one reflection) is
+        counted as random too: the estimate errs on the side of a caution."""
+        i0 = self.index(t0_s)
+        i1 = self.end if t1_s is None else min(self.index(t1_s), self.x.size)
+        if i1 <= i0:
             return 0.0
-        return self.compensation * float(-np.expm1(-self.decay_rate * past))
+        per_dof = _dof_samples(self.band, self.rate)
+        L = max(1, int(round(per_dof)))
+        e = np.maximum(np.square(self.x[i0:i1]) - self.noise, 0.0)
+        smooth = np.convolve(e, np.ones(L) / L, mode="same") if L > 1 else e
+        total = float(e.sum())
+        if total <= 0:
+            return 0.0
+        return float(np.sqrt(per_dof * np.sum(np.square(smooth))) / total)
 
     def noise_sigma(self, signal: float, samples: int) -> float:
         """Standard deviation the noise puts on a noise-corrected window energy."""
@@ -254,6 +285,24 @@ def judge_sigma(
             f"{key}_noise_uncertain",
             f"{label}: {name}: the background noise makes it uncertain by ±{sigma:.2g}{unit}, "
             f"more than half its JND of {jnd:g}{unit}",
+        )
+
+
+def judge_statistics(
+    row: JudgedRow, key: str, name: str, sigma: float, jnd: float, unit: str, label: str
+) -> None:
+    """Caution when one position's value is uncertain by more than half its JND from the
+    randomness of the diffuse field (never a null: the spatial average reduces it)."""
+    if row.values.get(key) is None or not np.isfinite(sigma):
+        return
+    if sigma > NOISE_SIGMA_CAUTION_JND * jnd:
+        row.flag(
+            (key,),
+            CAUTION,
+            STATISTICAL,
+            f"{label}: {name} at one position is uncertain by ±{sigma:.2g}{unit} (the "
+            f"randomness of a diffuse field in this band), more than half its JND of "
+            f"{jnd:g}{unit}; average several positions",
         )
 
 

@@ -64,7 +64,10 @@ def test_octave_bands_match_closed_form_within_a_tenth_of_the_jnd(a, theta, dela
     for row in lateral_fractions(p, pl, FS, bands=bands):
         assert row.values["jlf"] == pytest.approx(want_lf, abs=0.005), row.band_hz
         assert row.values["jlfc"] == pytest.approx(want_lfc, abs=0.005), row.band_hz
-        assert row.verdicts["jlf"] == OK and row.verdicts["jlfc"] == OK
+        # One reflection counts as random for the diffuse-field check (a caution at most);
+        # no other flag.
+        for key in ("jlf", "jlfc"):
+            assert row.verdicts[key] == OK or row.codes[key] == ["statistical_uncertainty"]
 
 
 def test_single_numbers_average_125_to_1000():

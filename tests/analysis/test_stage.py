@@ -58,7 +58,10 @@ def test_st_matches_closed_form_band_limited(fm):
     # from the closed forms above.
     assert row.values["st_early_db"] == pytest.approx(10 * np.log10(e_early / e_direct), abs=0.1)
     assert row.values["st_late_db"] == pytest.approx(10 * np.log10(e_late / e_direct), abs=0.1)
-    assert row.verdicts["st_early_db"] == OK and row.verdicts["st_late_db"] == OK
+    # A tone field is one arrival, which the diffuse-field randomness check counts as random
+    # (erring on the side of a caution): that is the only flag allowed here.
+    for key in ("st_early_db", "st_late_db"):
+        assert row.verdicts[key] == OK or row.codes[key] == ["statistical_uncertainty"], key
 
 
 def test_st_only_in_250_to_2000_octaves_and_averaged_there():
@@ -90,10 +93,11 @@ def test_st_late_in_strong_noise_is_flagged_or_null():
     clean = stage_support(h, FS, bands=[b for b in all_bands() if b.nominal == 1000.0])[0]
     noisy_h = h + 3e-3 * rng.standard_normal(n)  # the floor lies near the late energy
     (noisy,) = stage_support(noisy_h, FS, bands=[b for b in all_bands() if b.nominal == 1000.0])
-    assert clean.verdicts["st_late_db"] == OK
+    noise_codes = {"st_late_db_noise_uncertain", "st_noise_bias", "st_no_energy"}
+    assert not noise_codes & set(clean.codes.get("st_late_db", []))
     # The noise either leaves a value whose uncertainty is stated (caution) or none at all.
     assert noisy.verdicts["st_late_db"] in (CAUTION, NOT_EVALUABLE)
-    assert any(c.startswith("st_late_db") or c.startswith("st_") for c in noisy.warning_codes)
+    assert noise_codes & set(noisy.codes.get("st_late_db", []))
     if noisy.values["st_late_db"] is not None:
         # Whatever is given is within a few JNDs of the clean value (its caution says so).
         assert abs(noisy.values["st_late_db"] - clean.values["st_late_db"]) < 3.0
