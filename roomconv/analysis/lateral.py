@@ -51,6 +51,9 @@ REPORTED_BANDS = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0)
 #: Octaves averaged into the single numbers (ISO 3382-1:2009, Annex A: 125 Hz–1 kHz — from
 #: memory).
 AVERAGED = (125.0, 1000.0)
+#: Largest departure of the late figure-of-eight/omni energy ratio from 1/3 before the gain
+#: match is questioned, dB (common practice).
+GAIN_TOLERANCE_DB = 1.5
 #: Half-width of the window around the direct sound's peak the figure-of-eight's leak is read
 #: in, s.
 LEAK_WINDOW_S = 0.0005
@@ -389,13 +392,41 @@ def lateral_fractions(
     d = slice(max(0, peak - half), peak + half + 1)
     e_om = float(np.sum(np.square(omni[d])))
     leak = float(np.sqrt(np.sum(np.square(fig8[d])) / e_om)) if e_om > 0 else 1.0
+    gain_note = _gain_check(omni, fig8, onset, rate)
     rows = []
     for b in bands:
         ref, missing = (None, None)
         if strength_reference is not None:
             ref, missing = strength_reference.lookup(b, rate, band_set=band_set)
-        rows.append(_one_band(omni, fig8, rate, b, onset, ref, missing, leak))
+        row = _one_band(omni, fig8, rate, b, onset, ref, missing, leak)
+        given = [k for k in KEYS if row.values.get(k) is not None]
+        if gain_note and given:
+            row.flag(given, CAUTION, "fig8_gain_unmatched", gain_note)
+        rows.append(row)
     return rows
+
+
+def _gain_check(omni: np.ndarray, fig8: np.ndarray, onset: int, rate: int) -> str | None:
+    """A warning when the late field says the figure-of-eight's gain is not the omni's.
+
+    In a diffuse field an ideal figure-of-eight picks up the mean of cos² over the sphere,
+    1/3 of the omni's energy (closed form). J_LF and L_J scale with the gain ratio: 1 dB
+    moves J_LF by 26 %. A late 80–200 ms ratio more than ``GAIN_TOLERANCE_DB`` from 1/3 is
+    flagged (the tolerance allows for a hall's late field that is not quite isotropic:
+    common practice)."""
+    late = slice(onset + int(0.08 * rate), onset + int(0.2 * rate))
+    e_o = float(np.sum(np.square(omni[late])))
+    e_f = float(np.sum(np.square(fig8[late])))
+    if e_o <= 0 or e_f <= 0:
+        return None
+    off = 10 * np.log10(3 * e_f / e_o)
+    if abs(off) <= GAIN_TOLERANCE_DB:
+        return None
+    return (
+        f"the late field gives the figure-of-eight {off:+.1f} dB against the omni's gain "
+        "(an ideal one picks up a third of a diffuse field's energy): check that its on-axis "
+        "gain matches the omni's"
+    )
 
 
 def wideband_fractions(omni: np.ndarray, fig8: np.ndarray, rate: int) -> tuple[float, float]:

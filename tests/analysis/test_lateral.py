@@ -186,3 +186,23 @@ def test_ambisonic_with_wrong_normalization_is_flagged():
 def test_ambisonic_needs_four_channels():
     with pytest.raises(InputError, match="4 channels"):
         fig8_from_ambisonic(np.zeros((100, 2)), FS)
+
+
+def test_fig8_gain_checked_against_a_diffuse_late_field():
+    # In a diffuse field an ideal figure-of-eight picks up ⟨cos²⟩ = 1/3 of the omni's energy
+    # (closed form, mean over the sphere). Build the late field as an omni decay and a
+    # figure-of-eight decay of a third of its energy, then with the figure-of-eight 3 dB hot.
+    rng = np.random.default_rng(12)
+    n = FS
+    t = np.arange(n) / FS
+    env = 10 ** (-3 * t / 0.8)
+    p = 0.05 * rng.standard_normal(n) * env
+    pl = 0.05 * rng.standard_normal(n) * env / np.sqrt(3)
+    p[:ONSET] = pl[:ONSET] = 0.0
+    p[ONSET] = 1.0
+    band = next(b for b in all_bands() if b.nominal == 1000.0)
+    (row,) = lateral_fractions(p, pl, FS, bands=[band])
+    assert "fig8_gain_unmatched" not in row.warning_codes
+    (row,) = lateral_fractions(p, pl * 10 ** (3 / 20), FS, bands=[band])
+    assert "fig8_gain_unmatched" in row.codes["jlf"]
+    assert row.verdicts["jlf"] == CAUTION
