@@ -45,6 +45,10 @@ REPORTED_BANDS = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0)
 #: 1 − IACC_E3 averages the early IACC of these octaves (ISO 3382-1:2009, Annex B — from
 #: memory).
 E3_BANDS = (500.0, 1000.0, 2000.0)
+#: Largest interaural delay of a direct sound: about 0.7 ms for an adult head (Woodworth's
+#: spherical-head formula, r = 8.75 cm: (r/c)(θ + sin θ) at 90° — from memory), rounded up
+#: to the IACF's own lag limit. Ears further apart than this are not one head's.
+MAX_EAR_OFFSET_S = 0.001
 #: A window whose energy is more than half background noise gives no IACC: the correction
 #: would be larger than what is left (common practice, an impulse-to-noise ratio of 0 dB).
 MAX_NOISE_SHARE = 0.5
@@ -249,9 +253,24 @@ def interaural_correlation(
         raise InputError("one ear of the binaural response is silent")
     if bands is None:
         bands, _ = bands_for_rate("octave", rate)
+    ol, orr = onset_index(left), onset_index(right)
     if onset is None:
-        onset = min(onset_index(left), onset_index(right))
-    return [_one_band(left, right, rate, b, onset) for b in bands]
+        onset = min(ol, orr)
+    rows = [_one_band(left, right, rate, b, onset) for b in bands]
+    apart_s = abs(ol - orr) / rate
+    if apart_s > MAX_EAR_OFFSET_S:
+        for row in rows:
+            given = [k for k in KEYS if row.values.get(k) is not None]
+            if given:
+                row.flag(
+                    given,
+                    CAUTION,
+                    "ears_offset",
+                    f"the ears' direct sounds are {1000 * apart_s:.1f} ms apart, more than a "
+                    f"head allows ({1000 * MAX_EAR_OFFSET_S:g} ms): are the two channels "
+                    "aligned, and is the source in front?",
+                )
+    return rows
 
 
 def interaural_single_numbers(rows: list[JudgedRow]) -> dict:

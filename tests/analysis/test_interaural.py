@@ -134,3 +134,17 @@ def test_unequal_lengths_refused():
     h = room(6)
     with pytest.raises(InputError, match="differ in length"):
         interaural_correlation(h, h[:-1], FS)
+
+
+def test_ears_further_apart_than_a_head_are_flagged():
+    # Woodworth's spherical head gives at most about 0.66 ms between the ears
+    # ((r/c)(π/2 + 1), r = 8.75 cm, c = 343 m/s — from memory); 3 ms is no head.
+    h = room(7)
+    d = int(round(0.003 * FS))
+    right = np.r_[np.zeros(d), h[:-d]]
+    (row,) = interaural_correlation(h, right, FS, bands=octaves(1000.0))
+    assert "ears_offset" in row.warning_codes
+    d = int(round(0.0005 * FS))
+    right = np.r_[np.zeros(d), h[:-d]]
+    (row,) = interaural_correlation(h, right, FS, bands=octaves(1000.0))
+    assert "ears_offset" not in row.warning_codes
