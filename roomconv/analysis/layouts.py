@@ -317,39 +317,3 @@ def single_number_lines(values: dict, verdicts: dict, reasons: dict | None = Non
         note = " (caution: see the band warnings)" if verdicts.get(key) == CAUTION else ""
         out.append(f"{name}: {f.format(v)} {unit}".rstrip() + note)
     return out
-
-
-def section_html(doc: dict, level: int = 2) -> str:
-    """An HTML section with each position's stage, lateral or interaural parameters, their
-    single numbers and notes; empty when the document holds none."""
-    import html
-
-    from .report import _html_table
-
-    if not keys_of(doc):
-        return ""
-    e = html.escape
-    out = [
-        f"<h{level}>Stage, lateral and interaural parameters (ISO 3382-1)</h{level}>",
-        f"<p>{e(doc['settings'].get('channels', ''))}</p>",
-    ]
-    for p in doc["positions"]:
-        if "layout" not in p:
-            continue
-        header, rows = layout_table(p)
-        out.append(f"<h{level + 1}>{e(str(p['file']))} — {e(p['layout'])}</h{level + 1}>")
-        out.append(_html_table(header, rows))
-        lines = single_number_lines(
-            p["layout_single_numbers"],
-            p["layout_single_number_verdicts"],
-            p.get("layout_single_number_reasons"),
-        )
-        out.append("<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>")
-        out += [f"<p class='note'>note: {e(n)}</p>" for n in p.get("layout_notes", [])]
-    avg = doc.get("average", {}).get("layout_single_numbers")
-    if avg and len([p for p in doc["positions"] if "layout" in p]) > 1:
-        lines = single_number_lines(avg["values"], avg["verdicts"])
-        out.append(
-            f"<p>Mean over positions:</p><ul>{''.join(f'<li>{e(x)}</li>' for x in lines)}</ul>"
-        )
-    return "\n".join(out)

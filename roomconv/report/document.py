@@ -13,6 +13,7 @@ from ..analysis.report import (
     SINGLE_NUMBER_NAMES,
     _html_table,
     band_label,
+    layout_section_html,
     metrics_of,
     table_rows,
 )
@@ -477,9 +478,7 @@ def report_html(res: StudyResults) -> str:
         )
 
     # Stage, lateral and interaural parameters, when the analysis holds them.
-    from ..analysis.layouts import section_html
-
-    out.append(section_html(doc, level=3))
+    out.append(layout_section_html(doc, level=3))
 
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")

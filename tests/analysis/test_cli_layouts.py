@@ -245,7 +245,7 @@ def test_html_report_section_only_when_present(files, cli):
 def test_client_report_section_from_the_same_builder(files):
     # The study report (report/document.py) shows the same section when the analysis holds
     # these parameters; built here from an analysed document.
-    from roomconv.analysis.layouts import section_html
+    from roomconv.analysis.report import layout_section_html as section_html
 
     res = analyze_study([files / "mono.wav"], stage=True)
     page = section_html(res.study.document, level=3)
