@@ -35,7 +35,7 @@ def direct_plus_reflection(a, theta_deg, delay_ms, n=FS // 2, leak=0.0):
 def closed_form(a, theta_deg):
     """J_LF = a²cos²θ/(1+a²), J_LFC = a²|cos θ|/(1+a²): direct sound and one reflection,
     from the definitions (ISO 3382-1:2009, Annex A — from memory; the 0.05 / 0.10 pair for
-    a = 0.5, θ = 60° is the check value in our reference notes, computed with numpy)."""
+    a = 0.5, θ = 60° follows by hand: 0.25·0.25/1.25 and 0.25·0.5/1.25)."""
     c = np.cos(np.radians(theta_deg))
     return a * a * c * c / (1 + a * a), a * a * abs(c) / (1 + a * a)
 
@@ -48,6 +48,8 @@ def test_wideband_matches_closed_form(a, theta, delay):
     p, pl = direct_plus_reflection(a, theta, delay)
     jlf, jlfc = wideband_fractions(p, pl, FS)
     want_lf, want_lfc = closed_form(a, theta)
+    if (a, theta) == (0.5, 60.0):  # the values worked by hand
+        assert (want_lf, want_lfc) == pytest.approx((0.05, 0.10), abs=1e-12)
     assert jlf == pytest.approx(want_lf, abs=1e-12)
     assert jlfc == pytest.approx(want_lfc, abs=1e-12)
 
