@@ -17,6 +17,7 @@ from .windowed import (
     band_average,
     band_signal,
     check_same_shape,
+    flag_early_start,
     judge_filter,
 )
 
@@ -257,6 +258,7 @@ def interaural_correlation(
     if onset is None:
         onset = min(ol, orr)
     rows = [_one_band(left, right, rate, b, onset) for b in bands]
+    flag_early_start(rows, ("iacc_early", "iacc_full"), onset, rate)
     apart_s = abs(ol - orr) / rate
     if apart_s > MAX_EAR_OFFSET_S:
         for row in rows:

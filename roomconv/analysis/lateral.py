@@ -24,6 +24,7 @@ from .windowed import (
     band_average,
     band_signal,
     check_same_shape,
+    flag_early_start,
     judge_filter,
     judge_sigma,
     judge_statistics,
@@ -403,6 +404,7 @@ def lateral_fractions(
         if gain_note and given:
             row.flag(given, CAUTION, "fig8_gain_unmatched", gain_note)
         rows.append(row)
+    flag_early_start(rows, ("jlf", "jlfc"), onset, rate)
     return rows
 
 

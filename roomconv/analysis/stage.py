@@ -13,6 +13,7 @@ from .windowed import (
     JudgedRow,
     band_average,
     band_signal,
+    flag_early_start,
     judge_filter,
     judge_sigma,
     judge_statistics,
@@ -158,7 +159,9 @@ def stage_support(
         bands, _ = bands_for_rate("octave", rate)
     if onset is None:
         onset = onset_index(h)
-    return [_one_band(h, rate, b, onset) for b in bands]
+    rows = [_one_band(h, rate, b, onset) for b in bands]
+    flag_early_start(rows, KEYS, onset, rate)  # both ratios divide by E(0–10 ms)
+    return rows
 
 
 def stage_single_numbers(rows: list[JudgedRow]) -> dict:

@@ -36,6 +36,7 @@ __all__ = [
     "band_average",
     "check_same_shape",
     "window_bounds",
+    "flag_early_start",
 ]
 
 _RANK = {OK: 0, CAUTION: 1, NOT_EVALUABLE: 2}
@@ -332,6 +333,28 @@ def judge_filter(
             f"±{spread:.2g}{unit} (its bandwidth is narrow for the window limits), more than "
             f"half its JND of {jnd:g}{unit}",
         )
+
+
+#: A response whose direct sound comes this close to its first sample may have been cut
+#: inside the direct sound (a sinc-like arrival or a loudspeaker's own response spreads
+#: energy ahead of the 20 dB onset point): windows from time zero are then flagged (common
+#: practice).
+MIN_LEAD_S = 0.0005
+
+
+def flag_early_start(rows: list[JudgedRow], keys, onset: int, rate: int) -> None:
+    """Caution on values whose window starts at time zero when the response holds less than
+    ``MIN_LEAD_S`` before its direct sound."""
+    if onset >= MIN_LEAD_S * rate:
+        return
+    text = (
+        f"the response starts only {1000 * onset / rate:.2f} ms before its direct sound: if it "
+        "was cut there, part of the direct sound is missing from the windows from time zero"
+    )
+    for row in rows:
+        given = [k for k in keys if row.values.get(k) is not None]
+        if given:
+            row.flag(given, CAUTION, "onset_near_start", text)
 
 
 def window_bounds(sig: BandSignal, t1_s: float) -> bool:

@@ -113,3 +113,18 @@ def test_st_average_null_with_reason_when_a_band_is_missing():
     assert sn["values"]["st_early_avg_db"] is None
     assert sn["verdicts"]["st_early_avg_db"] == NOT_EVALUABLE
     assert "250 Hz" in sn["reasons"]["st_early_avg_db"]
+
+
+def test_response_cut_at_its_direct_sound_is_flagged():
+    # A direct sound on the first sample leaves no room for what a real arrival spreads
+    # ahead of its 20 dB onset point: the windows from time zero are questioned.
+    t = np.arange(FS) / FS
+    h = 0.02 * np.random.default_rng(3).standard_normal(FS) * 10 ** (-3 * t / 0.8)
+    h[0] = 1.0
+    (row,) = stage_support(h, FS, bands=[b for b in all_bands() if b.nominal == 1000.0])
+    assert "onset_near_start" in row.codes["st_early_db"]
+    assert "onset_near_start" in row.codes["st_late_db"]
+    (row,) = stage_support(
+        np.r_[np.zeros(480), h], FS, bands=[b for b in all_bands() if b.nominal == 1000.0]
+    )
+    assert "onset_near_start" not in row.warning_codes
