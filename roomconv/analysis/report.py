@@ -196,6 +196,8 @@ def mean_with_spread(metric, row) -> str:
 def csv_text(doc: dict) -> str:
     """One row per position × band (wideband as band 'wideband'), then the averages.
 
+    The stage, lateral and interaural columns appear only when the document holds them.
+
     Examples
     --------
     >>> from roomconv.analysis.study import analyse_arrays
@@ -208,10 +210,13 @@ def csv_text(doc: dict) -> str:
     >>> lines[1].split(",")[:3]
     ['hall.wav', '1', '31.5']
     """
-    metrics = metrics_of(doc)
+    from .layouts import keys_of
+
+    extra = keys_of(doc)
+    metrics = metrics_of(doc) + extra
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    judged = [m for m in metrics if m in _JUDGED]
+    judged = [m for m in metrics if m in _JUDGED or m in extra]
     w.writerow(
         ["file", "channel", "band_hz"]
         + list(metrics)
@@ -230,9 +235,11 @@ def csv_text(doc: dict) -> str:
             )
     for r in doc["average"]["bands"]:
         row = ["average", "", r["band_hz"]]
-        row += ["" if r[m]["mean"] is None else f"{r[m]['mean']:.6g}" for m in metrics]
+        row += [
+            "" if (r.get(m) or {}).get("mean") is None else f"{r[m]['mean']:.6g}" for m in metrics
+        ]
         row.append("")
-        row += [r[m].get("verdict") or "" for m in judged]
+        row += [(r.get(m) or {}).get("verdict") or "" for m in judged]
         row += ["", ""]
         w.writerow(row)
     return buf.getvalue()
@@ -451,6 +458,7 @@ def html_report(
         res, _wide, rate = study.curves[(str(p["file"]), p["channel"])]
         fig = decay_figure(res, rate, f"Decay curves, {p['file']} ch {p['channel']}")
         out.append(f"<img alt='decay curves' src='{_png(fig)}'>")
+    out.append(layout_section_html(doc))
     for n in doc.get("notes", []):
         out.append(f"<p>note: {html.escape(n)}</p>")
     for e in doc.get("errors", []):
@@ -458,4 +466,39 @@ def html_report(
     if cautions:
         out.append(f"<h2>Cautions</h2><div class='caution'>{html.escape(caution_text())}</div>")
     out.append("</body></html>")
+    return "\n".join(out)
+
+
+def layout_section_html(doc: dict, level: int = 2) -> str:
+    """An HTML section with each position's stage, lateral or interaural parameters, their
+    single numbers and notes; empty when the document holds none."""
+    from .layouts import keys_of, layout_table
+    from .layouts import single_number_lines as layout_lines
+
+    if not keys_of(doc):
+        return ""
+    e = html.escape
+    out = [
+        f"<h{level}>Stage, lateral and interaural parameters (ISO 3382-1)</h{level}>",
+        f"<p>{e(doc['settings'].get('channels', ''))}</p>",
+    ]
+    for p in doc["positions"]:
+        if "layout" not in p:
+            continue
+        header, rows = layout_table(p)
+        out.append(f"<h{level + 1}>{e(str(p['file']))} — {e(p['layout'])}</h{level + 1}>")
+        out.append(_html_table(header, rows))
+        lines = layout_lines(
+            p["layout_single_numbers"],
+            p["layout_single_number_verdicts"],
+            p.get("layout_single_number_reasons"),
+        )
+        out.append("<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>")
+        out += [f"<p class='note'>note: {e(n)}</p>" for n in p.get("layout_notes", [])]
+    avg = doc.get("average", {}).get("layout_single_numbers")
+    if avg and len([p for p in doc["positions"] if "layout" in p]) > 1:
+        lines = layout_lines(avg["values"], avg["verdicts"])
+        out.append(
+            f"<p>Mean over positions:</p><ul>{''.join(f'<li>{e(x)}</li>' for x in lines)}</ul>"
+        )
     return "\n".join(out)

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -89,13 +90,16 @@ def analyse_arrays(
     calibration=None,
     progress=None,
     sti=None,
+    layout=None,
 ) -> Study:
     """Analyse (name, samples×channels array, rate) items; see :func:`analyse_files`.
 
     ``calibration`` is a :class:`~roomconv.analysis.calibration.StrengthReference` or None.
     ``sti`` is a :class:`~roomconv.analysis.sti.SpeechConditions`: each position and the
     average then get an ``sti`` object (IEC 60268-16).
-    Channels are numbered from 1 in the document, as a person counts them.
+    Channels are numbered from 1 in the document, as a person counts them. ``layout``
+    (:class:`~roomconv.analysis.layouts.ChannelLayout`) says what the channels are and adds
+    the stage, lateral or interaural parameters.
 
     Examples
     --------
@@ -110,8 +114,11 @@ def analyse_arrays(
     (1, 0.6)
     """
     positions, curves, errors, notes = [], {}, [], []
+    if layout is not None:
+        layout.refuse_unfit(items, bands)
     for name, data, rate in items:
-        for ch in range(data.shape[1]):
+        chans = range(data.shape[1]) if layout is None else layout.mono_channels(data.shape[1])
+        for ch in chans:
             try:
                 res, wide, n = room_parameters(
                     data[:, ch],
@@ -128,15 +135,22 @@ def analyse_arrays(
                     progress.update(1)
             notes += [x for x in n if x not in notes]
             with_g = calibration is not None
-            positions.append(
-                {
-                    "file": str(name),
-                    "channel": ch + 1,
-                    "rate": rate,
-                    "bands": [r.as_dict(with_g) for r in res],
-                    "wideband": wide.as_dict(with_g),
-                }
-            )
+            position = {
+                "file": str(name),
+                "channel": ch + 1,
+                "rate": rate,
+                "bands": [r.as_dict(with_g) for r in res],
+                "wideband": wide.as_dict(with_g),
+            }
+            if layout is not None:
+                from .layouts import extend_position
+
+                try:
+                    extend_position(position, layout, data, rate, ch, calibration)
+                except InputError as exc:
+                    errors.append(describe(name, f"{layout.text}: {exc}"))
+                    continue
+            positions.append(position)
             curves[(str(name), ch + 1)] = (res, wide, rate)
             if sti is not None:
                 from .sti import sti_entry
@@ -147,7 +161,11 @@ def analyse_arrays(
     with_g = calibration is not None
     avg = spatial_average([p["bands"] for p in positions], bands, with_g)
     sn, sn_verdicts = single_numbers(avg, bands, with_verdicts=True)
-    doc = {
+    if layout is not None:
+        from .layouts import average_layout
+
+        layout_average = average_layout(positions, avg)
+    doc: dict[str, Any] = {
         "positions": positions,
         "average": {
             "bands": avg,
@@ -172,6 +190,9 @@ def analyse_arrays(
     }
     if sti is not None:
         _add_sti(doc, sti)
+    if layout is not None:
+        doc["settings"]["channels"] = layout.settings
+        doc["average"]["layout_single_numbers"] = layout_average
     return Study(doc, curves, errors)
 
 
@@ -192,6 +213,7 @@ def analyse_files(
     calibration=None,
     progress=None,
     sti=None,
+    layout=None,
 ) -> Study:
     """Read each IR file and analyse every channel as its own position.
 
@@ -230,6 +252,7 @@ def analyse_files(
         calibration=calibration,
         progress=progress,
         sti=sti,
+        layout=layout,
     )
     study.errors = errors + study.errors
     study.document["errors"] = study.errors

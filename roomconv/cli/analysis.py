@@ -34,6 +34,8 @@ def show_study(doc: dict) -> None:
             right=right,
             title=f"{p['file']}  channel {p['channel']}",
         )
+        if "layout" in p:
+            _show_layout(p)
         for w in (w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]):
             print(f"  ! {w}")
     if len(doc["positions"]) > 1:
@@ -65,6 +67,22 @@ def show_study(doc: dict) -> None:
         print(f"error: {e}")
 
 
+def _show_layout(p: dict) -> None:
+    """The stage, lateral or interaural parameters of one position, and their averages."""
+    from ..analysis.layouts import layout_table, single_number_lines
+
+    header, rows = layout_table(p)
+    print_table(header, rows, right=range(1, len(header)), title=f"channels: {p['layout']}")
+    for line in single_number_lines(
+        p["layout_single_numbers"],
+        p["layout_single_number_verdicts"],
+        p.get("layout_single_number_reasons"),
+    ):
+        print(f"  {line}")
+    for n in p.get("layout_notes", []):
+        print(f"  note: {n}")
+
+
 def run_analyze(a):
     """Run ``roomconv analyze``: ISO 3382 parameters of the responses given (or of a study file's)
     through :func:`roomconv.jobs.analyze.analyze_study`, shown as tables and written as
@@ -80,6 +98,16 @@ def run_analyze(a):
     int
         The exit code: 0 on success (a refused input raises and exits with 2).
     """
+    layout_opts = [o for o, on in _layout_options(a) if on]
+    if len(layout_opts) > 1:
+        raise InputError(f"analyze: {' and '.join(layout_opts)} exclude each other; give one")
+    if layout_opts and a.study is not None:
+        raise InputError(f"analyze: {layout_opts[0]} works on IR files, not with --study")
+    if layout_opts and a.bands != "octave":
+        raise InputError(
+            f"analyze: {layout_opts[0]}: these parameters are defined in octave bands "
+            "(ISO 3382-1); leave --bands at octave"
+        )
     if a.study is not None:
         return _run_study(a)
     if not a.irs:
@@ -99,6 +127,9 @@ def run_analyze(a):
             force=a.force,
             progress=progress,
             sti=sti,
+            channels=a.channels,
+            binaural=a.binaural,
+            stage=a.stage,
         )
     if not a.quiet:
         show_study(res.study.document)
@@ -111,6 +142,14 @@ def run_analyze(a):
     for e in res.errors:  # the outputs above hold the readable files; say which were not
         note(f"skipped: {e}")
     return 2 if res.errors else 0
+
+
+def _layout_options(a):
+    return [
+        ("--channels", a.channels is not None),
+        ("--binaural", a.binaural),
+        ("--stage", a.stage),
+    ]
 
 
 def _run_study(a):
@@ -207,6 +246,27 @@ def configure_analyze(p):
         "zero-phase for C50/C80/D50/Ts, which keeps the filter's own response "
         "out of both); forward or reverse use one filter for everything, only "
         "for comparison with other methods",
+    )
+    p.add_argument(
+        "--channels",
+        choices=("omni,fig8", "fig8,omni", "acn-sn3d"),
+        default=None,
+        help="each file is one position: an omni and a figure-of-eight channel (its null "
+        "towards the source, its on-axis gain the omni's), or a first-order ambisonic "
+        "response in ACN order (W, Y, Z, X) with SN3D normalization; adds the lateral "
+        "energy fractions J_LF, J_LFC and, with --calibration, L_J",
+    )
+    p.add_argument(
+        "--binaural",
+        action="store_true",
+        help="each file is one position with two ear channels (left, right); adds IACC "
+        "early, late and full and 1 - IACC_E3",
+    )
+    p.add_argument(
+        "--stage",
+        action="store_true",
+        help="every channel is a response 1 m from the source on stage; adds ST_early and "
+        "ST_late (250 Hz-2 kHz)",
     )
     p.add_argument("--force", action="store_true", help="replace existing outputs")
     from .speech import add_speech_options

@@ -94,7 +94,7 @@ def run_demo(
         force,
         progress,
         {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
-        total=n_pos * 2 + 3 + len(sc.clips) + 2,
+        total=n_pos * 2 + 4 + len(sc.clips) + 2,
     )
     room = quillmere_hall()
     truths = true_responses(run, room)
@@ -102,6 +102,7 @@ def run_demo(
     study, comparison = analyse_positions(run, room, qualities)
     speech = speech_room_step(run)
     pairs = stereo_pairs(run, room)
+    stage = stage_support_example(run, room)
     renders = render_clips(run, pairs)
     for n in run.notes:
         log(n)
@@ -109,6 +110,7 @@ def run_demo(
     plan_demo(out, room, force=force)  # the hall planned for talks (plan.json)
     summary = _summary(study.document, time.monotonic() - t_start, out)
     summary["speech_room"] = speech
+    summary["stage_support"] = stage
     write_document(out / "summary.json", summary, force=force)
     return summary
 
@@ -271,6 +273,34 @@ def stereo_pairs(run: _Run, room) -> dict:
     )
     run.step("stereo pairs")
     return {"measured": measured, "predicted": predicted}
+
+
+def stage_support_example(run: _Run, room) -> dict:
+    """4b. Stage support: a synthesized response 1 m downstage of source 1, analysed with the
+    stage layout (ST_early, ST_late) into ``stage.json``."""
+    from ..jobs.analyze import analyze_study
+    from ..jobs.synth import synthesize_room
+
+    src = run.scenario.sources[0]
+    path = run.out / "irs" / "stage_1m.wav"
+    synthesize_room(
+        path,
+        room,
+        source_m=src,
+        receiver_m=(src[0] + 1.0, src[1], src[2]),
+        rate_hz=RATE_HZ,
+        seed=SEED + 7,
+        length_s=CHAIN.true_length_s,
+        force=run.force,
+        settings={**run.settings, "what": "stage response 1 m downstage of S1"},
+    )
+    res = analyze_study([path], stage=True, json_path=run.out / "stage.json", force=run.force)
+    run.step("stage support")
+    p = res.study.document["positions"][0]
+    return {
+        "values": p["layout_single_numbers"],
+        "verdicts": p["layout_single_number_verdicts"],
+    }
 
 
 def render_clips(run: _Run, pairs: dict) -> list:
@@ -535,6 +565,7 @@ def _summary(doc, seconds, out) -> dict:
                 "results.json",
                 "results.csv",
                 "plan.json",
+                "stage.json",
                 "irs",
                 "harmonics",
                 "renders",

@@ -9,6 +9,7 @@ from pathlib import Path
 
 from ..analysis.study import Study, analyse_files, parse_calibration
 from ..audio import WriteGuard, audio_info
+from ..errors import InputError
 from .guard import guarded
 from .naming import study_outputs
 from .progress import ProgressCallback, silent
@@ -137,6 +138,9 @@ def analyze_study(
     force: bool = False,
     progress: ProgressCallback = silent,
     sti=None,
+    channels: str | None = None,
+    binaural: bool = False,
+    stage: bool = False,
 ) -> AnalyzeResult:
     """Analyse every channel of every response as a position, average, and write the files.
 
@@ -156,6 +160,13 @@ def analyze_study(
     sti : SpeechConditions, optional
         Adds the STI (IEC 60268-16) per position and averaged; see
         :func:`roomconv.jobs.speech.speech_conditions`.
+    channels : {"omni,fig8", "fig8,omni", "acn-sn3d"}, optional
+        Each file is one position of two channels (omni and figure-of-eight) or a first-order
+        ambisonic response (ACN/SN3D): adds J_LF, J_LFC and L_J.
+    binaural : bool
+        Each file is one position of two ear channels (left, right): adds IACC.
+    stage : bool
+        Every channel is a response 1 m from the source on stage: adds ST_early, ST_late.
 
     Examples
     --------
@@ -173,7 +184,22 @@ def analyze_study(
     0.5
     >>> tmp.cleanup()
     """
+    from ..analysis.layouts import parse_layout
+
     inputs = [Path(p) for p in irs]
+    layout = parse_layout(channels, binaural, stage)
+    if layout is not None:
+        if bands != "octave":
+            raise InputError(
+                f"the {layout.text} parameters are defined in octave bands (ISO 3382-1); "
+                f"use octave bands, not {bands}"
+            )
+        for ir in inputs:
+            try:
+                count = audio_info(ir).channels
+            except Exception:  # noqa: BLE001 - unreadable files are reported by the analysis
+                continue
+            layout.check(ir, count)
     with guarded(inputs, force=force) as g:
         # Every output is planned against every input, a calibration file included, before
         # any analysis.
@@ -199,6 +225,7 @@ def analyze_study(
             calibration=cal,
             progress=_Counter(total, progress),
             sti=sti,
+            layout=layout,
         )
         # A page of results alone: no playback caution (pages that offer sound add it).
         written = _write(g, study, json_path, csv_path, report_file, {"cautions": False})

@@ -13,6 +13,7 @@ from ..analysis.report import (
     SINGLE_NUMBER_NAMES,
     _html_table,
     band_label,
+    layout_section_html,
     metrics_of,
     table_rows,
 )
@@ -579,6 +580,8 @@ def report_html(res: StudyResults) -> str:
         from .office import office_section
 
         out.append(office_section(doc["office"]))
+    # Stage, lateral and interaural parameters, when the analysis holds them.
+    out.append(layout_section_html(doc, level=3))
 
     # 6. Data quality
     out.append("<h2>5. Data quality per position</h2>")
