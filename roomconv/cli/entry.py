@@ -9,7 +9,7 @@ import traceback
 
 from .. import __version__
 from ..errors import OutputExistsError, RoomconvError
-from . import analysis, calibrate, demo, measure, render, study, synth, workbench
+from . import analysis, calibrate, demo, export, measure, render, study, synth, workbench
 from .common import Parser, common_options
 
 __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
@@ -20,6 +20,7 @@ def command_groups() -> list:
     return [
         *measure.COMMANDS,
         *analysis.COMMANDS,
+        *export.COMMANDS,
         *calibrate.COMMANDS,
         *synth.COMMANDS,
         *render.COMMANDS,

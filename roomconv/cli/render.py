@@ -91,6 +91,14 @@ def render_options(p):
         help="cut the output at the dry file's length (the tail is kept by default)",
     )
     g.add_argument("--no-dither", action="store_true", help="no dither for integer formats")
+    g.add_argument(
+        "--measurement",
+        type=opt(v.count, "measurement", 1, 1_000_000),
+        default=None,
+        metavar="N",
+        help="for a SOFA response set (.sofa): the measurement to render through, counted "
+        "from 1; its receivers are the response's channels (a set of one needs none)",
+    )
     g.add_argument("--force", action="store_true", help="replace existing outputs")
 
 
@@ -134,6 +142,7 @@ def settings_from_args(a):
         keep_tail=not a.no_tail,
         dither=not a.no_dither,
         match_ir_level=not a.keep_ir_level,
+        ir_measurement=a.measurement,
     ).check()
 
 
@@ -165,10 +174,34 @@ def _named(exc: InputError) -> InputError:
         return InputError(f"{text} (see --shared and --outputs)")
     if "Dask cluster" in text:
         return InputError(f"--scheduler: {text}")
+    if "measurement" in text and (
+        "choose one by its number" in text
+        or "has no measurement" in text
+        or "applies to SOFA" in text
+    ):
+        return InputError(f"--measurement: {text}")
     return exc
 
 
+def _labelled_measurement(a) -> None:
+    """``--source``/``--receiver``: the SOFA measurement with those study ids."""
+    from ..sofa import measurement_number
+
+    if a.source is None and a.receiver is None:
+        return
+    if a.measurement is not None:
+        raise InputError("--measurement: give it or --source/--receiver, not both")
+    a.measurement = budget(
+        "--source/--receiver",
+        measurement_number,
+        a.ir,
+        source=a.source,
+        receiver=a.receiver,
+    )
+
+
 def run_render(a):
+    _labelled_measurement(a)
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, [a.dry])
     with progress_bar("rendering", quiet=a.quiet) as progress:
@@ -186,6 +219,18 @@ def configure_render(p):
     p.add_argument("dry", type=Path, help="dry recording")
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("-o", "--output", type=Path, required=True, help="wet file to write")
+    p.add_argument(
+        "--source",
+        default=None,
+        metavar="ID",
+        help="for a SOFA set written from a study: the measurement of this source id",
+    )
+    p.add_argument(
+        "--receiver",
+        default=None,
+        metavar="ID",
+        help="for a SOFA set written from a study: the measurement of this receiver id",
+    )
     render_options(p)
 
 
@@ -254,6 +299,7 @@ def run_live(a):
         ceiling_dbfs=a.ceiling,
         precision=a.precision,
         match_ir_level=not a.keep_ir_level,
+        measurement=a.measurement,
     )
     confirm_caution(a)()
     proc, rate = setup.processor, setup.rate_hz
@@ -359,6 +405,13 @@ def configure_live(p):
         type=opt(v.positive, "live duration", 86400.0, unit="s"),
         default=None,
         help="stop after S seconds (at most 86400)",
+    )
+    p.add_argument(
+        "--measurement",
+        type=opt(v.count, "measurement", 1, 1_000_000),
+        default=None,
+        metavar="N",
+        help="for a SOFA response set (.sofa): the measurement, counted from 1",
     )
     p.add_argument(
         "--yes", action="store_true", help="confirm you have read the hearing and equipment caution"
