@@ -250,6 +250,6 @@ def _write(tmp: Path, rs: ResponseSet) -> None:
         if encoded:
             width = max(1, *(len(s) for v in encoded.values() for s in v))
             ds.createDimension("S", width)
-            for k, v in encoded.items():
-                sv = ds.createVariable(k, "S1", ("M", "S"))
-                sv[:] = netCDF4.stringtochar(np.array(v, dtype=f"S{width}"))
+            for vname, texts in encoded.items():
+                sv = ds.createVariable(vname, "S1", ("M", "S"))
+                sv[:] = netCDF4.stringtochar(np.array(texts, dtype=f"S{width}"))
