@@ -119,6 +119,7 @@ def report_study(
     report_dir=None,
     force: bool = False,
     require_pdf: bool = True,
+    sofa_file=None,
     progress: ProgressCallback = silent,
 ) -> StudyReportResult:
     """Analyse every response a study file names (each one position) and write the files.
@@ -139,6 +140,9 @@ def report_study(
         alone and say why in ``notes`` (False).
     force : bool
         Replace existing outputs (never an input).
+    sofa_file : path-like, optional
+        A SOFA file of the same responses written before (``roomconv export``); the
+        report's method section names it.
     """
     from ..analysis.report import csv_text
     from ..analysis.study import parse_calibration
@@ -170,6 +174,8 @@ def report_study(
             progress=_Counter(len(st.responses), progress),
         )
         doc = res.analysis.document
+        if sofa_file is not None:
+            doc["settings"]["sofa_file"] = st.display_path(Path(sofa_file).absolute())
         written: list[Path] = []
         if json_path is not None:
             written.append(g.write_json(json_path, doc))
