@@ -269,4 +269,16 @@ def test_bad_sofa_files_exit_2_naming_them(room, cli):
         ds.Conventions, ds.SOFAConventions, ds.DataType = "SOFA", "GeneralTF", "TF"
     code, _, err = cli("render", d / "dry.wav", "--ir", d / "tf.sofa", "-o", d / "w.wav")
     assert code == 2
-    _one_line_error(err, "tf.sofa", "'TF'")
+    _one_line_error(err, "--ir", "tf.sofa", "'TF'")
+
+
+def test_live_needs_a_measurement_before_any_device_is_opened(room, cli):
+    # The response is read before the sound card is looked for, so this needs no hardware.
+    d, _, _ = room
+    assert cli("export", d / "r1.wav", d / "r2.wav", "-o", d / "set.sofa")[0] == 0
+    code, _, err = cli("live", "--ir", d / "set.sofa", "--duration", "1")
+    assert code == 2
+    _one_line_error(err, "--measurement", "holds 2 measurements")
+    from roomconv.safety import caution_text
+
+    assert caution_text().splitlines()[0] not in err  # refused before the caution

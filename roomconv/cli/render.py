@@ -8,6 +8,7 @@ from pathlib import Path
 from .. import validate
 from ..errors import InputError
 from ..jobs import render as jobs
+from ..sofa import is_sofa
 from .common import Command, budget, confirm_caution, device_spec, note, opt, out
 from .display import BatchView, progress_bar
 
@@ -167,19 +168,28 @@ def describe_report(r) -> str:
     return ", ".join(parts)
 
 
-def _named(exc: InputError) -> InputError:
+def _named(exc: InputError, ir=None) -> InputError:
     """The job's refusal with the options that change what it is about."""
     text = str(exc)
     if "cannot route" in text:
         return InputError(f"{text} (see --shared and --outputs)")
     if "Dask cluster" in text:
         return InputError(f"--scheduler: {text}")
+    return _sofa_named(exc, ir)
+
+
+def _sofa_named(exc: InputError, ir=None) -> InputError:
+    """A refusal about a SOFA response set with the option it is about."""
+    text = str(exc)
     if "measurement" in text and (
         "choose one by its number" in text
         or "has no measurement" in text
         or "applies to SOFA" in text
     ):
         return InputError(f"--measurement: {text}")
+    if ir is not None and is_sofa(ir) and text.startswith(f"{ir}: "):
+        # A SOFA set's other refusals (convention, data type, layout) are about --ir.
+        return InputError(f"--ir {text}")
     return exc
 
 
@@ -208,7 +218,7 @@ def run_render(a):
         try:
             rep = jobs.render_one(a.dry, a.ir, a.output, s, force=a.force, progress=progress)
         except InputError as exc:
-            raise _named(exc) from None
+            raise _named(exc, a.ir) from None
     for w in rep.warnings:
         note(f"warning: {w}")
     out(describe_report(rep), a)
@@ -283,11 +293,8 @@ def configure_batch(p):
     render_options(p)
 
 
-def run_live(a):
-    from ..render.mix import describe_balance
-
-    budget("--ceiling", jobs.check_ceiling, a.ceiling)
-    setup = jobs.prepare_live(
+def _prepare_live(a):
+    return jobs.prepare_live(
         a.ir,
         rate_hz=a.rate,
         device=a.device,
@@ -301,6 +308,16 @@ def run_live(a):
         match_ir_level=not a.keep_ir_level,
         measurement=a.measurement,
     )
+
+
+def run_live(a):
+    from ..render.mix import describe_balance
+
+    budget("--ceiling", jobs.check_ceiling, a.ceiling)
+    try:
+        setup = _prepare_live(a)
+    except InputError as exc:
+        raise _sofa_named(exc, a.ir) from None
     confirm_caution(a)()
     proc, rate = setup.processor, setup.rate_hz
     n_st = len(proc.engine.stages)
