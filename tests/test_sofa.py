@@ -389,3 +389,15 @@ def test_padding_is_recorded_and_cut_off_again(tmp_path):
     np.testing.assert_array_equal(parts[1][1][:, 0], ir[1, 0, :60])
     with netCDF4.Dataset(path) as ds:
         assert ds["ResponseLength"][:].tolist() == [100, 60]
+
+
+def test_spherical_positions_are_converted_to_cartesian(tmp_path):
+    path = tmp_path / "sph.sofa"
+    _hand_made(path)
+    with netCDF4.Dataset(path, "a") as ds:
+        ds["SourcePosition"][:] = [[90.0, 30.0, 2.0]]
+        ds["SourcePosition"].Type = "spherical"
+        ds["SourcePosition"].Units = "degree, degree, metre"
+    rs = read_sofa(path)
+    # Closed form: azimuth 90° and elevation 30° at 2 m lie at (0, 2·cos 30°, 2·sin 30°).
+    np.testing.assert_allclose(rs.source_m[0], [0.0, np.sqrt(3.0), 1.0], atol=1e-12)

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import NoReturn
 
 import numpy as np
 
@@ -221,7 +222,7 @@ def read_sofa(path) -> ResponseSet:
         return _read(p, ds)
 
 
-def _fail(p: Path, problem: str, hint: str | None = None):
+def _fail(p: Path, problem: str, hint: str | None = None) -> NoReturn:
     raise InputError(describe(p, problem, hint))
 
 
@@ -279,7 +280,7 @@ def _read(p: Path, ds) -> ResponseSet:
         bad = int(np.count_nonzero(~np.isfinite(ir)))
         _fail(p, f"Data.IR holds {bad} NaN or infinite samples")
 
-    rate = _one_of_dims(p, ds, "Data.SamplingRate", (("I",), ("M",)), m)
+    rate = _one_of_dims(p, ds, "Data.SamplingRate", (("I",), ("M",)))
     units = _text(getattr(ds["Data.SamplingRate"], "Units", "hertz")) or ""
     if units.strip().lower() != "hertz":
         _fail(p, f"Data.SamplingRate:Units is {units!r}, expected 'hertz'")
@@ -378,7 +379,7 @@ def _var(p: Path, ds, name: str):
     return ds[name]
 
 
-def _one_of_dims(p: Path, ds, name: str, allowed, m: int) -> np.ndarray:
+def _one_of_dims(p: Path, ds, name: str, allowed) -> np.ndarray:
     v = _var(p, ds, name)
     d = tuple(v.dimensions)
     if d not in allowed:
@@ -388,7 +389,12 @@ def _one_of_dims(p: Path, ds, name: str, allowed, m: int) -> np.ndarray:
 
 
 def _position(p: Path, ds, name: str, m: int) -> np.ndarray:
-    """A listener or source position as (M, 3), in the file's own coordinate type."""
+    """A listener or source position as (M, 3), Cartesian metres.
+
+    Spherical positions (azimuth and elevation in degrees, radius in metres; azimuth
+    counter-clockwise from the x axis, elevation up from the horizontal plane: SOFA's
+    convention, from memory) are converted.
+    """
     v = _var(p, ds, name)
     d = tuple(v.dimensions)
     if d not in (("I", "C"), ("M", "C")):
@@ -396,7 +402,13 @@ def _position(p: Path, ds, name: str, m: int) -> np.ndarray:
     kind = _text(getattr(v, "Type", "")) or ""
     if kind not in ("cartesian", "spherical"):
         _fail(p, f"{name}:Type is {kind!r}, expected 'cartesian' or 'spherical'")
-    return np.broadcast_to(np.asarray(v[:], dtype=np.float64), (m, 3)).copy()
+    pos = np.broadcast_to(np.asarray(v[:], dtype=np.float64), (m, 3)).copy()
+    if kind == "spherical":
+        az, el, r = np.deg2rad(pos[:, 0]), np.deg2rad(pos[:, 1]), pos[:, 2]
+        pos = np.stack(
+            [r * np.cos(el) * np.cos(az), r * np.cos(el) * np.sin(az), r * np.sin(el)], 1
+        )
+    return pos
 
 
 def sofa_audio(
