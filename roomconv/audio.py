@@ -61,14 +61,23 @@ _FORMATS = {".wav": "WAV", ".flac": "FLAC", ".aif": "AIFF", ".aiff": "AIFF", ".w
 _WAV_LIMIT_BYTES = 4 * 1024**3 - 1024  # RIFF size fields are 32-bit
 
 
-def read_audio(path, *, what: str = "audio file") -> tuple[np.ndarray, int]:
+def read_audio(
+    path, *, what: str = "audio file", measurement: int | None = None, single: bool = False
+) -> tuple[np.ndarray, int]:
     """Read a whole audio file as float64, shape (samples, channels).
+
+    A SOFA response set (``.sofa``) is read by :func:`roomconv.sofa.sofa_audio`: every
+    measurement's receivers as channels, or one measurement's.
 
     Parameters
     ----------
     path : str or Path
     what : str
         What the file is ("impulse response"), used in a refusal.
+    measurement : int, optional
+        For a SOFA file: one measurement, counted from 1 (refused for other files).
+    single : bool
+        For a SOFA file without ``measurement``: refuse one of several measurements.
 
     Returns
     -------
@@ -95,6 +104,16 @@ def read_audio(path, *, what: str = "audio file") -> tuple[np.ndarray, int]:
     >>> tmp.cleanup()
     """
     p = check_input_file(path, what)
+    from .sofa.read import is_sofa
+
+    if is_sofa(p):
+        from .sofa.read import sofa_audio
+
+        return sofa_audio(p, measurement=measurement, single=single)
+    if measurement is not None:
+        raise InputError(
+            describe(p, "a measurement number applies to SOFA response sets only", "omit it")
+        )
     try:
         info = sf.info(str(p))
         data, rate = sf.read(str(p), dtype="float64", always_2d=True)

@@ -13,6 +13,7 @@ import numpy as np
 from .. import __version__
 from ..audio import read_audio
 from ..errors import InputError, describe
+from ..sofa.read import is_sofa, sofa_measurements
 from .parameters import room_parameters
 from .spatial import single_numbers, spatial_average
 
@@ -235,14 +236,20 @@ def analyse_files(
     items, errors = [], []
     for p in paths:
         try:
-            data, rate = read_audio(p, what="impulse response")
+            # A SOFA set is one response per measurement, named <file>#<m>.
+            parts = (
+                [(Path(n), d, r) for n, d, r in sofa_measurements(p)]
+                if is_sofa(p)
+                else [(Path(p), *read_audio(p, what="impulse response"))]
+            )
         except InputError as exc:
             errors.append(str(exc))
             continue
-        if not np.any(data):
-            errors.append(describe(p, "the impulse response is silent (all zeros)"))
-            continue
-        items.append((Path(p), data, rate))
+        for name, data, rate in parts:
+            if not np.any(data):
+                errors.append(describe(name, "the impulse response is silent (all zeros)"))
+                continue
+            items.append((name, data, rate))
     if not items:
         raise InputError("no response could be analysed: " + "; ".join(errors))
     study = analyse_arrays(

@@ -9,7 +9,19 @@ import traceback
 
 from .. import __version__
 from ..errors import OutputExistsError, RoomconvError
-from . import analysis, calibrate, demo, measure, office, plan, render, study, synth, workbench
+from . import (
+    analysis,
+    calibrate,
+    demo,
+    export,
+    measure,
+    office,
+    plan,
+    render,
+    study,
+    synth,
+    workbench,
+)
 from .common import Parser, common_options
 
 __all__ = ["build_parser", "command_groups", "main", "Interrupted"]
@@ -22,6 +34,7 @@ def command_groups() -> list:
         *analysis.COMMANDS,
         *plan.COMMANDS,
         *office.COMMANDS,
+        *export.COMMANDS,
         *calibrate.COMMANDS,
         *synth.COMMANDS,
         *render.COMMANDS,

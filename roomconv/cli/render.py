@@ -8,6 +8,7 @@ from pathlib import Path
 from .. import validate
 from ..errors import InputError
 from ..jobs import render as jobs
+from ..sofa import is_sofa
 from .common import Command, budget, confirm_caution, device_spec, note, opt, out
 from .display import BatchView, progress_bar
 
@@ -94,6 +95,14 @@ def render_options(p):
         help="cut the output at the dry file's length (the tail is kept by default)",
     )
     g.add_argument("--no-dither", action="store_true", help="no dither for integer formats")
+    g.add_argument(
+        "--measurement",
+        type=opt(v.count, "measurement", 1, 1_000_000),
+        default=None,
+        metavar="N",
+        help="for a SOFA response set (.sofa): the measurement to render through, counted "
+        "from 1; its receivers are the response's channels (a set of one needs none)",
+    )
     g.add_argument("--force", action="store_true", help="replace existing outputs")
 
 
@@ -137,6 +146,7 @@ def settings_from_args(a):
         keep_tail=not a.no_tail,
         dither=not a.no_dither,
         match_ir_level=not a.keep_ir_level,
+        ir_measurement=a.measurement,
     ).check()
 
 
@@ -161,14 +171,46 @@ def describe_report(r) -> str:
     return ", ".join(parts)
 
 
-def _named(exc: InputError) -> InputError:
+def _named(exc: InputError, ir=None) -> InputError:
     """The job's refusal with the options that change what it is about."""
     text = str(exc)
     if "cannot route" in text:
         return InputError(f"{text} (see --shared and --outputs)")
     if "Dask cluster" in text:
         return InputError(f"--scheduler: {text}")
+    return _sofa_named(exc, ir)
+
+
+def _sofa_named(exc: InputError, ir=None) -> InputError:
+    """A refusal about a SOFA response set with the option it is about."""
+    text = str(exc)
+    if "measurement" in text and (
+        "choose one by its number" in text
+        or "has no measurement" in text
+        or "applies to SOFA" in text
+    ):
+        return InputError(f"--measurement: {text}")
+    if ir is not None and is_sofa(ir) and text.startswith(f"{ir}: "):
+        # A SOFA set's other refusals (convention, data type, layout) are about --ir.
+        return InputError(f"--ir {text}")
     return exc
+
+
+def _labelled_measurement(a) -> None:
+    """``--source``/``--receiver``: the SOFA measurement with those study ids."""
+    from ..sofa import measurement_number
+
+    if a.source is None and a.receiver is None:
+        return
+    if a.measurement is not None:
+        raise InputError("--measurement: give it or --source/--receiver, not both")
+    a.measurement = budget(
+        "--source/--receiver",
+        measurement_number,
+        a.ir,
+        source=a.source,
+        receiver=a.receiver,
+    )
 
 
 def run_render(a):
@@ -185,13 +227,14 @@ def run_render(a):
     int
         The exit code: 0 on success (a refused input raises and exits with 2).
     """
+    _labelled_measurement(a)
     s = settings_from_args(a)
     budget("--predelay", jobs.check_predelay, a.predelay, [a.dry])
     with progress_bar("rendering", quiet=a.quiet) as progress:
         try:
             rep = jobs.render_one(a.dry, a.ir, a.output, s, force=a.force, progress=progress)
         except InputError as exc:
-            raise _named(exc) from None
+            raise _named(exc, a.ir) from None
     for w in rep.warnings:
         note(f"warning: {w}")
     out(describe_report(rep), a)
@@ -203,6 +246,18 @@ def configure_render(p):
     p.add_argument("dry", type=Path, help="dry recording")
     p.add_argument("--ir", type=Path, required=True, help="impulse response")
     p.add_argument("-o", "--output", type=Path, required=True, help="wet file to write")
+    p.add_argument(
+        "--source",
+        default=None,
+        metavar="ID",
+        help="for a SOFA set written from a study: the measurement of this source id",
+    )
+    p.add_argument(
+        "--receiver",
+        default=None,
+        metavar="ID",
+        help="for a SOFA set written from a study: the measurement of this receiver id",
+    )
     render_options(p)
 
 
@@ -270,6 +325,24 @@ def configure_batch(p):
     render_options(p)
 
 
+def _prepare_live(a):
+    """The live job's setup from the parsed options (the SOFA measurement included)."""
+    return jobs.prepare_live(
+        a.ir,
+        rate_hz=a.rate,
+        device=a.device,
+        block_samples=a.block,
+        input_channels=a.input_channels,
+        output_channels=a.output_channels,
+        mix=a.mix,
+        gain_db=a.gain,
+        ceiling_dbfs=a.ceiling,
+        precision=a.precision,
+        match_ir_level=not a.keep_ir_level,
+        measurement=a.measurement,
+    )
+
+
 def run_live(a):
     """Run ``roomconv live``: convolve a sound-card input in real time, after the hearing
     caution, with a capped and ramped output (:func:`roomconv.jobs.render.run_live`).
@@ -287,19 +360,10 @@ def run_live(a):
     from ..render.mix import describe_balance
 
     budget("--ceiling", jobs.check_ceiling, a.ceiling)
-    setup = jobs.prepare_live(
-        a.ir,
-        rate_hz=a.rate,
-        device=a.device,
-        block_samples=a.block,
-        input_channels=a.input_channels,
-        output_channels=a.output_channels,
-        mix=a.mix,
-        gain_db=a.gain,
-        ceiling_dbfs=a.ceiling,
-        precision=a.precision,
-        match_ir_level=not a.keep_ir_level,
-    )
+    try:
+        setup = _prepare_live(a)
+    except InputError as exc:
+        raise _sofa_named(exc, a.ir) from None
     confirm_caution(a)()
     proc, rate = setup.processor, setup.rate_hz
     n_st = len(proc.engine.stages)
@@ -405,6 +469,13 @@ def configure_live(p):
         type=opt(v.positive, "live duration", 86400.0, unit="s"),
         default=None,
         help="stop after S seconds (at most 86400)",
+    )
+    p.add_argument(
+        "--measurement",
+        type=opt(v.count, "measurement", 1, 1_000_000),
+        default=None,
+        metavar="N",
+        help="for a SOFA response set (.sofa): the measurement, counted from 1",
     )
     p.add_argument(
         "--yes", action="store_true", help="confirm you have read the hearing and equipment caution"

@@ -47,6 +47,7 @@ class _Run:
     total: int
     done: int = 0
     notes: list = field(default_factory=list)
+    sofa: dict = field(default_factory=dict)
 
     def step(self, stage: str) -> None:
         self.done += 1
@@ -94,7 +95,7 @@ def run_demo(
         force,
         progress,
         {"scenario": "Quillmere Hall (fictional)", "quick": quick, "seed": SEED},
-        total=n_pos * 2 + 4 + len(sc.clips) + 2,
+        total=n_pos * 2 + 4 + len(sc.clips) + 3,
     )
     room = quillmere_hall()
     truths = true_responses(run, room)
@@ -111,6 +112,7 @@ def run_demo(
     summary = _summary(study.document, time.monotonic() - t_start, out)
     summary["speech_room"] = speech
     summary["stage_support"] = stage
+    summary["sofa"] = run.sofa
     write_document(out / "summary.json", summary, force=force)
     return summary
 
@@ -361,11 +363,11 @@ def write_report(run: _Run, room, sweep, study, comparison, renders) -> None:
         provenance={**run.settings, "sweep": sweep.to_dict()},
         force=run.force,
     )
-    client_report(run, room, sweep)
+    client_report(run, room, sweep, study.document["average"]["single_numbers"])
     run.step("report")
 
 
-def client_report(run: _Run, room, sweep) -> list[Path]:
+def client_report(run: _Run, room, sweep, wav_numbers: dict | None = None) -> list[Path]:
     """6b. The study file and the client report (report/report.html and .pdf) from it, as a
     consultant sends them; the HTML alone, saying why, where no PDF engine is installed.
 
@@ -379,11 +381,39 @@ def client_report(run: _Run, room, sweep) -> list[Path]:
     study_file = write_study_file(
         run.out / "study.toml", _study_text(run.scenario, room, sweep), force=run.force
     )
+    sofa_file = export_sofa(run, study_file, wav_numbers)
     res = report_study(
-        study_file, report_dir=run.out / "report", force=run.force, require_pdf=False
+        study_file,
+        report_dir=run.out / "report",
+        force=run.force,
+        require_pdf=False,
+        sofa_file=sofa_file,
     )
     run.notes.extend(f"note: {n}" for n in res.notes)
     return [study_file, *res.written]
+
+
+def export_sofa(run: _Run, study_file: Path, wav_numbers: dict | None) -> Path:
+    """6c. The study's responses as one SOFA file (AES69-2022), analysed back from it: the
+    same samples must give the same numbers as the WAV files did (``wav_numbers``, the
+    single numbers of step 3; ``summary["sofa"]``)."""
+    from ..jobs.analyze import analyze_study
+    from ..jobs.export import export_responses
+
+    target = run.out / "quillmere.sofa"
+    res = export_responses([], target, study=study_file, force=run.force)
+    back = analyze_study(
+        [target], bands="octave", json_path=run.out / "sofa-results.json", force=run.force
+    ).study
+    run.sofa = {
+        "file": target.name,
+        "convention": res.convention,
+        "measurements": res.measurements,
+        "analysis": "sofa-results.json",
+        "same_numbers_as_wav": back.document["average"]["single_numbers"] == wav_numbers,
+    }
+    run.step("sofa")
+    return target
 
 
 def _study_text(sc: Scenario, room, sweep) -> str:
@@ -561,6 +591,7 @@ def _summary(doc, seconds, out) -> dict:
             for n in (
                 "report",
                 "study.toml",
+                "quillmere.sofa",
                 "report.html",
                 "results.json",
                 "results.csv",

@@ -352,12 +352,13 @@ def prepare_live(
     ceiling_dbfs: float = -1.0,
     precision: str = "auto",
     match_ir_level: bool = True,
+    measurement: int | None = None,
 ) -> LiveSetup:
     """Load the response and build the live processor; nothing is played yet.
 
     The caller shows the hearing caution and obtains confirmation between this and
     :func:`run_live`. ``rate_hz`` None takes the device's default rate (else the response's).
-    Channels count from 1.
+    Channels count from 1; so does ``measurement``, one measurement of a SOFA response set.
 
     Examples
     --------
@@ -375,7 +376,7 @@ def prepare_live(
     from ..render.stream import LiveProcessor
 
     check_ceiling(ceiling_dbfs)
-    data, ir_rate = read_audio(ir, what="impulse response")
+    data, ir_rate = read_audio(ir, what="impulse response", measurement=measurement, single=True)
     sd = load_sounddevice()
     rate = rate_hz
     if rate is None:
@@ -460,7 +461,9 @@ def preview(
     from ..signal import db_to_gain
 
     x, rate = read_audio(dry, what="dry file")
-    h, ir_rate = read_audio(ir, what="impulse response")
+    h, ir_rate = read_audio(
+        ir, what="impulse response", measurement=settings.ir_measurement, single=True
+    )
     y = offline.render_arrays(x[: int(seconds * rate)], h, rate, settings.check(), ir_rate=ir_rate)
     y = safety.OutputLimiter(rate).process(
         safety.apply_ramps(y * db_to_gain(PREVIEW_ATTENUATION_DB), rate)

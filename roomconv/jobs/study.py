@@ -184,6 +184,7 @@ def report_study(
     report_dir=None,
     force: bool = False,
     require_pdf: bool = True,
+    sofa_file=None,
     progress: ProgressCallback = silent,
     sti=None,
 ) -> StudyReportResult:
@@ -207,6 +208,9 @@ def report_study(
         Adds the STI per position and averaged (:func:`roomconv.jobs.speech.speech_conditions`).
     force : bool
         Replace existing outputs (never an input).
+    sofa_file : path-like, optional
+        A SOFA file of the same responses written before (``roomconv export``); the
+        report's method section names it.
 
     Examples
     --------
@@ -252,6 +256,8 @@ def report_study(
         )
         doc = res.analysis.document
         _add_office(st, doc)
+        if sofa_file is not None:
+            doc["settings"]["sofa_file"] = st.display_path(Path(sofa_file).absolute())
         written: list[Path] = []
         if json_path is not None:
             written.append(g.write_json(json_path, doc))

@@ -87,6 +87,9 @@ class RenderSettings:
         Seed of the dither.
     match_ir_level : bool
         Scale the response to unit energy per output before mixing (:mod:`roomconv.render.mix`).
+    ir_measurement : int, optional
+        The measurement of a SOFA response set to render through, counted from 1 (a set of
+        one measurement needs none).
 
     References
     ----------
@@ -115,6 +118,8 @@ class RenderSettings:
     seed: int = 0
     #: scale the response to unit energy per output before mixing (see render.mix)
     match_ir_level: bool = False
+    #: one measurement of a SOFA response set, counted from 1
+    ir_measurement: int | None = None
 
     def check(self) -> RenderSettings:
         """Check every value, raising :class:`~roomconv.errors.InputError` for a bad one.
@@ -144,6 +149,14 @@ class RenderSettings:
         if self.precision not in ("auto", "float64", "float32"):
             raise InputError(
                 f"engine precision '{self.precision}' must be auto, float64 or float32"
+            )
+        if self.ir_measurement is not None and (
+            isinstance(self.ir_measurement, bool)
+            or not isinstance(self.ir_measurement, int)
+            or self.ir_measurement < 1
+        ):
+            raise InputError(
+                f"measurement {self.ir_measurement!r} must be a whole number from 1 up"
             )
         return self
 
@@ -180,7 +193,11 @@ class RenderSettings:
         >>> RenderSettings().as_dict()["mix"]
         1.0
         """
-        return asdict(self)
+        d = asdict(self)
+        if d["ir_measurement"] is None:
+            # Left out unless set, so that sidecars written before SOFA sets still match.
+            del d["ir_measurement"]
+        return d
 
 
 @dataclass
@@ -553,7 +570,9 @@ def _prepare_inputs(dry_path: Path, ir_path: Path, s: RenderSettings) -> _Inputs
         raise InputError(describe(dry_path, "the dry file holds no samples"))
     rate, n_in = info.samplerate, info.channels
     _audio_rate(rate, dry_path)
-    ir, ir_rate = read_audio(ir_path, what="impulse response")
+    ir, ir_rate = read_audio(
+        ir_path, what="impulse response", measurement=s.ir_measurement, single=True
+    )
     _audio_rate(ir_rate, ir_path)
     if not np.any(ir):
         raise InputError(describe(ir_path, "the impulse response is silent"))

@@ -422,6 +422,11 @@ def report_html(res: StudyResults) -> str:
     )
     if s.get("calibration"):
         out.append("<li>Strength G from a reference written by 'roomconv calibrate'.</li>")
+    if s.get("sofa_file"):
+        out.append(
+            "<li>The responses are also delivered as one file in the open SOFA format "
+            f"(AES69-2022): {e(s['sofa_file'])}.</li>"
+        )
     out.append("<li>Verdicts: " + e(s["verdicts"]) + ".</li></ul>")
     eq = st.equipment
     eq_rows = [

@@ -145,3 +145,22 @@ def test_stage_support_example(demo):
         assert rows[nominal]["st_late_db"] == pytest.approx(
             10 * np.log10(e(100, 1000) / direct), abs=0.3
         )
+
+
+def test_demo_exports_its_study_as_sofa_and_reads_it_back(demo):
+    # AES69-2022 SingleRoomSRIR 1.1 (seen): one measurement per source–receiver pair of the
+    # study, the hall's box from RoomCornerA to RoomCornerB. Read back, the same samples give
+    # the same single numbers as the WAV files did.
+    from roomconv.sofa import read_sofa
+
+    summary = json.loads((demo / "summary.json").read_text())
+    assert summary["sofa"]["same_numbers_as_wav"] is True
+    rs = read_sofa(demo / "quillmere.sofa")
+    hall = quillmere_hall()
+    assert rs.convention == "SingleRoomSRIR"
+    assert rs.measurements == len(QUICK.sources) * len(QUICK.receivers)
+    assert rs.room_dimensions_m == (hall.length, hall.width, hall.height)
+    x, _ = sf.read(demo / "irs" / "S1R2.wav")
+    np.testing.assert_array_equal(rs.ir[1, 0, : x.shape[0]], x)
+    page = (demo / "report" / "report.html").read_text()
+    assert "quillmere.sofa" in page
