@@ -118,6 +118,15 @@ class Target:
         When not empty, the source's criterion is on the mean over these bands (``max_s``
         then bounds that mean; planning aims every one of them at it).
     notes : tuple of str
+        Cautions a plan or report carries with the target.
+
+    Examples
+    --------
+    A lower bound alone (None: the source sets no upper one):
+
+    >>> t = Target("mine", "at least 0.5 s", {500: 0.6}, {500: 0.5}, {500: None}, "ours")
+    >>> t.accepts(500, 0.7), t.accepts(500, 0.4)
+    (True, False)
     """
 
     name: str
@@ -130,7 +139,20 @@ class Target:
     notes: tuple[str, ...] = field(default_factory=tuple)
 
     def accepts(self, band: int, t: float) -> bool:
-        """True when ``t`` lies in the band's accepted range."""
+        """True when ``t`` lies in the band's accepted range.
+
+        Parameters
+        ----------
+        band : int
+            Octave mid-band frequency, Hz.
+        t : float
+            Reverberation time, s.
+
+        Returns
+        -------
+        bool
+            Bounds included; a bound the band lacks is no bound.
+        """
         lo, hi = self.min_s.get(band), self.max_s.get(band)
         return (lo is None or t >= lo) and (hi is None or t <= hi)
 

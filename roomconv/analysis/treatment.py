@@ -77,10 +77,34 @@ def exact_octave_hz(band_hz: float) -> float:
 def air_m(band_hz: float, temperature_c: float = 20.0, humidity_pct: float = 50.0) -> float:
     """The air's energy attenuation m (1/m) in an octave band, for the 4mV term.
 
+    Parameters
+    ----------
+    band_hz : float
+        Nominal octave mid-band frequency, Hz (500, 1000, ...).
+    temperature_c : float
+        Air temperature, °C.
+    humidity_pct : float
+        Relative humidity, %.
+
+    Returns
+    -------
+    float
+        m in 1/m (energy, natural-log units), at the band's exact mid-band frequency.
+
     References
     ----------
     ISO 9613-1:1993, eqs. (3)–(5), evaluated at the band's exact mid-band frequency by
     :func:`roomconv.synth.air.power_attenuation`; ISO 3382-2:2008, 3, for m.
+
+    Examples
+    --------
+    The nominal 4 kHz band is evaluated at 1000·10^0.6 ≈ 3981 Hz (IEC 61260-1):
+
+    >>> from roomconv.synth.air import power_attenuation
+    >>> air_m(4000) == float(power_attenuation(1000 * 10**0.6))
+    True
+    >>> air_m(1000) == float(power_attenuation(1000.0))
+    True
     """
     return float(power_attenuation(exact_octave_hz(band_hz), temperature_c, humidity_pct))
 
@@ -97,7 +121,38 @@ def sphere_area(volume_m3: float) -> float:
 
 
 def check_room(volume_m3, area_m2) -> tuple[float, float]:
-    """Volume and surface area as floats, refused when no room could have them."""
+    """Volume and surface area as floats, refused when no room could have them.
+
+    Parameters
+    ----------
+    volume_m3 : float or str
+        Room volume, m³; positive, at most 1e9 m³.
+    area_m2 : float or str
+        Total surface area, m²; at least a sphere's of the same volume
+        (:func:`sphere_area`), at most 6e8 m².
+
+    Returns
+    -------
+    (float, float)
+        The volume in m³ and the area in m².
+
+    Raises
+    ------
+    roomconv.errors.InputError
+        A value that is not a positive number, or an area below the sphere's.
+
+    Examples
+    --------
+    >>> check_room(100, "130")
+    (100.0, 130.0)
+
+    A sphere of 100 m³ has (36π·100²)^(1/3) ≈ 104.2 m² of surface, so 90 m² is refused:
+
+    >>> check_room(100.0, 90.0)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: room surface area 90 m² is less than 104.2 m², the least ...
+    """
     v = validate.positive(volume_m3, "room volume", VOLUME_MAX_M3, unit="m³")
     s = validate.positive(area_m2, "room surface area", AREA_MAX_M2, unit="m²")
     least = sphere_area(v)
@@ -130,12 +185,34 @@ def sabine_added_area(volume_m3: float, t_measured_s: float, t_target_s: float) 
 def eyring_mean_alpha(volume_m3: float, area_m2: float, t_s: float, m_per_m: float) -> float:
     """ᾱ = 1 − exp(−(0.161·V/T − 4mV)/S), Eyring's equation solved for the mean absorption.
 
-    Returns NaN when no ᾱ gives ``t_s``: the time is longer than the air alone allows.
+    Parameters
+    ----------
+    volume_m3 : float
+        Room volume V, m³.
+    area_m2 : float
+        Total surface area S, m².
+    t_s : float
+        Reverberation time T, s.
+    m_per_m : float
+        Air energy attenuation m, 1/m (:func:`air_m`); 0 leaves the air out.
+
+    Returns
+    -------
+    float
+        The mean absorption coefficient ᾱ in [0, 1); NaN when no ᾱ gives ``t_s``: the time
+        is longer than the air alone allows (0.161/(4m) s).
 
     References
     ----------
     Eyring, C. F. (1930). Reverberation time in "dead" rooms. J. Acoust. Soc. Am. 1,
     217–241. Kuttruff, H. Room Acoustics (5th ed., 2009), ch. 5 (the 4mV term).
+
+    Examples
+    --------
+    >>> round(eyring_mean_alpha(100.0, 161.0, 1.0, 0.0), 6)  # 1 − exp(−16.1/161) = 1 − e^−0.1
+    0.095163
+    >>> eyring_mean_alpha(100.0, 161.0, 1.0, 0.05)  # 4mV = 20 m² > 16.1 m²: air alone is more
+    nan
     """
     x = (SABINE_CONSTANT * volume_m3 / t_s - 4.0 * m_per_m * volume_m3) / area_m2
     if x <= 0:
@@ -145,6 +222,27 @@ def eyring_mean_alpha(volume_m3: float, area_m2: float, t_s: float, m_per_m: flo
 
 def eyring_time(volume_m3: float, area_m2: float, mean_alpha: float, m_per_m: float) -> float:
     """T = 0.161·V / (−S·ln(1 − ᾱ) + 4mV) (Eyring, 1930); 0 for ᾱ ≥ 1.
+
+    Parameters
+    ----------
+    volume_m3 : float
+        Room volume V, m³.
+    area_m2 : float
+        Total surface area S, m².
+    mean_alpha : float
+        Mean absorption coefficient ᾱ.
+    m_per_m : float
+        Air energy attenuation m, 1/m (:func:`air_m`); 0 leaves the air out.
+
+    Returns
+    -------
+    float
+        Reverberation time, s.
+
+    References
+    ----------
+    Eyring, C. F. (1930). Reverberation time in "dead" rooms. J. Acoust. Soc. Am. 1,
+    217–241.
 
     Examples
     --------
@@ -163,11 +261,34 @@ def eyring_added_area(
 ) -> float:
     """ΔA = S·(ᾱ_target − ᾱ_measured) by Eyring's equation with the air term, m².
 
-    NaN when the measured or the target time is longer than the air alone allows.
+    Parameters
+    ----------
+    volume_m3 : float
+        Room volume V, m³.
+    area_m2 : float
+        Total surface area S, m².
+    t_measured_s, t_target_s : float
+        Measured and target reverberation times, s.
+    m_per_m : float
+        Air energy attenuation m, 1/m (:func:`air_m`); 0 leaves the air out.
+
+    Returns
+    -------
+    float
+        Absorption area to add, m²; negative: remove absorption. NaN when the measured or
+        the target time is longer than the air alone allows.
 
     References
     ----------
     Eyring, C. F. (1930), J. Acoust. Soc. Am. 1, 217–241; ISO 9613-1:1993 for m.
+
+    Examples
+    --------
+    With 0.161·V/S = 0.1 s, ᾱ = 1 − exp(−0.1/T); from 1 s to 0.5 s
+    ΔA = 161·(e^−0.1 − e^−0.2) ≈ 13.863 m², below Sabine's 0.161·100·(2 − 1) = 16.1 m²:
+
+    >>> round(eyring_added_area(100.0, 161.0, 1.0, 0.5, 0.0), 3)
+    13.863
     """
     a_m = eyring_mean_alpha(volume_m3, area_m2, t_measured_s, m_per_m)
     a_t = eyring_mean_alpha(volume_m3, area_m2, t_target_s, m_per_m)
@@ -176,7 +297,25 @@ def eyring_added_area(
 
 @dataclass(frozen=True)
 class Treatment:
-    """A material to install on a named surface (its area is what the plan finds)."""
+    """A material to install on a named surface (its area is what the plan finds).
+
+    Attributes
+    ----------
+    surface : str
+        One of :data:`SURFACE_NAMES`.
+    material : roomconv.synth.materials.Material
+        The material, with its absorption coefficient per octave band.
+    surface_area_m2 : float or None
+        The surface's own area when the room's dimensions are known, m²; a plan notes an
+        area to install beyond it.
+
+    Examples
+    --------
+    >>> from roomconv.synth.materials import MATERIALS
+    >>> t = Treatment("ceiling", MATERIALS["curtain-heavy"], surface_area_m2=40.0)
+    >>> t.material.at(500)
+    0.55
+    """
 
     surface: str
     material: Material
@@ -186,6 +325,24 @@ class Treatment:
 
 @dataclass
 class TreatmentArea:
+    """The area of one material on one surface (the JSON's ``treatment`` and ``installed``).
+
+    Attributes
+    ----------
+    surface : str
+        Where the material goes (one of :data:`SURFACE_NAMES`).
+    material : str
+        The material's name.
+    area_m2 : float or None
+        Area to install, m²; None where the material cannot reach the target (it absorbs
+        nothing there) or the band has nothing to plan.
+
+    Examples
+    --------
+    >>> TreatmentArea("back", "curtain-heavy", 12.5)
+    TreatmentArea(surface='back', material='curtain-heavy', area_m2=12.5)
+    """
+
     surface: str
     material: str
     area_m2: float | None
@@ -193,7 +350,33 @@ class TreatmentArea:
 
 @dataclass
 class BandPlan:
-    """One octave band of a plan (the JSON's ``bands`` entries)."""
+    """One octave band of a plan (the JSON's ``bands`` entries).
+
+    Attributes
+    ----------
+    band_hz : int
+        Nominal octave mid-band frequency, Hz.
+    measured_s : float or None
+        Measured decay time, s; None where not evaluable.
+    target_s, target_min_s, target_max_s : float or None
+        The time aimed at and the accepted range, s (None: no bound).
+    added_area_sabine_m2, added_area_eyring_m2 : float or None
+        Absorption area to add by Sabine and by Eyring, m²; negative: remove.
+    treatment : list of TreatmentArea
+        Each material's area if this band alone sized it.
+    predicted_s : float or None
+        Eyring's decay time after the installed areas, s.
+    within_tolerance : bool or None
+        Whether the judged time (predicted with treatment, else measured) is in range.
+    notes : list of str
+        Why a value is missing, or what to watch.
+
+    Examples
+    --------
+    >>> b = BandPlan(500, 1.2, 0.6, 0.48, 0.72, added_area_sabine_m2=13.416666)
+    >>> b.as_dict()["added_area_sabine_m2"]
+    13.4167
+    """
 
     band_hz: int
     measured_s: float | None
@@ -208,6 +391,13 @@ class BandPlan:
     notes: list[str] = field(default_factory=list)
 
     def as_dict(self) -> dict:
+        """The band as a JSON-ready dict, times and areas rounded to 4 decimals.
+
+        Returns
+        -------
+        dict
+            The fields by name; ``treatment`` as a list of dicts.
+        """
         d = {k: v for k, v in self.__dict__.items() if k != "treatment"}
         d["treatment"] = [t.__dict__.copy() for t in self.treatment]
         for k in (
@@ -225,7 +415,38 @@ class BandPlan:
 
 @dataclass
 class TreatmentPlan:
-    """Every band of a plan, the areas to install, the target and the notes."""
+    """Every band of a plan, the areas to install, the target and the notes.
+
+    Made by :func:`plan_bands`; the plan document is written from it.
+
+    Attributes
+    ----------
+    bands : list of BandPlan
+        One per octave band that both the measurement and the target have.
+    installed : list of TreatmentArea
+        One area per chosen material, sized at ``sizing_bands``.
+    target : Target
+        The target planned for.
+    volume_m3, area_m2 : float
+        Room volume (m³) and total surface area (m²).
+    temperature_c, humidity_pct : float
+        Air temperature (°C) and relative humidity (%) of the air term.
+    sizing_bands : tuple of int
+        Bands whose mean sets the installed areas, Hz.
+    checked : str
+        ``"predicted"`` with treatment, else ``"measured"``.
+    mean_check : dict or None
+        The source's criterion on a mean over bands, when it has one.
+    notes : list of str
+        Cautions, ending with :data:`DECISION_CAUTION`.
+
+    Examples
+    --------
+    >>> from roomconv.analysis.targets import user_target
+    >>> p = plan_bands({500: 1.61}, user_target({500: 0.805}), 100.0, 130.0)
+    >>> p.checked, p.sizing_bands, p.notes[-1] == DECISION_CAUTION
+    ('measured', (500,), True)
+    """
 
     bands: list[BandPlan]
     #: One area per chosen material, sized at the sizing bands (see :func:`plan_bands`).
@@ -275,18 +496,25 @@ def plan_bands(
     measured_s : dict
         {band Hz: measured T in s, or None where not evaluable}.
     target : Target
+        The target per octave band (:mod:`roomconv.analysis.targets`).
     volume_m3, area_m2 : float
-        Room volume and total surface area.
+        Room volume (m³) and total surface area (m²), checked by :func:`check_room`.
     treatments : sequence of Treatment
         Materials to install; none gives the areas alone.
     temperature_c, humidity_pct : float
-        Air for ISO 9613-1.
+        Air temperature (°C) and relative humidity (%) for ISO 9613-1.
     measured_notes : dict, optional
         {band Hz: text} carried into a band's notes (a measured value with a caution).
 
     Returns
     -------
     TreatmentPlan
+        Every band, the installed areas and the notes.
+
+    Raises
+    ------
+    roomconv.errors.InputError
+        A room no room could be, a surface named twice, or no band in common.
 
     Notes
     -----
@@ -297,6 +525,25 @@ def plan_bands(
     ----------
     Sabine, W. C. (1922), Collected Papers on Acoustics; Eyring, C. F. (1930), J. Acoust.
     Soc. Am. 1, 217–241; ISO 9613-1:1993; ISO 354:2003, 8.1.2.1.
+
+    Examples
+    --------
+    Halving 1.61 s in 100 m³ takes 0.161·100·(1/0.805 − 1/1.61) = 10 m² by Sabine:
+
+    >>> from roomconv.analysis.targets import user_target
+    >>> from roomconv.synth.materials import MATERIALS
+    >>> curtain = Treatment("walls", MATERIALS["curtain-heavy"])
+    >>> p = plan_bands({500: 1.61}, user_target({500: 0.805}), 100.0, 130.0, [curtain])
+    >>> round(p.bands[0].added_area_sabine_m2, 6)
+    10.0
+
+    Sized at its only band, the installed area adds exactly Eyring's ΔA there, so the
+    predicted time is the target:
+
+    >>> round(p.installed[0].area_m2 * 0.55 - p.bands[0].added_area_eyring_m2, 9)
+    0.0
+    >>> round(p.bands[0].predicted_s, 9), p.bands[0].within_tolerance
+    (0.805, True)
     """
     v, s = check_room(volume_m3, area_m2)
     measured_notes = measured_notes or {}
@@ -462,7 +709,37 @@ def plan_bands(
 
 def measured_times(doc, basis: str = "t30", what: str = "analysis document"):
     """{band Hz: mean decay time or None} and {band Hz: caution text} from an analysis
-    document's average (the JSON ``analyze`` writes)."""
+    document's average (the JSON ``analyze`` writes).
+
+    Parameters
+    ----------
+    doc : dict
+        The analysis document, read from its JSON.
+    basis : {"t30", "t20", "edt"}
+        Which decay time to take.
+    what : str
+        How refusals name the document (its file name).
+
+    Returns
+    -------
+    times : dict
+        {band Hz: mean decay time in s, or None where not evaluable}.
+    notes : dict
+        {band Hz: caution text} where the average carries a caution.
+
+    Raises
+    ------
+    roomconv.errors.InputError
+        An unknown basis, a document without per-band averages, or bands not in octaves.
+
+    Examples
+    --------
+    >>> doc = {"settings": {"bands": "octave"}, "average": {"bands": [
+    ...     {"band_hz": 500.0, "t30_s": {"mean": 0.62, "verdict": "ok"}},
+    ...     {"band_hz": 1000.0, "t30_s": {"mean": None}}]}}
+    >>> measured_times(doc)
+    ({500: 0.62, 1000: None}, {})
+    """
     if basis not in BASES:
         raise InputError(f"decay time '{basis}' is not one of {', '.join(BASES)}")
     try:

@@ -131,6 +131,22 @@ def _option_of(text: str, a) -> str | None:
 
 
 def run_plan(a):
+    """Run ``roomconv plan``: the absorption to add per octave band to reach a
+    reverberation-time target, and the area of each chosen material, through
+    :func:`roomconv.jobs.plan.plan_treatment`, shown as a table and written as JSON when
+    asked.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2, naming the
+        option).
+    """
     treats = [
         budget(f"--treat '{item}'", jobs.parse_treatment, item, a.materials_file)
         for item in a.treat or []
@@ -179,6 +195,7 @@ def run_plan(a):
 
 
 def configure_plan(p):
+    """Add the options of ``roomconv plan`` to its sub-parser ``p`` (an argparse parser)."""
     src = p.add_mutually_exclusive_group(required=True)
     src.add_argument(
         "--study",

@@ -220,14 +220,41 @@ def ideal_responses(sweep, length_s: float) -> tuple[np.ndarray, dict]:
     Parameters
     ----------
     sweep : Sweep
+        The exponential sweep of the measurement (:class:`~roomconv.measure.sweep.Sweep`).
     length_s : float
         Length of the linear response, s (as the measurement's).
 
     Returns
     -------
     ir : ndarray, shape (samples, 1)
+        The linear response, ``round(length_s · rate)`` samples from its zero lag.
     harmonics : dict
-        {k: ndarray (samples_k, 1)}.
+        {k: ndarray (samples_k, 1)}, the harmonic responses, each from its zero lag.
+
+    Notes
+    -----
+    The deconvolution of a sweep is kept for reuse (a small cache); the arrays returned are
+    copies, so changing them changes nothing that a later call returns.
+
+    References
+    ----------
+    Farina, A. (2000). Simultaneous measurement of impulse response and distortion with a
+    swept-sine technique. 108th AES Convention, preprint 5093.
+    Müller, S., Massarani, P. (2001). Transfer-function measurement with sweeps. J. Audio
+    Eng. Soc. 49(6), 443–471.
+
+    Examples
+    --------
+    A perfect chain has no delay, so the linear response peaks at its first sample:
+
+    >>> from roomconv.measure.sweep import Sweep
+    >>> s = Sweep(rate=8000, f_low=50.0, f_high=3000.0, duration=1.0, silence_pre=0.2,
+    ...           silence_post=0.3)
+    >>> ir, harmonics = ideal_responses(s, 0.25)
+    >>> ir.shape, int(np.argmax(np.abs(ir[:, 0])))
+    ((2000, 1), 0)
+    >>> 2 in harmonics and harmonics[2].shape[1] == 1
+    True
     """
     ir, harmonics = _ideal(sweep, float(length_s))
     return ir.copy(), {k: v.copy() for k, v in harmonics.items()}
