@@ -294,12 +294,12 @@ class PlanLayout:
     row0: int  #: row of the back wall (y = width)
     cols: int  #: columns from the left to the right wall
     rows: int  #: rows from the back to the front wall
-    m_per_col: float  #: metres per column across
+    m_per_col: float  #: metres per column across (a row is CELL_ASPECT times that)
 
     def cell(self, x_m: float, y_m: float) -> tuple[int, int]:
         """(column, row) of a point; y runs from the front wall (bottom) to the back (top)."""
-        c = self.col0 + int(round(x_m / self.length_m * self.cols))
-        r = self.row0 + self.rows - int(round(y_m / self.width_m * self.rows))
+        c = self.col0 + int(round(x_m / self.m_per_col))
+        r = self.row0 + self.rows - int(round(y_m / (self.m_per_col * CELL_ASPECT)))
         return c, r
 
     def inside(self, x_m: float, y_m: float) -> bool:
@@ -310,7 +310,8 @@ def plan_layout(
     length_m: float, width_m: float, cols: int, rows: int, aspect: float = CELL_ASPECT
 ) -> PlanLayout:
     """The largest to-scale outline of the room inside ``cols`` × ``rows`` cells (walls
-    included), centred across.
+    included), centred across, at a round scale; each wall lies within half a cell of its
+    true place.
 
     Examples
     --------
@@ -320,12 +321,14 @@ def plan_layout(
     """
     if not (length_m > 0 and width_m > 0):
         raise ValueError("the room needs a positive length and width")
+    if cols < 2 or rows < 2:
+        raise ValueError("the plan needs at least 2 × 2 cells")
     per_m = min((cols - 1) / length_m, aspect * (rows - 1) / width_m)  # columns per metre
     nice = _nice_scale(1.0 / per_m)
-    c = max(2, int(round(length_m / nice)))
-    r = max(2, int(round(width_m / nice / aspect)))
+    c = max(1, int(round(length_m / nice)))
+    r = max(1, int(round(width_m / nice / aspect)))
     col0 = max(0, (cols - 1 - c) // 2)
-    return PlanLayout(length_m, width_m, col0, 0, c, r, length_m / c)
+    return PlanLayout(length_m, width_m, col0, 0, c, r, nice)
 
 
 def _nice_scale(m_per_col: float) -> float:
@@ -381,9 +384,7 @@ class RoomPlan(Widget):
         walls = d["walls"]
         # Rows: back label, the outline, front label, then the legend, side walls and scale.
         lay = plan_layout(d["length_m"], d["width_m"], width, height - 5)
-        lay = PlanLayout(
-            lay.length_m, lay.width_m, lay.col0, 1, lay.cols, lay.rows, lay.m_per_col
-        )
+        lay = PlanLayout(lay.length_m, lay.width_m, lay.col0, 1, lay.cols, lay.rows, lay.m_per_col)
         self.layout_now = lay
         grid = [[" "] * width for _ in range(height)]
         styles: dict[tuple[int, int], str] = {}
