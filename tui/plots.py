@@ -173,11 +173,12 @@ class MagnitudePlot(_Plot):
         top = max(float(np.max(db)) for _, _, db in curves)
         self.data = {label: (f, db - top) for label, f, db in curves}
         p = self.plt
-        p.xscale("log")
+        # The log axis is drawn on log10(f) with labelled ticks: plotext's own log scale
+        # rewrites its stored data at every draw, so a redraw (a resize) would spoil it.
         lows = []
         for n, (label, (f, db)) in enumerate(self.data.items()):
             p.plot(
-                f.tolist(),
+                np.log10(f).tolist(),
                 db.tolist(),
                 marker="braille",
                 color=BAND_COLOURS[n % len(BAND_COLOURS)],
@@ -188,7 +189,8 @@ class MagnitudePlot(_Plot):
         f_all = np.concatenate([f for f, _ in self.data.values()])
         ticks = [(t, lab) for t, lab in zip(FREQ_TICKS, FREQ_LABELS, strict=True)]
         ticks = [(t, lab) for t, lab in ticks if f_all.min() <= t <= f_all.max()]
-        p.xticks([t for t, _ in ticks], [lab for _, lab in ticks])
+        p.xticks([float(np.log10(t)) for t, _ in ticks], [lab for _, lab in ticks])
+        p.xlim(float(np.log10(f_all.min())), float(np.log10(f_all.max())))
         p.ylim(max(-60.0, np.floor(min(lows) / 10) * 10 - 5), 3)
         p.xlabel("frequency (Hz)")
         p.ylabel("dB re max")
@@ -229,9 +231,9 @@ class DecayPlot(_Plot):
         p.xlim(0, t_end or 1.0)
         p.xlabel("time after onset (s)")
         p.ylabel("decay (dB)")
-        self.border_subtitle = "  ".join(
-            f"{band_mark(n)} {lab}" for n, lab in enumerate(labels)
-        ) + "  · fitted line"
+        self.border_subtitle = (
+            "  ".join(f"{band_mark(n)} {lab}" for n, lab in enumerate(labels)) + "  · fitted line"
+        )
         self.refresh()
 
 
@@ -240,9 +242,7 @@ class DecayTimePlot(_Plot):
     drawn with a warning glyph."""
 
     def __init__(self, **kwargs) -> None:
-        super().__init__(
-            "Decay time per band", "analyze responses to see T per band", **kwargs
-        )
+        super().__init__("Decay time per band", "analyze responses to see T per band", **kwargs)
 
     def show(self, rows: list[tuple[str, float | None, float | None, bool]], name: str) -> None:
         """``rows``: (band label, value s or None, uncertainty s or None, flagged)."""
@@ -254,7 +254,7 @@ class DecayTimePlot(_Plot):
             return
         p = self.plt
         x = [float(i) for i, _ in shown]
-        y = [float(r[1]) for _, r in shown]
+        y = [float(r[1] or 0.0) for _, r in shown]  # None was left out above
         err = [float(r[2] or 0.0) for _, r in shown]
         p.plot(x, y, marker="braille", color=AVERAGE)
         p.error(x, y, yerr=err, color=AVERAGE)

@@ -131,8 +131,9 @@ async def test_decay_time_plot_flags_cautioned_bands():
     plot = DecayTimePlot()
     app = Holder(plot)
     async with app.run_test(size=(80, 18)) as pilot:
-        plot.show([("125", 1.2, 0.1, True), ("250", 1.0, 0.05, False), ("500", None, None, False)],
-                  "T30")
+        plot.show(
+            [("125", 1.2, 0.1, True), ("250", 1.0, 0.05, False), ("500", None, None, False)], "T30"
+        )
         await pilot.pause()
         out = plot.plt.uncolorize(plot.plt.build())
         assert "⚠" in out and "●" in out
@@ -140,3 +141,28 @@ async def test_decay_time_plot_flags_cautioned_bands():
         plot.show([("125", None, None, False)], "T30")  # nothing evaluable: the hint again
         await pilot.pause()
         assert plot.data == {}
+
+
+async def test_plots_draw_the_same_on_every_redraw():
+    # A resize redraws a plot: the picture must not change from one draw to the next (a
+    # plotting library's log axis once rewrote its data at every draw).
+    from roomconv.analysis.curves import smoothed_magnitude_db
+    from tui.plots import MagnitudePlot
+
+    h = exponential_noise(0.5, 1.0, seed=6)
+    res, wide, _ = room_parameters(h, FS, bands="octave", low=250, high=1000)
+    f, db = smoothed_magnitude_db(h, FS)
+    plots = [EnergyTimePlot(), MagnitudePlot(), DecayPlot(), DecayTimePlot()]
+    app = Holder(*plots)
+    async with app.run_test(size=(90, 60)) as pilot:
+        plots[0].show(energy_time_curve(h, FS), truncation_s=wide.truncation_s)
+        plots[1].show([("h", f, db)])
+        plots[2].show(band_decays(res, FS), ["250", "500", "1k"])
+        plots[3].show([("250", 0.5, 0.02, False), ("500", 0.49, 0.01, False)], "T30")
+        await pilot.pause()
+        for plot in plots:
+            first = plot.plt.uncolorize(plot.plt.build())
+            assert plot.plt.uncolorize(plot.plt.build()) == first, type(plot).__name__
+        mag = plots[1].plt.uncolorize(plots[1].plt.build())
+        assert "1k" in mag  # ticks drawn
+        assert any(ch in mag for ch in "⠁⠂⠄⡀⢀⣀⠉⠒⠤")  # and the curve itself

@@ -21,6 +21,7 @@ from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, S
 from textual.worker import get_current_worker
 
 from roomconv.analysis.report import HEADERS, LEGEND, fmt, value_verdict
+from roomconv.analysis.study import Study
 from roomconv.errors import RoomconvError
 from tui.plots import DecayPlot, DecayTimePlot, EnergyTimePlot, MagnitudePlot
 from tui.screens import workbench
@@ -158,7 +159,7 @@ class AnalyzePane(VerticalScroll):
     AnalyzePane #an-more { height: auto; max-height: 12; }
     AnalyzePane .heading { text-style: bold; margin: 1 0 0 0; }
     """
-    study = None
+    study: Study | None = None
 
     def compose(self) -> ComposeResult:
         with Horizontal(classes="field"):
@@ -185,16 +186,19 @@ class AnalyzePane(VerticalScroll):
                 id="an-metric",
                 compact=True,
             )
-        yield Static("type IR files or take the session's positions, then Analyze",
-                     id="an-status", classes="status")
+        yield Static(
+            "type IR files or take the session's positions, then Analyze",
+            id="an-status",
+            classes="status",
+        )
         yield DataTable(id="an-table", zebra_stripes=True)
-        yield Static("", id="an-bars", classes="caption")
-        yield Static("", id="an-decay", classes="caption")
         with Grid(id="an-plots"):
             yield EnergyTimePlot(id="an-etc")
             yield MagnitudePlot(id="an-magnitude")
             yield DecayPlot(id="an-decay-plot")
             yield DecayTimePlot(id="an-t-plot")
+        yield Static("", id="an-decay", classes="caption")
+        yield Static("", id="an-bars", classes="caption")
         yield Static("", id="an-warnings", classes="status")
         yield Static("More parameters", classes="heading")
         yield DataTable(id="an-more", zebra_stripes=True)
@@ -206,9 +210,7 @@ class AnalyzePane(VerticalScroll):
             yield Button("Export JSON/CSV/HTML", id="an-export", compact=True)
         with Horizontal(classes="field"):
             yield Label("Study file")
-            yield Input(
-                placeholder="study.toml (roomconv study init)", id="an-study", compact=True
-            )
+            yield Input(placeholder="study.toml (roomconv study init)", id="an-study", compact=True)
             yield Button("Study report HTML+PDF", id="an-study-report", compact=True)
             yield Button("Save session as study", id="an-save-study", compact=True)
 
@@ -390,8 +392,9 @@ class AnalyzePane(VerticalScroll):
         )
         sn = doc["average"]["single_numbers"]
         self.query_one("#an-status", Static).update(
-            f"{len(doc['positions'])} position(s); T30 mid "
-            f"{fmt('t30_s', sn.get('t30_mid_s'))} s, EDT mid {fmt('edt_s', sn.get('edt_mid_s'))} s, "
+            f"{len(doc['positions'])} position(s); "
+            f"T30 mid {fmt('t30_s', sn.get('t30_mid_s'))} s, "
+            f"EDT mid {fmt('edt_s', sn.get('edt_mid_s'))} s, "
             f"C80 mid {fmt('c80_db', sn.get('c80_mid_db'))} dB"
         )
         self._show_more(doc)
@@ -447,11 +450,14 @@ class AnalyzePane(VerticalScroll):
         """The energy–time curve, magnitude response and band decays of one position."""
         from roomconv.analysis.curves import band_decays, energy_time_curve, smoothed_magnitude_db
 
-        doc = self.study.document
+        study = self.study
+        if study is None:
+            return
+        doc = study.document
         p = doc["positions"][index]
         label = f"{Path(p['file']).name}:{p['channel']}"
         key = (str(p["file"]), p["channel"])
-        res, wide, rate = self.study.curves[key]
+        res, wide, rate = study.curves[key]
         h = self.irs.get(key)
         etc_plot = self.query_one("#an-etc", EnergyTimePlot)
         magnitude = self.query_one("#an-magnitude", MagnitudePlot)
@@ -479,6 +485,8 @@ class AnalyzePane(VerticalScroll):
     def draw_decay_times(self) -> None:
         """The chosen decay time per band, averaged over positions, ± its uncertainty (ISO
         3382-2 for T20/T30, the positions' standard deviation for EDT)."""
+        if self.study is None:
+            return
         doc = self.study.document
         metric = str(self.query_one("#an-metric", Select).value)
         name = dict((k, n) for n, k in DECAY_TIMES)[metric]

@@ -136,10 +136,12 @@ class RoomPane(Vertical):
                     ),
                 )
                 yield from _field(
-                    "Length s", Input(placeholder="blank: automatic", id="room-length", compact=True)
+                    "Length s",
+                    Input(placeholder="blank: automatic", id="room-length", compact=True),
                 )
                 yield from _field(
-                    "Peak dBFS", Input(placeholder="blank: as computed", id="room-peak", compact=True)
+                    "Peak dBFS",
+                    Input(placeholder="blank: as computed", id="room-peak", compact=True),
                 )
                 yield from _field("Noise seed", Input("0", id="room-seed", compact=True))
                 yield from _field(
@@ -180,10 +182,17 @@ class RoomPane(Vertical):
         size = room_size(self.value("room-size"))
         patches = tuple(_items(self.value("room-patches"), "Patches", parse_patch))
         absorbers = tuple(_items(self.value("room-absorbers"), "Absorbers", parse_absorber))
-        temp = validate.in_range(_number(self.value("room-temp"), "Air °C"), "air temperature",
-                                 -20.0, 50.0, unit="°C")
-        hum = validate.in_range(_number(self.value("room-humidity"), "Humidity %"),
-                                "relative humidity", 0.0, 100.0, unit="%", lo_open=True)
+        temp = validate.in_range(
+            _number(self.value("room-temp"), "Air °C"), "air temperature", -20.0, 50.0, unit="°C"
+        )
+        hum = validate.in_range(
+            _number(self.value("room-humidity"), "Humidity %"),
+            "relative humidity",
+            0.0,
+            100.0,
+            unit="%",
+            lo_open=True,
+        )
         surfaces = {s: str(self.query_one(f"#mat-{s}", Select).value) for s in SURFACES}
         return build_room(
             size,
@@ -251,8 +260,10 @@ class RoomPane(Vertical):
 
     def report_error(self, title: str, exc: BaseException) -> None:
         """Show a failed job's reason; the one place the Room tab reports errors from."""
-        text = str(exc) if isinstance(exc, RoomconvError | OSError) else (
-            f"{type(exc).__name__}: {exc}"
+        text = (
+            str(exc)
+            if isinstance(exc, RoomconvError | OSError)
+            else (f"{type(exc).__name__}: {exc}")
         )
         self.app.notify(text, severity="error", title=title, timeout=20)
         self.query_one("#room-status", Static).update(f"{title} failed: {text}")
@@ -270,8 +281,9 @@ class RoomPane(Vertical):
         )
         peak_text = self.value("room-peak")
         peak = (
-            validate.in_range(_number(peak_text, "Peak dBFS"), "peak level", -100.0, 0.0,
-                              unit="dBFS")
+            validate.in_range(
+                _number(peak_text, "Peak dBFS"), "peak level", -100.0, 0.0, unit="dBFS"
+            )
             if peak_text
             else None
         )
@@ -344,7 +356,8 @@ class RoomPane(Vertical):
                 self.query_one("#room-out", Input).value = str(out)
         self.update_prediction()
         self.app.notify(
-            f"synthesized {out}" + (f" ({wanted.name} exists; nothing replaced)" if renamed else ""),
+            f"synthesized {out}"
+            + (f" ({wanted.name} exists; nothing replaced)" if renamed else ""),
             title="Room",
         )
 
