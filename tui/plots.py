@@ -111,6 +111,12 @@ class _Plot(PlotextPlot):
         self.plt.clear_figure()
         self.border_subtitle = ""
 
+    def render(self):
+        try:
+            return super().render()
+        except Exception as exc:  # a plot that cannot be drawn must not end the session
+            return Text(f"cannot draw this plot: {type(exc).__name__}: {exc}", style="dim")
+
 
 class EnergyTimePlot(_Plot):
     """Energy–time curve in dB re peak, with the noise floor and the truncation point."""
@@ -324,6 +330,8 @@ def plan_layout(
     if cols < 2 or rows < 2:
         raise ValueError("the plan needs at least 2 × 2 cells")
     per_m = min((cols - 1) / length_m, aspect * (rows - 1) / width_m)  # columns per metre
+    if not 0 < per_m < float("inf"):
+        raise ValueError(f"a {length_m:g} × {width_m:g} m room cannot be drawn to scale")
     nice = _nice_scale(1.0 / per_m)
     c = max(1, int(round(length_m / nice)))
     r = max(1, int(round(width_m / nice / aspect)))
@@ -376,6 +384,13 @@ class RoomPlan(Widget):
         self.refresh()
 
     def render(self) -> Text:
+        try:
+            return self._render_plan()
+        except Exception as exc:  # a plan that cannot be drawn must not end the session
+            self.layout_now = None
+            return Text(f"cannot draw the plan: {exc}", style="dim")
+
+    def _render_plan(self) -> Text:
         d = self.data
         width, height = self.content_size.width, self.content_size.height
         if not d or width < 12 or height < 8:

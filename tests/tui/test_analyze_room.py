@@ -135,10 +135,17 @@ async def test_analyze_at_160x48_plots_follow_known_responses(tmp_path):
 
 async def test_extra_parameter_groups_show_without_a_change_to_the_tab(tmp_path):
     ir = exponential_ir(tmp_path / "hall.wav")
+    exponential_ir(tmp_path / "stage.wav", T=0.3, seed=2)
     app = RoomconvApp()
     async with app.run_test(size=(160, 48)) as pilot:
         await pilot.press("a")
-        await run_analysis(app, pilot, str(ir))
+        await run_analysis(app, pilot, f"{ir} {tmp_path / 'stage.wav'}")
+        # The plots follow the position picked.
+        assert "hall.wav:1" in app.query_one("#an-etc").border_subtitle
+        app.query_one("#an-position").value = "1"
+        await pilot.pause()
+        assert "stage.wav:1" in app.query_one("#an-etc").border_subtitle
+        assert "stage.wav:1" in str(app.query_one("#an-decay").render())
         pane = app.query_one("AnalyzePane")
         more = app.query_one("#an-more")
         headers = [str(c.label) for c in more.columns.values()]
@@ -225,6 +232,10 @@ async def test_room_at_80x24_fits_follows_typing_and_survives_bad_input(tmp_path
         app.query_one("#room-size").value = "10 by 5"
         await pilot.pause()
         assert "no plan" in plan.render().plain
+        for extreme in ("1e-300x1x3", "1000x0.001x3", "1000x1000x3"):
+            app.query_one("#room-size").value = extreme
+            await pilot.pause()
+            assert plan.render().plain  # drawn, or says why not
 
         good = {
             "#room-size": "6x4x3",

@@ -160,6 +160,9 @@ class AnalyzePane(VerticalScroll):
     AnalyzePane .heading { text-style: bold; margin: 1 0 0 0; }
     """
     study: Study | None = None
+    #: No invisible tab stop: focus goes to the fields, buttons and tables, and moving
+    #: focus scrolls the pane to them.
+    can_focus = False
 
     def compose(self) -> ComposeResult:
         with Horizontal(classes="field"):

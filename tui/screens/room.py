@@ -217,7 +217,8 @@ class RoomPane(Vertical):
         plan = self.query_one("#room-plan", RoomPlan)
         try:
             room = self.room()
-        except (ValueError, RoomconvError) as exc:
+            sab, eyr = sabine(room), eyring(room)
+        except Exception as exc:  # nothing typed may end the session
             status.update(f"cannot predict: {exc}")
             try:
                 L, W, _H = room_size(self.value("room-size"))
@@ -226,7 +227,6 @@ class RoomPane(Vertical):
                 return
             self._draw_plan(plan, L, W)
             return
-        sab, eyr = sabine(room), eyring(room)
         table.clear()
         table.add_row("Sabine s", *[f"{sab[b]:.2f}" for b in OCTAVES])
         table.add_row("Eyring s", *[f"{eyr[b]:.2f}" for b in OCTAVES])
