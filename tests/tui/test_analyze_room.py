@@ -166,7 +166,9 @@ async def test_extra_parameter_groups_show_without_a_change_to_the_tab(tmp_path)
         groups = str(app.query_one("#an-more-groups").render())
         assert "hall.wav:1 stage_support.st_early_db: -12.2" in groups
         assert "stage_support.bands: 2 item(s)" in groups
-        assert "new_mid_s: 1.5" in groups
+        assert "new mid s: 1.5" in groups
+        t30 = doc["average"]["single_numbers"]["t30_mid_s"]
+        assert f"Reverberation time T30: {t30:.2f} s" in groups
 
 
 # --- Room ----------------------------------------------------------------------------------

@@ -20,7 +20,7 @@ from textual.containers import Grid, Horizontal, VerticalScroll
 from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, Static
 from textual.worker import get_current_worker
 
-from roomconv.analysis.report import HEADERS, LEGEND, fmt, value_verdict
+from roomconv.analysis.report import HEADERS, LEGEND, SINGLE_NUMBER_NAMES, fmt, value_verdict
 from roomconv.analysis.study import Study
 from roomconv.errors import RoomconvError
 from tui.plots import DecayPlot, DecayTimePlot, EnergyTimePlot, MagnitudePlot
@@ -123,11 +123,15 @@ def extra_groups(doc: dict) -> list[str]:
         return []
 
     avg = doc.get("average", {})
-    lines = [
-        f"{k}: {plain_value(k, v)}"
-        for k, v in (avg.get("single_numbers") or {}).items()
-        if _scalar(v)
-    ]
+    lines = []
+    for k, v in (avg.get("single_numbers") or {}).items():
+        if not _scalar(v):
+            continue
+        if k in SINGLE_NUMBER_NAMES and isinstance(v, int | float):
+            name, unit, form = SINGLE_NUMBER_NAMES[k]
+            lines.append(f"{name}: {form.format(v)} {unit}".rstrip())
+        else:
+            lines.append(f"{plain_header(k)}: {plain_value(k, v)}")
     for k, v in avg.items():
         if k not in AVERAGE_KEYS:
             lines += flat(f"average.{k}", v)

@@ -50,7 +50,7 @@ class RoomPane(Vertical):
     RoomPane { height: 1fr; }
     RoomPane #room-actions { height: auto; margin: 0; }
     RoomPane #room-actions Button { margin: 0 1 0 0; }
-    RoomPane #room-status { height: auto; max-height: 3; margin: 0 0 1 0; }
+    RoomPane #room-status { height: auto; max-height: 3; margin: 0; }
     RoomPane #room-body { height: 1fr; min-height: 10; }
     RoomPane #room-controls { width: 48%; max-width: 64; min-width: 36; }
     RoomPane #room-side { width: 1fr; }
