@@ -74,8 +74,8 @@ def energy_time_curve(
     References
     ----------
     ISO 3382-1:2009, A.3.2 (the onset: the level first within 20 dB of the maximum), via
-    :func:`roomconv.analysis.decay.onset_index`. Kuttruff, H. (2009). Room Acoustics, 5th ed.,
-    ch. 5 (energy decay of a diffuse field: a straight line in dB).
+    :func:`roomconv.analysis.decay.onset_index`. Kuttruff, H. Room Acoustics (the energy of a
+    diffuse field decays exponentially: a straight line in dB) — from memory.
 
     Examples
     --------
@@ -140,7 +140,7 @@ def smoothed_magnitude_db(
     ----------
     Hatziantoniou, P. D., & Mourjopoulos, J. N. (2000). Generalized fractional-octave
     smoothing of audio and acoustic responses. J. Audio Eng. Soc. 48(4), 259–280 (power
-    smoothing over a constant-relative-bandwidth window; here rectangular).
+    smoothing over a constant-relative-bandwidth window; here rectangular) — from memory.
 
     Examples
     --------

@@ -331,7 +331,7 @@ class RoomPane(Vertical):
                 source_m=src,
                 receiver_m=rcv,
                 force=replace,
-                settings={"from": "workbench Room tab"},
+                settings={"front_end": "workbench"},
                 **s,
             )
         except Exception as exc:  # every failure is shown; none may end the session
