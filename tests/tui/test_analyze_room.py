@@ -296,3 +296,28 @@ async def test_room_at_160x48_synthesis_never_replaces_a_file_silently(tmp_path)
         assert not errors(app), errors(app)
         assert out.read_bytes() != first
         assert not (tmp_path / "room-3.wav").exists()
+
+        # Extra materials from a file are offered on every surface and used.
+        extra = tmp_path / "extra.json"
+        extra.write_text('{"felt-panel": {"alpha": [0.1, 0.2, 0.4, 0.6, 0.7, 0.7]}}')
+        app.query_one("#room-materials-file").value = str(extra)
+        await pilot.pause()
+        floor = app.query_one("#mat-floor")
+        floor.value = "felt-panel"
+        await pilot.pause()
+        assert "cannot predict" not in str(app.query_one("#room-status").render())
+        app.query_one("#room-out").value = str(tmp_path / "felt.wav")
+        app.query_one("#room-synth").press()
+        await settle(app, pilot)
+        assert not errors(app), errors(app)
+        assert (tmp_path / "felt.wav").exists()
+        # A file that went away: the prediction and the synthesis say so; nothing written.
+        app.query_one("#room-materials-file").value = str(tmp_path / "gone.json")
+        await pilot.pause()
+        assert floor.value == "carpet"  # back to its default: felt-panel is gone
+        assert "cannot predict" in str(app.query_one("#room-status").render())
+        app.query_one("#room-out").value = str(tmp_path / "gone.wav")
+        app.query_one("#room-synth").press()
+        await settle(app, pilot)
+        assert any("gone.json" in m for m in errors(app)), errors(app)
+        assert not (tmp_path / "gone.wav").exists()

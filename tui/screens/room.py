@@ -46,6 +46,11 @@ RATES = (44100, 48000, 88200, 96000)
 
 
 class RoomPane(Vertical):
+    #: The last synthesis' result line, kept under the prediction.
+    _written = ""
+    #: The material names the surface choices offer.
+    _names: list[str] = sorted(MATERIALS)
+
     DEFAULT_CSS = """
     RoomPane { height: 1fr; }
     RoomPane #room-actions { height: auto; margin: 0; }
@@ -102,6 +107,14 @@ class RoomPane(Vertical):
                     Input(
                         placeholder="audience:30 (material:m², free-standing)",
                         id="room-absorbers",
+                        compact=True,
+                    ),
+                )
+                yield from _field(
+                    "Materials file",
+                    Input(
+                        placeholder="blank: built-in only; or extra.toml / .json",
+                        id="room-materials-file",
                         compact=True,
                     ),
                 )
@@ -170,12 +183,15 @@ class RoomPane(Vertical):
         table = self.query_one("#room-prediction", DataTable)
         table.can_focus = False
         table.add_columns("band Hz", *[str(b) for b in OCTAVES])
-        self._written = ""
         self.update_prediction()
 
     # --- reading the fields ------------------------------------------------------------
     def value(self, wid: str) -> str:
         return self.query_one(f"#{wid}", Input).value.strip()
+
+    def materials_file(self) -> Path | None:
+        text = self.value("room-materials-file")
+        return Path(text) if text else None
 
     def room(self) -> RoomModel:
         """The room the fields describe; raises an InputError naming the field at fault."""
@@ -201,6 +217,7 @@ class RoomPane(Vertical):
             absorbers=absorbers,
             temperature_c=temp,
             humidity_pct=hum,
+            materials_file=self.materials_file(),
         )
 
     def positions(self):
@@ -209,6 +226,28 @@ class RoomPane(Vertical):
         return src, rcv
 
     # --- as you type -------------------------------------------------------------------
+    @on(Input.Changed, "#room-materials-file")
+    def materials_file_changed(self, _event=None) -> None:
+        """Offer the file's materials on every surface once it can be read; back to the
+        built-in ones when the field is cleared (a surface using a material that went away
+        returns to its default)."""
+        from roomconv.jobs.synth import materials_table
+
+        path = self.materials_file()
+        try:
+            names = sorted(materials_table(materials_file=path)) if path else sorted(MATERIALS)
+        except Exception:  # half-typed names are normal; the prediction line says why
+            names = sorted(MATERIALS)
+        if names == self._names:
+            return
+        self._names = names
+        for surface in SURFACES:
+            box = self.query_one(f"#mat-{surface}", Select)
+            keep = box.value if box.value in names else DEFAULTS[surface]
+            with self.prevent(Select.Changed):
+                box.set_options([(n, n) for n in names])
+                box.value = keep
+
     @on(Input.Changed)
     @on(Select.Changed)
     def update_prediction(self, _event=None) -> None:
@@ -330,6 +369,7 @@ class RoomPane(Vertical):
                 room,
                 source_m=src,
                 receiver_m=rcv,
+                materials_file=self.materials_file(),
                 force=replace,
                 settings={"front_end": "workbench"},
                 **s,
