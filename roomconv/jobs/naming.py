@@ -4,7 +4,13 @@ from __future__ import annotations
 
 from pathlib import Path
 
-__all__ = ["render_output_name", "position_output", "harmonic_output", "study_outputs"]
+__all__ = [
+    "render_output_name",
+    "position_output",
+    "harmonic_output",
+    "study_outputs",
+    "unused_name",
+]
 
 
 def render_output_name(dry, ir) -> str:
@@ -56,3 +62,36 @@ def study_outputs(folder) -> dict[str, Path]:
         "csv": folder / "results.csv",
         "report": folder / "report.html",
     }
+
+
+def unused_name(path, companions=lambda p: (), *, limit: int = 999) -> Path:
+    """``path`` itself when neither it nor any of its companion files exists, else the first
+    ``<stem>-2<suffix>``, ``<stem>-3<suffix>`` … that is free: what a front end offers instead
+    of replacing a file. ``companions(candidate)`` gives the other files written with it
+    (sidecars); every one must be free too. The write guard still refuses a name taken
+    between this check and the write.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> d = Path(tempfile.mkdtemp())
+    >>> _ = (d / "room.wav").write_bytes(b"")
+    >>> unused_name(d / "room.wav").name, unused_name(d / "new.wav").name
+    ('room-2.wav', 'new.wav')
+    """
+    path = Path(path)
+
+    def free(p: Path) -> bool:
+        return not any(q.exists() or q.is_symlink() for q in (p, *companions(p)))
+
+    if free(path):
+        return path
+    for k in range(2, limit + 1):
+        candidate = path.with_name(f"{path.stem}-{k}{path.suffix}")
+        if free(candidate):
+            return candidate
+    from ..errors import OutputExistsError
+
+    raise OutputExistsError(
+        f"{path}: every name up to {path.stem}-{limit}{path.suffix} is taken; choose another name"
+    )

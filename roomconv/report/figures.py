@@ -8,7 +8,7 @@ import io
 
 import numpy as np
 
-from ..analysis.decay import fit_decay
+from ..analysis.curves import decay_line, energy_time_curve, smoothed_magnitude_db
 from ..analysis.report import band_label
 
 #: The report's colours. Averages in deep teal, single positions in slate, targets in sand,
@@ -216,26 +216,11 @@ def position_figure(h: np.ndarray, rate: int, band_results, title: str):
     2
     """
     fig, (a1, a2) = _figure(7.5, 2.9, ncols=2)
-    e = h * h
-    peak = float(e.max()) if e.size else 1.0
-    t_ms = np.arange(h.size) / rate * 1000
-    # The raw curve drawn as its maximum per 0.5 ms: what the eye sees at print size, at a
-    # fraction of the points.
-    step = max(1, int(0.0005 * rate))
-    m = e[: e.size // step * step].reshape(-1, step).max(axis=1)
-    with np.errstate(divide="ignore"):
-        etc = 10 * np.log10(np.maximum(m / peak, 1e-12))
-    a1.plot(t_ms[::step][: etc.size], etc, lw=0.5, color=POSITION)
-    # A 2 ms moving energy average makes the decay's slope readable over the raw curve.
-    k = max(1, int(0.002 * rate))
-    smooth = np.convolve(e, np.ones(k) / k, mode="same")
-    with np.errstate(divide="ignore"):
-        a1.plot(
-            t_ms[::step],
-            10 * np.log10(np.maximum(smooth[::step] / peak, 1e-12)),
-            lw=1.0,
-            color=AVERAGE,
-        )
+    etc = energy_time_curve(h, rate)
+    t_ms = etc.t_s * 1000
+    a1.plot(t_ms, etc.peak_db, lw=0.5, color=POSITION)
+    # The moving energy average makes the decay's slope readable over the raw curve.
+    a1.plot(t_ms, etc.smooth_db, lw=1.0, color=AVERAGE)
     a1.set_ylim(-90, 3)
     a1.set_xlim(0, t_ms[-1] if t_ms.size else 1)
     a1.set_xlabel("time (ms)")
@@ -260,11 +245,9 @@ def position_figure(h: np.ndarray, rate: int, band_results, title: str):
             ms=7,
             label=band_label(r.band_hz),
         )
-        if r.t30_s is not None:
-            fit = fit_decay(r.curve_db, rate, -5.0, -35.0)
-            if fit is not None:
-                tt = np.array([0.0, (-40 - fit.intercept_db) / fit.slope_db_s])
-                a2.plot(tt, fit.intercept_db + fit.slope_db_s * tt, ":", color=colour, lw=1)
+        line = decay_line(r.curve_db, rate, -5.0, -35.0) if r.t30_s is not None else None
+        if line is not None:
+            a2.plot(line.t_s, line.level_db, ":", color=colour, lw=1)
     a2.set_ylim(-60, 2)
     a2.set_xlim(left=0)
     a2.set_xlabel("time after onset (s)")
@@ -273,20 +256,6 @@ def position_figure(h: np.ndarray, rate: int, band_results, title: str):
     if shown:
         a2.legend(fontsize=6, ncol=2, loc="upper right")
     return fig
-
-
-def _smoothed_db(h: np.ndarray, rate: int, fraction: int = 6):
-    """Magnitude in dB, power-averaged over 1/``fraction`` octave around log-spaced points."""
-    n = 1 << int(np.ceil(np.log2(max(h.size, 2))))
-    spec = np.abs(np.fft.rfft(h, n)) ** 2
-    f = np.fft.rfftfreq(n, 1 / rate)
-    centres = np.geomspace(20, min(20000, rate / 2 * 0.95), 160)
-    cum = np.concatenate([[0.0], np.cumsum(spec)])
-    half = 2 ** (1 / (2 * fraction))
-    lo = np.searchsorted(f, centres / half)
-    hi = np.maximum(np.searchsorted(f, centres * half), lo + 1)
-    power = (cum[hi] - cum[lo]) / (hi - lo)
-    return centres, 10 * np.log10(np.maximum(power, 1e-30))
 
 
 def frequency_response_figure(irs: dict):
@@ -300,7 +269,7 @@ def frequency_response_figure(irs: dict):
     'Figure'
     """
     fig, (ax,) = _figure(7.5, 3.0)
-    curves = {k: _smoothed_db(h, rate) for k, (h, rate) in irs.items()}
+    curves = {k: smoothed_magnitude_db(h, rate, fraction=6) for k, (h, rate) in irs.items()}
     top = max(float(np.max(db)) for _, db in curves.values())
     for n, (label, (f, db)) in enumerate(curves.items()):
         ax.semilogx(
