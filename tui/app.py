@@ -7,6 +7,7 @@ from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
 from textual.screen import ModalScreen
+from textual.theme import Theme
 from textual.widgets import Footer, Header, Input, Static, TabbedContent, TabPane
 
 from tui.screens.analyze import AnalyzePane
@@ -28,6 +29,25 @@ Tabs
   Analyze  ISO 3382 parameters per band, warnings, decay curves, averages, export.
   Render   dry files through an IR: wet/dry, pre-delay, gain, normalization, queue.
   Room     a shoebox room and its materials; predicted T as you type; synthesize."""
+
+
+#: The workbench's own colours: a deep blue-grey ground, a sea-green primary, a brass accent.
+#: Registered under this name and set in ``RoomconvApp.__init__``; every style uses its
+#: variables ($primary, $accent, $warning, …), so the whole app follows it.
+THEME = Theme(
+    name="roomconv-harbour",
+    primary="#3A9E8F",
+    secondary="#6C8EAD",
+    accent="#C9A04E",
+    warning="#E08A3C",
+    error="#D9534F",
+    success="#6DB36D",
+    foreground="#DCE3E8",
+    background="#141A20",
+    surface="#1B232B",
+    panel="#24303A",
+    dark=True,
+)
 
 
 class HelpScreen(ModalScreen):
@@ -55,6 +75,8 @@ class RoomconvApp(App):
     def __init__(self):
         super().__init__()
         self.session: list[dict] = []
+        self.register_theme(THEME)
+        self.theme = THEME.name
 
     def compose(self) -> ComposeResult:
         yield Header()
