@@ -1,4 +1,4 @@
-"""The ``synth``, ``rooms`` and ``edit`` commands."""
+"""The ``synth``, ``materials`` and ``edit`` commands."""
 
 from __future__ import annotations
 
@@ -218,7 +218,7 @@ def configure_synth(p):
     p.add_argument("--force", action="store_true", help="replace an existing output")
 
 
-def run_rooms(a):
+def run_materials(a):
     from ..synth.materials import OCTAVES
 
     table = jobs.materials_table(materials_file=a.materials_file, json_path=a.json, force=a.force)
@@ -235,7 +235,7 @@ def run_rooms(a):
     return 0
 
 
-def configure_rooms(p):
+def configure_materials(p):
     p.add_argument("--materials-file", type=Path, default=None, help="add materials from a file")
     p.add_argument("--json", type=Path, default=None, help="also write the table as JSON")
     p.add_argument("--force", action="store_true", help="replace an existing JSON output")
@@ -347,7 +347,10 @@ COMMANDS = [
         run_synth,
     ),
     Command(
-        "rooms", "list the materials and their absorption coefficients", configure_rooms, run_rooms
+        "materials",
+        "list the materials and their absorption coefficients",
+        configure_materials,
+        run_materials,
     ),
     Command(
         "edit",
