@@ -1,0 +1,66 @@
+"""A workbench session written as a study file and read back (no terminal needed)."""
+
+import tomllib
+
+import pytest
+
+from roomconv.errors import InputError, OutputExistsError
+from roomconv.jobs.study import save_workbench_session
+from roomconv.study import load_study
+
+
+def test_session_round_trip(tmp_path):
+    (tmp_path / "P1.wav").write_bytes(b"")
+    (tmp_path / "P1.quality.json").write_text("{}")
+    path = tmp_path / "s" / "study.toml"
+    save_workbench_session(
+        path,
+        [("P1", tmp_path / "P1.wav", tmp_path / "P1.quality.json")],
+        notes="door closed",
+        room={"name": "Test room", "temperature_c": 21.5, "humidity_pct": None},
+        sweep={"duration_s": 2.0, "repeats": 3, "rate_hz": None},
+        workbench={"rn-mix": "0.3", "ms-name": "P2", "flag": True, "dry": ["a b.wav", "c.wav"]},
+    )
+    # The file is plain TOML 1.0 as Python's own reader (tomllib) understands it.
+    raw = tomllib.loads(path.read_text())
+    assert raw["responses"][0]["file"] == "../P1.wav"
+    assert "humidity_pct" not in raw["room"] and "rate_hz" not in raw["sweep"]
+    st = load_study(path)
+    assert st.notes == "door closed" and st.room.temperature_c == 21.5
+    assert st.sweep.repeats == 3 and st.sweep.duration_s == 2.0
+    assert st.workbench == {
+        "rn-mix": "0.3",
+        "ms-name": "P2",
+        "flag": True,
+        "dry": ["a b.wav", "c.wav"],
+    }
+    assert st.responses[0].file == tmp_path / "P1.wav"
+    assert st.responses[0].quality_file == tmp_path / "P1.quality.json"
+    # No template numbers: a volume nobody gave is not in the file.
+    assert st.room.volume is None
+
+
+def test_session_file_is_never_replaced_silently(tmp_path):
+    (tmp_path / "P1.wav").write_bytes(b"")
+    path = tmp_path / "study.toml"
+    save_workbench_session(path, [("P1", tmp_path / "P1.wav", None)], notes="first")
+    with pytest.raises(OutputExistsError):
+        save_workbench_session(path, [("P1", tmp_path / "P1.wav", None)], notes="second")
+    assert load_study(path).notes == "first"
+    save_workbench_session(path, [("P1", tmp_path / "P1.wav", None)], notes="second", force=True)
+    assert load_study(path).notes == "second"
+
+
+def test_empty_session_and_bad_workbench_values_are_refused(tmp_path):
+    with pytest.raises(InputError, match="at least one"):
+        save_workbench_session(tmp_path / "study.toml", [])
+    (tmp_path / "P1.wav").write_bytes(b"")
+    save_workbench_session(tmp_path / "s.toml", [("P1", tmp_path / "P1.wav", None)])
+    text = (
+        (tmp_path / "s.toml")
+        .read_text()
+        .replace("[[sources]]", "[workbench]\nx = {a = 1}\n\n[[sources]]", 1)
+    )
+    (tmp_path / "bad.toml").write_text(text)
+    with pytest.raises(InputError, match="workbench"):
+        load_study(tmp_path / "bad.toml")
