@@ -51,6 +51,23 @@ def level_meter(peak_dbfs: float, width: int = 30) -> str:
     return f"▕{'█' * n}{'░' * (width - n)}▏ {peak_dbfs:6.1f} dBFS {note}"
 
 
+def reflow(text: str) -> str:
+    """Join the hard-wrapped lines of a text (such as the caution) into paragraphs and
+    bullets, so a narrow overlay wraps them at word boundaries instead of mid-line."""
+    blocks: list[str] = []
+    for line in text.splitlines():
+        stripped = line.strip()
+        if not stripped:
+            blocks.append("")
+        elif stripped.startswith("* ") or not blocks or not blocks[-1]:
+            blocks.append(("• " + stripped[2:]) if stripped.startswith("* ") else stripped)
+        elif line.startswith("    ") or not blocks[-1].startswith("• "):
+            blocks[-1] += " " + stripped
+        else:
+            blocks.append(stripped)
+    return "\n".join(blocks)
+
+
 def bar_chart(rows: list[tuple[str, float | None]], width: int = 36, unit: str = "s") -> str:
     """One line per (label, value): a bar scaled to the largest value."""
     vals = [v for _, v in rows if v is not None]
