@@ -98,6 +98,8 @@ async def test_a_44100_hz_simulated_room_is_measured_at_its_own_rate(tmp_path):
         # The written file's header (libsndfile, an outside reader) says 44.1 kHz.
         assert sf.info(str(tmp_path / "s" / "P1.wav")).samplerate == 44100
         assert "44100 Hz" in text_of(app, "#ms-status")
+        # The input meter followed the measurement itself (no level check was run).
+        assert "dBFS" in text_of(app, "#ms-meter") and "100 %" in text_of(app, "#ms-meter")
         # A rate chosen on purpose that differs from the room's is refused, not converted.
         app.query_one("#ms-rate").value = "48000"
         await press(app, pilot, "#ms-run")
