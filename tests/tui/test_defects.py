@@ -269,3 +269,23 @@ def test_tui_with_a_missing_study_file_exits_2_naming_it(tmp_path):
         timeout=60,
     )
     assert r.returncode == 2 and str(missing) in r.stderr and "Traceback" not in r.stderr
+
+
+async def test_stopping_the_render_queue_leaves_no_partial_file(tmp_path):
+    dry = dry_clip(tmp_path / "long.wav", seconds=20.0)
+    ir = decaying_ir(tmp_path / "ir.wav", seconds=1.0)
+    app = RoomconvApp()
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("r")
+        app.query_one("#rn-dry").value = str(dry)
+        app.query_one("#rn-ir").value = str(ir)
+        app.query_one("#rn-out").value = str(tmp_path / "wet")
+        await press(app, pilot, "#rn-run")
+        await press(app, pilot, "#rn-cancel")  # at the runner's first event at the latest
+        await settle(app, pilot)
+        assert "stopped" in text_of(app, "#rn-status")
+        table = app.query_one("#rn-queue")
+        assert table.get_row_at(0)[1] == "stopped"
+        leftovers = list((tmp_path / "wet").glob("*")) if (tmp_path / "wet").exists() else []
+        assert leftovers == []
+        assert app.is_running
