@@ -290,6 +290,11 @@ class PlayResult:
     message : str or None
         Why nothing (or not everything) was played: a device error in words; None when the
         device took the whole signal.
+
+    Examples
+    --------
+    >>> PlayResult(0.0, -6.0, message="no output device").ok
+    False
     """
 
     played_s: float
