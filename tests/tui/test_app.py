@@ -257,3 +257,33 @@ async def test_session_saved_as_a_study_file_loads_back(tmp_path):
         await press(app, pilot, "#an-save-study")  # never over an earlier file
         assert any("exists already" in n.message for n in app._notifications)
         assert path.read_text() == before
+
+
+async def test_measure_tab_imports_a_recording(tmp_path):
+    # The recording is the sweep convolved with a room of our own (scipy.signal.fftconvolve,
+    # an outside reference for linear convolution).
+    from scipy.signal import fftconvolve
+
+    from roomconv.jobs.measure import write_sweep
+    from roomconv.measure.sweep import Sweep
+
+    sweep_path = write_sweep(
+        tmp_path / "sweep.wav", Sweep(duration=1.0, silence_post=1.0, level_dbfs=-12.0)
+    )
+    x, _ = sf.read(sweep_path)
+    room = sf.read(decaying_ir(tmp_path / "room.wav", T=0.3, seconds=0.8))[0]
+    rec = fftconvolve(x, room)[: x.size]
+    rec = 0.5 * rec / np.max(np.abs(rec)) + 1e-6 * np.random.default_rng(3).standard_normal(x.size)
+    sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
+    app = RoomconvApp()
+    async with app.run_test(size=(80, 24)) as pilot:
+        app.query_one("#ms-rec").value = str(tmp_path / "rec.wav")
+        app.query_one("#ms-sweep").value = str(sweep_path)
+        app.query_one("#ms-folder").value = str(tmp_path / "s")
+        await press(app, pilot, "#ms-import")
+        await settle(app, pilot)
+        from tests.tui.pilot_helpers import status
+
+        assert (tmp_path / "s" / "P1.wav").exists(), status(app)
+        assert len(app.session) == 1
+        assert app.query_one("#ms-positions").row_count == 1

@@ -64,3 +64,38 @@ def test_empty_session_and_bad_workbench_values_are_refused(tmp_path):
     (tmp_path / "bad.toml").write_text(text)
     with pytest.raises(InputError, match="workbench"):
         load_study(tmp_path / "bad.toml")
+
+
+async def test_opening_a_bad_study_file_reports_and_starts_empty(tmp_path):
+    from tests.tui.pilot_helpers import status
+    from tui.app import RoomconvApp
+
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[study]\ntitle = 'x'\nsurprise = 1\n")
+    app = RoomconvApp(study=bad)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        assert app.is_running and app.session == []
+        assert "✖" in status(app) and "surprise" in status(app)
+        # With no study file open, the session would be saved beside the measurements.
+        assert app.session_path().name == "session.toml"
+
+
+async def test_fields_a_session_cannot_restore_are_named(tmp_path):
+    from tests.tui.pilot_helpers import status
+    from tui.app import RoomconvApp
+
+    (tmp_path / "P1.wav").write_bytes(b"")
+    path = tmp_path / "study.toml"
+    save_workbench_session(
+        path,
+        [("P1", tmp_path / "P1.wav", None)],
+        workbench={"rn-normalize": "louder", "rn-mix": "0.25", "no-such-field": "1"},
+    )
+    app = RoomconvApp(study=path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        assert app.query_one("#rn-mix").value == "0.25"
+        assert app.query_one("#rn-normalize").value == "none"
+        assert "rn-normalize" in status(app) and "no-such-field" in status(app)
+        assert "1 response file(s) missing" not in status(app)  # the file exists (empty)
