@@ -231,6 +231,18 @@ class RoomconvApp(App):
             err = event.worker.error
             self.report(event.worker.name or "work", f"{type(err).__name__}: {err}", error=True)
 
+    def _handle_exception(self, error: Exception) -> None:
+        # The last net, for workers started with the default exit_on_error=True: Textual
+        # hands their failure here to end the app; the workbench shows it and goes on.
+        # Any other exception still ends the app as Textual intends.
+        from textual.worker import WorkerFailed
+
+        if isinstance(error, WorkerFailed) and self.screen_stack:
+            err = error.error
+            self.report("Work", f"{type(err).__name__}: {err}", error=True)
+            return
+        super()._handle_exception(error)
+
     # --- caution ----------------------------------------------------------------------
     def caution_confirmed(self) -> bool:
         return self.query_one("#caution-ack", Checkbox).value

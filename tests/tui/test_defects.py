@@ -289,3 +289,16 @@ async def test_stopping_the_render_queue_leaves_no_partial_file(tmp_path):
         leftovers = list((tmp_path / "wet").glob("*")) if (tmp_path / "wet").exists() else []
         assert leftovers == []
         assert app.is_running
+
+
+async def test_an_uncaught_worker_error_in_any_tab_is_shown_not_fatal():
+    app = RoomconvApp()
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("a")
+        # An unclosed quote: shlex raises ValueError, which the tab itself may not expect.
+        app.query_one("#an-files").value = '"unclosed.wav'
+        await press(app, pilot, "#an-run")
+        await settle(app, pilot)
+        await pilot.pause()
+        assert app.is_running and app.return_code is None
+        assert "✖" in status(app)
