@@ -287,3 +287,24 @@ async def test_measure_tab_imports_a_recording(tmp_path):
         assert (tmp_path / "s" / "P1.wav").exists(), status(app)
         assert len(app.session) == 1
         assert app.query_one("#ms-positions").row_count == 1
+
+
+async def test_measure_tab_makes_a_strength_reference_without_replacing_one(tmp_path):
+    from tests.tui.pilot_helpers import quick_simulated_measure, status
+
+    # A free field of our own: the direct sound alone, a short pulse with no room after it.
+    free = np.zeros(FS // 2)
+    free[100] = 0.5
+    sf.write(tmp_path / "free.wav", free, FS, subtype="FLOAT")
+    (tmp_path / "cal.json").write_text("earlier")
+    app = RoomconvApp()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await quick_simulated_measure(app, pilot, tmp_path / "free.wav", tmp_path / "s")
+        app.query_one("#ms-cal").value = str(tmp_path / "cal.json")
+        app.query_one("#ms-cal-distance").value = "2"
+        await press(app, pilot, "#ms-calibrate")
+        await settle(app, pilot)
+        assert (tmp_path / "cal.json").read_text() == "earlier"
+        written = json.loads((tmp_path / "cal-2.json").read_text())
+        assert written and "cal-2.json" in status(app)
+        assert app.query_one("#ms-cal").value == str(tmp_path / "cal-2.json")

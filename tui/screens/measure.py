@@ -110,7 +110,13 @@ class MeasurePane(Vertical):
             )
             yield _line(
                 Label("Strength reference"),
-                Input(placeholder="cal.json for G (roomconv calibrate)", id="ms-cal", compact=True),
+                Input(placeholder="cal.json, for G", id="ms-cal", compact=True),
+                Label("from"),
+                Input("", placeholder="P1", id="ms-cal-from", classes="narrow", compact=True),
+                Label("at"),
+                Input("3", id="ms-cal-distance", classes="narrow", compact=True),
+                Label("m"),
+                Button("Make", id="ms-calibrate", compact=True),
             )
             yield _line(
                 Label("Notes"), Input(placeholder="door closed, …", id="ms-notes", compact=True)
@@ -461,6 +467,46 @@ class MeasurePane(Vertical):
         for n in res.notes:
             workbench(self).report_from_thread("Import", n)
         self.app.call_from_thread(self.measured, name, res, quality, note)
+
+    @on(Button.Pressed, "#ms-calibrate")
+    def calibrate_pressed(self) -> None:
+        self.calibrate()
+
+    @work(thread=True, exclusive=True, group="measure", exit_on_error=False)
+    def calibrate(self) -> None:
+        """A strength reference for G from a position measured in a free field (the source
+        at the given distance), written to the Strength reference file; a taken name gets a
+        free one."""
+        from roomconv.jobs.calibrate import calibrate_free_field
+
+        session = workbench(self).session
+        try:
+            target = self.text("#ms-cal")
+            if not target:
+                raise InputError("Strength reference: type the file to write, e.g. cal.json")
+            asked = self.text("#ms-cal-from") or (session[-1]["name"] if session else "")
+            found = [p for p in session if p["name"] == asked]
+            if not found:
+                raise InputError(
+                    f"Strength reference from: '{asked}' is not a position of this session; "
+                    "measure the source in a free field first"
+                )
+            distance = self.number("#ms-cal-distance", "Strength reference at (m)")
+            out = Path(target)
+            free, k = out, 2
+            while free.exists():
+                free, k = out.with_name(f"{out.stem}-{k}{out.suffix}"), k + 1
+            res = calibrate_free_field(found[0]["file"], free, distance_m=distance)
+        except Exception as exc:  # noqa: BLE001 - every failure is shown, none ends the app
+            self.fail("Strength reference", exc)
+            return
+        note = f"{out.name} exists; wrote {free.name}" if free != out else f"wrote {free}"
+        extra = f" ({'; '.join(res.notes)})" if res.notes else ""
+        workbench(self).report_from_thread(
+            "Strength reference", f"{note} from {found[0]['name']} at {distance:g} m{extra}"
+        )
+        if free != out:
+            self.app.call_from_thread(setattr, self.query_one("#ms-cal", Input), "value", str(free))
 
     def measured(self, name: str, res, quality_file: Path, note: str | None) -> None:
         """Add a measured position to the session and its table (on the app's thread)."""
