@@ -211,6 +211,7 @@ async def test_a_failed_render_job_shows_as_failed(tmp_path):
         assert rows["gone__ir.wav"][1] == "failed"
         assert "100 %" not in str(rows["gone__ir.wav"][2])
         assert "1 failed" in text_of(app, "#rn-status") and "✖" in status(app)
+        assert app.query_one("#rn-all").percentage == 0.5  # one of two files written
         assert (tmp_path / "wet" / "good__ir.wav").exists()
         assert not (tmp_path / "wet" / "gone__ir.wav").exists()
 

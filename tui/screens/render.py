@@ -246,7 +246,8 @@ class RenderPane(Vertical):
                 overall()
             elif kind in ("done", "skip"):
                 o = payload
-                fractions[o.job.name] = 1.0
+                # The overall bar counts files written: a failed one adds nothing to it.
+                fractions[o.job.name] = 0.0 if o.status == "failed" else 1.0
                 if o.status == "failed":
                     app.call_from_thread(self.set_failed, o.job.name, o.message)
                 elif o.status == "skipped":
@@ -308,12 +309,14 @@ class RenderPane(Vertical):
 
     @work(thread=True, exclusive=True, group="preview", exit_on_error=False)
     def preview(self) -> None:
-        from roomconv.jobs.render import PREVIEW_S, preview
+        from roomconv.jobs.render import PREVIEW_ATTENUATION_DB, PREVIEW_S, preview
 
         try:
             drys, ir, _folder = self.inputs()
             workbench(self).report_from_thread(
-                "Preview", f"playing {PREVIEW_S:g} s of {drys[0].name}, 12 dB down"
+                "Preview",
+                f"playing {PREVIEW_S:g} s of {drys[0].name}, "
+                f"{-PREVIEW_ATTENUATION_DB:g} dB below the render's level",
             )
             res = preview(drys[0], ir, self.settings(), confirm=self.confirm, play=self.player)
         except Exception as exc:  # noqa: BLE001 - every failure is shown, none ends the app
