@@ -273,23 +273,37 @@ def test_tui_with_a_missing_study_file_exits_2_naming_it(tmp_path):
 
 
 async def test_stopping_the_render_queue_leaves_no_partial_file(tmp_path):
-    dry = dry_clip(tmp_path / "long.wav", seconds=20.0)
+    drys = [dry_clip(tmp_path / f"take{k}.wav", seconds=20.0, seed=k) for k in range(3)]
     ir = decaying_ir(tmp_path / "ir.wav", seconds=1.0)
     app = RoomconvApp()
     async with app.run_test(size=SIZE) as pilot:
         await pilot.press("r")
-        app.query_one("#rn-dry").value = str(dry)
+        app.query_one("#rn-dry").value = " ".join(str(d) for d in drys)
         app.query_one("#rn-ir").value = str(ir)
         app.query_one("#rn-out").value = str(tmp_path / "wet")
+        app.query_one("#rn-workers").value = "1"
         await press(app, pilot, "#rn-run")
-        await press(app, pilot, "#rn-cancel")  # at the runner's first event at the latest
+        await press(app, pilot, "#rn-cancel")
         await settle(app, pilot)
+        assert app.is_running
         assert "stopped" in text_of(app, "#rn-status")
         table = app.query_one("#rn-queue")
-        assert table.get_row_at(0)[1] == "stopped"
-        leftovers = list((tmp_path / "wet").glob("*")) if (tmp_path / "wet").exists() else []
-        assert leftovers == []
-        assert app.is_running
+        states = [table.get_row_at(i)[1] for i in range(table.row_count)]
+        # With one worker, at least the last of three files cannot have finished.
+        assert states[-1] == "stopped" and set(states) <= {"done", "stopped"}
+        wet = tmp_path / "wet"
+        left = sorted(p.name for p in wet.iterdir()) if wet.exists() else []
+        # Whatever is left is whole: each output with its sidecar, the full convolution
+        # length N + M - 1 (closed form), and no temporary file.
+        assert not [n for n in left if n.endswith(".tmp")]
+        for k in range(len(drys)):
+            out = wet / f"take{k}__ir.wav"
+            if out.exists():
+                assert states[k] == "done"
+                assert (wet / f"take{k}__ir.provenance.json").exists()
+                assert sf.info(str(out)).frames == 20 * FS + FS - 1
+            else:
+                assert states[k] == "stopped"
 
 
 async def test_an_uncaught_worker_error_in_any_tab_is_shown_not_fatal():

@@ -261,9 +261,17 @@ class RenderPane(Vertical):
             start_process_helpers()
             res = run_batch(drys, [ir], folder, s, workers=workers, force=force, on_event=on_event)
         except Cancelled:
+            from roomconv.audio import sidecar_path
+
             for n in names:
                 if fractions[n] < 1.0:
-                    app.call_from_thread(self.set_row, n, "stopped", None)
+                    # A worker may have finished (output, then its sidecar last) between two
+                    # polls of the runner: that file is complete and stays.
+                    out = folder / n
+                    whole = out.exists() and sidecar_path(out, "provenance").exists()
+                    app.call_from_thread(
+                        self.set_row, n, "done" if whole else "stopped", 1.0 if whole else None
+                    )
             app.call_from_thread(status.update, "stopped; unfinished files removed")
             workbench(self).report_from_thread("Render", "queue stopped")
             return
