@@ -164,7 +164,7 @@ class RoomconvApp(App):
         Binding("o", "tab('room')", "Room"),
         Binding("c", "caution", "Caution"),
         Binding("s", "save_session", "Save"),
-        Binding("ctrl+s", "save_session", "Save", show=False),
+        Binding("ctrl+s", "save_anywhere", "Save", show=False),
         Binding("question_mark,f1", "help", "Help"),
         Binding("x", "cancel", "Stop"),
         Binding("escape", "leave_field", "Leave field", show=False),
@@ -399,6 +399,10 @@ class RoomconvApp(App):
             self.push_screen(ReplaceScreen(path, free_name(path)), answered)
         else:
             self.save_session(path)
+
+    def action_save_anywhere(self) -> None:
+        """Ctrl+S: the Save key, also from inside a field (where ``s`` is a letter)."""
+        self.action_save_session()
 
     def save_session(self, path: Path, *, force: bool = False) -> None:
         from roomconv.jobs.study import save_workbench_session

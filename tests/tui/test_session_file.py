@@ -99,3 +99,22 @@ async def test_fields_a_session_cannot_restore_are_named(tmp_path):
         assert app.query_one("#rn-normalize").value == "none"
         assert "rn-normalize" in status(app) and "no-such-field" in status(app)
         assert "1 response file(s) missing" not in status(app)  # the file exists (empty)
+
+
+async def test_ctrl_s_saves_from_inside_a_field_and_s_types_there(tmp_path):
+    from tests.tui.pilot_helpers import decaying_ir, quick_simulated_measure, status
+    from tui.app import RoomconvApp
+
+    room = decaying_ir(tmp_path / "room.wav")
+    app = RoomconvApp()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await quick_simulated_measure(app, pilot, room, tmp_path / "s")
+        notes = app.query_one("#ms-notes")
+        notes.focus()
+        await pilot.pause()
+        await pilot.press("s")  # a letter typed into the field, not the Save key
+        assert notes.value == "s" and not (tmp_path / "s" / "session.toml").exists()
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert (tmp_path / "s" / "session.toml").exists(), status(app)
+        assert load_study(tmp_path / "s" / "session.toml").notes == "s"
