@@ -6,6 +6,8 @@ Every code path that sends sound to a device goes through here first.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -23,6 +25,8 @@ __all__ = [
     "apply_ramps",
     "hard_cap",
     "OutputLimiter",
+    "PlayResult",
+    "safe_play",
 ]
 
 HEARING_CAUTION = """\
@@ -269,3 +273,106 @@ class OutputLimiter:
         # A last line of defence against rounding: never above the ceiling.
         np.minimum(out, c, out=out)
         return np.maximum(out, -c, out=out)
+
+
+@dataclass
+class PlayResult:
+    """What :func:`safe_play` did.
+
+    Attributes
+    ----------
+    played_s : float
+        Seconds handed to the device (0 when nothing was played).
+    peak_dbfs : float
+        Peak of the signal as sent, dBFS, after ramps, limiter and cap.
+    limited_db : float
+        Largest gain reduction the limiter applied, dB.
+    message : str or None
+        Why nothing (or not everything) was played: a device error in words; None when the
+        device took the whole signal.
+
+    Examples
+    --------
+    >>> PlayResult(0.0, -6.0, message="no output device").ok
+    False
+    """
+
+    played_s: float
+    peak_dbfs: float
+    limited_db: float = 0.0
+    message: str | None = None
+
+    @property
+    def ok(self) -> bool:
+        return self.message is None
+
+
+def safe_play(
+    signal: np.ndarray,
+    rate: int,
+    *,
+    confirm: Callable[[], None],
+    play: Callable[[np.ndarray, int], None],
+    attenuation_db: float = 0.0,
+    ramp_s: float = RAMP_S,
+    ceiling_dbfs: float = OUTPUT_CAP_DBFS,
+) -> PlayResult:
+    """Play a signal the one safe way: attenuated, ramped, limited, capped, then confirmed.
+
+    The order matters: the ramps come first so the limiter never sees a step at the start,
+    the limiter keeps peaks under ``ceiling_dbfs`` smoothly, and :func:`hard_cap` catches
+    anything left (and NaN). ``confirm`` runs after all of that and before the device is
+    touched; it shows the hearing caution and raises to refuse (its exception propagates:
+    a refusal is the user's answer, not a device fault). Any error the device raises is
+    caught and returned as :attr:`PlayResult.message`, so a missing or busy sound card never
+    ends the program that asked for the sound.
+
+    Parameters
+    ----------
+    signal : ndarray, shape (samples,) or (samples, channels)
+        Full scale = 1.
+    rate : int
+        Sample rate, Hz.
+    confirm : callable
+        ``confirm()``; raises to refuse.
+    play : callable
+        ``play(block_float32, rate)``: hands the samples to the device and returns when
+        they have been played (the sound card layer supplies it).
+    attenuation_db : float
+        Gain applied first, dB (at most 0: this function never raises a level).
+    ramp_s : float
+        Fade-in and fade-out length, s.
+    ceiling_dbfs : float
+        Limiter ceiling, dBFS (never above :data:`OUTPUT_CAP_DBFS`).
+
+    Returns
+    -------
+    PlayResult
+
+    Examples
+    --------
+    >>> sent = []
+    >>> r = safe_play(np.full(4800, 2.0), 48000, confirm=lambda: None,
+    ...               play=lambda y, rate: sent.append(y))
+    >>> r.ok, float(np.max(np.abs(sent[0]))) <= db_to_gain(OUTPUT_CAP_DBFS)
+    (True, True)
+    >>> def no_card(y, rate):
+    ...     raise OSError("Error querying device -1")
+    >>> safe_play(np.zeros(480), 48000, confirm=lambda: None, play=no_card).message
+    'the sound card could not play: Error querying device -1'
+    """
+    if attenuation_db > 0 or not math.isfinite(attenuation_db):
+        raise InputError(f"attenuation {attenuation_db} dB: give 0 dB or less")
+    ceiling = min(ceiling_dbfs, OUTPUT_CAP_DBFS)
+    x = np.nan_to_num(np.asarray(signal, dtype=np.float64), nan=0.0, posinf=0.0, neginf=0.0)
+    y = apply_ramps(x * db_to_gain(attenuation_db), rate, ramp_s)
+    lim = OutputLimiter(rate, ceiling_dbfs=ceiling)
+    y = hard_cap(lim.process(y), ceiling).astype(np.float32)
+    top = float(np.max(np.abs(y))) if y.size else 0.0
+    peak = 20 * math.log10(top) if top > 0 else float("-inf")
+    confirm()
+    try:
+        play(y, rate)
+    except Exception as exc:  # noqa: BLE001 - PortAudio and the OS raise many kinds
+        return PlayResult(0.0, peak, lim.max_reduction_db, f"the sound card could not play: {exc}")
+    return PlayResult(y.shape[0] / rate, peak, lim.max_reduction_db)

@@ -30,6 +30,7 @@ __all__ = [
     "parse_study",
     "template_text",
     "session_study_text",
+    "workbench_session_text",
     "STATES",
 ]
 
@@ -252,6 +253,9 @@ class StudyFile:
     responses: tuple[Response, ...] = ()
     targets: Targets | None = None
     office: OfficeSettings | None = None
+    #: The terminal workbench's own field values (``[workbench]``): text, numbers, true/false
+    #: or lists of text, keyed by field; other programs ignore them.
+    workbench: dict = field(default_factory=dict)
 
     def as_dict(self) -> dict:
         """Plain JSON-ready data (paths as strings, relative to the study file when inside)."""
@@ -599,6 +603,7 @@ def parse_study(text: str, path) -> StudyFile:
     top.used.add("targets")
     office = _office(top, base, src) if "office" in doc else None
     top.used.add("office")
+    workbench = _workbench_table(top.get("workbench", dict, {}), src)
     top.done()
     return StudyFile(
         path=path,
@@ -616,6 +621,7 @@ def parse_study(text: str, path) -> StudyFile:
         responses=tuple(responses),
         targets=targets,
         office=office,
+        workbench=workbench,
     )
 
 
@@ -640,6 +646,20 @@ def _office(top: _Reader, base: Path, src: str) -> OfficeSettings:
         None if cal is None else _path(base, cal, of, "calibration"),
         None if noise is None else tuple(float(x) for x in noise),
     )
+
+
+def _workbench_table(table: dict, src: str) -> dict:
+    """The ``[workbench]`` table: flat, with plain values only (nothing the analysis reads)."""
+    for k, v in table.items():
+        plain = isinstance(v, str | bool | int | float) or (
+            isinstance(v, list) and all(isinstance(x, str) for x in v)
+        )
+        if not plain:
+            raise InputError(
+                f"{src}: workbench.{k}: {v!r} is not text, a number, true/false or a list of "
+                "text; correct it or remove the key"
+            )
+    return dict(table)
 
 
 def load_study(path) -> StudyFile:
@@ -713,6 +733,73 @@ def session_study_text(title: str, positions, folder) -> str:
         _POSITIONS_NOTE,
         "# Written from a workbench session: every response is assigned to source S1;",
         "# correct the source ids where the source was moved.",
+        "[[sources]]",
+        'id = "S1"',
+        "",
+    ]
+    for name, _file, _q in positions:
+        parts += ["[[receivers]]", f"id = {_toml_str(name)}", ""]
+    for name, file, quality in positions:
+        parts += [
+            "[[responses]]",
+            'source = "S1"',
+            f"receiver = {_toml_str(name)}",
+            f"file = {_toml_str(os.path.relpath(Path(file).resolve(), folder.resolve()))}",
+        ]
+        if quality is not None:
+            rel = os.path.relpath(Path(quality).resolve(), folder.resolve())
+            parts.append(f"quality_file = {_toml_str(rel)}")
+        parts.append("")
+    return "\n".join(parts)
+
+
+def _toml_value(v) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return repr(v)
+    if isinstance(v, list | tuple):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    return _toml_str(v)
+
+
+def workbench_session_text(
+    title: str,
+    positions,
+    folder,
+    *,
+    notes: str = "",
+    room: dict | None = None,
+    sweep: dict | None = None,
+    workbench: dict | None = None,
+) -> str:
+    """A study file holding a whole workbench session: the responses measured, the sweep as
+    played, the room's name and conditions, notes, and the workbench's own fields.
+
+    Only values actually known are written (no template numbers), so a report made from it
+    never shows a value nobody gave. ``positions`` are (name, file, quality file or None),
+    each a receiver of source S1, paths relative to ``folder`` (where the file goes).
+    ``room`` takes ``name``, ``temperature_c``, ``humidity_pct``; ``sweep`` the keys of
+    :class:`SweepSettings`; ``None`` values are left out.
+    """
+    folder = Path(folder)
+    today = _dt.date.today().isoformat()
+    room = {"name": "Room 1", **{k: v for k, v in (room or {}).items() if v is not None}}
+
+    def table(name: str, values: dict) -> list[str]:
+        rows = [f"{k} = {_toml_value(v)}" for k, v in values.items() if v is not None]
+        return [f"[{name}]", *rows, ""] if rows else []
+
+    parts = [
+        "# A roomconv workbench session, also a study file: `roomconv analyze --study FILE`",
+        "# reads it, `roomconv tui FILE` opens it. Paths are relative to this file.",
+        "",
+        *table("study", {"title": title, "dates": [today], "notes": notes}),
+        *table("room", room),
+        *table("sweep", sweep or {}),
+        *table("workbench", workbench or {}),
         "[[sources]]",
         'id = "S1"',
         "",

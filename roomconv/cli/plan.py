@@ -232,7 +232,7 @@ def configure_plan(p):
         action="append",
         metavar="SURFACE=MATERIAL",
         help="a material to install, e.g. ceiling=acoustic-tile (repeatable; surfaces: "
-        "floor, ceiling, left, right, front, back, walls; materials: 'roomconv rooms')",
+        "floor, ceiling, left, right, front, back, walls; materials: 'roomconv materials')",
     )
     p.add_argument(
         "--tolerance",

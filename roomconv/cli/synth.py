@@ -1,4 +1,4 @@
-"""The ``synth``, ``rooms`` and ``edit`` commands."""
+"""The ``synth``, ``materials`` and ``edit`` commands."""
 
 from __future__ import annotations
 
@@ -232,8 +232,8 @@ def configure_synth(p):
     p.add_argument("--force", action="store_true", help="replace an existing output")
 
 
-def run_rooms(a):
-    """Run ``roomconv rooms``: the materials table with its absorption coefficients per octave
+def run_materials(a):
+    """Run ``roomconv materials``: the materials table with its absorption coefficients per octave
     (:func:`roomconv.jobs.synth.materials_table`).
 
     Parameters
@@ -262,8 +262,8 @@ def run_rooms(a):
     return 0
 
 
-def configure_rooms(p):
-    """Add the options of ``roomconv rooms`` to its sub-parser ``p`` (an argparse parser)."""
+def configure_materials(p):
+    """Add the options of ``roomconv materials`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument("--materials-file", type=Path, default=None, help="add materials from a file")
     p.add_argument("--json", type=Path, default=None, help="also write the table as JSON")
     p.add_argument("--force", action="store_true", help="replace an existing JSON output")
@@ -389,7 +389,10 @@ COMMANDS = [
         run_synth,
     ),
     Command(
-        "rooms", "list the materials and their absorption coefficients", configure_rooms, run_rooms
+        "materials",
+        "list the materials and their absorption coefficients",
+        configure_materials,
+        run_materials,
     ),
     Command(
         "edit",

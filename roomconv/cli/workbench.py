@@ -1,10 +1,21 @@
-"""The ``tui`` command: start the terminal workbench."""
+"""The ``tui`` command: start the terminal workbench, optionally on a study file."""
 
 from __future__ import annotations
 
 from .common import Command
 
 __all__ = ["COMMANDS"]
+
+
+def configure_tui(p):
+    p.add_argument(
+        "study",
+        nargs="?",
+        default=None,
+        metavar="STUDY.toml",
+        help="a study file to open as the session (written by the workbench's Save key or "
+        "'roomconv study init')",
+    )
 
 
 def run_tui(a):
@@ -23,7 +34,7 @@ def run_tui(a):
     # Imported here: the workbench needs Textual, which the other commands do not load.
     from tui.app import main as tui_main
 
-    return tui_main([])
+    return tui_main([a.study] if a.study else [])
 
 
-COMMANDS = [Command("tui", "the terminal workbench (Textual)", lambda p: None, run_tui)]
+COMMANDS = [Command("tui", "the terminal workbench (Textual)", configure_tui, run_tui)]

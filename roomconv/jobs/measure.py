@@ -332,6 +332,7 @@ def measure_position(
     force: bool = False,
     settings: dict | None = None,
     progress: ProgressCallback = silent,
+    on_level: Callable[[float, float], None] | None = None,
 ) -> MeasureResult:
     """Play ``sweep`` and record it (sound card or simulated room), extract and save.
 
@@ -360,6 +361,9 @@ def measure_position(
         refused).
     harmonic_provenance : bool
         Also write a provenance sidecar beside each harmonic response.
+    on_level : callable, optional
+        ``on_level(peak_dbfs, fraction)`` about every 0.1 s while the sweep plays: the input
+        level for a meter.
 
     Examples
     --------
@@ -378,7 +382,7 @@ def measure_position(
     (True, 50)
     >>> tmp.cleanup()
     """
-    from ..measure.capture import SimulatedDevice, SoundCard, run_measurement
+    from ..measure.capture import SimulatedDevice, SoundCard, metered_playrec, run_measurement
 
     safety.check_level(sweep.level_dbfs)
     validate.memory_budget(sim_latency_samples, "this simulated latency")
@@ -431,6 +435,9 @@ def measure_position(
             0.0,
             "simulated device: no sound will be played" if simulated else None,
         )
+        if on_level is not None:
+            # run_measurement keeps its level check and tail; the device reports as it goes.
+            dev = _Metered(dev, on_level, metered_playrec)
         rec = run_measurement(dev, sweep_signal(sweep), sweep.rate, tail_s=0.5)
         progress("extract", 0.7, None)
         # Extract before writing anything, so a failed extraction leaves no recording behind.
@@ -460,6 +467,16 @@ def measure_position(
         )
     progress("done", 1.0, None)
     return MeasureResult(Path(output), ex, written, simulated=simulated)
+
+
+class _Metered:
+    """A device whose ``playrec`` reports the input level while it plays."""
+
+    def __init__(self, device, on_level, metered_playrec):
+        self.device, self.on_level, self._run = device, on_level, metered_playrec
+
+    def playrec(self, signal, rate):
+        return self._run(self.device, signal, rate, self.on_level)
 
 
 def level_check(

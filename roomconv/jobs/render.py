@@ -444,32 +444,34 @@ def preview(
     confirm: Callable[[], None],
     seconds: float = PREVIEW_S,
     device=None,
-) -> float:
-    """Render the first ``seconds`` of ``dry`` through ``ir`` and play them, ramped, limited
-    and capped; returns the seconds played. ``confirm`` shows the hearing caution and raises
-    to refuse; it runs before any sound.
+    play: Callable | None = None,
+) -> safety.PlayResult:
+    """Render the first ``seconds`` of ``dry`` through ``ir`` and play them through
+    :func:`roomconv.safety.safe_play` (attenuated, ramped, limited, capped). ``confirm``
+    shows the hearing caution and raises to refuse; it runs before any sound. A device that
+    cannot play (none, busy, no PortAudio) is reported in the result's ``message``, not
+    raised. ``play(samples, rate)`` replaces the sound card (tests).
 
     Examples
     --------
     Not run here: it plays sound. ``confirm`` shows the hearing caution and raises to
     refuse; nothing is played before it returns::
 
-        seconds = preview("vocal.wav", "hall.wav", RenderSettings(mix=0.3),
-                          confirm=ask_after_showing_the_caution)
+        result = preview("vocal.wav", "hall.wav", RenderSettings(mix=0.3),
+                         confirm=ask_after_showing_the_caution)
+        result.message    # None, or why the device could not play
     """
-    from ..measure.capture import load_sounddevice
-    from ..signal import db_to_gain
-
     x, rate = read_audio(dry, what="dry file")
     h, ir_rate = read_audio(
         ir, what="impulse response", measurement=settings.ir_measurement, single=True
     )
     y = offline.render_arrays(x[: int(seconds * rate)], h, rate, settings.check(), ir_rate=ir_rate)
-    y = safety.OutputLimiter(rate).process(
-        safety.apply_ramps(y * db_to_gain(PREVIEW_ATTENUATION_DB), rate)
+
+    def card(samples, rate_hz):
+        from ..measure.capture import load_sounddevice
+
+        load_sounddevice().play(samples, rate_hz, blocking=True, device=device)
+
+    return safety.safe_play(
+        y, rate, confirm=confirm, play=play or card, attenuation_db=PREVIEW_ATTENUATION_DB
     )
-    y = safety.hard_cap(y)
-    sd = load_sounddevice()
-    confirm()
-    sd.play(y.astype("float32"), rate, blocking=True, device=device)
-    return y.shape[0] / rate

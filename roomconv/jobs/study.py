@@ -18,6 +18,7 @@ if TYPE_CHECKING:
 __all__ = [
     "init_study",
     "save_session_study",
+    "save_workbench_session",
     "write_study_file",
     "check_study",
     "StudyCheck",
@@ -92,6 +93,48 @@ def save_session_study(
         folder = g.make_folder(g.folder(path.parent if str(path.parent) else Path(".")))
         g.file(path)
         return g.write_text(path, session_study_text(title, positions, folder))
+
+
+def save_workbench_session(
+    path,
+    positions,
+    *,
+    title: str = "Workbench session",
+    notes: str = "",
+    room: dict | None = None,
+    sweep: dict | None = None,
+    workbench: dict | None = None,
+    force: bool = False,
+) -> Path:
+    """Write a whole workbench session as a study file (see
+    :func:`roomconv.study.workbench_session_text`); it is checked to load back before
+    anything is written, and an existing file is replaced only with ``force``.
+
+    Parameters
+    ----------
+    path : path-like
+        The study file; its folder is created when missing.
+    positions : sequence of (name, file, quality file or None)
+        At least one.
+    notes, room, sweep, workbench
+        As :func:`roomconv.study.workbench_session_text` takes them.
+    """
+    from ..study import parse_study, workbench_session_text
+
+    path = Path(path)
+    _refuse_non_toml(path)
+    if not positions:
+        raise InputError(f"{path}: a session needs at least one measured position to be saved")
+    files = [p[1] for p in positions] + [p[2] for p in positions if p[2] is not None]
+    with guarded(files, force=force) as g:
+        folder = g.folder(path.parent if str(path.parent) else Path("."))
+        g.file(path)
+        text = workbench_session_text(
+            title, positions, folder, notes=notes, room=room, sweep=sweep, workbench=workbench
+        )
+        parse_study(text, path)
+        g.make_folder(folder)
+        return g.write_text(path, text)
 
 
 @dataclass

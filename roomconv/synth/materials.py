@@ -203,5 +203,5 @@ def get_material(name: str, extra: dict[str, Material] | None = None) -> Materia
     """
     table = {**MATERIALS, **(extra or {})}
     if name not in table:
-        raise InputError(f"unknown material '{name}' (see 'roomconv rooms' for the list)")
+        raise InputError(f"unknown material '{name}' (see 'roomconv materials' for the list)")
     return table[name]

@@ -106,14 +106,14 @@ def test_intact_sidecar_still_extracts(sweep_files, cli):
         ("row.toml", "felt = 3\n", "felt"),
     ],
 )
-@pytest.mark.parametrize("command", ["synth", "rooms"])
+@pytest.mark.parametrize("command", ["synth", "materials"])
 def test_broken_materials_file(tmp_path, cli, name, text, field, command):
     mf = tmp_path / name
     mf.write_text(text)
     args = (
         ["synth", tmp_path / "x.wav", "--room", "6x5x3"]
         if command == "synth"
-        else ["rooms", "--json", tmp_path / "x.json"]
+        else ["materials", "--json", tmp_path / "x.json"]
     )
     code, _, err = cli(*args, "--materials-file", mf)
     assert code == 2, err
@@ -124,13 +124,13 @@ def test_broken_materials_file(tmp_path, cli, name, text, field, command):
 
 def test_materials_file_that_is_a_folder(tmp_path, cli):
     (tmp_path / "mats").mkdir()
-    code, _, err = cli("rooms", "--materials-file", tmp_path / "mats")
+    code, _, err = cli("materials", "--materials-file", tmp_path / "mats")
     assert code == 2 and "mats" in err and "not a file" in err, err
 
 
 def test_valid_materials_file_is_used(tmp_path, cli):
     mf = tmp_path / "ok.json"
     mf.write_text('{"felt": {"alpha": [0.1, 0.2, 0.3, 0.4, 0.5, 0.6], "source": "ours"}}')
-    code, out, err = cli("rooms", "--materials-file", mf)
+    code, out, err = cli("materials", "--materials-file", mf)
     assert code == 0, err
     assert "felt" in out

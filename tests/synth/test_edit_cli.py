@@ -1,4 +1,4 @@
-"""IR editing against closed forms and scipy, and the synth / rooms / edit commands."""
+"""IR editing against closed forms and scipy, and the synth / materials / edit commands."""
 
 import json
 
@@ -132,8 +132,8 @@ def test_synth_refusals(tmp_path, cli, args, text):
     assert not (tmp_path / "x.wav").exists()
 
 
-def test_rooms_lists_at_least_15_materials(cli):
-    code, text, _ = cli("rooms")
+def test_materials_lists_at_least_15_materials(cli):
+    code, text, _ = cli("materials")
     assert code == 0
     rows = [ln for ln in text.splitlines() if ln and ln[0].isalpha() and "material" not in ln]
     assert len(rows) >= 15 and "carpet" in text

@@ -8,11 +8,21 @@ from textual.dom import DOMNode
 
 
 class Workbench(Protocol):
-    """What the panes use of the app they run in (``tui.app.RoomconvApp``) beyond ``App``."""
+    """What the panes use of the app they run in (``tui.app.RoomconvApp``) beyond ``App``:
+    the session's positions, the tab hand-off, the status line (``report``; errors stay on
+    it) and the hearing caution (no sound before ``caution_confirmed()``)."""
 
     session: list[dict]
 
     def send_to(self, tab: str, path: str) -> None: ...
+
+    def report(self, where: str, text: str, *, error: bool = False) -> None: ...
+
+    def report_from_thread(self, where: str, text: str, *, error: bool = False) -> None: ...
+
+    def caution_confirmed(self) -> bool: ...
+
+    def ask_caution(self, where: str) -> None: ...
 
 
 def workbench(node: DOMNode) -> Workbench:
