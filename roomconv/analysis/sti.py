@@ -131,7 +131,38 @@ CAUTIONS = (
 
 @dataclass
 class StiResult:
-    """One STI value with its parts; ``value`` is None when not evaluable (``reason``)."""
+    """One STI value with its parts; ``value`` is None when not evaluable (``reason``).
+
+    Attributes
+    ----------
+    value : float or None
+        The speech transmission index, 0…1; None when it cannot be given honestly.
+    mti : list of float or None
+        Modulation transmission index per octave 125 Hz → 8 kHz (None entries with
+        ``value`` None).
+    band : str or None
+        Qualification band letter (IEC 60268-16:2011, Annex F) of ``value``.
+    method : str
+        Edition, modulation frequencies, weighting and levels used, in words.
+    warnings : list of str
+        Conditions that make the value less certain, each in one sentence.
+    reason : str or None
+        Why ``value`` is None.
+    mtf : ndarray or None
+        Modulation transfer per octave and modulation frequency after noise, masking and
+        threshold, shape (7, 14) or (7, 2) for STIPA.
+
+    References
+    ----------
+    IEC 60268-16:2011, Sound system equipment — Part 16: Objective rating of speech
+    intelligibility by speech transmission index, Annex A and Annex F.
+
+    Examples
+    --------
+    >>> r = StiResult(0.5, [0.5] * 7, qualification_band(0.5), "by hand")
+    >>> r.as_dict()["value"], r.as_dict()["band"]
+    (0.5, 'G')
+    """
 
     value: float | None
     mti: list[float | None]
@@ -142,6 +173,13 @@ class StiResult:
     mtf: np.ndarray | None = None  #: (7, n_mod) modulation transfer after noise and masking
 
     def as_dict(self) -> dict:
+        """The result as JSON-ready values (rounded to 4 decimals), without ``mtf``.
+
+        Returns
+        -------
+        dict
+            Keys ``value``, ``mti``, ``band``, ``method``, ``warnings``, ``reason``.
+        """
         return {
             "value": None if self.value is None else round(float(self.value), 4),
             "mti": [None if v is None else round(float(v), 4) for v in self.mti],
@@ -158,10 +196,31 @@ def exponential_mtf(freqs_hz, t_s: float) -> np.ndarray:
 
     m(F) = 1 / √(1 + (2πF T / 13.8155)²), where 13.8155 = 6 ln 10.
 
+    Parameters
+    ----------
+    freqs_hz : float or sequence of float
+        Modulation frequencies F, Hz.
+    t_s : float
+        Reverberation time T, s (60 dB of decay).
+
+    Returns
+    -------
+    ndarray
+        m(F), 0…1, one per modulation frequency.
+
     References
     ----------
     Houtgast, T., Steeneken, H. J. M., Plomp, R. (1980). Predicting speech intelligibility
     in rooms from the modulation transfer function. Acustica 46, 60–72.
+    Schroeder, M. R. (1981). Modulation transfer functions: definition and measurement.
+    Acustica 49, 179–182.
+
+    Examples
+    --------
+    At F = 0 nothing is lost; where 2πFT = 6 ln 10 the closed form gives 1/√2:
+
+    >>> np.round(exponential_mtf([0.0, 6 * np.log(10) / (2 * np.pi)], 1.0), 4)
+    array([1.    , 0.7071])
     """
     f = np.asarray(freqs_hz, dtype=np.float64)
     return 1.0 / np.sqrt(1.0 + (2 * np.pi * f * t_s / (6 * np.log(10))) ** 2)
@@ -177,12 +236,32 @@ def modulation_transfer(energy: np.ndarray, rate: int, freqs_hz) -> np.ndarray:
     rate : int
         Sample rate, Hz.
     freqs_hz : sequence of float
-        Modulation frequencies.
+        Modulation frequencies, Hz.
+
+    Returns
+    -------
+    ndarray
+        m(F), 0…1, one per modulation frequency.
+
+    Raises
+    ------
+    InputError
+        When ``energy`` sums to zero.
 
     References
     ----------
     Schroeder, M. R. (1981). Modulation transfer functions: definition and measurement.
     Acustica 49, 179–182.
+
+    Examples
+    --------
+    Two equal pulses Δ = 0.1 s apart: m(F) = |1 + e^(−j2πFΔ)| / 2 = |cos(πFΔ)|, so 1 at
+    0 Hz, cos(π/4) at 2.5 Hz and 0 at 5 Hz:
+
+    >>> e = np.zeros(1000)
+    >>> e[[0, 800]] = 1.0  # 800 samples at 8 kHz = 0.1 s
+    >>> np.round(modulation_transfer(e, 8000, [0.0, 2.5, 5.0]), 4)
+    array([1.    , 0.7071, 0.    ])
     """
     e = np.asarray(energy, dtype=np.float64)
     total = e.sum()
@@ -210,7 +289,31 @@ def _energy_transform(e: np.ndarray, rate: int, freqs_hz) -> np.ndarray:
 
 
 def noise_factor(snr_db) -> np.ndarray:
-    """Modulation reduction by stationary noise: 1 / (1 + 10^(−SNR/10)) (IEC 60268-16)."""
+    """Modulation reduction by stationary noise: 1 / (1 + 10^(−SNR/10)).
+
+    Parameters
+    ----------
+    snr_db : float or array
+        Speech-to-noise ratio per octave, dB.
+
+    Returns
+    -------
+    ndarray
+        The factor the modulation transfer is multiplied by, 0…1.
+
+    References
+    ----------
+    IEC 60268-16:2011, Annex A (modulation reduction by background noise).
+    Houtgast, T., Steeneken, H. J. M., Plomp, R. (1980). Predicting speech intelligibility
+    in rooms from the modulation transfer function. Acustica 46, 60–72.
+
+    Examples
+    --------
+    Equal speech and noise halve the modulation; at 10 dB it is 1 / (1 + 0.1) = 10/11:
+
+    >>> noise_factor([0.0, 10.0])
+    array([0.5       , 0.90909091])
+    """
     return 1.0 / (1.0 + 10.0 ** (-np.asarray(snr_db, dtype=np.float64) / 10.0))
 
 
@@ -218,15 +321,56 @@ def noise_factor(snr_db) -> np.ndarray:
 def speech_spectrum(level_dba: float) -> np.ndarray:
     """Octave levels (125 Hz → 8 kHz) of male speech at the A-weighted level ``level_dba``.
 
+    Parameters
+    ----------
+    level_dba : float
+        A-weighted speech level, dB(A).
+
+    Returns
+    -------
+    ndarray, shape (7,)
+        Octave levels, dB SPL: ``level_dba`` plus the standard's relative spectrum.
+
     References
     ----------
     IEC 60268-16:2011, Table A.2 (relative octave levels of the test signal) — from memory.
+
+    Examples
+    --------
+    The relative spectrum (2.9, 2.9, −0.8, −6.8, −12.8, −18.8, −24.8 dB) shifted to 60 dB(A):
+
+    >>> speech_spectrum(60.0)
+    array([62.9, 62.9, 59.2, 53.2, 47.2, 41.2, 35.2])
     """
     return float(level_dba) + np.asarray(MALE_SPECTRUM_DB)
 
 
 def a_weighted_level(octave_db) -> float:
-    """A-weighted sum of seven octave levels 125 Hz → 8 kHz (IEC 61672-1 weights)."""
+    """A-weighted sum of seven octave levels 125 Hz → 8 kHz.
+
+    Parameters
+    ----------
+    octave_db : sequence of 7 floats
+        Octave levels 125 Hz → 8 kHz, dB.
+
+    Returns
+    -------
+    float
+        10·lg Σ 10^((L_k + A_k)/10), dB(A).
+
+    References
+    ----------
+    IEC 61672-1:2013, Electroacoustics — Sound level meters — Part 1: Specifications,
+    Table 3 (A-weighting at the octave centres).
+
+    Examples
+    --------
+    Levels equal to minus the A-weights put every octave at 0 dB(A), so the sum is
+    10·lg 7 = 8.451 dB(A):
+
+    >>> round(a_weighted_level([16.1, 8.6, 3.2, 0.0, -1.2, -1.0, 1.1]), 3)
+    8.451
+    """
     x = np.asarray(octave_db, dtype=np.float64) + np.asarray(A_WEIGHTING_DB)
     return float(10 * np.log10(np.sum(10 ** (x / 10))))
 
@@ -253,10 +397,24 @@ def masking_factors(total_db, *, threshold: bool = True) -> np.ndarray:
     threshold : bool
         Include the reception threshold.
 
+    Returns
+    -------
+    ndarray, shape (7,)
+        The factor per octave the modulation transfer is multiplied by, 0…1.
+
     References
     ----------
     IEC 60268-16:2011, A.2.3–A.2.4 (auditory masking, absolute reception threshold) —
     from memory.
+
+    Examples
+    --------
+    Nothing masks the 125 Hz band; at 60 dB the masking slope of this module's table is
+    0.5·60 − 65 = −35 dB, so every higher band keeps 1 / (1 + 10^(−3.5)) = 0.999684:
+
+    >>> np.round(masking_factors([60.0] * 7, threshold=False), 6)
+    array([1.      , 0.999684, 0.999684, 0.999684, 0.999684, 0.999684,
+           0.999684])
     """
     L = np.asarray(total_db, dtype=np.float64)
     i = 10 ** (L / 10)
@@ -268,14 +426,67 @@ def masking_factors(total_db, *, threshold: bool = True) -> np.ndarray:
 
 # --- the index ----------------------------------------------------------------------------
 def transmission_index(m) -> np.ndarray:
-    """TI = (SNR_eff + 15) / 30 with SNR_eff = 10 lg(m / (1 − m)) clipped to ±15 dB."""
+    """TI = (SNR_eff + 15) / 30 with SNR_eff = 10 lg(m / (1 − m)) clipped to ±15 dB.
+
+    Parameters
+    ----------
+    m : float or array
+        Modulation transfer values, 0…1.
+
+    Returns
+    -------
+    ndarray
+        Transmission index per value, 0…1.
+
+    References
+    ----------
+    IEC 60268-16:2011, Annex A (effective signal-to-noise ratio, transmission index).
+
+    Examples
+    --------
+    m = 0.5 is SNR_eff = 0 dB (TI 0.5); m = 10/11 is 10 dB (TI 25/30); m = 0.99 is 20 dB,
+    clipped to 15 dB (TI 1):
+
+    >>> np.round(transmission_index([0.5, 10 / 11, 0.99]), 4)
+    array([0.5   , 0.8333, 1.    ])
+    """
     m = np.clip(np.asarray(m, dtype=np.float64), 1e-12, 1 - 1e-12)
     snr = np.clip(10 * np.log10(m / (1 - m)), -SNR_CLIP_DB, SNR_CLIP_DB)
     return (snr + SNR_CLIP_DB) / (2 * SNR_CLIP_DB)
 
 
 def sti_from_mti(mti, voice: str = "male") -> float:
-    """STI = Σ α_k MTI_k − Σ β_k √(MTI_k · MTI_k+1) (IEC 60268-16:2011, A.2.6)."""
+    """STI = Σ α_k MTI_k − Σ β_k √(MTI_k · MTI_k+1) (IEC 60268-16:2011, A.2.6).
+
+    Parameters
+    ----------
+    mti : sequence of 7 floats
+        Modulation transmission index per octave 125 Hz → 8 kHz, 0…1.
+    voice : {"male", "female"}
+        Which weighting factors α and redundancy factors β to use.
+
+    Returns
+    -------
+    float
+        The speech transmission index (not clipped to 0…1).
+
+    Raises
+    ------
+    InputError
+        For an unknown ``voice``.
+
+    References
+    ----------
+    IEC 60268-16:2011, A.2.6 and Table A.1 (weighting and redundancy factors) — factors
+    from memory.
+
+    Examples
+    --------
+    Σα − Σβ = 1 for both voices, so an equal MTI in every octave is the STI itself:
+
+    >>> round(sti_from_mti([0.5] * 7), 6), round(sti_from_mti([0.5] * 7, "female"), 6)
+    (0.5, 0.5)
+    """
     if voice not in ALPHA:
         raise InputError(f"voice {voice!r} is not one of male, female")
     m = np.asarray(mti, dtype=np.float64)
@@ -284,7 +495,29 @@ def sti_from_mti(mti, voice: str = "male") -> float:
 
 
 def qualification_band(sti: float | None) -> str | None:
-    """The letter of IEC 60268-16:2011 Annex F (Table F.1) for an STI value."""
+    """The letter of IEC 60268-16:2011 Annex F (Table F.1) for an STI value.
+
+    Parameters
+    ----------
+    sti : float or None
+        Speech transmission index.
+
+    Returns
+    -------
+    str or None
+        "A+", "A" … "J", or "U" below the lowest band; None for None.
+
+    References
+    ----------
+    IEC 60268-16:2011, Annex F, Table F.1 (qualification bands).
+
+    Examples
+    --------
+    0.50 lies in G (0.48 up to 0.52); 0.80 is above the A+ limit 0.76:
+
+    >>> qualification_band(0.50), qualification_band(0.80), qualification_band(None)
+    ('G', 'A+', None)
+    """
     if sti is None:
         return None
     for letter, low in QUALIFICATION_BANDS:
@@ -332,11 +565,33 @@ def speech_transmission_index(
         Apply auditory masking and the reception threshold (the standard's procedure);
         False only for comparison with the plain noise-free formula.
 
+    Returns
+    -------
+    StiResult
+        The value clipped to 0…1, MTI per octave, band letter, method and warnings.
+
+    Raises
+    ------
+    InputError
+        When ``mtf``, ``speech_db`` or ``noise_db`` has the wrong shape or non-finite
+        values, or ``voice`` is unknown.
+
     References
     ----------
     IEC 60268-16:2011, Sound system equipment — Part 16: Objective rating of speech
     intelligibility by speech transmission index, Annex A (indirect method, masking,
     threshold, weighting) — constants from memory as marked in this module.
+
+    Examples
+    --------
+    A room that keeps all modulation, with noise as loud as the speech in every octave:
+    m = 1 · 1/(1 + 10⁰) = 0.5, so SNR_eff = 0 dB, TI = MTI = 0.5 and (Σα − Σβ = 1) STI 0.5:
+
+    >>> r = speech_transmission_index(
+    ...     np.ones((7, 14)), noise_db=speech_spectrum(60.0), masking=False
+    ... )
+    >>> round(r.value, 6), r.band
+    (0.5, 'G')
     """
     m = np.asarray(mtf, dtype=np.float64)
     n_mod = 2 if stipa else len(MODULATION_HZ)
@@ -446,6 +701,27 @@ def sti_of_response(
     None, ``reason`` says why); below :data:`CAUTION_INR_DB` it carries a warning. A rate
     too low for the 8 kHz octave gives no value either.
 
+    Parameters
+    ----------
+    h : ndarray, shape (samples,)
+        The room impulse response, one channel, full-scale units.
+    rate : int
+        Sample rate, Hz; 32 kHz or more for the 8 kHz octave.
+    speech_db, noise_db, voice, stipa
+        As in :func:`speech_transmission_index`.
+
+    Returns
+    -------
+    StiResult
+        The value, or None with the reason.
+
+    Raises
+    ------
+    InputError
+        When the response is silent or holds NaN or infinite samples.
+    ValueError
+        When ``h`` is not one channel.
+
     References
     ----------
     IEC 60268-16:2011, Annex A.
@@ -453,6 +729,25 @@ def sti_of_response(
     Acustica 49, 179–182.
     Lundeby, A., Vigran, T. E., Bietz, H., Vorländer, M. (1995). Uncertainties of
     measurements in room acoustics. Acustica 81, 344–355.
+
+    Examples
+    --------
+    A synthetic exponential decay (T = 0.5 s, noise floor 120 dB down) lands within the
+    JND 0.03 of the closed form m(F) = 1/√(1 + (2πFT/13.8155)²) in every octave:
+
+    >>> rate, T = 32000, 0.5
+    >>> t = np.arange(rate) / rate
+    >>> rng = np.random.default_rng(1)
+    >>> h = rng.standard_normal(rate) * 10 ** (-3 * t / T) + 1e-6 * rng.standard_normal(rate)
+    >>> closed = speech_transmission_index(np.tile(exponential_mtf(MODULATION_HZ, T), (7, 1)))
+    >>> abs(sti_of_response(h, rate).value - closed.value) < JND
+    True
+
+    At 16 kHz the 8 kHz octave does not fit, so there is no value, only the reason:
+
+    >>> r = sti_of_response(np.r_[1.0, np.zeros(99)], 16000)
+    >>> r.value is None, r.reason.startswith("the 8 kHz octave does not fit")
+    (True, True)
     """
     h = np.asarray(h, dtype=np.float64)
     if h.ndim != 1:
@@ -512,6 +807,33 @@ class SpeechConditions:
     ``speech_db`` and ``noise_db`` are octave levels 125 Hz → 8 kHz at the listener (dB SPL);
     ``noise_db`` None means no background noise. ``origin`` says in words where the levels
     came from (for the document's settings).
+
+    Attributes
+    ----------
+    speech_db : tuple of 7 floats
+        Speech octave levels at the listener, dB SPL.
+    noise_db : tuple of 7 floats or None
+        Background noise octave levels, dB SPL; None for no noise.
+    voice : {"male", "female"}
+        Band weighting of the STI.
+    stipa : bool
+        Use the STIPA modulation frequencies.
+    origin : str
+        Where the levels came from, in words.
+    source_files : tuple of str
+        Files the levels were read from; no output may replace them.
+
+    References
+    ----------
+    IEC 60268-16:2011, Table A.2 (male speech spectrum) — from memory.
+
+    Examples
+    --------
+    >>> c = SpeechConditions.from_level(60.0)
+    >>> c.speech_db
+    (62.9, 62.9, 59.2, 53.2, 47.2, 41.2, 35.2)
+    >>> c.as_dict()["noise_octaves_db"] is None
+    True
     """
 
     speech_db: tuple[float, ...]
@@ -533,6 +855,26 @@ class SpeechConditions:
         origin: str = "",
         source_files: tuple[str, ...] = (),
     ) -> SpeechConditions:
+        """Conditions for male-spectrum speech at an A-weighted level.
+
+        Parameters
+        ----------
+        level_dba : float
+            A-weighted speech level at the listener, dB(A), 20…120.
+        noise_db : sequence of 7 floats, optional
+            Background noise octave levels 125 Hz → 8 kHz, dB SPL (−150…150).
+        voice, stipa, origin, source_files
+            As the attributes of the same names.
+
+        Returns
+        -------
+        SpeechConditions
+
+        Raises
+        ------
+        InputError
+            For an unknown voice, a level outside 20…120 dB(A) or unusable noise levels.
+        """
         if voice not in ALPHA:
             raise InputError(f"voice {voice!r} is not one of male, female")
         if not np.isfinite(level_dba) or not 20.0 <= level_dba <= 120.0:
@@ -550,6 +892,15 @@ class SpeechConditions:
         return cls(speech, noise, voice, stipa, origin, tuple(source_files))
 
     def as_dict(self) -> dict:
+        """The conditions as JSON-ready values for the analysis document's settings.
+
+        Returns
+        -------
+        dict
+            Edition, speech and noise levels (octaves and A-weighted, rounded to 0.01 dB),
+            voice, STIPA, origin, the octave centres, the INR limit and where the
+            constants come from.
+        """
         return {
             "edition": EDITION,
             "speech_level_dba": round(a_weighted_level(self.speech_db), 2),
@@ -572,7 +923,32 @@ class SpeechConditions:
 
 
 def sti_entry(h: np.ndarray, rate: int, cond: SpeechConditions) -> dict:
-    """The ``sti`` object of one position in the analysis document."""
+    """The ``sti`` object of one position in the analysis document.
+
+    Parameters
+    ----------
+    h : ndarray, shape (samples,)
+        The room impulse response, one channel.
+    rate : int
+        Sample rate, Hz.
+    cond : SpeechConditions
+        Speech, noise, voice and STIPA choice.
+
+    Returns
+    -------
+    dict
+        :meth:`StiResult.as_dict` of :func:`sti_of_response`.
+
+    References
+    ----------
+    IEC 60268-16:2011, Annex A (indirect method).
+
+    Examples
+    --------
+    >>> e = sti_entry(np.r_[1.0, np.zeros(99)], 16000, SpeechConditions.from_level())
+    >>> e["value"], e["band"]
+    (None, None)
+    """
     return sti_of_response(
         h,
         rate,
@@ -585,7 +961,34 @@ def sti_entry(h: np.ndarray, rate: int, cond: SpeechConditions) -> dict:
 
 def average_sti(entries: list[dict]) -> dict:
     """Mean, spread and minimum of the positions' STI values; null with the reason when no
-    position has one. The letter belongs to the mean."""
+    position has one. The letter belongs to the mean.
+
+    Parameters
+    ----------
+    entries : list of dict or None
+        The positions' ``sti`` objects (:func:`sti_entry`); those without a value count as
+        missing.
+
+    Returns
+    -------
+    dict
+        ``value`` (mean), ``std`` (sample standard deviation, None for one position),
+        ``min``, ``n``, ``band``, ``warnings`` and ``reason``.
+
+    References
+    ----------
+    Galbrun, L., Kitapci, K. (2014), Applied Acoustics: the JND of the STI, 0.03 — from
+    memory.
+
+    Examples
+    --------
+    Mean 0.55 (band F, 0.52 up to 0.56), standard deviation 0.1/√2 = 0.0707, more than
+    the JND, so a warning:
+
+    >>> a = average_sti([{"value": 0.5}, {"value": 0.6}])
+    >>> a["value"], a["std"], a["min"], a["band"], len(a["warnings"])
+    (0.55, 0.0707, 0.5, 'F', 1)
+    """
     values = [e["value"] for e in entries if e is not None and e.get("value") is not None]
     missing = len(entries) - len(values)
     warnings = []
@@ -625,6 +1028,40 @@ def octave_levels(x: np.ndarray, rate: int, full_scale_sine_db: float) -> np.nda
 
     ``full_scale_sine_db`` is the sound pressure level a full-scale sine (peak 1.0, 0 dBFS
     in the AES17 sense) represents in the recording's channel.
+
+    Parameters
+    ----------
+    x : ndarray, shape (samples,)
+        The noise recording, one channel, at least 0.5 s, full-scale units.
+    rate : int
+        Sample rate, Hz; 32 kHz or more.
+    full_scale_sine_db : float
+        Calibration: dB SPL of a full-scale sine.
+
+    Returns
+    -------
+    ndarray, shape (7,)
+        Octave levels, dB SPL.
+
+    Raises
+    ------
+    InputError
+        For a recording too short, silent in an octave or at too low a rate.
+
+    References
+    ----------
+    AES17, AES standard method for digital audio engineering — Measurement of digital audio
+    equipment (full-scale amplitude, 0 dBFS) — from memory.
+
+    Examples
+    --------
+    A full-scale 1 kHz sine with the calibration 94 dB reads 94 dB in the 1 kHz octave
+    (mean square 1/2 is 0 dB re a full-scale sine):
+
+    >>> rate = 32000
+    >>> x = np.sin(2 * np.pi * 1000.0 * np.arange(rate) / rate)
+    >>> round(float(octave_levels(x, rate, 94.0)[3]), 2)
+    94.0
     """
     x = np.asarray(x, dtype=np.float64)
     if x.ndim != 1 or x.size < rate // 2:

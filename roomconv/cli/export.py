@@ -11,6 +11,20 @@ __all__ = ["COMMANDS"]
 
 
 def run_export(a):
+    """Run ``roomconv export``: the responses given (or a study file's) written as one SOFA
+    file (AES69-2022) through :func:`roomconv.jobs.export.export_responses`, with a note for
+    every response padded to the common length and one line naming what was written.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     res = export_responses(
         a.responses,
         a.output,
@@ -38,6 +52,7 @@ def run_export(a):
 
 
 def configure_export(p):
+    """Add the options of ``roomconv export`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "responses",
         nargs="*",

@@ -18,6 +18,16 @@ def _v(x, spec="{:.2f}"):
 
 
 def show_office(doc: dict) -> None:
+    """Print the office document: a table of positions (distance, speech level, STI and
+    its band), each position's STI warnings, then D2,S, Lp,A,S,4m, rD, rC and rP, each
+    value or "not evaluable" with its reason, and the regressions' warnings.
+
+    Parameters
+    ----------
+    doc : dict
+        The document of :func:`roomconv.jobs.office.office_study` (``positions`` and
+        ``office``).
+    """
     rows = [
         [
             f"{p['source']}-{p['receiver']}",
@@ -57,6 +67,20 @@ def show_office(doc: dict) -> None:
 
 
 def run_office(a):
+    """Run ``roomconv office``: an open-plan office line of positions (ISO 3382-3:2022) from
+    a study file through :func:`roomconv.jobs.office.office_study`, shown as a table with
+    the single numbers, the cautions printed, and written as JSON and a report when asked.
+
+    Parameters
+    ----------
+    a : argparse.Namespace
+        The parsed options of the command.
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success (a refused input raises and exits with 2).
+    """
     with progress_bar("office", quiet=a.quiet) as progress:
         res = office_study(
             a.study,
@@ -75,6 +99,7 @@ def run_office(a):
 
 
 def configure_office(p):
+    """Add the options of ``roomconv office`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "study",
         type=Path,

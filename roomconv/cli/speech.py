@@ -113,6 +113,15 @@ def _fmt(v) -> str:
 
 
 def print_cautions(doc: dict, a) -> None:
+    """Print the document's ``cautions`` (if any), one line each, prefixed ``caution:``.
+
+    Parameters
+    ----------
+    doc : dict
+        An analysis or office document.
+    a : argparse.Namespace
+        The parsed options (``--quiet`` silences the lines).
+    """
     for c in doc.get("cautions", []):
         out(f"caution: {c}", a)
 
