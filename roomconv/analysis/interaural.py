@@ -246,6 +246,21 @@ def interaural_correlation(
     fraction, and low- and high-frequency sound levels as measures of acoustical quality in
     concert halls. J. Acoust. Soc. Am. 98, 988–1007 (1 − IACC_E3).
     ISO 3382-1:2009, Annex B (from memory).
+
+    Examples
+    --------
+    Identical ears correlate fully: IACF(0) = ∫p²/∫p² = 1, so every window's IACC is 1 in
+    each octave it is given in (closed form); the 63 Hz octave is outside 125 Hz–4 kHz.
+
+    >>> rate = 16000
+    >>> t = np.arange(rate // 2) / rate
+    >>> h = np.random.default_rng(1).standard_normal(t.size) * 0.05 * 10 ** (-3 * t / 0.4)
+    >>> h[50] = 1.0
+    >>> rows = interaural_correlation(h, h, rate)
+    >>> {r.band_hz: round(r.values["iacc_early"], 6) for r in rows if r.band_hz >= 500}
+    {500.0: 1.0, 1000.0: 1.0, 2000.0: 1.0, 4000.0: 1.0}
+    >>> [r.values["iacc_full"] for r in rows if r.band_hz == 63.0]
+    [None]
     """
     left = np.asarray(left, dtype=np.float64)
     right = np.asarray(right, dtype=np.float64)
@@ -276,8 +291,34 @@ def interaural_correlation(
 
 
 def interaural_single_numbers(rows: list[JudgedRow]) -> dict:
-    """1 − IACC_E3: one minus the mean early IACC of the 500 Hz, 1 kHz and 2 kHz octaves
-    (Hidaka, Beranek & Okano 1995; ISO 3382-1:2009, Annex B — from memory)."""
+    """1 − IACC_E3: one minus the mean early IACC of the 500 Hz, 1 kHz and 2 kHz octaves.
+
+    Parameters
+    ----------
+    rows : list of JudgedRow
+        The octave rows of :func:`interaural_correlation`.
+
+    Returns
+    -------
+    dict
+        ``values`` (``one_minus_iacc_e3``; None when one of the three octaves has no early
+        IACC), ``verdicts`` (the worst of the three) and ``reasons``.
+
+    References
+    ----------
+    Hidaka, T., Beranek, L. L., Okano, T. (1995). J. Acoust. Soc. Am. 98, 988–1007
+    (1 − IACC_E3). ISO 3382-1:2009, Annex B (from memory).
+
+    Examples
+    --------
+    Early IACC 0.4, 0.5 and 0.6: 1 − (0.4 + 0.5 + 0.6)/3 = 0.5.
+
+    >>> rows = [JudgedRow(f, values={"iacc_early": v}).finish(KEYS)
+    ...         for f, v in ((500.0, 0.4), (1000.0, 0.5), (2000.0, 0.6))]
+    >>> out = interaural_single_numbers(rows)
+    >>> round(out["values"]["one_minus_iacc_e3"], 12), out["verdicts"]["one_minus_iacc_e3"]
+    (0.5, 'ok')
+    """
     v, verdict, why = band_average(rows, "iacc_early", E3_BANDS[0], E3_BANDS[-1])
     out: dict = {
         "values": {"one_minus_iacc_e3": None if v is None else 1.0 - v},

@@ -74,7 +74,32 @@ MIN_DIRECTION_STRENGTH = 0.5
 
 @dataclass
 class AmbisonicSplit:
-    """Omni and lateral figure-of-eight derived from a first-order ambisonic response."""
+    """Omni and lateral figure-of-eight derived from a first-order ambisonic response.
+
+    Attributes
+    ----------
+    omni : ndarray, 1-D
+        The W channel.
+    fig8 : ndarray, 1-D
+        The horizontal figure-of-eight at 90° to the source, Y·cos φ − X·sin φ.
+    source_azimuth_deg : float
+        φ, the direct sound's horizontal direction, degrees (counter-clockwise from +X).
+    cautions : list of (str, str)
+        (code, text) of each doubt about the direction or the normalization.
+
+    Examples
+    --------
+    Source straight ahead (+X), one reflection of amplitude 0.5 from the left (+Y) 20 ms
+    later: SN3D gives Y = p·sin 90° there, so the lateral channel carries the reflection's
+    full amplitude and nothing of the direct sound.
+
+    >>> rate = 8000
+    >>> w = np.zeros(800); w[10], w[170] = 1.0, 0.5
+    >>> y = np.zeros(800); y[170] = 0.5
+    >>> split = fig8_from_ambisonic(np.stack([w, y, 0 * w, w - y], axis=1), rate)
+    >>> split.source_azimuth_deg, float(split.fig8[10]), float(split.fig8[170])
+    (0.0, 0.0, 0.5)
+    """
 
     omni: np.ndarray
     fig8: np.ndarray
@@ -432,7 +457,43 @@ def _gain_check(omni: np.ndarray, fig8: np.ndarray, onset: int, rate: int) -> st
 
 
 def wideband_fractions(omni: np.ndarray, fig8: np.ndarray, rate: int) -> tuple[float, float]:
-    """Unfiltered J_LF and J_LFC (no noise removed): the closed-form check's quantity."""
+    """Unfiltered J_LF and J_LFC (no noise removed): the closed-form check's quantity.
+
+    J_LF = Σ₅⁸⁰ p_L² / Σ₀⁸⁰ p², J_LFC = Σ₅⁸⁰ |p_L·p| / Σ₀⁸⁰ p² over the whole band, times in
+    ms from the omni's onset.
+
+    Parameters
+    ----------
+    omni, fig8 : ndarray, 1-D, same length
+        The two channels, recorded together.
+    rate : int
+        Sample rate, Hz.
+
+    Returns
+    -------
+    jlf, jlfc : float
+
+    References
+    ----------
+    Barron, M., Marshall, A. H. (1981). J. Sound Vib. 77, 211–232 (lateral fraction).
+    Kleiner, M. (1989). Applied Acoustics 27, 321–327 (J_LFC — from memory).
+    ISO 3382-1:2009, Annex A (from memory).
+
+    Examples
+    --------
+    Direct sound and one reflection of amplitude a = 0.5 from the lateral axis (θ = 0):
+    J_LF = a²cos²θ/(1 + a²) = 0.25/1.25 = 0.2 and J_LFC = a²|cos θ|/(1 + a²) = 0.2 (closed
+    form). The same reflection 3 ms after the direct sound is before the 5 ms limit: 0.
+
+    >>> p, pl = np.zeros(4000), np.zeros(4000)
+    >>> p[50], p[50 + 160], pl[50 + 160] = 1.0, 0.5, 0.5  # 20 ms at 8 kHz
+    >>> [round(v, 12) for v in wideband_fractions(p, pl, 8000)]
+    [0.2, 0.2]
+    >>> p, pl = np.zeros(4000), np.zeros(4000)
+    >>> p[50], p[50 + 24], pl[50 + 24] = 1.0, 0.5, 0.5  # 3 ms
+    >>> wideband_fractions(p, pl, 8000)
+    (0.0, 0.0)
+    """
     omni = np.asarray(omni, dtype=np.float64)
     fig8 = np.asarray(fig8, dtype=np.float64)
     check_same_shape({"omni": omni, "figure-of-eight": fig8})
@@ -446,8 +507,34 @@ def wideband_fractions(omni: np.ndarray, fig8: np.ndarray, rate: int) -> tuple[f
 
 
 def lateral_single_numbers(rows: list[JudgedRow]) -> dict:
-    """J_LF, J_LFC and L_J averaged over the octaves 125 Hz–1 kHz (ISO 3382-1:2009, Annex A —
-    from memory), with verdicts and the reason for a null."""
+    """J_LF, J_LFC and L_J averaged over the octaves 125 Hz–1 kHz, with verdicts and the
+    reason for a null.
+
+    Parameters
+    ----------
+    rows : list of JudgedRow
+        The octave rows of :func:`lateral_fractions`.
+
+    Returns
+    -------
+    dict
+        ``values`` (``jlf_avg``, ``jlfc_avg``, ``lj_avg_db``; None when a band has no value),
+        ``verdicts`` (the worst of the bands') and ``reasons``.
+
+    References
+    ----------
+    ISO 3382-1:2009, Annex A (averages over 125 Hz–1 kHz — from memory).
+
+    Examples
+    --------
+    >>> rows = [JudgedRow(f, values={"jlf": v, "jlfc": 2 * v}).finish(KEYS)
+    ...         for f, v in ((125.0, 0.1), (250.0, 0.2), (500.0, 0.3), (1000.0, 0.4))]
+    >>> out = lateral_single_numbers(rows)
+    >>> {k: None if v is None else round(v, 12) for k, v in out["values"].items()}
+    {'jlf_avg': 0.25, 'jlfc_avg': 0.5, 'lj_avg_db': None}
+    >>> out["verdicts"]["jlf_avg"], out["verdicts"]["lj_avg_db"]
+    ('ok', 'not evaluable')
+    """
     out: dict = {"values": {}, "verdicts": {}, "reasons": {}}
     for key, name in (("jlf", "jlf_avg"), ("jlfc", "jlfc_avg"), ("lj_db", "lj_avg_db")):
         v, verdict, why = band_average(rows, key, *AVERAGED)

@@ -47,6 +47,28 @@ class ChannelLayout:
     ``kind``: "lateral" (omni and figure-of-eight; ``omni``/``fig8`` their indices),
     "ambisonic" (ACN/SN3D first order), "binaural" (left, right) or "stage" (every channel
     a response 1 m from the source on stage, each its own position).
+
+    Parameters
+    ----------
+    kind : {"lateral", "ambisonic", "binaural", "stage"}
+        What the channels hold.
+    omni, fig8 : int
+        For "lateral": the channel index (from 0) of the omnidirectional and of the
+        figure-of-eight channel.
+
+    References
+    ----------
+    ISO 3382-1:2009, Annexes A (lateral, figure-of-eight with its null towards the source),
+    B (binaural) and C (stage) — from memory. Nachbar, C. et al. (2011). AmbiX — a suggested
+    ambisonics format (ACN channel order, SN3D normalization).
+
+    Examples
+    --------
+    >>> lay = parse_layout("fig8,omni")
+    >>> lay.kind, lay.omni, lay.fig8, lay.channels, lay.text
+    ('lateral', 1, 0, 2, 'fig8,omni')
+    >>> lay.mono_channels(2)  # the ISO 3382 parameters come from the omni
+    [1]
     """
 
     kind: str
@@ -55,10 +77,26 @@ class ChannelLayout:
 
     @property
     def channels(self) -> int | None:
+        """Channels a file of this layout must hold; None for "stage" (any number, each
+        channel its own position).
+
+        Examples
+        --------
+        >>> ChannelLayout("ambisonic").channels, ChannelLayout("stage").channels
+        (4, None)
+        """
         return {"lateral": 2, "ambisonic": 4, "binaural": 2}.get(self.kind)
 
     @property
     def text(self) -> str:
+        """The layout as the short text :func:`parse_layout` accepts (or "left,right" and
+        "stage" for the two layouts chosen by a switch).
+
+        Examples
+        --------
+        >>> ChannelLayout("lateral").text, ChannelLayout("binaural").text
+        ('omni,fig8', 'left,right')
+        """
         if self.kind == "lateral":
             return LATERAL_ORDERS[0] if self.omni == 0 else LATERAL_ORDERS[1]
         return {"ambisonic": AMBISONIC, "binaural": "left,right", "stage": "stage"}[self.kind]
@@ -112,7 +150,33 @@ def parse_layout(
 ) -> ChannelLayout | None:
     """The layout asked for, or None (every channel its own position).
 
-    ``channels``: "omni,fig8", "fig8,omni" or "acn-sn3d".
+    Parameters
+    ----------
+    channels : str, optional
+        "omni,fig8", "fig8,omni" (the channel order of a lateral pair) or "acn-sn3d"
+        (first-order ambisonic); case and spaces are ignored.
+    binaural : bool
+        The two channels are the left and right ear.
+    stage : bool
+        Every channel is a stage response 1 m from the source.
+
+    Returns
+    -------
+    ChannelLayout or None
+
+    Raises
+    ------
+    InputError
+        More than one layout asked for, or an unknown ``channels`` text.
+
+    Examples
+    --------
+    >>> parse_layout("ACN-SN3D")
+    ChannelLayout(kind='ambisonic', omni=0, fig8=1)
+    >>> parse_layout(binaural=True).text
+    'left,right'
+    >>> parse_layout() is None
+    True
     """
     asked = [x for x in (channels is not None, binaural, stage) if x]
     if len(asked) > 1:
@@ -173,7 +237,47 @@ def extend_position(
     position: dict, layout: ChannelLayout, data: np.ndarray, rate: int, ch: int, calibration
 ) -> None:
     """Add the layout's parameters to a position's band rows (null where they do not apply,
-    with the verdicts and warning codes the other values get) and its single numbers."""
+    with the verdicts and warning codes the other values get) and its single numbers.
+
+    Parameters
+    ----------
+    position : dict
+        One position of the analysis document: ``"bands"`` (rows with ``band_hz``,
+        ``warning_codes`` and ``warnings``) and ``"wideband"``. Changed in place.
+    layout : ChannelLayout
+    data : ndarray, shape (samples, channels)
+        The file's channels.
+    rate : int
+        Sample rate, Hz.
+    ch : int
+        The channel of this position (used by the "stage" layout).
+    calibration : StrengthReference or None
+        As for G; without it L_J is null with the reason.
+
+    References
+    ----------
+    ISO 3382-1:2009, Annexes A–C (from memory), through
+    :func:`~roomconv.analysis.lateral.lateral_fractions`,
+    :func:`~roomconv.analysis.interaural.interaural_correlation` and
+    :func:`~roomconv.analysis.stage.stage_support`.
+
+    Examples
+    --------
+    Direct sound and one reflection of relative amplitude a = 0.5 from θ = 60° off the
+    lateral axis, 20 ms later: J_LF = a²cos²θ/(1 + a²) = 0.0625·0.25/1.25 = 0.05 (closed form,
+    Barron & Marshall 1981's definition).
+
+    >>> rate, a, th = 16000, 0.5, np.radians(60)
+    >>> p, pl = np.zeros(rate // 2), np.zeros(rate // 2)
+    >>> p[100], p[420], pl[420] = 1.0, a, a * np.cos(th)
+    >>> pos = {"bands": [{"band_hz": f, "warning_codes": [], "warnings": []}
+    ...                  for f in (63.0, 500.0)], "wideband": {}}
+    >>> extend_position(pos, parse_layout("omni,fig8"), np.stack([p, pl], 1), rate, 0, None)
+    >>> pos["layout"], [b["jlf"] if b["jlf"] is None else round(b["jlf"], 2) for b in pos["bands"]]
+    ('omni,fig8', [None, 0.05])
+    >>> pos["layout_notes"][0]
+    'J_LF, J_LFC and L_J are given in the octaves 125 Hz–4 kHz only'
+    """
     rows, single, cautions = _compute(layout, data, rate, ch, calibration)
     keys = LAYOUT_KEYS[layout.kind]
     by_band = {r.band_hz: r for r in rows}
@@ -217,7 +321,41 @@ def _merge(d: dict, r: JudgedRow, keys, notes: list[str]) -> None:
 
 def average_layout(positions: list[dict], average_bands: list[dict]) -> dict | None:
     """Per-band means of the layout's parameters over positions (added to the average's band
-    rows) and the mean of each position single number; None when no position has them."""
+    rows) and the mean of each position single number; None when no position has them.
+
+    Parameters
+    ----------
+    positions : list of dict
+        Positions after :func:`extend_position`.
+    average_bands : list of dict
+        The average's band rows (``band_hz``); each gets, per layout key, a dict with
+        ``mean``, ``std`` (sample standard deviation, None for one value), ``n`` and
+        ``verdict`` (a caution when any value averaged had one). Changed in place.
+
+    Returns
+    -------
+    dict or None
+        ``values``, ``verdicts`` and ``n`` of the single numbers, by name.
+
+    Examples
+    --------
+    Two positions' ST_early, −12 and −14 dB: mean −13 dB, sample standard deviation
+    sqrt(((−12+13)² + (−14+13)²)/1) = sqrt(2) dB.
+
+    >>> pos = [{"layout": "stage",
+    ...         "bands": [{"band_hz": 500.0, "st_early_db": v, "verdicts": {}}],
+    ...         "layout_single_numbers": {"st_early_avg_db": v},
+    ...         "layout_single_number_verdicts": {"st_early_avg_db": "ok"}}
+    ...        for v in (-12.0, -14.0)]
+    >>> avg_bands = [{"band_hz": 500.0}]
+    >>> average_layout(pos, avg_bands)["values"]
+    {'st_early_avg_db': -13.0}
+    >>> s = avg_bands[0]["st_early_db"]
+    >>> s["mean"], round(s["std"] ** 2, 12), s["n"], s["verdict"]
+    (-13.0, 2.0, 2, 'ok')
+    >>> average_layout([{"bands": []}], avg_bands) is None
+    True
+    """
     with_layout = [p for p in positions if "layout" in p]
     if not with_layout:
         return None
@@ -285,14 +423,52 @@ SINGLE_NAMES = {
 
 
 def keys_of(doc: dict) -> tuple[str, ...]:
-    """The layout parameter keys present in a document's positions, in table order."""
+    """The layout parameter keys present in a document's positions, in table order.
+
+    Parameters
+    ----------
+    doc : dict
+        The analysis document (``"positions"``, each with ``"bands"`` rows).
+
+    Returns
+    -------
+    tuple of str
+
+    Examples
+    --------
+    >>> keys_of({"positions": [{"bands": [{"band_hz": 500.0, "jlf": 0.2,
+    ...                                    "st_early_db": -12.0}]}]})
+    ('st_early_db', 'jlf')
+    >>> keys_of({})
+    ()
+    """
     present = {k for p in doc.get("positions", []) for r in p["bands"] for k in r}
     return tuple(k for k in HEADERS if k in present)
 
 
 def layout_table(position: dict) -> tuple[list[str], list[list[str]]]:
     """(headers, rows) of one position's layout parameters; ``*`` marks a caution, — a value
-    not evaluable."""
+    not evaluable.
+
+    Parameters
+    ----------
+    position : dict
+        A position with ``"bands"`` rows holding the layout keys and their ``verdicts``.
+
+    Returns
+    -------
+    headers : list of str
+    rows : list of list of str
+        One row of text cells per band, the band first.
+
+    Examples
+    --------
+    >>> pos = {"bands": [
+    ...     {"band_hz": 500.0, "st_early_db": -12.04, "verdicts": {"st_early_db": "caution"}},
+    ...     {"band_hz": 1000.0, "st_early_db": None, "verdicts": {}}]}
+    >>> layout_table(pos)
+    (['band', 'ST_early dB'], [['500', '-12.0*'], ['1k', '—']])
+    """
     keys = [k for k in HEADERS if any(k in r for r in position["bands"])]
     rows = []
     for r in position["bands"]:
@@ -306,7 +482,30 @@ def layout_table(position: dict) -> tuple[list[str], list[list[str]]]:
 
 
 def single_number_lines(values: dict, verdicts: dict, reasons: dict | None = None) -> list[str]:
-    """The layout single numbers in words, with units, verdicts and reasons for a null."""
+    """The layout single numbers in words, with units, verdicts and reasons for a null.
+
+    Parameters
+    ----------
+    values : dict
+        Single numbers by name (``jlf_avg``, ``st_early_avg_db``, …); None when not evaluable.
+    verdicts : dict
+        Their verdicts ("ok", "caution", "not evaluable").
+    reasons : dict, optional
+        Why a value is None, by name.
+
+    Returns
+    -------
+    list of str
+
+    Examples
+    --------
+    >>> for line in single_number_lines({"jlf_avg": 0.2, "lj_avg_db": None},
+    ...                                 {"jlf_avg": "caution"}, {"lj_avg_db": "no calibration"}):
+    ...     print(line)
+    Early lateral energy fraction J_LF, mean of 125 Hz–1 kHz: 0.200
+    (caution: see the band warnings)
+    Late lateral sound level L_J, mean of 125 Hz–1 kHz: not evaluable (no calibration)
+    """
     out = []
     for key, v in values.items():
         name, unit, f = SINGLE_NAMES[key]

@@ -471,7 +471,39 @@ def html_report(
 
 def layout_section_html(doc: dict, level: int = 2) -> str:
     """An HTML section with each position's stage, lateral or interaural parameters, their
-    single numbers and notes; empty when the document holds none."""
+    single numbers and notes; empty when the document holds none.
+
+    Parameters
+    ----------
+    doc : dict
+        The analysis document: ``settings`` (its ``channels`` text), ``positions`` (after
+        :func:`~roomconv.analysis.layouts.extend_position`) and optionally ``average``.
+    level : int
+        Heading level of the section (positions get ``level + 1``).
+
+    Returns
+    -------
+    str
+        HTML, every text escaped; "" without layout parameters.
+
+    Examples
+    --------
+    >>> doc = {"settings": {"channels": "stage"}, "positions": [{
+    ...     "file": "stage_a.wav", "layout": "stage",
+    ...     "bands": [{"band_hz": 500.0, "st_early_db": -12.04, "verdicts": {}}],
+    ...     "layout_single_numbers": {"st_early_avg_db": -12.0},
+    ...     "layout_single_number_verdicts": {"st_early_avg_db": "ok"}}]}
+    >>> lines = layout_section_html(doc).splitlines()
+    >>> for line in lines[:3]:
+    ...     print(line)
+    <h2>Stage, lateral and interaural parameters (ISO 3382-1)</h2>
+    <p>stage</p>
+    <h3>stage_a.wav — stage</h3>
+    >>> "<tr><td>500</td><td>-12.0</td></tr>" in lines[3], lines[4]
+    (True, '<ul><li>Early support ST_early, mean of 250 Hz–2 kHz: -12.0 dB</li></ul>')
+    >>> layout_section_html({"positions": []})
+    ''
+    """
     from .layouts import keys_of, layout_table
     from .layouts import single_number_lines as layout_lines
 

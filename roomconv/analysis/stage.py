@@ -165,8 +165,39 @@ def stage_support(
 
 
 def stage_single_numbers(rows: list[JudgedRow]) -> dict:
-    """The 250 Hz–2 kHz octave means of ST_early and ST_late, verdicts and reasons
-    (ISO 3382-1:2009, Annex C — from memory)."""
+    """The 250 Hz–2 kHz octave means of ST_early and ST_late, verdicts and reasons.
+
+    Parameters
+    ----------
+    rows : list of JudgedRow
+        The octave rows of :func:`stage_support`.
+
+    Returns
+    -------
+    dict
+        ``values`` (``st_early_avg_db``, ``st_late_avg_db``, dB; None when a band has no
+        value), ``verdicts`` (the worst of the bands') and ``reasons`` (why a value is None).
+
+    References
+    ----------
+    ISO 3382-1:2009, Annex C (ST averaged over the 250 Hz–2 kHz octaves — from memory).
+    Gade, A. C. (1989). Investigations of musicians' room acoustic conditions in concert
+    halls, part I. Acustica 69, 193–203 (from memory).
+
+    Examples
+    --------
+    The mean of −10, −12, −14 and −16 dB is −13 dB; a band without ST_late leaves its mean
+    null with the reason:
+
+    >>> rows = [JudgedRow(f, values={"st_early_db": e, "st_late_db": -15.0}).finish(KEYS)
+    ...         for f, e in ((250.0, -10.0), (500.0, -12.0), (1000.0, -14.0), (2000.0, -16.0))]
+    >>> rows[3].flag(("st_late_db",), NOT_EVALUABLE, "st_no_energy", "2 kHz: no energy")
+    >>> out = stage_single_numbers(rows)
+    >>> out["values"]
+    {'st_early_avg_db': -13.0, 'st_late_avg_db': None}
+    >>> out["reasons"]
+    {'st_late_avg_db': 'no value in the 2000 Hz band(s)'}
+    """
     out: dict = {"values": {}, "verdicts": {}, "reasons": {}}
     for key, name in (("st_early_db", "st_early_avg_db"), ("st_late_db", "st_late_avg_db")):
         v, verdict, why = band_average(rows, key, ST_BANDS[0], ST_BANDS[-1])

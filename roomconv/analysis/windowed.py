@@ -45,7 +45,36 @@ STATISTICAL = "statistical_uncertainty"
 
 @dataclass
 class JudgedRow:
-    """Values of one band with a verdict each, in the layout of the analysis' band rows."""
+    """Values of one band with a verdict each, in the layout of the analysis' band rows.
+
+    Attributes
+    ----------
+    band_hz : float or None
+        Nominal band centre, Hz; None for the broadband row.
+    values : dict
+        Value by key; None when not evaluable.
+    verdicts : dict
+        "ok", "caution" or "not evaluable" by key.
+    codes : dict
+        Warning codes by key.
+    warning_codes, warnings : list of str
+        Every code and warning text of the row, each once.
+    texts : dict
+        Warning texts by code.
+
+    Examples
+    --------
+    >>> row = JudgedRow(500.0, values={"a": 1.0, "b": 2.0})
+    >>> row.flag(("a",), CAUTION, "demo_caution", "500 Hz: a is doubtful")
+    >>> row.flag(("b",), NOT_EVALUABLE, "demo_null", "500 Hz: b has no value")
+    >>> row = row.finish(("a", "b", "c"))
+    >>> row.values
+    {'a': 1.0, 'b': None, 'c': None}
+    >>> row.verdicts
+    {'a': 'caution', 'b': 'not evaluable', 'c': 'not evaluable'}
+    >>> row.warning_codes
+    ['demo_caution', 'demo_null']
+    """
 
     band_hz: float | None
     values: dict[str, float | None] = field(default_factory=dict)
@@ -90,6 +119,53 @@ class BandSignal:
     ``x`` starts ``zero`` samples before time zero (zeros put in front so that the energy the
     band filter spreads before the direct sound is kept); ``spread`` is how far before time
     zero the early windows reach for it.
+
+    Attributes
+    ----------
+    x : ndarray
+        The band-filtered channel, ``zero`` samples of lead and response.
+    zero : int
+        Sample of ``x`` at time zero.
+    spread : int
+        Samples before time zero the windows from 0 reach back.
+    rate : int
+        Sample rate, Hz.
+    band : Band or None
+        None: the unfiltered channel.
+    noise : float
+        Background noise energy per sample (0 when not noise-limited).
+    noise_dof : float
+        Independent values the noise estimate rests on.
+    end : int
+        Sample of ``x`` where the decay meets the noise (the truncation point).
+    compensation : float
+        Energy of the decay continued past ``end``.
+    decay_rate : float
+        Energy decay rate of the late decay, per sample.
+    inr_db : float
+        Impulse-to-noise ratio, dB.
+    noise_limited : bool
+        A noise floor was found.
+    late_known : bool
+        The energy to the end of the decay is known (noise found, or the response decays far
+        enough before it stops).
+
+    References
+    ----------
+    Lundeby, A. et al. (1995). Uncertainties of measurements in room acoustics. Acustica 81,
+    344–355 (noise floor, truncation, compensation).
+
+    Examples
+    --------
+    Two arrivals, amplitudes 1 and 0.5, 100 ms apart: the energies of the windows before and
+    after 50 ms are 1 and 0.5² = 0.25 (closed form); no noise, so none is removed.
+
+    >>> h = np.zeros(4000); h[100], h[900] = 1.0, 0.5
+    >>> sig = band_signal(h, 8000, None, 100)
+    >>> sig.energy(0.0, 0.05)
+    (1.0, 0.0, 400)
+    >>> round(sig.energy(0.05, None)[0], 12), sig.index(0.1)
+    (0.25, 900)
     """
 
     x: np.ndarray
@@ -174,7 +250,26 @@ class BandSignal:
 
 
 def check_same_shape(channels: dict[str, np.ndarray]) -> None:
-    """Refuse channels of different lengths or shapes (they cannot share a time zero)."""
+    """Refuse channels of different lengths or shapes (they cannot share a time zero).
+
+    Parameters
+    ----------
+    channels : dict of str to ndarray
+        The channels by the name a refusal shows.
+
+    Raises
+    ------
+    InputError
+        A channel is not 1-D, the lengths differ, or a channel holds NaN or infinity.
+
+    Examples
+    --------
+    >>> check_same_shape({"left": np.zeros(4), "right": np.zeros(4)})  # accepted
+    >>> check_same_shape({"left": np.zeros(4), "right": np.zeros(5)})
+    Traceback (most recent call last):
+    ...
+    roomconv.errors.InputError: the channels differ in length (left 4 samples, right 5 samples)...
+    """
     lengths = {k: np.asarray(v).shape for k, v in channels.items()}
     if any(len(s) != 1 for s in lengths.values()):
         raise InputError("each channel must be a 1-D array of samples")
@@ -212,9 +307,25 @@ def band_signal(
         Zero-phase (the values) or one-way (to see how much the filter's time response moves
         a value across a window limit).
 
+    Returns
+    -------
+    BandSignal
+
     References
     ----------
     Lundeby, A. et al. (1995), Acustica 81, 344–355 (noise floor, truncation, compensation).
+
+    Examples
+    --------
+    A band filter is linear: an arrival of half the amplitude carries a quarter of the energy
+    in any band (closed form), here the 1 kHz octave's energies after and before 50 ms.
+
+    >>> from roomconv.analysis.bands import all_bands
+    >>> band = [b for b in all_bands("octave") if b.nominal == 1000.0][0]
+    >>> h = np.zeros(4000); h[100], h[900] = 1.0, 0.5
+    >>> sig = band_signal(h, 8000, band, 100)
+    >>> round(sig.energy(0.05, None)[0] / sig.energy(0.0, 0.05)[0], 2)
+    0.25
     """
     h = np.asarray(h, dtype=np.float64)
     lead = _lead(band, rate)
@@ -268,7 +379,32 @@ def judge_sigma(
     row: JudgedRow, key: str, name: str, sigma: float, jnd: float, unit: str, label: str
 ) -> None:
     """Caution over half a JND of noise-induced uncertainty; no value over three JNDs
-    (the thresholds the other parameters use: common practice)."""
+    (the thresholds the other parameters use: common practice).
+
+    Parameters
+    ----------
+    row : JudgedRow
+        Changed in place.
+    key, name : str
+        The value's key and its name in the warning.
+    sigma : float
+        Standard deviation the noise leaves on the value, in its unit.
+    jnd : float
+        The value's just-noticeable difference, in its unit.
+    unit, label : str
+        Unit text (" dB" or "") and the band label of the warning.
+
+    Examples
+    --------
+    >>> row = JudgedRow(500.0, values={"st": -12.0})
+    >>> judge_sigma(row, "st", "ST", 0.4, 1.0, " dB", "500 Hz")  # ≤ 0.5 JND: nothing
+    >>> judge_sigma(row, "st", "ST", 1.0, 1.0, " dB", "500 Hz")
+    >>> row.verdicts, row.values
+    ({'st': 'caution'}, {'st': -12.0})
+    >>> judge_sigma(row, "st", "ST", 3.5, 1.0, " dB", "500 Hz")  # > 3 JND: no value
+    >>> row.verdicts, row.values
+    ({'st': 'not evaluable'}, {'st': None})
+    """
     if not np.isfinite(sigma) or sigma <= NOISE_SIGMA_CAUTION_JND * jnd:
         return
     if sigma > NOISE_SIGMA_NULL_JND * jnd:
@@ -293,7 +429,33 @@ def judge_statistics(
     row: JudgedRow, key: str, name: str, sigma: float, jnd: float, unit: str, label: str
 ) -> None:
     """Caution when one position's value is uncertain by more than half its JND from the
-    randomness of the diffuse field (never a null: the spatial average reduces it)."""
+    randomness of the diffuse field (never a null: the spatial average reduces it).
+
+    Parameters
+    ----------
+    row : JudgedRow
+        Changed in place.
+    key, name : str
+        The value's key and its name in the warning.
+    sigma : float
+        Standard deviation of one position's value, in its unit.
+    jnd : float
+        The value's just-noticeable difference, in its unit.
+    unit, label : str
+        Unit text and the band label of the warning.
+
+    References
+    ----------
+    Bendat, J. S., Piersol, A. G. (2010). Random Data, 4th ed. Wiley (variance of estimates
+    from band-limited random data — from memory).
+
+    Examples
+    --------
+    >>> row = JudgedRow(500.0, values={"jlf": 0.2})
+    >>> judge_statistics(row, "jlf", "J_LF", 0.5, 0.05, "", "500 Hz")  # ten JNDs: still a value
+    >>> row.values, row.verdicts, row.warning_codes
+    ({'jlf': 0.2}, {'jlf': 'caution'}, ['statistical_uncertainty'])
+    """
     if row.values.get(key) is None or not np.isfinite(sigma):
         return
     if sigma > NOISE_SIGMA_CAUTION_JND * jnd:
@@ -320,7 +482,31 @@ def judge_filter(
     """Caution when the band filter's own time response can move a value by more than half
     its JND: a forward and a backwards filter bracket the zero-phase value, and a quarter of
     their difference is taken as the zero-phase filter's remaining spread (the rule the
-    energy ratios use)."""
+    energy ratios use).
+
+    Parameters
+    ----------
+    row : JudgedRow
+        Changed in place.
+    key, name : str
+        The value's key and its name in the warning.
+    forward, reverse : float or None
+        The value with the one-way filter run forwards and backwards in time.
+    jnd : float
+        The value's just-noticeable difference, in its unit.
+    unit, label : str
+        Unit text and the band label of the warning.
+
+    Examples
+    --------
+    A forward/backward difference of 3 dB gives a spread of 3/4 = 0.75 dB, over half of a
+    1 dB JND:
+
+    >>> row = JudgedRow(250.0, values={"st_early_db": -14.0})
+    >>> judge_filter(row, "st_early_db", "ST_early", -15.5, -12.5, 1.0, " dB", "250 Hz")
+    >>> row.verdicts, row.warning_codes
+    ({'st_early_db': 'caution'}, ['st_early_db_filter_sensitive'])
+    """
     if forward is None or reverse is None or row.values.get(key) is None:
         return
     spread = abs(forward - reverse) / 4
@@ -344,7 +530,32 @@ MIN_LEAD_S = 0.0005
 
 def flag_early_start(rows: list[JudgedRow], keys, onset: int, rate: int) -> None:
     """Caution on values whose window starts at time zero when the response holds less than
-    ``MIN_LEAD_S`` before its direct sound."""
+    ``MIN_LEAD_S`` before its direct sound.
+
+    Parameters
+    ----------
+    rows : list of JudgedRow
+        Changed in place.
+    keys : iterable of str
+        The keys whose windows start at time zero.
+    onset : int
+        Sample of the direct sound in the response.
+    rate : int
+        Sample rate, Hz.
+
+    Examples
+    --------
+    At 8 kHz an onset at sample 2 is 0.25 ms in, less than the 0.5 ms asked for:
+
+    >>> rows = [JudgedRow(500.0, values={"jlf": 0.2, "lj_db": None})]
+    >>> flag_early_start(rows, ("jlf", "lj_db"), 2, 8000)
+    >>> rows[0].verdicts, rows[0].warning_codes
+    ({'jlf': 'caution'}, ['onset_near_start'])
+    >>> rows = [JudgedRow(500.0, values={"jlf": 0.2})]
+    >>> flag_early_start(rows, ("jlf",), 4, 8000)  # 0.5 ms: enough
+    >>> rows[0].verdicts
+    {}
+    """
     if onset >= MIN_LEAD_S * rate:
         return
     text = (
@@ -358,7 +569,24 @@ def flag_early_start(rows: list[JudgedRow], keys, onset: int, rate: int) -> None
 
 
 def window_bounds(sig: BandSignal, t1_s: float) -> bool:
-    """The response (after time zero) reaches ``t1_s``, or its decay had ended before."""
+    """The response (after time zero) reaches ``t1_s``, or its decay had ended before.
+
+    Parameters
+    ----------
+    sig : BandSignal
+    t1_s : float
+        End of a window, s after time zero.
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> h = np.zeros(800); h[0] = 1.0  # 0.1 s at 8 kHz, an impulse: its decay has ended
+    >>> window_bounds(band_signal(h, 8000, None, 0), 1.0)
+    True
+    """
     return sig.x.size - sig.zero >= int(round(t1_s * sig.rate)) or sig.late_known
 
 
@@ -368,6 +596,30 @@ def band_average(
     """Mean of ``key`` over the octaves ``low_hz``..``high_hz`` (every one needed).
 
     Returns (value, verdict, reason when None). The verdict is the worst of the bands'.
+
+    Parameters
+    ----------
+    rows : list of JudgedRow
+        The octave rows.
+    key : str
+    low_hz, high_hz : float
+        The first and last octave averaged (nominal centres, Hz).
+
+    Returns
+    -------
+    value : float or None
+    verdict : str
+    reason : str or None
+
+    Examples
+    --------
+    >>> rows = [JudgedRow(f, values={"jlf": v}).finish(("jlf",))
+    ...         for f, v in ((125.0, 0.1), (250.0, 0.2), (500.0, 0.3), (1000.0, 0.4))]
+    >>> v, verdict, why = band_average(rows, "jlf", 125.0, 1000.0)
+    >>> round(v, 12), verdict, why  # (0.1 + 0.2 + 0.3 + 0.4) / 4
+    (0.25, 'ok', None)
+    >>> band_average(rows[1:], "jlf", 125.0, 1000.0)
+    (None, 'not evaluable', 'the 125 Hz band(s) were not analysed')
     """
     want = [r for r in rows if r.band_hz is not None and low_hz <= r.band_hz <= high_hz]
     have = {r.band_hz for r in want}

@@ -135,14 +135,37 @@ class ResponseSet:
 
     @property
     def measurements(self) -> int:
+        """Number of measurements M (AES69 dimension ``M``): the first axis of ``ir``.
+
+        Examples
+        --------
+        >>> ResponseSet(np.zeros((3, 2, 8)), 48000).measurements
+        3
+        """
         return int(self.ir.shape[0])
 
     @property
     def receivers(self) -> int:
+        """Number of receivers R (AES69 dimension ``R``: capsules or channels) per
+        measurement: the second axis of ``ir``.
+
+        Examples
+        --------
+        >>> ResponseSet(np.zeros((3, 2, 8)), 48000).receivers
+        2
+        """
         return int(self.ir.shape[1])
 
     @property
     def samples(self) -> int:
+        """Number of samples N of each stored response (AES69 dimension ``N``, padding
+        included): the last axis of ``ir``.
+
+        Examples
+        --------
+        >>> ResponseSet(np.zeros((3, 2, 8)), 48000).samples
+        8
+        """
         return int(self.ir.shape[2])
 
     @property
