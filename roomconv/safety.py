@@ -304,6 +304,7 @@ class PlayResult:
 
     @property
     def ok(self) -> bool:
+        """True when the sound was played to the end (no device error, no refusal)."""
         return self.message is None
 
 

@@ -8,6 +8,7 @@ __all__ = ["COMMANDS"]
 
 
 def configure_tui(p):
+    """Add the options of ``roomconv tui`` to its sub-parser ``p`` (an argparse parser)."""
     p.add_argument(
         "study",
         nargs="?",
