@@ -718,39 +718,22 @@ def _toml_str(text: str) -> str:
 def session_study_text(title: str, positions, folder) -> str:
     """A study file for responses measured in one session: each (name, file, quality file
     or None) becomes a receiver of one source S1, with paths relative to ``folder`` (where
-    the study file goes). Coordinates are left for the user to fill in.
+    the study file goes).
+
+    Only what the session knows is written (see :func:`workbench_session_text`): no
+    template numbers such as a volume or sweep settings nobody gave, so a report made from
+    the file never shows them as measured. Room size, coordinates and equipment are left
+    for the user to add.
 
     Examples
     --------
     >>> text = session_study_text("Session", [("R1", Path("/x/irs/R1.wav"), None)], Path("/x"))
     >>> [str(r.file) for r in parse_study(text, Path("/x/session.toml")).responses]
     ['/x/irs/R1.wav']
+    >>> "volume_m3" in text, "duration_s" in text
+    (False, False)
     """
-    folder = Path(folder)
-    parts = [
-        _head(title).rstrip("\n"),
-        "",
-        _POSITIONS_NOTE,
-        "# Written from a workbench session: every response is assigned to source S1;",
-        "# correct the source ids where the source was moved.",
-        "[[sources]]",
-        'id = "S1"',
-        "",
-    ]
-    for name, _file, _q in positions:
-        parts += ["[[receivers]]", f"id = {_toml_str(name)}", ""]
-    for name, file, quality in positions:
-        parts += [
-            "[[responses]]",
-            'source = "S1"',
-            f"receiver = {_toml_str(name)}",
-            f"file = {_toml_str(os.path.relpath(Path(file).resolve(), folder.resolve()))}",
-        ]
-        if quality is not None:
-            rel = os.path.relpath(Path(quality).resolve(), folder.resolve())
-            parts.append(f"quality_file = {_toml_str(rel)}")
-        parts.append("")
-    return "\n".join(parts)
+    return workbench_session_text(title, positions, folder)
 
 
 def _toml_value(v) -> str:
