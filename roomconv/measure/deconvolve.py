@@ -303,7 +303,7 @@ def _check_recording(y, rate, sweep, excitation, allow_clipped):
         )
     clipped = q.clipped_samples(y)
     if clipped.sum() and not allow_clipped:
-        chans = [int(c) for c in np.flatnonzero(clipped)]
+        chans = [int(c) + 1 for c in np.flatnonzero(clipped)]  # counted from 1
         raise InputError(
             f"the recording is clipped on channel(s) {chans} "
             f"({int(clipped.sum())} samples at full scale); lower the input gain "

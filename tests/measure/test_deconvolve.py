@@ -197,7 +197,8 @@ def test_trim_cuts_leading_silence_and_says_how_much():
     [
         (lambda y: np.zeros_like(y), "silent"),
         (lambda y: y[: y.size // 2], "shorter than the sweep"),
-        (lambda y: np.clip(y * 10, -1, 1), "clipped"),
+        # Channels count from 1 wherever a person reads them.
+        (lambda y: np.clip(y * 10, -1, 1), r"clipped on channel\(s\) \[1\]"),
     ],
 )
 def test_bad_recordings_are_refused(make, text):
