@@ -448,15 +448,56 @@ def parse_study(text: str, path) -> StudyFile:
     """
     path = Path(path)
     src = str(path)
+    doc = _toml(text, src)
+    base = path.parent
+    top = _Reader(doc, "", src)
+    # The tables are read in this order so that the first problem in it is the one named.
+    title, client, number, author, dates, notes = _study_table(top, src)
+    room = _room_table(top, src)
+    equipment = _equipment_table(top, src)
+    sweep = _sweep_table(top, src)
+    top.used.update({"sources", "receivers"})
+    sources = _points(doc, "sources", src)
+    receivers = _points(doc, "receivers", src)
+    responses = _responses_table(top, base, src, sources, receivers)
+    targets = _targets_table(top, src) if "targets" in doc else None
+    top.used.add("targets")
+    office = _office(top, base, src) if "office" in doc else None
+    top.used.add("office")
+    workbench = _workbench_table(top.get("workbench", dict, {}), src)
+    top.done()
+    return StudyFile(
+        path=path,
+        title=title,
+        client=client,
+        project_number=number,
+        author=author,
+        dates=dates,
+        notes=notes,
+        room=room,
+        equipment=equipment,
+        sweep=sweep,
+        sources=sources,
+        receivers=receivers,
+        responses=responses,
+        targets=targets,
+        office=office,
+        workbench=workbench,
+    )
+
+
+def _toml(text: str, src: str) -> dict:
+    """The TOML document, or a refusal naming the file and the parser's complaint."""
     try:
-        doc = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(
             f"{src}: not valid TOML ({exc}); compare it with 'roomconv study init'"
         ) from None
-    base = path.parent
-    top = _Reader(doc, "", src)
 
+
+def _study_table(top: _Reader, src: str) -> tuple[str, str, str, str, tuple[str, ...], str]:
+    """The [study] table: title, client, project number, author, dates and notes."""
     st = _Reader(top.get("study", dict, required=True), "study.", src)
     title = st.get("title", str, required=True, check=_nonempty)
     client = st.get("client", str, "")
@@ -465,7 +506,11 @@ def parse_study(text: str, path) -> StudyFile:
     dates = _date_list(st.get("dates", object, []), st, "dates")
     notes = st.get("notes", str, "")
     st.done()
+    return title, client, number, author, dates, notes
 
+
+def _room_table(top: _Reader, src: str) -> Room:
+    """The [room] table: name, use, size, state and conditions."""
     rm = _Reader(top.get("room", dict, required=True), "room.", src)
     dims = rm.get(
         "dimensions_m",
@@ -495,11 +540,19 @@ def parse_study(text: str, path) -> StudyFile:
         humidity_pct=rm.get("humidity_pct", float, check=_range(0.0, 100.0)),
     )
     rm.done()
+    return room
 
+
+def _equipment_table(top: _Reader, src: str) -> Equipment:
+    """The [equipment] table: every entry is optional text."""
     eq = _Reader(top.get("equipment", dict, {}), "equipment.", src)
     equipment = Equipment(**{k: eq.get(k, str, "") for k in Equipment.__dataclass_fields__})
     eq.done()
+    return equipment
 
+
+def _sweep_table(top: _Reader, src: str) -> SweepSettings:
+    """The [sweep] table: the settings the responses were measured with, for the report."""
     sw = _Reader(top.get("sweep", dict, {}), "sweep.", src)
     sweep = SweepSettings(
         f_low_hz=sw.get("f_low_hz", float, check=_positive),
@@ -517,11 +570,13 @@ def parse_study(text: str, path) -> StudyFile:
             "swap or correct them",
         )
     sw.done()
+    return sweep
 
-    top.used.update({"sources", "receivers"})
-    sources = _points(doc, "sources", src)
-    receivers = _points(doc, "receivers", src)
 
+def _responses_table(
+    top: _Reader, base: Path, src: str, sources: tuple[Point, ...], receivers: tuple[Point, ...]
+) -> tuple[Response, ...]:
+    """The [[responses]] tables: each names a listed source and receiver, a file and channel."""
     items = top.get(
         "responses",
         list,
@@ -548,81 +603,64 @@ def parse_study(text: str, path) -> StudyFile:
         combos.add((s, c, f, ch))
         qf = None if q is None else _path(base, q, r, "quality_file")
         responses.append(Response(s, c, f, ch, qf, dist))
+    return tuple(responses)
 
-    targets = None
-    if "targets" in doc:
-        tg = _Reader(top.get("targets", dict), "targets.", src)
-        basis = tg.get(
-            "basis",
-            str,
-            "t30",
-            check=lambda v: (
-                None if v in TARGET_BASES else f"{v!r} is not one of {', '.join(TARGET_BASES)}"
-            ),
-        )
-        per_band = tg.get(
-            "reverberation_s",
-            dict,
-            required=True,
-            todo='give seconds per band, e.g. { "500" = 1.2, "1000" = 1.2 }',
-        )
-        bands: dict[float, float] = {}
-        for k, v in per_band.items():
-            try:
-                b = float(k)
-            except ValueError:
-                tg.fail(
-                    "reverberation_s",
-                    f"band {k!r} is not a frequency in Hz",
-                    'use keys such as "500"',
-                )
-            if isinstance(v, bool) or not isinstance(v, int | float) or not v > 0:
-                tg.fail(
-                    "reverberation_s",
-                    f"band {k}: {v!r} is not a positive time in s",
-                    "give seconds, e.g. 1.2",
-                )
-            bands[b] = float(v)
-        tol = tg.get(
-            "tolerance_pct",
-            list,
-            [-20, 20],
-            check=lambda v: (
-                None
-                if len(v) == 2
-                and all(isinstance(c, int | float) and not isinstance(c, bool) for c in v)
-                and -100 < v[0] <= 0 <= v[1]
-                else "must be [lower, upper] with lower ≤ 0 ≤ upper, in %"
-            ),
-        )
-        origin = tg.get("source", str, "")
-        tg.done()
-        targets = Targets(
-            basis, dict(sorted(bands.items())), (float(tol[0]), float(tol[1])), origin
-        )
-    top.used.add("targets")
-    office = _office(top, base, src) if "office" in doc else None
-    top.used.add("office")
-    workbench = _workbench_table(top.get("workbench", dict, {}), src)
-    top.done()
-    return StudyFile(
-        path=path,
-        title=title,
-        client=client,
-        project_number=number,
-        author=author,
-        dates=dates,
-        notes=notes,
-        room=room,
-        equipment=equipment,
-        sweep=sweep,
-        sources=sources,
-        receivers=receivers,
-        responses=tuple(responses),
-        targets=targets,
-        office=office,
-        workbench=workbench,
+
+def _targets_table(top: _Reader, src: str) -> Targets:
+    """The [targets] table: basis, decay time per band, tolerance and where it comes from."""
+    tg = _Reader(top.get("targets", dict), "targets.", src)
+    basis = tg.get(
+        "basis",
+        str,
+        "t30",
+        check=lambda v: (
+            None if v in TARGET_BASES else f"{v!r} is not one of {', '.join(TARGET_BASES)}"
+        ),
     )
+    bands = _target_bands(tg)
+    tol = tg.get(
+        "tolerance_pct",
+        list,
+        [-20, 20],
+        check=lambda v: (
+            None
+            if len(v) == 2
+            and all(isinstance(c, int | float) and not isinstance(c, bool) for c in v)
+            and -100 < v[0] <= 0 <= v[1]
+            else "must be [lower, upper] with lower ≤ 0 ≤ upper, in %"
+        ),
+    )
+    origin = tg.get("source", str, "")
+    tg.done()
+    return Targets(basis, dict(sorted(bands.items())), (float(tol[0]), float(tol[1])), origin)
+
+
+def _target_bands(tg: _Reader) -> dict[float, float]:
+    """The target's reverberation_s table: {band Hz: positive time in s}."""
+    per_band = tg.get(
+        "reverberation_s",
+        dict,
+        required=True,
+        todo='give seconds per band, e.g. { "500" = 1.2, "1000" = 1.2 }',
+    )
+    bands: dict[float, float] = {}
+    for k, v in per_band.items():
+        try:
+            b = float(k)
+        except ValueError:
+            tg.fail(
+                "reverberation_s",
+                f"band {k!r} is not a frequency in Hz",
+                'use keys such as "500"',
+            )
+        if isinstance(v, bool) or not isinstance(v, int | float) or not v > 0:
+            tg.fail(
+                "reverberation_s",
+                f"band {k}: {v!r} is not a positive time in s",
+                "give seconds, e.g. 1.2",
+            )
+        bands[b] = float(v)
+    return bands
 
 
 def _office(top: _Reader, base: Path, src: str) -> OfficeSettings:

@@ -546,152 +546,28 @@ def plan_bands(
     (0.805, True)
     """
     v, s = check_room(volume_m3, area_m2)
+    _check_surfaces(treatments)
+    bands = _common_bands(measured_s, target)
     measured_notes = measured_notes or {}
-    seen = set()
-    for t in treatments:
-        if t.surface in seen:
-            raise InputError(f"treatment surface '{t.surface}' is named twice; name it once")
-        seen.add(t.surface)
-    bands = sorted(set(target.target_s) & {int(b) for b in measured_s})
-    if not bands:
-        raise InputError(
-            "the measured bands ("
-            + ", ".join(f"{b:g}" for b in sorted(measured_s))
-            + " Hz) and the target's ("
-            + ", ".join(f"{b:g}" for b in sorted(target.target_s))
-            + " Hz) have none in common; give a target for the measured octave bands"
-        )
     rows: list[BandPlan] = []
     ms: dict[int, float] = {}
     for b in bands:
-        m = air_m(b, temperature_c, humidity_pct)
-        ms[b] = m
-        tm, tt = measured_s.get(b), target.target_s[b]
-        row = BandPlan(b, tm, tt, target.min_s.get(b), target.max_s.get(b))
-        if b in measured_notes:
-            row.notes.append(measured_notes[b])
-        rows.append(row)
-        if tm is None or not math.isfinite(tm) or tm <= 0:
-            row.notes.append("no measured decay time in this band: nothing to plan")
-            continue
-        air_limit = SABINE_CONSTANT / (4.0 * m) if m > 0 else math.inf
-        if tm >= air_limit:
-            row.notes.append(
-                f"measured {tm:.2f} s is at or above {air_limit:.1f} s, the longest the air "
-                "alone allows: check the volume and the measurement"
-            )
-            continue
-        if tt >= air_limit:
-            row.notes.append(
-                f"target {tt:.2f} s is at or above {air_limit:.1f} s, the longest the air "
-                "alone allows: not reachable"
-            )
-            continue
-        row.added_area_sabine_m2 = sabine_added_area(v, tm, tt)
-        row.added_area_eyring_m2 = eyring_added_area(v, s, tm, tt, m)
-        if row.added_area_eyring_m2 < 0:
-            row.notes.append(
-                f"the measured time is below the target: remove about "
-                f"{-row.added_area_eyring_m2:.1f} m² of absorption (Eyring)"
-            )
-        n = len(treatments)
-        for t in treatments:
-            alpha = t.material.at(b)
-            share = row.added_area_eyring_m2 / n
-            area = None if alpha <= 0 or share < 0 else share / alpha
-            row.treatment.append(TreatmentArea(t.surface, t.material.name, area))
-
+        ms[b] = air_m(b, temperature_c, humidity_pct)
+        rows.append(
+            _band_row(b, measured_s.get(b), target, v, s, ms[b], treatments, measured_notes)
+        )
     sizing: tuple[int, ...] = tuple(b for b in (500, 1000) if b in bands) or tuple(bands)
     notes: list[str] = []
     installed: list[TreatmentArea] = []
     if treatments:
-        need = _mean(r.added_area_eyring_m2 for r in rows if r.band_hz in sizing)
-        for t in treatments:
-            alpha = float(np.mean([t.material.at(b) for b in sizing]))
-            if need is None:
-                area = None
-            elif need <= 0:
-                area = 0.0
-            elif alpha <= 0:
-                area = None
-                notes.append(
-                    f"{t.material.name} absorbs nothing at "
-                    + ", ".join(f"{b:g} Hz" for b in sizing)
-                    + ": it cannot reach the target"
-                )
-            else:
-                area = need / len(treatments) / alpha
-            installed.append(TreatmentArea(t.surface, t.material.name, area))
-            if area is not None and t.surface_area_m2 is not None and area > t.surface_area_m2:
-                notes.append(
-                    f"{area:.1f} m² of {t.material.name} is more than the "
-                    f"{t.surface_area_m2:.1f} m² of the {t.surface}: choose a more absorbent "
-                    "material or more surfaces"
-                )
-        if need is not None and need <= 0:
-            notes.append(
-                "the measured time is at or below the target at the sizing bands: absorption "
-                "must be removed, not added; no material is installed"
-            )
-        total = sum(a.area_m2 or 0.0 for a in installed)
-        if total > s:
-            notes.append(
-                f"the areas to install ({total:.1f} m²) exceed the room's surface "
-                f"({s:.1f} m²): the target is out of reach with these materials"
-            )
-        for r in rows:
-            if r.measured_s is None or r.added_area_eyring_m2 is None:
-                continue
-            a_m = eyring_mean_alpha(v, s, r.measured_s, ms[r.band_hz])
-            added = sum(
-                (a.area_m2 or 0.0) * t.material.at(r.band_hz)
-                for a, t in zip(installed, treatments, strict=True)
-            )
-            r.predicted_s = eyring_time(v, s, min(a_m + added / s, 1.0), ms[r.band_hz])
+        installed = _size_installation(rows, treatments, sizing, s, notes)
+        _predict_after_treatment(rows, installed, treatments, v, s, ms)
     checked = "predicted" if treatments else "measured"
-    for r in rows:
-        value = r.predicted_s if treatments else r.measured_s
-        if value is not None and r.target_s is not None and not target.mean_bands:
-            r.within_tolerance = target.accepts(r.band_hz, value)
-    mean_check = None
-    if target.mean_bands:
-        limit = target.max_s[target.mean_bands[0]]
-        by_band = {r.band_hz: r for r in rows}
-        have = [b for b in target.mean_bands if b in by_band]
-        meas = [by_band[b].measured_s for b in have]
-        pred = [by_band[b].predicted_s for b in have]
-        complete = len(have) == len(target.mean_bands)
-        m_mean = _mean(meas) if complete and None not in meas else None
-        p_mean = _mean(pred) if complete and treatments and None not in pred else None
-        judged = p_mean if treatments else m_mean
-        within = None if judged is None or limit is None else bool(judged <= limit)
-        mean_check = {
-            "bands_hz": list(target.mean_bands),
-            "limit_s": limit,
-            "measured_mean_s": None if m_mean is None else round(m_mean, 4),
-            "predicted_mean_s": None if p_mean is None else round(p_mean, 4),
-            "within": within,
-        }
-        if judged is None:
-            notes.append(
-                "the mean over "
-                + ", ".join(f"{b:g} Hz" for b in target.mean_bands)
-                + " cannot be judged: a band is missing or not evaluable"
-            )
-        for r in rows:
-            if r.band_hz in target.mean_bands:
-                r.within_tolerance = within
-    notes.append(
-        "Sabine and Eyring assume a diffuse sound field; with the absorption on one surface "
-        "(a ceiling alone) the decay is often longer than predicted"
+    _judge_each_band(rows, target, bool(treatments))
+    mean_check = (
+        _judge_the_mean(rows, target, bool(treatments), notes) if target.mean_bands else None
     )
-    if treatments:
-        notes.append(
-            "areas assume the covered surface absorbed little before; over an absorbent "
-            "surface more area is needed"
-        )
-    notes += list(target.notes)
-    notes.append(DECISION_CAUTION)
+    notes += _closing_notes(target, bool(treatments))
     return TreatmentPlan(
         bands=rows,
         installed=installed,
@@ -705,6 +581,199 @@ def plan_bands(
         mean_check=mean_check,
         notes=notes,
     )
+
+
+def _check_surfaces(treatments) -> None:
+    """Refuse a surface named twice: each surface gets one material."""
+    seen = set()
+    for t in treatments:
+        if t.surface in seen:
+            raise InputError(f"treatment surface '{t.surface}' is named twice; name it once")
+        seen.add(t.surface)
+
+
+def _common_bands(measured_s: dict, target: Target) -> list[int]:
+    """The octave bands that have both a measured time and a target, or a refusal."""
+    bands = sorted(set(target.target_s) & {int(b) for b in measured_s})
+    if not bands:
+        raise InputError(
+            "the measured bands ("
+            + ", ".join(f"{b:g}" for b in sorted(measured_s))
+            + " Hz) and the target's ("
+            + ", ".join(f"{b:g}" for b in sorted(target.target_s))
+            + " Hz) have none in common; give a target for the measured octave bands"
+        )
+    return bands
+
+
+def _band_row(
+    b: int,
+    tm: float | None,
+    target: Target,
+    v: float,
+    s: float,
+    m: float,
+    treatments,
+    measured_notes: dict,
+) -> BandPlan:
+    """One band: the area to add by Sabine and Eyring and each material's share of it."""
+    tt = target.target_s[b]
+    row = BandPlan(b, tm, tt, target.min_s.get(b), target.max_s.get(b))
+    if b in measured_notes:
+        row.notes.append(measured_notes[b])
+    problem = _unplannable(tm, tt, m)
+    if problem is not None:
+        row.notes.append(problem)
+        return row
+    assert tm is not None  # _unplannable refuses a missing time
+    row.added_area_sabine_m2 = sabine_added_area(v, tm, tt)
+    row.added_area_eyring_m2 = eyring_added_area(v, s, tm, tt, m)
+    if row.added_area_eyring_m2 < 0:
+        row.notes.append(
+            f"the measured time is below the target: remove about "
+            f"{-row.added_area_eyring_m2:.1f} m² of absorption (Eyring)"
+        )
+    n = len(treatments)
+    for t in treatments:
+        alpha = t.material.at(b)
+        share = row.added_area_eyring_m2 / n
+        area = None if alpha <= 0 or share < 0 else share / alpha
+        row.treatment.append(TreatmentArea(t.surface, t.material.name, area))
+    return row
+
+
+def _unplannable(tm: float | None, tt: float, m: float) -> str | None:
+    """Why a band cannot be planned (no measured time, or beyond the air's limit), or None."""
+    if tm is None or not math.isfinite(tm) or tm <= 0:
+        return "no measured decay time in this band: nothing to plan"
+    air_limit = SABINE_CONSTANT / (4.0 * m) if m > 0 else math.inf
+    if tm >= air_limit:
+        return (
+            f"measured {tm:.2f} s is at or above {air_limit:.1f} s, the longest the air "
+            "alone allows: check the volume and the measurement"
+        )
+    if tt >= air_limit:
+        return (
+            f"target {tt:.2f} s is at or above {air_limit:.1f} s, the longest the air "
+            "alone allows: not reachable"
+        )
+    return None
+
+
+def _size_installation(
+    rows: list[BandPlan], treatments, sizing: tuple[int, ...], s: float, notes: list[str]
+) -> list[TreatmentArea]:
+    """One area per material from the mean Eyring area and mean α at the sizing bands."""
+    installed: list[TreatmentArea] = []
+    need = _mean(r.added_area_eyring_m2 for r in rows if r.band_hz in sizing)
+    for t in treatments:
+        alpha = float(np.mean([t.material.at(b) for b in sizing]))
+        if need is None:
+            area = None
+        elif need <= 0:
+            area = 0.0
+        elif alpha <= 0:
+            area = None
+            notes.append(
+                f"{t.material.name} absorbs nothing at "
+                + ", ".join(f"{b:g} Hz" for b in sizing)
+                + ": it cannot reach the target"
+            )
+        else:
+            area = need / len(treatments) / alpha
+        installed.append(TreatmentArea(t.surface, t.material.name, area))
+        if area is not None and t.surface_area_m2 is not None and area > t.surface_area_m2:
+            notes.append(
+                f"{area:.1f} m² of {t.material.name} is more than the "
+                f"{t.surface_area_m2:.1f} m² of the {t.surface}: choose a more absorbent "
+                "material or more surfaces"
+            )
+    if need is not None and need <= 0:
+        notes.append(
+            "the measured time is at or below the target at the sizing bands: absorption "
+            "must be removed, not added; no material is installed"
+        )
+    total = sum(a.area_m2 or 0.0 for a in installed)
+    if total > s:
+        notes.append(
+            f"the areas to install ({total:.1f} m²) exceed the room's surface "
+            f"({s:.1f} m²): the target is out of reach with these materials"
+        )
+    return installed
+
+
+def _predict_after_treatment(
+    rows: list[BandPlan],
+    installed: list[TreatmentArea],
+    treatments,
+    v: float,
+    s: float,
+    ms: dict[int, float],
+) -> None:
+    """Each band's decay time by Eyring once the installed areas are added."""
+    for r in rows:
+        if r.measured_s is None or r.added_area_eyring_m2 is None:
+            continue
+        a_m = eyring_mean_alpha(v, s, r.measured_s, ms[r.band_hz])
+        added = sum(
+            (a.area_m2 or 0.0) * t.material.at(r.band_hz)
+            for a, t in zip(installed, treatments, strict=True)
+        )
+        r.predicted_s = eyring_time(v, s, min(a_m + added / s, 1.0), ms[r.band_hz])
+
+
+def _judge_each_band(rows: list[BandPlan], target: Target, treated: bool) -> None:
+    """Each band's predicted (or, untreated, measured) time against the target's range."""
+    for r in rows:
+        value = r.predicted_s if treated else r.measured_s
+        if value is not None and r.target_s is not None and not target.mean_bands:
+            r.within_tolerance = target.accepts(r.band_hz, value)
+
+
+def _judge_the_mean(rows: list[BandPlan], target: Target, treated: bool, notes: list[str]) -> dict:
+    """A target on the mean over bands: judged on that mean, its verdict given to each band."""
+    limit = target.max_s[target.mean_bands[0]]
+    by_band = {r.band_hz: r for r in rows}
+    have = [b for b in target.mean_bands if b in by_band]
+    meas = [by_band[b].measured_s for b in have]
+    pred = [by_band[b].predicted_s for b in have]
+    complete = len(have) == len(target.mean_bands)
+    m_mean = _mean(meas) if complete and None not in meas else None
+    p_mean = _mean(pred) if complete and treated and None not in pred else None
+    judged = p_mean if treated else m_mean
+    within = None if judged is None or limit is None else bool(judged <= limit)
+    if judged is None:
+        notes.append(
+            "the mean over "
+            + ", ".join(f"{b:g} Hz" for b in target.mean_bands)
+            + " cannot be judged: a band is missing or not evaluable"
+        )
+    for r in rows:
+        if r.band_hz in target.mean_bands:
+            r.within_tolerance = within
+    return {
+        "bands_hz": list(target.mean_bands),
+        "limit_s": limit,
+        "measured_mean_s": None if m_mean is None else round(m_mean, 4),
+        "predicted_mean_s": None if p_mean is None else round(p_mean, 4),
+        "within": within,
+    }
+
+
+def _closing_notes(target: Target, treated: bool) -> list[str]:
+    """The assumptions every plan rests on, the target's own notes and the caution."""
+    notes = [
+        "Sabine and Eyring assume a diffuse sound field; with the absorption on one surface "
+        "(a ceiling alone) the decay is often longer than predicted"
+    ]
+    if treated:
+        notes.append(
+            "areas assume the covered surface absorbed little before; over an absorbent "
+            "surface more area is needed"
+        )
+    notes += list(target.notes)
+    notes.append(DECISION_CAUTION)
+    return notes
 
 
 def measured_times(doc, basis: str = "t30", what: str = "analysis document"):

@@ -315,21 +315,42 @@ def report_html(res: StudyResults) -> str:
 
         page = report_html(res)     # '<!doctype html>…', images as data URIs
     """
-    st, doc = res.study, res.analysis.document
-    room = st.room
-    mids = _mid_text(doc)
-    g = doc["grade"]
-    out = [
+    sections = (
+        _page_head,
+        _cover,
+        _summary,
+        _grade,
+        _method,
+        _results,
+        _data_quality,
+        _limits,
+    )
+    out = [part for section in sections for part in section(res)]
+    out.append("</body></html>")
+    return "\n".join(out)
+
+
+def _furnished_text(room) -> str:
+    """', furnished', ', unfurnished' or nothing where the study does not say."""
+    return "" if room.furnished is None else ", furnished" if room.furnished else ", unfurnished"
+
+
+def _page_head(res: StudyResults) -> list[str]:
+    """The document head: title and style sheet."""
+    st = res.study
+    return [
         f"<!doctype html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>{e(st.title)}</title><style>{_CSS}</style></head><body>"
     ]
 
-    # 1. Cover
-    out.append(
+
+def _cover(res: StudyResults) -> list[str]:
+    """The cover: title, client, room, dates, author and the program's version."""
+    st, doc = res.study, res.analysis.document
+    room = st.room
+    return [
         "<section class='cover'><p class='note'>Room acoustic measurement report</p>"
-        f"<h1>{e(st.title)}</h1>"
-    )
-    out.append(
+        f"<h1>{e(st.title)}</h1>",
         _dl(
             [
                 ("Client", st.client),
@@ -339,18 +360,22 @@ def report_html(res: StudyResults) -> str:
                 ("Author", st.author),
                 ("Prepared with", f"roomconv {doc['roomconv_version']}"),
             ]
-        )
-    )
-    out.append("</section>")
+        ),
+        "</section>",
+    ]
 
-    # 2. Summary
+
+def _summary(res: StudyResults) -> list[str]:
+    """Section 1: the single numbers, their notes, and the target and treatment if any."""
+    st, doc = res.study, res.analysis.document
+    mids = _mid_text(doc)
     rows = single_number_rows(doc)
-    out.append(
+    out = [
         "<h2>1. Summary</h2><ul class='numbers'>"
         + "".join(f"<li>{_number_line(r, mids)}</li>" for r in rows)
-        + "</ul>"
-    )
-    out.append("".join(f"<p class='note'>{e(x)}</p>" for x in _evaluation_notes(doc)))
+        + "</ul>",
+        "".join(f"<p class='note'>{e(x)}</p>" for x in _evaluation_notes(doc)),
+    ]
     if st.targets is not None:
         t = st.targets
         src = f" ({e(t.source)})" if t.source else ""
@@ -362,16 +387,20 @@ def report_html(res: StudyResults) -> str:
             )
         )
         out.append(treatment_section(st, doc, _figure))
+    return out
 
-    # 3. Grade
+
+def _grade(res: StudyResults) -> list[str]:
+    """Section 2: the ISO 3382-2 grade the positions reach and what the next one needs."""
+    g = res.analysis.document["grade"]
     name = g["name"] or "below survey grade"
-    out.append("<h2>2. Measurement grade (ISO 3382-2)</h2>")
-    out.append(
+    out = [
+        "<h2>2. Measurement grade (ISO 3382-2)</h2>",
         f"<p class='grade'>{e(name.capitalize())}</p><p>{g['sources']} source "
         f"position(s), {g['receivers']} receiver position(s), {g['combinations']} "
         "source–receiver combination(s) that gave a decay time in the mid-frequency "
-        "bands.</p>"
-    )
+        "bands.</p>",
+    ]
     if g["next"]:
         out.append(f"<p>For the {e(g['next'])} grade: {e(', '.join(g['needed_for_next']))}.</p>")
     out.append(
@@ -382,11 +411,17 @@ def report_html(res: StudyResults) -> str:
         "(from walls, between microphones, from the source), which this count does "
         "not check.</p>"
     )
+    return out
 
-    # 4. Method
-    s = doc["settings"]
-    sw = st.sweep
-    sweep_bits = [
+
+def _method(res: StudyResults) -> list[str]:
+    """Section 3: how the responses were measured and evaluated, equipment and room."""
+    return _method_list(res) + _equipment(res) + _conditions(res)
+
+
+def _sweep_words(sw) -> list[str]:
+    """The sweep settings the study gives, each as a short phrase."""
+    return [
         x
         for x in (
             sw.f_low_hz and sw.f_high_hz and f"{sw.f_low_hz:g} Hz–{sw.f_high_hz:g} Hz",
@@ -398,7 +433,15 @@ def report_html(res: StudyResults) -> str:
         )
         if x
     ]
-    out.append("<h2>3. Method</h2><ul>")
+
+
+def _method_list(res: StudyResults) -> list[str]:
+    """The method as a list: sweep, filters, decay evaluation, averages, calibration."""
+    st, doc = res.study, res.analysis.document
+    s = doc["settings"]
+    mids = _mid_text(doc)
+    sweep_bits = _sweep_words(st.sweep)
+    out = ["<h2>3. Method</h2><ul>"]
     out.append(
         "<li>Impulse responses measured with an exponential swept sine and "
         "deconvolution (integrated impulse response method, ISO 3382-1 and "
@@ -428,7 +471,12 @@ def report_html(res: StudyResults) -> str:
             f"(AES69-2022): {e(s['sofa_file'])}.</li>"
         )
     out.append("<li>Verdicts: " + e(s["verdicts"]) + ".</li></ul>")
-    eq = st.equipment
+    return out
+
+
+def _equipment(res: StudyResults) -> list[str]:
+    """The equipment table: source, microphone and interface with their serials."""
+    eq = res.study.equipment
     eq_rows = [
         [what, name_ or "—", serial or "—"]
         for what, name_, serial in (
@@ -437,11 +485,17 @@ def report_html(res: StudyResults) -> str:
             ("interface", eq.interface, eq.interface_serial),
         )
     ]
-    out.append(
+    return [
         "<h3>Equipment</h3><div class='words'>"
         + _html_table(["item", "type", "serial"], eq_rows)
         + "</div>"
-    )
+    ]
+
+
+def _conditions(res: StudyResults) -> list[str]:
+    """The room and its conditions during the measurement, and the study's notes."""
+    st = res.study
+    room = st.room
     cond = [
         ("Room", room.name),
         ("Use", room.use),
@@ -451,27 +505,32 @@ def report_html(res: StudyResults) -> str:
             "Dimensions",
             " × ".join(f"{d:g}" for d in room.dimensions_m) + " m" if room.dimensions_m else "",
         ),
-        (
-            "State",
-            room.state
-            + (
-                ""
-                if room.furnished is None
-                else ", furnished"
-                if room.furnished
-                else ", unfurnished"
-            ),
-        ),
+        ("State", room.state + _furnished_text(room)),
         ("Temperature", _fmt(room.temperature_c, "{:.1f} °C", "")),
         ("Relative humidity", _fmt(room.humidity_pct, "{:.0f} %", "")),
     ]
-    out.append("<h3>Room and conditions</h3>" + _dl(cond))
+    out = ["<h3>Room and conditions</h3>" + _dl(cond)]
     if st.notes:
         out.append(f"<p>{e(st.notes)}</p>")
+    return out
 
-    # 5. Results
+
+def _results(res: StudyResults) -> list[str]:
+    """Section 4: averages, figures, positions, each position's table, further sections."""
+    return (
+        ["<h2>4. Results</h2>"]
+        + _average_table(res)
+        + _summary_figures(res)
+        + _positions_table(res)
+        + _position_details(res)
+        + _further_sections(res)
+    )
+
+
+def _average_table(res: StudyResults) -> list[str]:
+    """The band table averaged over the positions, mean ± standard deviation."""
+    doc = res.analysis.document
     metrics = metrics_of(doc)
-    out.append("<h2>4. Results</h2>")
     n = len(doc["positions"])
     avg_rows = []
     for r in doc["average"]["bands"]:
@@ -491,19 +550,23 @@ def report_html(res: StudyResults) -> str:
             + ([_pm("g_db", r)] if "g_db" in metrics else [])
             + [str(r["t30_s"]["n"])]
         )
-    out.append(f"<h3>Average over {n} position(s): mean ± standard deviation</h3>")
-    out.append(
+    return [
+        f"<h3>Average over {n} position(s): mean ± standard deviation</h3>",
         _html_table(
             ["band", "EDT s", "T20 s", "T30 s", "u(T30) s", "C50 dB", "C80 dB", "D50", "Ts ms"]
             + (["G dB"] if "g_db" in metrics else [])
             + ["n"],
             avg_rows,
-        )
-    )
-    out.append(
+        ),
         "<p class='note'>⚠ caution: the value is given but a check failed (section 5); "
-        "— not evaluable. n: positions with a T30.</p>"
-    )
+        "— not evaluable. n: positions with a T30.</p>",
+    ]
+
+
+def _summary_figures(res: StudyResults) -> list[str]:
+    """Decay times, C80/D50 and frequency responses per band, and the plan of positions."""
+    st, doc = res.study, res.analysis.document
+    out = []
     basis = st.targets.basis if st.targets is not None else "t30"
     for m in dict.fromkeys((basis, "t30", "edt")):
         out.append(
@@ -536,30 +599,33 @@ def report_html(res: StudyResults) -> str:
         out.append(
             _figure(plan, "plan of positions", "Source and receiver positions.", narrow=True)
         )
+    return out
+
+
+def _positions_table(res: StudyResults) -> list[str]:
+    """Sources and receivers with their coordinates and notes."""
+    st = res.study
     pos_rows = [
         [
             p.id,
-            "source",
+            kind,
             _fmt(p.x_m, "{:.2f}"),
             _fmt(p.y_m, "{:.2f}"),
             _fmt(p.height_m, "{:.2f}"),
             p.note,
         ]
-        for p in st.sources
+        for kind, points in (("source", st.sources), ("receiver", st.receivers))
+        for p in points
     ]
-    pos_rows += [
-        [
-            p.id,
-            "receiver",
-            _fmt(p.x_m, "{:.2f}"),
-            _fmt(p.y_m, "{:.2f}"),
-            _fmt(p.height_m, "{:.2f}"),
-            p.note,
-        ]
-        for p in st.receivers
-    ]
-    out.append(_html_table(["id", "kind", "x m", "y m", "height m", "note"], pos_rows))
+    return [_html_table(["id", "kind", "x m", "y m", "height m", "note"], pos_rows)]
+
+
+def _position_details(res: StudyResults) -> list[str]:
+    """Each position's band table and its energy–time and decay curves."""
+    doc = res.analysis.document
+    metrics = metrics_of(doc)
     header = ["band"] + [HEADERS[m] for m in metrics] + ["verdict"]
+    out = []
     for p in doc["positions"]:
         out.append(
             f"<div class='pos'><h3>Position {e(p['position'])}: source "
@@ -577,19 +643,38 @@ def report_html(res: StudyResults) -> str:
                 "band decay curves (band marks as in the terminal workbench).",
             )
         )
+    return out
 
+
+def _further_sections(res: StudyResults) -> list[str]:
+    """Speech intelligibility, the office line, and stage, lateral and interaural values."""
+    doc = res.analysis.document
     from .speech import speech_section
 
-    out.append(speech_section(doc, "Speech intelligibility (STI)"))
+    out = [speech_section(doc, "Speech intelligibility (STI)")]
     if "office" in doc:
         from .office import office_section
 
         out.append(office_section(doc["office"]))
     # Stage, lateral and interaural parameters, when the analysis holds them.
     out.append(layout_section_html(doc, level=3))
+    return out
 
-    # 6. Data quality
-    out.append("<h2>5. Data quality per position</h2>")
+
+def _data_quality(res: StudyResults) -> list[str]:
+    """Section 5: INR, flags, peak and clipping per position, distortion, warnings, notes."""
+    doc = res.analysis.document
+    out = ["<h2>5. Data quality per position</h2>"]
+    out += _quality_table(doc)
+    out.append(distortion_html(doc))
+    out += _position_warnings(doc)
+    for n_ in doc.get("notes", []):
+        out.append(f"<p class='note'>Note: {e(n_)}</p>")
+    return out
+
+
+def _quality_table(doc: dict) -> list[str]:
+    """One row per position: INR, flagged bands, peak, clipping and repeat mismatch."""
     q_rows = []
     for p in doc["positions"]:
         inrs = [
@@ -612,7 +697,7 @@ def report_html(res: StudyResults) -> str:
                 _fmt(q.get("repeat_mismatch_db"), "{:.1f}"),
             ]
         )
-    out.append(
+    return [
         _html_table(
             [
                 "position",
@@ -625,15 +710,17 @@ def report_html(res: StudyResults) -> str:
                 "repeat mismatch dB",
             ],
             q_rows,
-        )
-    )
-    out.append(
+        ),
         "<p class='note'>INR: impulse-to-noise ratio. Peak, clipping and repeat mismatch "
         "come from the measurement's quality file where the study names one. Needed "
         "INR (common practice, after ISO 3382-1 evaluation ranges): EDT 20 dB, "
-        "T20 35 dB, T30 45 dB.</p>"
-    )
-    out.append(distortion_html(doc))
+        "T20 35 dB, T30 45 dB.</p>",
+    ]
+
+
+def _position_warnings(doc: dict) -> list[str]:
+    """The analysis' and the measurement's warnings, listed under each position."""
+    out = []
     for p in doc["positions"]:
         ws = [w for r in p["bands"] + [p["wideband"]] for w in r["warnings"]]
         ws += [
@@ -645,14 +732,16 @@ def report_html(res: StudyResults) -> str:
                 + "".join(f"<li class='flagtext'>⚠ {e(w)}</li>" for w in ws)
                 + "</ul>"
             )
-    for n_ in doc.get("notes", []):
-        out.append(f"<p class='note'>Note: {e(n_)}</p>")
+    return out
 
-    # 7. Limits
-    out.append(
+
+def _limits(res: StudyResults) -> list[str]:
+    """Section 6: what the results do not say, ending with licensed practice and codes."""
+    room = res.study.room
+    return [
         "<h2>6. Limits of these results</h2><ul>"
         f"<li>The values describe the room in the state measured ({e(room.state)}"
-        + ("" if room.furnished is None else ", furnished" if room.furnished else ", unfurnished")
+        + _furnished_text(room)
         + ") at the positions listed, on the dates given; "
         "another occupancy, furnishing or temperature changes them.</li>"
         "<li>Values marked ⚠ are given with a caution and values shown as — could not "
@@ -663,6 +752,4 @@ def report_html(res: StudyResults) -> str:
         "<li>These are measured results, not a design; decisions on treatment, "
         "compliance or use rest with the responsible licensed professional and the "
         "local codes and regulations.</li></ul>"
-    )
-    out.append("</body></html>")
-    return "\n".join(out)
+    ]

@@ -259,6 +259,47 @@ def synthesize(
     Kuttruff, H. Room Acoustics (5th ed., 2009), ch. 4–5 (diffuse tail).
     """
     receivers = receivers or Receivers()
+    src, rcv, distance = _check_positions(room, source, receiver, rate)
+    sab, eyr = sabine(room, air=air), eyring(room, air=air)
+    used, origin = _tail_reverberation(
+        room, eyr if prediction == "eyring" else sab, rt, air, prediction
+    )
+    c = speed_of_sound(room.temperature_c)
+    t_mix, mix_note = mixing_time(room)
+    direct_s = distance / c
+    fade_start, fade_s = _crossfade_span(t_mix, direct_s)
+    length_s, cut_note = _response_length(length_s, used, direct_s)
+    n = int(round(length_s * rate))
+    if n < 16:
+        raise InputError("the requested length is too short")
+    notes = _timing_notes(mix_note, cut_note, t_mix, direct_s, fade_start, fade_s)
+    # The tail is read from the middle of the cross-fade on (images before it).
+    nodes, reading = fit_decay_nodes(used, rate, start_s=fade_start + fade_s / 2)
+    notes += _unreached_notes(used, reading)
+    chans, count = _render_channels(
+        room, src, rcv, receivers, used, nodes, rate, n, c, fade_start, fade_s, air, seed
+    )
+    if receivers.kind == "spaced":
+        notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
+    return SynthResult(
+        np.stack(chans, axis=1),
+        rate,
+        sab,
+        eyr,
+        used,
+        float(t_mix),
+        count,
+        notes,
+        origin,
+        reading,
+        float(fade_start),
+    )
+
+
+def _check_positions(
+    room: RoomModel, source, receiver, rate: int
+) -> tuple[np.ndarray, np.ndarray, float]:
+    """Source and receiver inside the room and far enough apart, at a usable rate."""
     if rate < 8000:
         raise InputError(f"sample rate {rate} Hz is too low (at least 8000 Hz)")
     src = _check_point(room, source, "source")
@@ -270,28 +311,34 @@ def synthesize(
             f"{MIN_DISTANCE_M:g} m the direct sound's 1/r level has no meaning; move "
             "the source and the receiver apart"
         )
-    sab, eyr = sabine(room, air=air), eyring(room, air=air)
-    used, origin = _tail_reverberation(
-        room, eyr if prediction == "eyring" else sab, rt, air, prediction
-    )
-    c = speed_of_sound(room.temperature_c)
-    t_mix, mix_note = mixing_time(room)
+    return src, rcv, distance
+
+
+def _crossfade_span(t_mix: float, direct_s: float) -> tuple[float, float]:
+    """Start and length (s) of the cross-fade from image sources to tail."""
     # The crossfade from images to tail spans half the mixing time (our choice).
     fade_s = 0.5 * t_mix
-    direct_s = distance / c
     fade_start = max(t_mix - fade_s / 2, direct_s + TAIL_AFTER_DIRECT_S)
-    cut_note = None
-    if length_s is None:
-        natural = LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S
-        length_s = min(DEFAULT_LENGTH_CAP_S, natural)
-        if natural > DEFAULT_LENGTH_CAP_S:
-            cut_note = (
-                f"the response is cut at {DEFAULT_LENGTH_CAP_S:g} s, before its decay "
-                f"ends (it would need {natural:.0f} s; give a length to choose)"
-            )
-    n = int(round(length_s * rate))
-    if n < 16:
-        raise InputError("the requested length is too short")
+    return fade_start, fade_s
+
+
+def _response_length(length_s: float | None, used: dict, direct_s: float):
+    """The length asked for, or one long enough for the slowest band's decay (capped)."""
+    if length_s is not None:
+        return length_s, None
+    natural = LENGTH_DECAYS * max(used.values()) + direct_s + LENGTH_MARGIN_S
+    if natural > DEFAULT_LENGTH_CAP_S:
+        return DEFAULT_LENGTH_CAP_S, (
+            f"the response is cut at {DEFAULT_LENGTH_CAP_S:g} s, before its decay "
+            f"ends (it would need {natural:.0f} s; give a length to choose)"
+        )
+    return natural, None
+
+
+def _timing_notes(
+    mix_note, cut_note, t_mix: float, direct_s: float, fade_start: float, fade_s: float
+) -> list:
+    """Notes on the mixing time, a cut length and a cross-fade moved by a late direct sound."""
     notes = [mix_note] if mix_note else []
     if cut_note:
         notes.append(cut_note)
@@ -301,10 +348,25 @@ def synthesize(
             f"cross-fade around the mixing time {1000 * t_mix:.0f} ms: the tail fades in "
             f"from {1000 * fade_start:.1f} ms instead"
         )
-    # The tail is read from the middle of the cross-fade on (images before it).
-    nodes, reading = fit_decay_nodes(used, rate, start_s=fade_start + fade_s / 2)
-    notes += _unreached_notes(used, reading)
+    return notes
 
+
+def _render_channels(
+    room: RoomModel,
+    src: np.ndarray,
+    rcv: np.ndarray,
+    receivers: Receivers,
+    used: dict,
+    nodes,
+    rate: int,
+    n: int,
+    c: float,
+    fade_start: float,
+    fade_s: float,
+    air: bool,
+    seed: int,
+) -> tuple[list, int]:
+    """Per channel, image sources cross-faded into the diffuse tail; and the most images."""
     w_early, w_late = _early_late_weights(n, rate, fade_start, fade_s)
     noises = _tail_noises(rate, n, receivers, np.random.default_rng(seed))
     chans = []
@@ -326,21 +388,7 @@ def synthesize(
         )
         late = diffuse_tail(used, room.volume, rate, n, c=c, noise=noise, nodes=nodes)
         chans.append(early * w_early + late * (w_late * tail_gain))
-    if receivers.kind == "spaced":
-        notes.append("spaced pair: each channel has its own tail noise (decorrelated)")
-    return SynthResult(
-        np.stack(chans, axis=1),
-        rate,
-        sab,
-        eyr,
-        used,
-        float(t_mix),
-        count,
-        notes,
-        origin,
-        reading,
-        float(fade_start),
-    )
+    return chans, count
 
 
 def _unreached_notes(used: dict, reading: dict) -> list:
@@ -471,6 +519,7 @@ def _cardioid(imgs, pos: np.ndarray, axis: np.ndarray | None):
 
 
 def _receiver_positions(room, rcv, src, receivers):
+    """Each channel's capsule position and, for a cardioid, the axis it faces (else None)."""
     if receivers.kind == "mono":
         return [(rcv, None)]
     if receivers.kind == "spaced":
