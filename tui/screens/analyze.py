@@ -241,7 +241,8 @@ class AnalyzePane(VerticalScroll):
             text = str(exc)
         else:
             text = f"{type(exc).__name__}: {exc}"
-        self.app.notify(text, severity="error", title=title, timeout=20)
+        # The app's status line keeps the last error (and shows it as a notice too).
+        workbench(self).report(title, text, error=True)
         self.query_one("#an-status", Static).update(f"{title} failed: {text}")
 
     @on(Button.Pressed, "#an-session")

@@ -304,7 +304,8 @@ class RoomPane(Vertical):
             if isinstance(exc, RoomconvError | OSError)
             else (f"{type(exc).__name__}: {exc}")
         )
-        self.app.notify(text, severity="error", title=title, timeout=20)
+        # The app's status line keeps the last error (and shows it as a notice too).
+        workbench(self).report(title, text, error=True)
         self.query_one("#room-status", Static).update(f"{title} failed: {text}")
 
     def _settings(self) -> dict:
