@@ -13,6 +13,7 @@ import soundfile as sf
 from textual.app import App, ComposeResult
 from textual.containers import VerticalScroll
 
+from roomconv.analysis.sti import average_sti
 from roomconv.errors import InputError
 from roomconv.jobs.analyze import analyze_study
 from roomconv.jobs.speech import parse_octave_levels, speech_conditions
@@ -149,6 +150,20 @@ async def test_speech_panel_shows_the_sti_of_an_exponential_decay(tmp_path):
         assert "licensed professional" in text and "direct" in text and "STIPA" in text
 
 
+async def test_speech_panel_shows_a_null_average_with_its_reason(tmp_path):
+    # The library's own null: no position with a value → the average says why.
+    ir = exponential_decay(tmp_path / "quiet.wav", seconds=1.5)
+    doc = analyze_study([ir], sti=speech_conditions()).study.document
+    doc["positions"][0]["sti"] = {**doc["positions"][0]["sti"], "value": None, "reason": "test"}
+    doc["average"]["sti"] = average_sti([p["sti"] for p in doc["positions"]])
+    panel = SpeechPanel()
+    async with OnePanel(panel).run_test(size=SIZE) as pilot:
+        panel.show(doc)
+        await pilot.pause()
+        assert "quiet.wav ch1: no STI (test)" in panel.shown_text
+        assert "Average STI: not evaluable (no position has an STI value)" in panel.shown_text
+
+
 async def test_speech_panel_says_when_an_analysis_has_no_sti(tmp_path):
     ir = exponential_decay(tmp_path / "plain.wav", seconds=1.5)
     panel = SpeechPanel()
@@ -214,6 +229,31 @@ async def test_layout_panel_shows_jlf_of_one_lateral_reflection(tmp_path):
         assert avg == pytest.approx(want, abs=0.005)
         assert f"{avg:.3f}" in text and "Average Early lateral energy fraction" in text
         assert "not evaluable" in text  # L_J without a strength reference
+
+
+async def test_layout_panel_shows_iacc_of_identical_ears(tmp_path):
+    # Identical ear signals: the normalised interaural cross-correlation peaks at lag 0 with
+    # exactly 1 (Cauchy–Schwarz; ISO 3382-1:2009 Annex A definition of IACC — from memory),
+    # so IACC_E = IACC_A = 1 in every band given and 1 − IACC_E3 = 0.
+    t = np.arange(FS) / FS
+    h = np.random.default_rng(1).standard_normal(t.size) * np.exp(-6.9 * t / 0.6)
+    h[:480], h[480] = 0.0, 1.0
+    path = tmp_path / "ears.wav"
+    sf.write(path, 0.3 * np.stack([h, h], axis=1), FS, subtype="DOUBLE")
+    panel = ChannelLayoutPanel()
+    async with OnePanel(panel).run_test(size=SIZE) as pilot:
+        panel.choice = "binaural"
+        await pilot.pause()
+        doc = analyze_study([path], **panel.analysis_kwargs()).study.document
+        for r in doc["positions"][0]["bands"]:
+            if 125 <= r["band_hz"] <= 4000:
+                assert r["iacc_early"] == pytest.approx(1.0, abs=1e-9)
+                assert r["iacc_full"] == pytest.approx(1.0, abs=1e-9)
+        panel.show(doc)
+        await pilot.pause()
+        text = panel.shown_text
+        assert "IACC_E" in text and "IACC_A" in text and "1.00" in text
+        assert "Average 1 − IACC_E3, early IACC of 500 Hz–2 kHz: 0.00" in text
 
 
 async def test_layout_panel_on_a_plain_analysis_says_so(tmp_path):

@@ -35,6 +35,9 @@ LAYOUT_CHOICES = (
     ("binaural: left ear, right ear", "binaural"),
     ("stage: each channel 1 m from the source", "stage"),
 )
+#: Words that mark a band warning as one about the layout parameters (the others concern the
+#: ISO 3382 decay parameters, which the analysis table shows).
+_LAYOUT_WORDS = ("ST_", "ST is", "IACC", "J_LF", "L_J", "ears", "figure-of-eight", "ambisonic")
 _LEGEND = "* caution (see the warnings below)   — not evaluable"
 
 
@@ -74,12 +77,11 @@ class ChannelLayoutPanel(Vertical):
     def set_status(self, text: str, error: bool = False) -> None:
         """One line inside the panel: the layout chosen, or what is wrong."""
         self.status_text = text
-        self.query_one("#ly-status", Static).update(
-            Text(text, style="bold red" if error else "")
-        )
+        self.query_one("#ly-status", Static).update(Text(text, style="bold red" if error else ""))
 
     @property
     def choice(self) -> str:
+        """The layout chosen: "plain", a channel order, "binaural" or "stage"."""
         return str(self.query_one("#ly-kind", Select).value)
 
     @choice.setter
@@ -130,9 +132,22 @@ class ChannelLayoutPanel(Vertical):
                 p.get("layout_single_number_reasons", {}),
             ):
                 parts.append(Text("  " + line))
+            seen: set[str] = set()
+            other = 0
             for band in p["bands"]:
                 for w in band.get("warnings", []):
-                    parts.append(Text(f"  ! {w}", style="yellow"))
+                    if not _about_layout(w):
+                        other += 1
+                    elif w not in seen:
+                        seen.add(w)
+                        parts.append(Text(f"  ! {w}", style="yellow"))
+            if other:
+                parts.append(
+                    Text(
+                        f"  ({other} warning(s) on the decay parameters: see the analysis table)",
+                        style="dim",
+                    )
+                )
             for n in p.get("layout_notes", []):
                 parts.append(Text(f"  note: {n}", style="italic"))
         avg = (document or {}).get("average", {})
@@ -180,6 +195,10 @@ class ChannelLayoutPanel(Vertical):
                     )
                 )
         return out
+
+
+def _about_layout(warning: str) -> bool:
+    return any(w in warning for w in _LAYOUT_WORDS)
 
 
 def _group(parts):

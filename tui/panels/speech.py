@@ -6,6 +6,7 @@ The panel only gathers values and shows results; the conditions come from
 
 from __future__ import annotations
 
+import contextlib
 from pathlib import Path
 
 from rich.console import Group
@@ -94,9 +95,7 @@ class SpeechPanel(Vertical):
     def set_status(self, text: str, error: bool = False) -> None:
         """One line inside the panel: what was understood, or what is wrong."""
         self.status_text = text
-        self.query_one("#sp-status", Static).update(
-            Text(text, style="bold red" if error else "")
-        )
+        self.query_one("#sp-status", Static).update(Text(text, style="bold red" if error else ""))
 
     def conditions(self) -> SpeechConditions | None:
         """The STI conditions from the fields, None when the STI is off.
@@ -142,10 +141,8 @@ class SpeechPanel(Vertical):
         if not self.query_one("#sp-on", Switch).value:
             self.set_status("STI is off: switch it on to add the STI to the next analysis")
             return
-        try:
+        with contextlib.suppress(InputError):  # already shown in the status line
             self.conditions()
-        except InputError:
-            pass  # already shown in the status line
 
     # -- results ---------------------------------------------------------------------------
     def show(self, document: dict | None) -> None:

@@ -12,6 +12,7 @@ from textual import on, work
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Button, Checkbox, Input, Label, Select, Static
+from textual.worker import get_current_worker
 
 from roomconv.analysis.targets import KNOWN_TARGETS
 from roomconv.analysis.treatment import BASES, DECISION_CAUTION, SURFACE_NAMES
@@ -82,7 +83,9 @@ class TreatmentPanel(Vertical):
     def compose(self) -> ComposeResult:
         with Horizontal():
             yield Label("Target")
-            yield Input(placeholder="0.6  or  500:0.6,1000:0.55  or a published name", id="tp-target")
+            yield Input(
+                placeholder="0.6  or  500:0.6,1000:0.55  or a published name", id="tp-target"
+            )
             yield Select(
                 [(name, name) for name in KNOWN_TARGETS],
                 prompt="published target…",
@@ -136,9 +139,9 @@ class TreatmentPanel(Vertical):
     def set_status(self, text: str, error: bool = False) -> None:
         """One line inside the panel: progress, the file written, or what is wrong."""
         self.status_text = text
-        self.query_one("#tp-status", Static).update(
-            Text(text, style="bold red" if error else "")
-        )
+        if not self.is_mounted:  # a worker finishing after the panel was removed
+            return
+        self.query_one("#tp-status", Static).update(Text(text, style="bold red" if error else ""))
 
     # -- events ---------------------------------------------------------------------------
     @on(Select.Changed, "#tp-named")
@@ -224,12 +227,16 @@ class TreatmentPanel(Vertical):
                 self.set_status, f"the plan failed unexpectedly: {type(exc).__name__}: {exc}", True
             )
             return
+        if get_current_worker().is_cancelled:  # a newer plan was asked for meanwhile
+            return
         app.call_from_thread(self.show_plan, res)
 
     # -- results --------------------------------------------------------------------------
     def show_plan(self, res) -> None:
         """The per-band table, the areas to install, the notes and the caution."""
         self.result = res
+        if not self.is_mounted:
+            return
         doc = res.document
         materials = [f"{a['surface']}={a['material']}" for a in doc["installed"]]
         t = Table(title=f"Plan towards {doc['target']['label']}", pad_edge=False)
@@ -264,7 +271,9 @@ class TreatmentPanel(Vertical):
             )
         mc = doc.get("mean_check")
         if mc:
-            judged = mc["predicted_mean_s"] if doc["checked"] == "predicted" else mc["measured_mean_s"]
+            judged = (
+                mc["predicted_mean_s"] if doc["checked"] == "predicted" else mc["measured_mean_s"]
+            )
             verdict = {True: "within", False: "above", None: "cannot be judged"}[mc["within"]]
             parts.append(
                 Text(
