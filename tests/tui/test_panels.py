@@ -298,6 +298,15 @@ async def test_treatment_panel_bad_input_stays_in_the_panel(decay_document):
         await settle(app, pilot)
         assert "roof" in panel.status_text
         panel.query_one("#tp-install").value = ""
+        panel.query_one("#tp-tolerance").value = "10,-10"  # upper below lower
+        panel.plan()
+        await settle(app, pilot)
+        assert "tolerance" in panel.status_text and "lower ≤ 0 ≤ upper" in panel.status_text
+        panel.query_one("#tp-tolerance").value = "-10"
+        panel.plan()
+        await settle(app, pilot)
+        assert "LOWER,UPPER" in panel.status_text
+        panel.query_one("#tp-tolerance").value = ""
         panel.query_one("#tp-temp").value = "warm"
         panel.plan()
         await settle(app, pilot)
@@ -315,6 +324,7 @@ async def test_treatment_panel_plan_matches_the_sabine_closed_form(decay_documen
         panel.set_room(dims_m=(L, W, H))
         panel.set_results(json_path)  # a results file this time
         panel.query_one("#tp-target").value = "0.6"
+        panel.query_one("#tp-tolerance").value = "-10,5"
         panel.query_one("#tp-surface").value = "ceiling"
         panel.query_one("#tp-material").value = "acoustic-tile"
         panel.query_one("#tp-add").press()
@@ -330,6 +340,8 @@ async def test_treatment_panel_plan_matches_the_sabine_closed_form(decay_documen
         # handbook), with the measured value the plan shows.
         sabine = 0.161 * V * (1 / 0.6 - 1 / b1k["measured_s"])
         assert b1k["added_area_sabine_m2"] == pytest.approx(sabine, abs=1e-3)
+        # The accepted range typed: 0.6 s −10 % … +5 % = 0.54 … 0.63 s (arithmetic).
+        assert (b1k["target_min_s"], b1k["target_max_s"]) == pytest.approx((0.54, 0.63))
         text = panel.shown_text
         assert f"{sabine:.1f}" in text and "acoustic-tile on the ceiling" in text
         assert text.count("licensed professional") == 1

@@ -33,6 +33,22 @@ def _number(text: str, what: str) -> float | None:
         raise InputError(f"{what}: '{t}' is not a number") from None
 
 
+def _tolerance(text: str) -> tuple[float, float]:
+    """``LOWER,UPPER`` in % of a flat or per-band target (empty: −20 %, +20 %); the range
+    itself is checked by the target."""
+    t = text.strip()
+    if not t:
+        return (-20.0, 20.0)
+    parts = [x.strip() for x in t.split(",")]
+    if len(parts) != 2:
+        raise InputError(f"accepted range '{t}': give LOWER,UPPER in % (e.g. -20,20)")
+    lo = _number(parts[0], "lower end of the accepted range")
+    hi = _number(parts[1], "upper end of the accepted range")
+    if lo is None or hi is None:
+        raise InputError(f"accepted range '{t}': give LOWER,UPPER in % (e.g. -20,20)")
+    return (lo, hi)
+
+
 def _chosen(value) -> bool:
     """Whether a Select holds a choice (not its blank prompt)."""
     return isinstance(value, str)
@@ -70,6 +86,7 @@ class TreatmentPanel(Vertical):
     TreatmentPanel Label { padding: 1 1 0 0; }
     TreatmentPanel Input { width: 1fr; }
     TreatmentPanel .tp-short { width: 10; }
+    TreatmentPanel .tp-tol { width: 14; }
     TreatmentPanel Select { width: 1fr; }
     TreatmentPanel Static { height: auto; }
     """
@@ -103,6 +120,9 @@ class TreatmentPanel(Vertical):
             yield Select(
                 [(b.upper(), b) for b in BASES], value="t30", allow_blank=False, id="tp-basis"
             )
+            yield Label("Accepted %")
+            yield Input(placeholder="-20,20", id="tp-tolerance", classes="tp-tol")
+        with Horizontal():
             yield Label("Air °C")
             yield Input(placeholder="20", id="tp-temp", classes="tp-short")
             yield Label("RH %")
@@ -192,6 +212,7 @@ class TreatmentPanel(Vertical):
             "target": target,
             "treatments": install,
             "basis": str(self.query_one("#tp-basis", Select).value),
+            "tolerance_pct": _tolerance(self.query_one("#tp-tolerance", Input).value),
             "temperature_c": _number(self.query_one("#tp-temp", Input).value, "air temperature"),
             "humidity_pct": _number(self.query_one("#tp-rh", Input).value, "relative humidity"),
             "json_path": Path(json_text) if json_text else None,
