@@ -270,8 +270,8 @@ def plan_treatment(
             measured, mnotes = measured_times(doc, basis, str(src))
             run_notes += [f"not analysed: {e}" for e in doc.get("errors", [])]
         else:
-            doc = results_document if in_memory else read_json(src, what="analysis document")
-            measured, mnotes = measured_times(doc, basis, str(src))
+            source = results_document if in_memory else read_json(src, what="analysis document")
+            measured, mnotes = measured_times(source, basis, str(src))
         plan = plan_bands(
             measured,
             tgt,
