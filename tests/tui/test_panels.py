@@ -371,3 +371,9 @@ async def test_treatment_panel_writes_only_when_asked_and_never_clobbers(decay_d
         written = json.loads(out.read_text())
         assert written["target"]["name"] == "din18041:A3"
         assert str(out) in panel.status_text
+        # The tick was for that one replacement: the next plan refuses again.
+        assert panel.query_one("#tp-replace").value is False
+        panel.plan()
+        await settle(app, pilot)
+        assert "nothing was written" in panel.status_text
+        assert json.loads(out.read_text()) == written

@@ -225,7 +225,7 @@ class TreatmentPanel(Vertical):
             kw["results_path"] = Path(self._results)
         return kw
 
-    @work(thread=True, exclusive=True, group="treatment-plan")
+    @work(thread=True, exclusive=True, group="treatment-plan", exit_on_error=False)
     def _run(self, kwargs: dict) -> None:
         from roomconv.jobs.plan import plan_treatment
 
@@ -313,6 +313,8 @@ class TreatmentPanel(Vertical):
         parts.append(Text(f"Caution: {DECISION_CAUTION}", style="italic"))
         self.query_one("#tp-result", Static).update(_group(parts))
         self.shown_text = plain(*parts)
+        # A replacement is agreed to once, for the file it was ticked for.
+        self.query_one("#tp-replace", Checkbox).value = False
         self.set_status(
             "plan written to " + ", ".join(str(p) for p in res.written)
             if res.written
