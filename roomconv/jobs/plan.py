@@ -134,6 +134,7 @@ def plan_treatment(
     *,
     study_path=None,
     results_path=None,
+    results_document: dict | None = None,
     volume_m3: float | None = None,
     area_m2: float | None = None,
     target: str | Target | None = None,
@@ -156,7 +157,10 @@ def plan_treatment(
         and its ``[targets]`` the target unless ``target`` is given.
     results_path : path-like, optional
         An analysis document (``analyze --json``); then ``volume_m3`` and ``area_m2`` are
-        needed. Exactly one of the two sources.
+        needed. Exactly one of the sources.
+    results_document : dict, optional
+        An analysis document already in memory (e.g. ``analyze_study(...).study.document``)
+        instead of ``results_path``; the same needs.
     volume_m3, area_m2 : float, optional
         Override the study's room.
     target : str or Target, optional
@@ -177,11 +181,20 @@ def plan_treatment(
     force : bool
         Replace an existing output (never an input).
     """
-    if (study_path is None) == (results_path is None):
+    given = [x for x in (study_path, results_path, results_document) if x is not None]
+    if len(given) != 1:
         raise InputError("give either a study file or an analysis document, not both or neither")
-    src = Path(study_path if study_path is not None else results_path)
-    inputs_files = [src] + ([Path(materials_file)] if materials_file is not None else [])
-    check_input_file(src, "study file" if study_path is not None else "analysis document")
+    if results_document is not None and not isinstance(results_document, dict):
+        raise InputError("the analysis document must be a mapping (an analysis result)")
+    src = Path(
+        study_path if study_path is not None else results_path or "analysis document in memory"
+    )
+    in_memory = results_document is not None
+    inputs_files = ([] if in_memory else [src]) + (
+        [Path(materials_file)] if materials_file is not None else []
+    )
+    if not in_memory:
+        check_input_file(src, "study file" if study_path is not None else "analysis document")
     if materials_file is not None:
         check_input_file(materials_file, "materials file")
     with guarded(inputs_files, force=force) as g:
@@ -257,8 +270,8 @@ def plan_treatment(
             measured, mnotes = measured_times(doc, basis, str(src))
             run_notes += [f"not analysed: {e}" for e in doc.get("errors", [])]
         else:
-            doc = read_json(src, what="analysis document")
-            measured, mnotes = measured_times(doc, basis, str(src))
+            source = results_document if in_memory else read_json(src, what="analysis document")
+            measured, mnotes = measured_times(source, basis, str(src))
         plan = plan_bands(
             measured,
             tgt,
@@ -271,7 +284,9 @@ def plan_treatment(
         )
         inputs = {
             "study": None if study_path is None else str(study_path),
-            "results": None if results_path is None else str(results_path),
+            "results": "analysis document in memory"
+            if in_memory
+            else (None if results_path is None else str(results_path)),
             "basis": basis,
             "treatments": [f"{t.surface}={t.material.name}" for t in chosen],
             "tolerance_pct": list(tolerance_pct) if tgt.name not in _NAMED else None,
