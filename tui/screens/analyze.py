@@ -23,6 +23,7 @@ from textual.worker import get_current_worker
 from roomconv.analysis.report import HEADERS, LEGEND, SINGLE_NUMBER_NAMES, fmt, value_verdict
 from roomconv.analysis.study import Study
 from roomconv.errors import RoomconvError
+from tui.panels import ChannelLayoutPanel, SpeechPanel, TreatmentPanel
 from tui.plots import DecayPlot, DecayTimePlot, EnergyTimePlot, MagnitudePlot
 from tui.screens import workbench
 
@@ -210,6 +211,13 @@ class AnalyzePane(VerticalScroll):
         yield Static("More parameters", classes="heading")
         yield DataTable(id="an-more", zebra_stripes=True)
         yield Static("", id="an-more-groups", classes="status")
+        yield Static("Speech intelligibility (STI) — set before Analyze", classes="heading")
+        yield SpeechPanel(id="an-speech")
+        yield Static(
+            "What the channels are (spatial and stage parameters) — set before Analyze",
+            classes="heading",
+        )
+        yield ChannelLayoutPanel(id="an-layout")
         with Horizontal(classes="field gap"):
             yield Label("Export to")
             yield Input("analysis_out", id="an-export-dir", compact=True)
@@ -255,10 +263,20 @@ class AnalyzePane(VerticalScroll):
 
     @on(Button.Pressed, "#an-run")
     def run_pressed(self) -> None:
-        self.analyse()
+        # The panels' settings are read here, on the interface's thread; a bad value is
+        # shown (in the panel and the status line) and nothing is analysed.
+        try:
+            options = {
+                "sti": self.query_one(SpeechPanel).conditions(),
+                **self.query_one(ChannelLayoutPanel).analysis_kwargs(),
+            }
+        except Exception as exc:  # every failure is shown; none may end the session
+            self.report_error("Analyze", exc)
+            return
+        self.analyse(options)
 
     @work(thread=True, exclusive=True, group="analyze", exit_on_error=False)
-    def analyse(self) -> None:
+    def analyse(self, options: dict | None = None) -> None:
         from roomconv.audio import read_audio
         from roomconv.jobs.analyze import analyze_study
 
@@ -273,7 +291,7 @@ class AnalyzePane(VerticalScroll):
                 raise RoomconvError("IR files: type one or more IR file paths first")
             bands = str(self.query_one("#an-bands", Select).value)
             app.call_from_thread(status.update, "analysing…")
-            study = analyze_study([Path(f) for f in files], bands=bands).study
+            study = analyze_study([Path(f) for f in files], bands=bands, **(options or {})).study
             # The plots need the responses themselves; the analysis keeps only its curves.
             irs = {}
             for name in dict.fromkeys(str(p["file"]) for p in study.document["positions"]):
@@ -416,6 +434,11 @@ class AnalyzePane(VerticalScroll):
             picker.value = "0"
         self.draw_position(0)
         self.draw_decay_times()
+        self.query_one(SpeechPanel).show(doc)
+        self.query_one(ChannelLayoutPanel).show(doc)
+        # The Room tab's treatment planning starts from the latest measured decay times.
+        for panel in self.app.query(TreatmentPanel):
+            panel.set_results(doc)
 
     def _show_more(self, doc: dict) -> None:
         keys = extra_band_keys(doc)

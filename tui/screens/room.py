@@ -30,6 +30,7 @@ from roomconv.jobs.synth import (
 )
 from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
+from tui.panels import TreatmentPanel
 from tui.plots import RoomPlan
 from tui.screens import workbench
 
@@ -59,6 +60,8 @@ class RoomPane(Vertical):
     RoomPane #room-body { height: 1fr; min-height: 10; }
     RoomPane #room-controls { width: 48%; max-width: 64; min-width: 36; }
     RoomPane #room-side { width: 1fr; }
+    RoomPane #room-treatment-box { height: 1fr; min-height: 6; }
+    RoomPane .heading { text-style: bold; height: auto; }
     RoomPane .field { height: 1; margin: 0; }
     RoomPane .field Label { width: 14; padding: 0 1 0 0; }
     RoomPane .field Input { width: 1fr; }
@@ -177,6 +180,13 @@ class RoomPane(Vertical):
                     yield Checkbox("Replace an existing file", id="room-replace", compact=True)
             with Vertical(id="room-side"):
                 yield RoomPlan(id="room-plan")
+                with VerticalScroll(id="room-treatment-box"):
+                    yield Static(
+                        "Treatment planning: measured decay times from the Analyze tab, "
+                        "this room's size",
+                        classes="heading",
+                    )
+                    yield TreatmentPanel(id="room-treatment")
         yield DataTable(id="room-prediction", cursor_type="none", zebra_stripes=True)
 
     def on_mount(self) -> None:
@@ -266,6 +276,7 @@ class RoomPane(Vertical):
                 return
             self._draw_plan(plan, L, W)
             return
+        self.query_one(TreatmentPanel).set_room(dims_m=(room.length, room.width, room.height))
         table.clear()
         table.add_row("Sabine s", *[f"{sab[b]:.2f}" for b in OCTAVES])
         table.add_row("Eyring s", *[f"{eyr[b]:.2f}" for b in OCTAVES])
