@@ -26,6 +26,7 @@ from textual.widgets import (
 )
 from textual.worker import WorkerState
 
+from roomconv.jobs.naming import unused_name
 from roomconv.safety import caution_text
 from tui.screens.analyze import AnalyzePane
 from tui.screens.measure import MeasurePane
@@ -141,16 +142,6 @@ class ReplaceScreen(ModalScreen[str]):
     def chosen(self, event: Button.Pressed) -> None:
         answer = {"replace-yes": "replace", "replace-new": "new"}.get(event.button.id or "")
         self.dismiss(answer or "cancel")
-
-
-def free_name(path: Path) -> Path:
-    """``path`` if nothing is there, else the first of ``stem-2``, ``stem-3``… that is free."""
-    if not path.exists():
-        return path
-    k = 2
-    while (candidate := path.with_name(f"{path.stem}-{k}{path.suffix}")).exists():
-        k += 1
-    return candidate
 
 
 class RoomconvApp(App):
@@ -389,14 +380,14 @@ class RoomconvApp(App):
         if path.exists():
 
             def answered(choice: str | None) -> None:
-                if choice == "replace":
-                    self.save_session(path, force=True)
-                elif choice == "new":
-                    self.save_session(free_name(path))
+                if choice in ("replace", "new"):
+                    # The file is replaced only on the user's own answer "Replace".
+                    replace = choice == "replace"
+                    self.save_session(path if replace else unused_name(path), force=replace)
                 else:
                     self.report("Save", f"not saved; {path} left as it was")
 
-            self.push_screen(ReplaceScreen(path, free_name(path)), answered)
+            self.push_screen(ReplaceScreen(path, unused_name(path)), answered)
         else:
             self.save_session(path)
 

@@ -16,6 +16,7 @@ from textual.worker import get_current_worker
 
 from roomconv import validate
 from roomconv.errors import InputError, RoomconvError
+from roomconv.jobs.naming import unused_name
 from roomconv.jobs.progress import Cancelled
 from tui.screens import workbench
 from tui.widgets import level_meter
@@ -493,9 +494,7 @@ class MeasurePane(Vertical):
                 )
             distance = self.number("#ms-cal-distance", "Strength reference at (m)")
             out = Path(target)
-            free, k = out, 2
-            while free.exists():
-                free, k = out.with_name(f"{out.stem}-{k}{out.suffix}"), k + 1
+            free = unused_name(out)
             res = calibrate_free_field(found[0]["file"], free, distance_m=distance)
         except Exception as exc:  # noqa: BLE001 - every failure is shown, none ends the app
             self.fail("Strength reference", exc)
