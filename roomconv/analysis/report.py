@@ -72,15 +72,16 @@ def fmt(metric: str, value) -> str:
 
 
 def band_label(band_hz) -> str:
-    """A band's short label from its nominal centre in Hz (``None``: the wideband row).
+    """A band's short label from its nominal centre in Hz (``None``: the unfiltered row,
+    "broadband"; the JSON key stays ``wideband``).
 
     Examples
     --------
     >>> band_label(125.0), band_label(2000.0), band_label(None)
-    ('125', '2k', 'wide')
+    ('125', '2k', 'broadband')
     """
     if band_hz is None:
-        return "wide"
+        return "broadband"
     return f"{band_hz / 1000:g}k" if band_hz >= 1000 else f"{band_hz:g}"
 
 
@@ -144,7 +145,7 @@ def table_rows(position: dict, metrics) -> list[list[str]]:
     >>> row = {"band_hz": 1000.0, "t30_s": 1.23, "verdicts": {"t30_s": "caution"},
     ...        "verdict": "caution"}
     >>> table_rows({"bands": [row], "wideband": dict(row, band_hz=None)}, ["t30_s"])
-    [['1k', '1.23*', 'caution'], ['wide', '1.23*', 'caution']]
+    [['1k', '1.23*', 'caution'], ['broadband', '1.23*', 'caution']]
     """
     rows = []
     for r in position["bands"] + [position["wideband"]]:

@@ -20,7 +20,14 @@ from textual.containers import Grid, Horizontal, VerticalScroll
 from textual.widgets import Button, Checkbox, DataTable, Input, Label, Select, Static
 from textual.worker import get_current_worker
 
-from roomconv.analysis.report import HEADERS, LEGEND, SINGLE_NUMBER_NAMES, fmt, value_verdict
+from roomconv.analysis.report import (
+    HEADERS,
+    LEGEND,
+    SINGLE_NUMBER_NAMES,
+    band_label,
+    fmt,
+    value_verdict,
+)
 from roomconv.analysis.study import Study
 from roomconv.errors import RoomconvError
 from tui.panels import ChannelLayoutPanel, SpeechPanel, TreatmentPanel
@@ -51,13 +58,6 @@ DECAY_BANDS = (125, 250, 500, 1000, 2000, 4000)
 TWO_COLUMNS_FROM = 120
 #: Units named by a key's ending, for parameters this tab does not know by name.
 UNITS = {"_s": " s", "_ms": " ms", "_db": " dB", "_pct": " %", "_permille": " ‰", "_hz": " Hz"}
-
-
-def band_name(band_hz) -> str:
-    """A band's short name; the unfiltered response is "broadband"."""
-    if band_hz is None:
-        return "broadband"
-    return f"{band_hz / 1000:g}k" if band_hz >= 1000 else f"{band_hz:g}"
 
 
 def plain_header(key: str) -> str:
@@ -398,14 +398,14 @@ class AnalyzePane(VerticalScroll):
             for r in p["bands"] + [p["wideband"]]:
                 t.add_row(
                     name,
-                    band_name(r["band_hz"]),
+                    band_label(r["band_hz"]),
                     *[_cell(r, c) for c in COLUMNS],
                     _verdict_text(r.get("verdict", "")),
                 )
         if len(doc["positions"]) > 1:
             for r in doc["average"]["bands"]:
                 t.add_row(
-                    "average", band_name(r["band_hz"]), *[_mean_cell(r, c) for c in COLUMNS], ""
+                    "average", band_label(r["band_hz"]), *[_mean_cell(r, c) for c in COLUMNS], ""
                 )
         warns = [
             w for p in doc["positions"] for r in p["bands"] + [p["wideband"]] for w in r["warnings"]
@@ -451,7 +451,7 @@ class AnalyzePane(VerticalScroll):
                 for r in p["bands"] + [p["wideband"]]:
                     more.add_row(
                         name,
-                        band_name(r["band_hz"]),
+                        band_label(r["band_hz"]),
                         *[_cell(r, k) if k in HEADERS else plain_value(k, r.get(k)) for k in keys],
                     )
         groups = extra_groups(doc)
@@ -507,7 +507,7 @@ class AnalyzePane(VerticalScroll):
         kind = doc["settings"]["bands"]
         shown = [r for r in res if r.band_hz is not None and _decay_band(r.band_hz, kind)]
         decays = band_decays(shown, rate)
-        names = [band_name(d.band_hz) for d in decays]
+        names = [band_label(d.band_hz) for d in decays]
         self.query_one("#an-decay-plot", DecayPlot).show(decays, names)
         self.query_one("#an-decay", Static).update(
             f"Decay curves of {label} ({', '.join(names) or 'none'}; fitted lines dotted)"
@@ -526,7 +526,7 @@ class AnalyzePane(VerticalScroll):
             stat = r.get(metric) or {}
             err = stat.get("uncertainty") or stat.get("std")
             rows.append(
-                (band_name(r["band_hz"]), stat.get("mean"), err, stat.get("verdict") == "caution")
+                (band_label(r["band_hz"]), stat.get("mean"), err, stat.get("verdict") == "caution")
             )
         self.query_one("#an-t-plot", DecayTimePlot).show(rows, name)
         text = ", ".join(
