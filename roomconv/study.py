@@ -256,6 +256,10 @@ class StudyFile:
     #: The terminal workbench's own field values (``[workbench]``): text, numbers, true/false
     #: or lists of text, keyed by field; other programs ignore them.
     workbench: dict = field(default_factory=dict)
+    #: What the channels of every response file are (``[channels] layout``): None (one
+    #: channel per response, as ``channel`` says), "omni,fig8", "fig8,omni", "acn-sn3d",
+    #: "binaural" or "stage"; it adds the ISO 3382-1 spatial or stage parameters.
+    layout: str | None = None
 
     def as_dict(self) -> dict:
         """Plain JSON-ready data (paths as strings, relative to the study file when inside)."""
@@ -465,6 +469,8 @@ def parse_study(text: str, path) -> StudyFile:
     office = _office(top, base, src) if "office" in doc else None
     top.used.add("office")
     workbench = _workbench_table(top.get("workbench", dict, {}), src)
+    layout = _channels_table(top, src) if "channels" in doc else None
+    top.used.add("channels")
     top.done()
     return StudyFile(
         path=path,
@@ -483,6 +489,7 @@ def parse_study(text: str, path) -> StudyFile:
         targets=targets,
         office=office,
         workbench=workbench,
+        layout=layout,
     )
 
 
@@ -684,6 +691,25 @@ def _office(top: _Reader, base: Path, src: str) -> OfficeSettings:
         None if cal is None else _path(base, cal, of, "calibration"),
         None if noise is None else tuple(float(x) for x in noise),
     )
+
+
+#: The ``[channels] layout`` values a study file accepts (see :data:`StudyFile.layout`).
+STUDY_LAYOUTS = ("omni,fig8", "fig8,omni", "acn-sn3d", "binaural", "stage")
+
+
+def _channels_table(top: _Reader, src: str) -> str:
+    """The [channels] table: what the channels of every response file are."""
+    ch = _Reader(top.get("channels", dict), "channels.", src)
+    layout = ch.get(
+        "layout",
+        str,
+        required=True,
+        check=lambda v: (
+            None if v in STUDY_LAYOUTS else f"{v!r} is not one of {', '.join(STUDY_LAYOUTS)}"
+        ),
+    )
+    ch.done()
+    return layout
 
 
 def _workbench_table(table: dict, src: str) -> dict:
@@ -928,4 +954,11 @@ file = "S1R2.wav"
 # [office]
 # calibration = "cal.json"
 # background_noise_db = [40.0, 38.0, 36.0, 34.0, 31.0, 27.0, 22.0]  # 125 Hz … 8 kHz, dB SPL
+
+# Optional: what the channels of every response file are, for the ISO 3382-1 spatial and
+# stage parameters: "omni,fig8" or "fig8,omni" (lateral energy), "acn-sn3d" (first-order
+# ambisonic, W Y Z X), "binaural" (left, right: IACC) or "stage" (responses 1 m from the
+# source on stage: ST_early, ST_late). Each file then holds one position's channels.
+# [channels]
+# layout = "binaural"
 """

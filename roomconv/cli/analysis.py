@@ -102,7 +102,10 @@ def run_analyze(a):
     if len(layout_opts) > 1:
         raise InputError(f"analyze: {' and '.join(layout_opts)} exclude each other; give one")
     if layout_opts and a.study is not None:
-        raise InputError(f"analyze: {layout_opts[0]} works on IR files, not with --study")
+        raise InputError(
+            f"analyze: {layout_opts[0]} works on IR files; with --study, say what the "
+            "channels are in the study file's [channels] layout"
+        )
     if layout_opts and a.bands != "octave":
         raise InputError(
             f"analyze: {layout_opts[0]}: these parameters are defined in octave bands "

@@ -103,6 +103,19 @@ def used_combinations(doc: dict) -> list[tuple[str, str]]:
     return out
 
 
+def _study_layout(study: StudyFile):
+    """The study's ``[channels] layout`` as the analysis' channel layout (or None)."""
+    from ..analysis.layouts import parse_layout
+
+    if study.layout is None:
+        return None
+    if study.layout == "binaural":
+        return parse_layout(binaural=True)
+    if study.layout == "stage":
+        return parse_layout(stage=True)
+    return parse_layout(study.layout)
+
+
 def analyse_study(
     study: StudyFile,
     *,
@@ -138,13 +151,22 @@ def analyse_study(
     >>> tmp.cleanup()
     """
     check_study_inputs(study)
+    layout = _study_layout(study)
     items, irs, quality, by_label = [], {}, {}, {}
     for r in study.responses:
         data, rate = read_audio(r.file, what="impulse response")
         h = data[:, r.channel - 1]
         label = r.label if r.label not in by_label else f"{r.label}#{r.channel}"
         by_label[label] = r
-        items.append((label, h[:, None], rate))
+        if layout is not None:
+            layout.check(r.file, data.shape[1])  # names the file before any analysis
+        if layout is not None and layout.kind != "stage":
+            # One position's channels together (omni and figure-of-eight, ambisonic or the
+            # two ears); the ISO 3382 parameters come from its omni (or left) channel.
+            h = data[:, layout.mono_channels(data.shape[1])[0]]
+            items.append((label, data, rate))
+        else:
+            items.append((label, h[:, None], rate))
         irs[label] = (h, rate)
         if r.quality_file is not None:
             quality[label] = read_json(r.quality_file, what="measurement quality file")
@@ -155,6 +177,7 @@ def analyse_study(
         calibration=calibration,
         progress=progress,
         sti=sti,
+        layout=layout,
     )
     doc = result.document
     curves = {}
