@@ -52,6 +52,9 @@ __all__ = [
 #: Largest room side accepted, m: beyond any enclosed hall (common practice), and the image
 #: source and tail sizes stay within memory.
 ROOM_SIDE_MAX_M = 1000.0
+#: Smallest room side accepted, m: below this an enclosure is a box, not a room, and its
+#: diffuse tail (a statistical model of many reflections) has no meaning (common practice).
+ROOM_SIDE_MIN_M = 0.5
 #: Decay-time factors accepted by the decay scaling: beyond these the exponential reshaping
 #: either leaves only the direct sound or grows the tail without bound (common practice).
 DECAY_SCALE_MIN, DECAY_SCALE_MAX = 0.05, 20.0
@@ -85,7 +88,7 @@ def parse_triple(text: str, what: str, sep: str = ",") -> tuple[float, float, fl
 
 
 def room_size(text: str) -> tuple[float, float, float]:
-    """``"12x8x3.5"`` → three positive finite sides in m, each at most
+    """``"12x8x3.5"`` → three finite sides in m, each from :data:`ROOM_SIDE_MIN_M` to
     :data:`ROOM_SIDE_MAX_M`.
 
     Examples
@@ -97,7 +100,7 @@ def room_size(text: str) -> tuple[float, float, float]:
     for v in vals:
         if v <= 0:
             raise InputError(f"room dimensions must be positive (got '{text}')")
-        validate.in_range(v, "room side", 0.0, ROOM_SIDE_MAX_M, unit="m")
+        validate.in_range(v, "room side", ROOM_SIDE_MIN_M, ROOM_SIDE_MAX_M, unit="m")
     return vals
 
 

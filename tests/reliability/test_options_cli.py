@@ -60,6 +60,7 @@ CORPUS = [
     ("synth", ["--room", "-5x4x3"], "--room"),
     ("synth", ["--room", "1e6x1e6x1e6"], "--room"),
     ("synth", ["--room", "nanx4x3"], "--room"),
+    ("synth", ["--room", "1e-300x1x1"], "--room"),
     ("synth", ["--length", "1e6"], "--length"),
     ("synth", ["--length", "-1"], "--length"),
     ("synth", ["--length", "1e308"], "--length"),
