@@ -108,3 +108,36 @@ def test_the_workbench_names_a_malformed_study_file(tmp_path, capsys):
     err = capsys.readouterr().err
     assert code == 2 and _one_line(err), err
     assert "bad.toml" in err and "channels.layout" in err and "terminal" not in err
+
+
+def test_a_materials_file_with_other_bands_or_unknown_fields_is_refused(tmp_path, cli):
+    # Absorption coefficients are tabulated per octave band 125 Hz–4 kHz (ISO 354 reports
+    # them so, from memory); a file listing other bands was read as if in ours, unchecked.
+    import json
+
+    other = tmp_path / "other.json"
+    other.write_text(
+        json.dumps(
+            {"felt": {"alpha": [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8],
+                      "bands_hz": [125, 250, 500, 1000, 2000, 4000, 8000, 16000]}}
+        )
+    )  # fmt: skip
+    code, _, err = cli("materials", "--materials-file", other, "--json", tmp_path / "m.json")
+    assert code == 2 and _one_line(err), err
+    assert "other.json" in err and "bands_hz" in err and not (tmp_path / "m.json").exists()
+    typo = tmp_path / "typo.json"
+    typo.write_text(json.dumps({"felt": {"alpha": [0.1] * 6, "sorce": "lab"}}))
+    code, _, err = cli("materials", "--materials-file", typo)
+    assert code == 2 and _one_line(err) and "typo.json" in err and "sorce" in err, err
+    blank = tmp_path / "blank.json"
+    blank.write_text(json.dumps({"": {"alpha": [0.1] * 6}}))
+    code, _, err = cli("materials", "--materials-file", blank)
+    assert code == 2 and _one_line(err) and "blank.json" in err, err
+
+
+def test_the_materials_listing_reads_back_as_a_materials_file(tmp_path, cli):
+    # What 'materials --json' writes (with its bands_hz and notes) stays a valid input.
+    code, _, err = cli("materials", "--json", tmp_path / "all.json")
+    assert code == 0, err
+    code, _, err = cli("materials", "--materials-file", tmp_path / "all.json")
+    assert code == 0, err
