@@ -141,3 +141,27 @@ def test_the_materials_listing_reads_back_as_a_materials_file(tmp_path, cli):
     assert code == 0, err
     code, _, err = cli("materials", "--materials-file", tmp_path / "all.json")
     assert code == 0, err
+
+
+def _plan_study(folder, source_xy: str) -> None:
+    sf.write(folder / "p.wav", _decay(), RATE, subtype="FLOAT")
+    (folder / "plan.toml").write_text(
+        '[study]\ntitle = "Plan distances"\n[room]\nname = "Test office"\n'
+        f'[[sources]]\nid = "S1"\nxy_m = {source_xy}\n'
+        '[[receivers]]\nid = "R1"\nxy_m = [2.0, 0.0]\n'
+        '[[responses]]\nsource = "S1"\nreceiver = "R1"\nfile = "p.wav"\n'
+        '[office]\ncalibration = "cal.json"\n'
+    )
+
+
+def test_plan_positions_must_be_finite_and_give_a_usable_distance(tmp_path, cli):
+    # The distance from plan positions is the Euclidean distance (closed form); a NaN
+    # coordinate was blamed on "one plan position", and 1e300 m or 10 µm were accepted or
+    # refused without naming the file.
+    cases = {"[nan, 0.0]": "xy_m", "[1e300, 0.0]": "1e+300 m", "[1.99999, 0.0]": "1e-05 m"}
+    for xy, shown in cases.items():
+        _plan_study(tmp_path, xy)
+        code, _, err = cli("office", tmp_path / "plan.toml", "--json", tmp_path / "o.json")
+        assert code == 2 and _one_line(err), (xy, err)
+        assert "plan.toml" in err and shown in err, (xy, err)
+        assert not (tmp_path / "o.json").exists()
