@@ -749,6 +749,8 @@ def load_study(path) -> StudyFile:
     250.0
     """
     p = Path(path)
+    if p.is_dir():
+        raise InputError(f"{p}: is a folder, not a study file; give the .toml file inside it")
     if not p.is_file():
         raise InputError(
             f"{p}: study file not found; check the path or create one with 'roomconv study init'"

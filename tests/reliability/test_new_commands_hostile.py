@@ -165,3 +165,11 @@ def test_plan_positions_must_be_finite_and_give_a_usable_distance(tmp_path, cli)
         assert code == 2 and _one_line(err), (xy, err)
         assert "plan.toml" in err and shown in err, (xy, err)
         assert not (tmp_path / "o.json").exists()
+
+
+def test_a_folder_given_as_the_study_file_is_called_a_folder(tmp_path, cli):
+    # It was reported as "not found", which sends the user looking for a missing path.
+    (tmp_path / "rooms").mkdir()
+    code, _, err = cli("office", tmp_path / "rooms", "--json", tmp_path / "o.json")
+    assert code == 2 and _one_line(err) and "rooms" in err and "folder" in err, err
+    assert not (tmp_path / "o.json").exists()
