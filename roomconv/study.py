@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
+import math
 import os
 import tomllib
 from dataclasses import asdict, dataclass, field
@@ -415,8 +416,11 @@ def _points(doc: dict, name: str, src: str) -> tuple[Point, ...]:
             check=lambda v: (
                 None
                 if len(v) == 2
-                and all(isinstance(c, int | float) and not isinstance(c, bool) for c in v)
-                else "must be two numbers [x, y]"
+                and all(
+                    isinstance(c, int | float) and not isinstance(c, bool) and math.isfinite(c)
+                    for c in v
+                )
+                else "must be two finite numbers [x, y]"
             ),
         )
         h = r.get("height_m", float, check=_range(0.0, 100.0))
@@ -745,6 +749,8 @@ def load_study(path) -> StudyFile:
     250.0
     """
     p = Path(path)
+    if p.is_dir():
+        raise InputError(f"{p}: is a folder, not a study file; give the .toml file inside it")
     if not p.is_file():
         raise InputError(
             f"{p}: study file not found; check the path or create one with 'roomconv study init'"

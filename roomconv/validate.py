@@ -248,7 +248,9 @@ def count(value, what: str, lo: int = 1, hi: int | None = None) -> int:
     n = int(v)
     if n < lo or (hi is not None and n > hi):
         rng = f"{lo} to {hi}" if hi is not None else f"at least {lo}"
-        raise InputError(f"{what} {n} is out of range (accepted: {rng})")
+        # A huge value ("1e300") is echoed as typed, not as its hundreds of integer digits.
+        shown = str(n) if abs(n) < 10**15 else _fmt(v)
+        raise InputError(f"{what} {shown} is out of range (accepted: {rng})")
     return n
 
 

@@ -495,6 +495,17 @@ def main(argv: list[str] | None = None) -> int:
             file=sys.stderr,
         )
         return 2
+    if study is not None:
+        from roomconv.errors import InputError
+        from roomconv.jobs.study import check_study
+
+        # A malformed study file is refused by name before anything else, with or without
+        # a terminal, rather than opened as an empty session that hides the fault.
+        try:
+            check_study(study)
+        except InputError as exc:
+            print(f"roomconv-tui: error: {exc}", file=sys.stderr)
+            return 2
     problem = terminal_problem()
     if problem:
         print(

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import InputError
 from ..signal import energy_envelope
 
 __all__ = [
@@ -45,6 +46,12 @@ def onset_index(h: np.ndarray, drop_db: float = 20.0) -> int:
     Used on the *broadband* response: time zero of every band is the direct sound of the
     unfiltered response, not the band filter's own build-up.
 
+    Raises
+    ------
+    InputError
+        When the response is empty or silent (no onset exists); an :class:`InputError` so
+        every command refuses it as a bad input rather than failing internally.
+
     References
     ----------
     ISO 3382-1:2009, A.3.2 (start of the impulse response: the level first rises to within
@@ -58,7 +65,7 @@ def onset_index(h: np.ndarray, drop_db: float = 20.0) -> int:
     e = np.square(np.asarray(h, dtype=np.float64))
     peak = e.max() if e.size else 0.0
     if peak <= 0:
-        raise ValueError("silent response")
+        raise InputError("the response is silent (all zeros); check the file and its channel")
     return int(np.flatnonzero(e >= peak * 10 ** (-drop_db / 10))[0])
 
 

@@ -156,6 +156,11 @@ def fig8_from_ambisonic(acn: np.ndarray, rate: int) -> AmbisonicSplit:
         raise InputError(
             "the W (omnidirectional) channel is silent; is the order ACN (W, Y, Z, X)?"
         )
+    if not (np.any(y) or np.any(x)):
+        raise InputError(
+            "the Y and X (horizontal figure-of-eight) channels are silent (all zeros); "
+            "is the order ACN (W, Y, Z, X) and were they recorded?"
+        )
     onset = onset_index(w)
     d = slice(onset, onset + max(1, int(round(DIRECT_SOUND_S * rate))))
     iy, ix, ew = float(np.dot(w[d], y[d])), float(np.dot(w[d], x[d])), float(np.dot(w[d], w[d]))
@@ -406,6 +411,13 @@ def lateral_fractions(
     check_same_shape({"omni": omni, "figure-of-eight": fig8})
     if not np.any(omni):
         raise InputError("the omni channel is silent")
+    # A figure-of-eight in a room always receives reflections: an all-zero channel is a
+    # missing or mis-ordered channel, and would read as J_LF = 0 (no lateral sound at all).
+    if not np.any(fig8):
+        raise InputError(
+            "the figure-of-eight channel is silent (all zeros); check the channel order "
+            "and that this channel was recorded"
+        )
     if bands is None:
         bands, _ = bands_for_rate("octave", rate)
     if onset is None:

@@ -48,6 +48,13 @@ def response_distances(st: StudyFile) -> list[float]:
                 f"{st.path}: responses[{i}]: source and receiver share one plan position; "
                 "give distance_m"
             )
+        # The same range a written distance_m must keep: a plan distance outside it is a
+        # typo in xy_m, not an office.
+        if not 0.1 <= d <= 1000.0:
+            raise InputError(
+                f"{st.path}: responses[{i}]: the plan distance {d:g} m from {r.source} to "
+                f"{r.receiver} is outside 0.1…1000 m; correct xy_m or give distance_m"
+            )
         out.append(d)
     return out
 

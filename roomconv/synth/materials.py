@@ -24,6 +24,8 @@ __all__ = ["OCTAVES", "Material", "MATERIALS", "check_material", "load_materials
 
 #: Octave bands of the absorption tables, nominal mid-band frequencies in Hz (IEC 61260-1).
 OCTAVES = (63, 125, 250, 500, 1000, 2000, 4000, 8000)
+#: The fields a row of a materials file may hold ('materials --json' writes all four).
+_ROW_KEYS = frozenset({"alpha", "bands_hz", "source", "note"})
 
 _HB = "Master Handbook of Acoustics / sengpielaudio absorption table"
 
@@ -156,8 +158,22 @@ def load_materials(path) -> dict[str, Material]:
         )
     out = {}
     for name, row in data.items():
+        # A name is given back as SURFACE=MATERIAL, so it must be non-empty and free of '='.
+        if not name.strip() or "=" in name or name != name.strip():
+            raise InputError(
+                describe(p, f"material name {name!r} is not usable", "give a name without '='")
+            )
         if not isinstance(row, dict) or "alpha" not in row:
             raise InputError(describe(p, f"material '{name}' needs an 'alpha' list"))
+        unknown = sorted(set(row) - _ROW_KEYS)
+        if unknown:
+            raise InputError(
+                describe(
+                    p,
+                    f"material '{name}': unknown field '{unknown[0]}'",
+                    f"use {', '.join(sorted(_ROW_KEYS))}",
+                )
+            )
         alpha = row["alpha"]
         if not isinstance(alpha, list):
             raise InputError(
@@ -182,6 +198,19 @@ def load_materials(path) -> dict[str, Material]:
                     f"material '{name}': field 'alpha' needs 6 (125 Hz-"
                     f"4 kHz) or {len(OCTAVES)} (63 Hz-8 kHz) values, got "
                     f"{len(vals)}",
+                )
+            )
+        # Values are read in the fixed octave order; a file written for other bands would
+        # be silently misread, so its own band list (as 'materials --json' writes it) must match.
+        bands = row.get("bands_hz")
+        want = list(OCTAVES) if len(vals) == len(OCTAVES) else list(OCTAVES[1:-1])
+        if bands is not None and bands != want:
+            raise InputError(
+                describe(
+                    p,
+                    f"material '{name}': bands_hz {bands!r} are not the octaves "
+                    f"{', '.join(map(str, want))} Hz its {len(vals)} values stand for",
+                    "give the values in those bands or leave bands_hz out",
                 )
             )
         src = str(row.get("source", f"user file {p.name}"))
