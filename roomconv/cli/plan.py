@@ -88,17 +88,6 @@ def show_plan(doc: dict) -> None:
         print(f"note: {n}")
 
 
-def _tolerance(text: str) -> tuple[float, float]:
-    parts = str(text).split(",")
-    if len(parts) != 2:
-        raise InputError(f"tolerance '{text}' must be LOWER,UPPER in % (e.g. -20,20)")
-    lo = validate.finite(parts[0], "lower tolerance")
-    hi = validate.finite(parts[1], "upper tolerance")
-    if not (-100.0 < lo <= 0.0 <= hi):
-        raise InputError(f"tolerance '{text}' must have -100 < lower ≤ 0 ≤ upper (in %)")
-    return lo, hi
-
-
 def _option_of(text: str, a) -> str | None:
     """The option behind a job's refusal (the job names values, not options)."""
     if (
@@ -236,7 +225,7 @@ def configure_plan(p):
     )
     p.add_argument(
         "--tolerance",
-        type=opt(_tolerance),
+        type=opt(jobs.parse_tolerance),
         default=(-20.0, 20.0),
         metavar="LOWER,UPPER",
         help="accepted range of a flat or per-band target, %% of the target (default -20,20)",

@@ -27,6 +27,7 @@ from .guard import guarded
 from .progress import ProgressCallback, silent
 
 __all__ = [
+    "parse_tolerance",
     "BASES",
     "parse_treatment",
     "measured_times",
@@ -38,6 +39,25 @@ __all__ = [
 
 #: Published targets carry their own tolerance; a flat or per-band one the user's.
 _NAMED = set(KNOWN_TARGETS) | {"study"}
+
+
+def parse_tolerance(text: str) -> tuple[float, float]:
+    """``"LOWER,UPPER"`` in % of a flat or per-band target → (lower, upper), with
+    −100 < lower ≤ 0 ≤ upper.
+
+    Examples
+    --------
+    >>> parse_tolerance("-10,5")
+    (-10.0, 5.0)
+    """
+    parts = str(text).split(",")
+    if len(parts) != 2:
+        raise InputError(f"tolerance '{text}' must be LOWER,UPPER in % (e.g. -20,20)")
+    lo = validate.finite(parts[0], "lower tolerance")
+    hi = validate.finite(parts[1], "upper tolerance")
+    if not (-100.0 < lo <= 0.0 <= hi):
+        raise InputError(f"tolerance '{text}' must have -100 < lower ≤ 0 ≤ upper (in %)")
+    return lo, hi
 
 
 def parse_treatment(item: str, materials_file=None) -> tuple[str, str]:

@@ -17,6 +17,7 @@ from textual.worker import get_current_worker
 from roomconv.analysis.targets import KNOWN_TARGETS
 from roomconv.analysis.treatment import BASES, DECISION_CAUTION, SURFACE_NAMES
 from roomconv.errors import InputError, OutputExistsError, RoomconvError
+from roomconv.jobs.plan import parse_tolerance
 from roomconv.synth.materials import MATERIALS
 from tui.panels._text import plain
 
@@ -34,19 +35,10 @@ def _number(text: str, what: str) -> float | None:
 
 
 def _tolerance(text: str) -> tuple[float, float]:
-    """``LOWER,UPPER`` in % of a flat or per-band target (empty: −20 %, +20 %); the range
-    itself is checked by the target."""
+    """``LOWER,UPPER`` in % of a flat or per-band target (empty: −20 %, +20 %), read as the
+    command line reads it (:func:`roomconv.jobs.plan.parse_tolerance`)."""
     t = text.strip()
-    if not t:
-        return (-20.0, 20.0)
-    parts = [x.strip() for x in t.split(",")]
-    if len(parts) != 2:
-        raise InputError(f"accepted range '{t}': give LOWER,UPPER in % (e.g. -20,20)")
-    lo = _number(parts[0], "lower end of the accepted range")
-    hi = _number(parts[1], "upper end of the accepted range")
-    if lo is None or hi is None:
-        raise InputError(f"accepted range '{t}': give LOWER,UPPER in % (e.g. -20,20)")
-    return (lo, hi)
+    return (-20.0, 20.0) if not t else parse_tolerance(t)
 
 
 def _chosen(value) -> bool:
