@@ -6,6 +6,8 @@ from typing import Protocol, cast
 
 from textual.dom import DOMNode
 
+from roomconv.errors import RoomconvError
+
 
 class Workbench(Protocol):
     """What the panes use of the app they run in (``tui.app.RoomconvApp``) beyond ``App``:
@@ -30,3 +32,13 @@ def workbench(node: DOMNode) -> Workbench:
 
     Textual types ``node.app`` as a plain ``App``; every pane runs inside ``RoomconvApp``."""
     return cast(Workbench, node.app)
+
+
+def error_text(exc: BaseException | str) -> str:
+    """What a failed job says in the status line: the message of a refusal (our own errors
+    and the system's file errors already name the file), else the error's kind and text."""
+    if isinstance(exc, str):
+        return exc
+    if isinstance(exc, RoomconvError | OSError):
+        return str(exc)
+    return f"{type(exc).__name__}: {exc}"

@@ -32,7 +32,7 @@ from roomconv.analysis.study import Study
 from roomconv.errors import RoomconvError
 from tui.panels import ChannelLayoutPanel, SpeechPanel, TreatmentPanel
 from tui.plots import DecayPlot, DecayTimePlot, EnergyTimePlot, MagnitudePlot
-from tui.screens import workbench
+from tui.screens import error_text, workbench
 
 COLUMNS = ("edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_ms", "inr_db")
 #: Keys of a band row that are not parameters (what the main table and warnings show).
@@ -243,12 +243,7 @@ class AnalyzePane(VerticalScroll):
 
     def report_error(self, title: str, exc: BaseException | str) -> None:
         """Show a failed job's reason; the one place this tab reports errors from."""
-        if isinstance(exc, str):
-            text = exc
-        elif isinstance(exc, RoomconvError | OSError):
-            text = str(exc)
-        else:
-            text = f"{type(exc).__name__}: {exc}"
+        text = error_text(exc)
         # The app's status line keeps the last error (and shows it as a notice too).
         workbench(self).report(title, text, error=True)
         self.query_one("#an-status", Static).update(f"{title} failed: {text}")

@@ -15,10 +15,10 @@ from textual.widgets import Button, DataTable, Input, Label, ProgressBar, Select
 from textual.worker import get_current_worker
 
 from roomconv import validate
-from roomconv.errors import InputError, RoomconvError
+from roomconv.errors import InputError
 from roomconv.jobs.naming import unused_name
 from roomconv.jobs.progress import Cancelled
-from tui.screens import workbench
+from tui.screens import error_text, workbench
 from tui.widgets import level_meter
 
 #: Sample rates offered; "auto" takes a simulated room's own rate, else 48 kHz.
@@ -292,7 +292,7 @@ class MeasurePane(Vertical):
     # --- actions ----------------------------------------------------------------------
     def fail(self, where: str, exc: BaseException) -> None:
         """From a worker: the error on the status line, the bar shown as failed."""
-        text = str(exc) if isinstance(exc, RoomconvError) else f"{type(exc).__name__}: {exc}"
+        text = error_text(exc)
         self.app.call_from_thread(self.query_one("#ms-stage", Static).update, "failed")
         self.app.call_from_thread(self.query_one("#ms-status", Static).update, f"{where} failed")
         workbench(self).report_from_thread(where, text, error=True)

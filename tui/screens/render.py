@@ -15,9 +15,9 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import Button, Checkbox, DataTable, Input, Label, ProgressBar, Select, Static
 
-from roomconv.errors import InputError, RoomconvError
+from roomconv.errors import InputError
 from roomconv.jobs.progress import Cancelled
-from tui.screens import workbench
+from tui.screens import error_text, workbench
 
 #: Normalization modes and the unit of their target (ITU-R BS.1770 for dBTP and LUFS).
 NORMALIZE_UNITS = {"none": "", "peak": "dBFS", "truepeak": "dBTP", "loudness": "LUFS"}
@@ -296,7 +296,7 @@ class RenderPane(Vertical):
         app.call_from_thread(status.update, msg)
 
     def fail(self, exc: BaseException) -> None:
-        text = str(exc) if isinstance(exc, RoomconvError) else f"{type(exc).__name__}: {exc}"
+        text = error_text(exc)
         self.app.call_from_thread(self.query_one("#rn-status", Static).update, "render failed")
         workbench(self).report_from_thread("Render", text, error=True)
 
@@ -328,7 +328,7 @@ class RenderPane(Vertical):
             )
             res = preview(drys[0], ir, self.settings(), confirm=self.confirm, play=self.player)
         except Exception as exc:  # noqa: BLE001 - every failure is shown, none ends the app
-            text = str(exc) if isinstance(exc, RoomconvError) else f"{type(exc).__name__}: {exc}"
+            text = error_text(exc)
             workbench(self).report_from_thread("Preview", text, error=True)
             return
         if res.ok:

@@ -32,7 +32,7 @@ from roomconv.synth.materials import MATERIALS, OCTAVES
 from roomconv.synth.room import SURFACES, RoomModel, eyring, sabine
 from tui.panels import TreatmentPanel
 from tui.plots import RoomPlan
-from tui.screens import workbench
+from tui.screens import error_text, workbench
 
 DEFAULTS = {
     "left": "plaster",
@@ -310,11 +310,7 @@ class RoomPane(Vertical):
 
     def report_error(self, title: str, exc: BaseException) -> None:
         """Show a failed job's reason; the one place the Room tab reports errors from."""
-        text = (
-            str(exc)
-            if isinstance(exc, RoomconvError | OSError)
-            else (f"{type(exc).__name__}: {exc}")
-        )
+        text = error_text(exc)
         # The app's status line keeps the last error (and shows it as a notice too).
         workbench(self).report(title, text, error=True)
         self.query_one("#room-status", Static).update(f"{title} failed: {text}")
